@@ -1,0 +1,539 @@
+//! The physics engine: from a pressure, a temperature and a gas to the
+//! quantities an operator decides with. Pure: no I/O, no clock, SI inside.
+//!
+//! ```
+//! use rarefy::engine::{derive, Conditions, NamedLength, Physics};
+//! use rarefy::engine::mixture::Mixture;
+//! use rarefy::gas::GasTable;
+//!
+//! let table = GasTable::builtin();
+//! let n2 = Mixture::pure(table.get("N2").unwrap().clone());
+//! let lengths = [NamedLength::new("chamber", 0.3)];
+//! let d = derive(&Conditions::new(1e-4, 295.0), &n2, &lengths, &Physics::default());
+//! assert!((d.mean_free_path_m - 66.6).abs() < 0.5);
+//! assert_eq!(d.lengths[0].regime.as_str(), "molecular");
+//! ```
+
+pub mod constants;
+pub mod exposure;
+pub mod gauge;
+pub mod kinetics;
+pub mod mixture;
+pub mod regime;
+
+use serde::{Deserialize, Serialize};
+use std::fmt;
+
+use crate::gas::Gas;
+use crate::units::ATM_PA;
+use constants::molecular_mass;
+use gauge::{CalibrationTable, GaugeKind, Response, TableFit};
+use mixture::Mixture;
+use regime::{FlowRegime, IsoEdition, RegimeBounds, VacuumRange};
+
+/// How the collision diameter depends on temperature.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Model {
+    /// Fixed diameter, the table's value at its reference temperature.
+    HardSphere,
+    /// Sutherland's d(T)² = d_ref² (1 + S/T)/(1 + S/T_ref).
+    #[default]
+    Sutherland,
+}
+
+impl Model {
+    /// The word used on the command line and in configs.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Model::HardSphere => "hard-sphere",
+            Model::Sutherland => "sutherland",
+        }
+    }
+}
+
+impl fmt::Display for Model {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Default adsorption-site density, 1/m² (common practice, no source).
+pub const DEFAULT_SITES_PER_M2: f64 = 1e19;
+
+/// Physics settings.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Physics {
+    /// Diameter model.
+    pub model: Model,
+    /// Knudsen bounds of the flow regimes.
+    pub bounds: RegimeBounds,
+    /// ISO 3529-1 edition for the vacuum ranges.
+    pub edition: IsoEdition,
+    /// Adsorption sites per m² for the monolayer time.
+    pub sites_per_m2: f64,
+    /// Sticking coefficient, 0 < s ≤ 1.
+    pub sticking: f64,
+}
+
+impl Default for Physics {
+    fn default() -> Self {
+        Physics {
+            model: Model::default(),
+            bounds: RegimeBounds::default(),
+            edition: IsoEdition::default(),
+            sites_per_m2: DEFAULT_SITES_PER_M2,
+            sticking: 1.0,
+        }
+    }
+}
+
+/// A named length for Knudsen numbers (chamber bore, pumping line, source to
+/// substrate distance …).
+#[derive(Debug, Clone, PartialEq)]
+pub struct NamedLength {
+    /// Name shown in output.
+    pub name: String,
+    /// Length, m.
+    pub length_m: f64,
+}
+
+impl NamedLength {
+    /// A named length in metres.
+    pub fn new(name: impl Into<String>, length_m: f64) -> Self {
+        NamedLength {
+            name: name.into(),
+            length_m,
+        }
+    }
+}
+
+/// The state of the gas: true pressure and temperature.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Conditions {
+    /// Pa (after any gauge correction).
+    pub pressure_pa: f64,
+    /// K.
+    pub temperature_k: f64,
+}
+
+impl Conditions {
+    /// Pressure in Pa, temperature in K.
+    pub fn new(pressure_pa: f64, temperature_k: f64) -> Self {
+        Conditions {
+            pressure_pa,
+            temperature_k,
+        }
+    }
+}
+
+/// Something the user should know about a result: an input outside a model's
+/// validity, an extrapolation, an assumption.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Warning {
+    /// Stable machine-readable code, e.g. `temperature-outside-fit`.
+    pub code: &'static str,
+    /// Human text.
+    pub message: String,
+}
+
+impl Warning {
+    fn new(code: &'static str, message: String) -> Self {
+        Warning { code, message }
+    }
+}
+
+impl fmt::Display for Warning {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.message)
+    }
+}
+
+/// Derived quantities of one species.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SpeciesDerived {
+    /// Gas id.
+    pub gas: String,
+    /// Mole fraction.
+    pub fraction: f64,
+    /// Partial pressure, Pa.
+    pub partial_pressure_pa: f64,
+    /// Number density, 1/m³.
+    pub number_density_per_m3: f64,
+    /// Mean speed, m/s.
+    pub mean_speed_m_per_s: f64,
+    /// Collision diameter used, m.
+    pub diameter_m: f64,
+    /// Mean free path of this species among all, m.
+    pub mean_free_path_m: f64,
+    /// Wall impingement rate, 1/(m² s).
+    pub impingement_per_m2_s: f64,
+    /// Time to a monolayer from this species alone, s.
+    pub monolayer_time_s: f64,
+}
+
+/// Knudsen number and regime for one named length.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LengthDerived {
+    /// Name.
+    pub name: String,
+    /// Length, m.
+    pub length_m: f64,
+    /// Kn = λ/L.
+    pub knudsen: f64,
+    /// Flow regime.
+    pub regime: FlowRegime,
+}
+
+/// Everything the engine derives from one state of the gas.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Derived {
+    /// Total number density, 1/m³.
+    pub number_density_per_m3: f64,
+    /// Mean speed over all molecules (Σ x_i v̄_i), m/s.
+    pub mean_speed_m_per_s: f64,
+    /// Most probable speed at the mean molecular mass, m/s.
+    pub most_probable_speed_m_per_s: f64,
+    /// RMS speed over all molecules (√Σ x_i v²_rms,i), m/s.
+    pub rms_speed_m_per_s: f64,
+    /// Mean free path; for a mixture the mole-fraction-weighted mean of the
+    /// species values, m.
+    pub mean_free_path_m: f64,
+    /// Total wall impingement rate (sum over species), 1/(m² s).
+    pub impingement_per_m2_s: f64,
+    /// Time to a monolayer from all species, s.
+    pub monolayer_time_s: f64,
+    /// ISO 3529-1 vacuum range.
+    pub vacuum_range: VacuumRange,
+    /// Per species.
+    pub species: Vec<SpeciesDerived>,
+    /// Per named length.
+    pub lengths: Vec<LengthDerived>,
+    /// Inputs outside a model's validity, and the like.
+    pub warnings: Vec<Warning>,
+}
+
+/// Collision diameter of `gas` at `t_k` under `model`, with a warning when the
+/// temperature is outside the range the diameter was fitted over.
+pub fn diameter(gas: &Gas, model: Model, t_k: f64, warnings: &mut Vec<Warning>) -> f64 {
+    let (lo, hi) = gas.fit_range_k;
+    if !(lo..=hi).contains(&t_k) {
+        warnings.push(Warning::new(
+            "temperature-outside-fit",
+            format!(
+                "{t:.1} K is outside {lo:.2}-{hi:.0} K, where the {} diameter of {} was fitted; \
+                 its mean free path is extrapolated",
+                model.as_str(),
+                gas.id,
+                t = t_k
+            ),
+        ));
+    }
+    match (model, gas.sutherland_k) {
+        (Model::HardSphere, _) => gas.diameter_m,
+        (Model::Sutherland, Some(s)) => {
+            kinetics::sutherland_diameter(gas.diameter_m, gas.reference_temperature_k, s, t_k)
+        }
+        (Model::Sutherland, None) => {
+            warnings.push(Warning::new(
+                "no-sutherland-constant",
+                format!(
+                    "{} has no Sutherland constant; its diameter is held fixed (hard-sphere)",
+                    gas.id
+                ),
+            ));
+            gas.diameter_m
+        }
+    }
+}
+
+/// Derives every quantity for a gas or mixture in the given state.
+///
+/// Mixtures (per species i, over species j):
+/// λ_i = 1 / Σ_j n_j π d_ij² √(1 + m_i/m_j), d_ij = (d_i + d_j)/2;
+/// Φ_i = p_i/√(2π m_i k_B T); τ = N_s/(s Σ Φ_i).
+pub fn derive(
+    conditions: &Conditions,
+    mixture: &Mixture,
+    lengths: &[NamedLength],
+    physics: &Physics,
+) -> Derived {
+    let p = conditions.pressure_pa;
+    let t = conditions.temperature_k;
+    let mut warnings = Vec::new();
+    if p > ATM_PA * 1.05 {
+        warnings.push(Warning::new(
+            "above-atmospheric",
+            format!("{p:.3e} Pa is above atmospheric pressure: not a vacuum"),
+        ));
+    }
+    let n_total = kinetics::number_density(p, t);
+    let comps = mixture.components();
+    let masses: Vec<f64> = comps
+        .iter()
+        .map(|c| molecular_mass(c.gas.molar_mass_g_mol))
+        .collect();
+    let diameters: Vec<f64> = comps
+        .iter()
+        .map(|c| diameter(&c.gas, physics.model, t, &mut warnings))
+        .collect();
+
+    let mut species = Vec::with_capacity(comps.len());
+    for (i, c) in comps.iter().enumerate() {
+        let p_i = p * c.fraction;
+        let inv_mfp: f64 = comps
+            .iter()
+            .enumerate()
+            .map(|(j, cj)| {
+                let d_ij = 0.5 * (diameters[i] + diameters[j]);
+                n_total
+                    * cj.fraction
+                    * std::f64::consts::PI
+                    * d_ij
+                    * d_ij
+                    * (1.0 + masses[i] / masses[j]).sqrt()
+            })
+            .sum();
+        let phi = kinetics::impingement_rate(p_i, t, masses[i]);
+        species.push(SpeciesDerived {
+            gas: c.gas.id.clone(),
+            fraction: c.fraction,
+            partial_pressure_pa: p_i,
+            number_density_per_m3: n_total * c.fraction,
+            mean_speed_m_per_s: kinetics::mean_speed(t, masses[i]),
+            diameter_m: diameters[i],
+            mean_free_path_m: 1.0 / inv_mfp,
+            impingement_per_m2_s: phi,
+            monolayer_time_s: kinetics::monolayer_time(
+                physics.sites_per_m2,
+                physics.sticking,
+                phi,
+            ),
+        });
+    }
+
+    let weighted = |f: &dyn Fn(usize, &SpeciesDerived) -> f64| -> f64 {
+        species.iter().enumerate().map(|(i, s)| s.fraction * f(i, s)).sum()
+    };
+    let mean_free_path_m = weighted(&|_, s| s.mean_free_path_m);
+    let mean_speed = weighted(&|_, s| s.mean_speed_m_per_s);
+    let mean_mass = weighted(&|i, _| masses[i]);
+    let rms_sq = weighted(&|i, _| kinetics::rms_speed(t, masses[i]).powi(2));
+    let impingement: f64 = species.iter().map(|s| s.impingement_per_m2_s).sum();
+
+    let lengths = lengths
+        .iter()
+        .map(|l| {
+            let kn = regime::knudsen(mean_free_path_m, l.length_m);
+            LengthDerived {
+                name: l.name.clone(),
+                length_m: l.length_m,
+                knudsen: kn,
+                regime: physics.bounds.classify(kn),
+            }
+        })
+        .collect();
+
+    Derived {
+        number_density_per_m3: n_total,
+        mean_speed_m_per_s: mean_speed,
+        most_probable_speed_m_per_s: kinetics::most_probable_speed(t, mean_mass),
+        rms_speed_m_per_s: rms_sq.sqrt(),
+        mean_free_path_m,
+        impingement_per_m2_s: impingement,
+        monolayer_time_s: kinetics::monolayer_time(
+            physics.sites_per_m2,
+            physics.sticking,
+            impingement,
+        ),
+        vacuum_range: physics.edition.classify(p),
+        species,
+        lengths,
+        warnings,
+    }
+}
+
+/// What stops a gauge's reading from being corrected for the gas.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum GaugeError {
+    /// A gas in the mixture has no sensitivity for this gauge element.
+    #[error(
+        "no {element} gauge sensitivity is known for {gas}; give one (reading / true pressure, relative to N2) or a calibration table"
+    )]
+    NoSensitivity {
+        /// Gauge element.
+        element: GaugeKind,
+        /// Gas id.
+        gas: String,
+    },
+    /// A user sensitivity that is not a positive number.
+    #[error("gauge sensitivity must be a positive number, got {0}")]
+    BadSensitivity(f64),
+}
+
+/// A gauge set up for the chamber's gas: how to turn its readings into true
+/// pressure, and the range it can be trusted in.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GaugeModel {
+    /// Kind of gauge.
+    pub kind: GaugeKind,
+    /// Response of the ionization element (ionization and combined gauges).
+    ionization: Response,
+    /// Response of the thermal element (thermal and combined gauges).
+    thermal: Response,
+    /// Range in which readings are trusted, Pa (low, high).
+    pub range_pa: Option<(f64, f64)>,
+}
+
+/// Overrides for a gauge's gas response.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct GaugeOverrides {
+    /// Sensitivity of the ionization element (or of a thermal gauge's only
+    /// element), replacing the table's.
+    pub sensitivity: Option<f64>,
+    /// Sensitivity of a combined gauge's thermal element.
+    pub thermal_sensitivity: Option<f64>,
+    /// A calibration table replacing any factor.
+    pub table: Option<CalibrationTable>,
+    /// Trusted range, Pa, replacing the kind's typical range.
+    pub range_pa: Option<(f64, f64)>,
+}
+
+/// A reading corrected for the gas.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Corrected {
+    /// True pressure, Pa.
+    pub pressure_pa: f64,
+    /// Sensitivity factor applied (1 for a direct reading), or `None` for a
+    /// calibration table.
+    pub sensitivity: Option<f64>,
+    /// Range and extrapolation warnings.
+    pub warnings: Vec<Warning>,
+}
+
+impl GaugeModel {
+    /// Resolves a gauge's response for `mixture` from the gas table and the
+    /// overrides.
+    pub fn new(
+        kind: GaugeKind,
+        mixture: &Mixture,
+        overrides: &GaugeOverrides,
+    ) -> Result<Self, GaugeError> {
+        for s in [overrides.sensitivity, overrides.thermal_sensitivity]
+            .into_iter()
+            .flatten()
+        {
+            if !(s.is_finite() && s > 0.0) {
+                return Err(GaugeError::BadSensitivity(s));
+            }
+        }
+        let factor = |element: GaugeKind, user: Option<f64>| -> Result<Response, GaugeError> {
+            if let Some(table) = &overrides.table {
+                return Ok(Response::Table(table.clone()));
+            }
+            if let Some(s) = user {
+                return Ok(Response::Sensitivity(s));
+            }
+            let parts = mixture
+                .components()
+                .iter()
+                .map(|c| {
+                    let s = match element {
+                        GaugeKind::Ionization => c.gas.ion_sensitivity,
+                        _ => c.gas.thermal_sensitivity,
+                    };
+                    s.map(|s| (c.fraction, s))
+                        .ok_or_else(|| GaugeError::NoSensitivity {
+                            element,
+                            gas: c.gas.id.clone(),
+                        })
+                })
+                .collect::<Result<Vec<_>, _>>()?;
+            Ok(Response::Sensitivity(gauge::mixture_sensitivity(parts)))
+        };
+        let (ionization, thermal) = match kind {
+            GaugeKind::Capacitance => (Response::Direct, Response::Direct),
+            GaugeKind::Ionization => {
+                let r = factor(GaugeKind::Ionization, overrides.sensitivity)?;
+                (r.clone(), r)
+            }
+            GaugeKind::Thermal => {
+                let r = factor(GaugeKind::Thermal, overrides.sensitivity)?;
+                (r.clone(), r)
+            }
+            GaugeKind::Combined => (
+                factor(GaugeKind::Ionization, overrides.sensitivity)?,
+                factor(GaugeKind::Thermal, overrides.thermal_sensitivity)?,
+            ),
+        };
+        Ok(GaugeModel {
+            kind,
+            ionization,
+            thermal,
+            range_pa: overrides.range_pa.or(kind.typical_range_pa()),
+        })
+    }
+
+    /// Corrects an indicated reading, flagging one outside the gauge's range
+    /// or outside its calibration table.
+    pub fn correct(&self, indicated_pa: f64) -> Corrected {
+        let mut warnings = Vec::new();
+        if let Some((lo, hi)) = self.range_pa
+            && !(lo..=hi).contains(&indicated_pa)
+        {
+            let source = if self.range_pa == self.kind.typical_range_pa() {
+                "the usual range of a"
+            } else {
+                "the configured range of this"
+            };
+            warnings.push(Warning::new(
+                "gauge-out-of-range",
+                format!(
+                    "reading {indicated_pa:.3e} Pa is outside {source} {} gauge ({lo:.0e}-{hi:.1e} Pa)",
+                    self.kind
+                ),
+            ));
+        }
+        let response = match self.kind.element(indicated_pa) {
+            GaugeKind::Ionization => &self.ionization,
+            _ => &self.thermal,
+        };
+        let (pressure_pa, fit) = response.correct(indicated_pa);
+        if let TableFit::Extrapolated { min_pa, max_pa } = fit {
+            warnings.push(Warning::new(
+                "calibration-extrapolated",
+                format!(
+                    "reading {indicated_pa:.3e} Pa is outside the calibration table \
+                     ({min_pa:.3e}-{max_pa:.3e} Pa); the end segment was extended"
+                ),
+            ));
+        }
+        if self.kind == GaugeKind::Thermal || self.kind.element(indicated_pa) == GaugeKind::Thermal
+        {
+            if let Response::Sensitivity(s) = response
+                && *s != 1.0
+                && indicated_pa > 100.0
+            {
+                warnings.push(Warning::new(
+                    "thermal-factor-nonlinear",
+                    "a constant gas factor for a thermal gauge holds only in its linear range \
+                     (below about 1 mbar); above, use a calibration table"
+                        .to_string(),
+                ));
+            }
+        }
+        let sensitivity = match response {
+            Response::Direct => Some(1.0),
+            Response::Sensitivity(s) => Some(*s),
+            Response::Table(_) => None,
+        };
+        Corrected {
+            pressure_pa,
+            sensitivity,
+            warnings,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests;

@@ -1,0 +1,249 @@
+//! Knudsen number, flow regime and the ISO 3529-1 vacuum ranges.
+
+use serde::{Deserialize, Serialize};
+use std::fmt;
+
+/// Flow regime of a gas in a duct or gap of a given size.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum FlowRegime {
+    /// Continuum (viscous) flow: collisions between molecules dominate.
+    Viscous,
+    /// Between the two.
+    Transitional,
+    /// Free-molecular flow: collisions with the walls dominate.
+    Molecular,
+}
+
+impl FlowRegime {
+    /// The word used in output and configs.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            FlowRegime::Viscous => "viscous",
+            FlowRegime::Transitional => "transitional",
+            FlowRegime::Molecular => "molecular",
+        }
+    }
+}
+
+impl fmt::Display for FlowRegime {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Knudsen-number bounds between the regimes. Conventions differ between
+/// fields, so they are settings.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RegimeBounds {
+    /// Flow is viscous when Kn is below this.
+    pub viscous_below: f64,
+    /// Flow is molecular when Kn is above this.
+    pub molecular_above: f64,
+}
+
+impl Default for RegimeBounds {
+    /// Kn < 0.01 viscous, Kn > 0.5 molecular (common vacuum practice, no
+    /// source; European vacuum handbooks).
+    fn default() -> Self {
+        RegimeBounds {
+            viscous_below: 0.01,
+            molecular_above: 0.5,
+        }
+    }
+}
+
+impl RegimeBounds {
+    /// Checks that the bounds are positive and ordered.
+    pub fn validate(&self) -> Result<(), String> {
+        let ok = |x: f64| x.is_finite() && x > 0.0;
+        if !ok(self.viscous_below) || !ok(self.molecular_above) {
+            return Err("Knudsen bounds must be positive numbers".into());
+        }
+        if self.viscous_below >= self.molecular_above {
+            return Err(format!(
+                "viscous_below ({}) must be smaller than molecular_above ({})",
+                self.viscous_below, self.molecular_above
+            ));
+        }
+        Ok(())
+    }
+
+    /// The regime for Knudsen number `kn`: viscous for Kn < lower, molecular
+    /// for Kn > upper, transitional in between (both bounds included).
+    pub fn classify(&self, kn: f64) -> FlowRegime {
+        if kn < self.viscous_below {
+            FlowRegime::Viscous
+        } else if kn > self.molecular_above {
+            FlowRegime::Molecular
+        } else {
+            FlowRegime::Transitional
+        }
+    }
+}
+
+/// Knudsen number Kn = λ/L.
+pub fn knudsen(mean_free_path_m: f64, length_m: f64) -> f64 {
+    mean_free_path_m / length_m
+}
+
+/// Vacuum range names of ISO 3529-1.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum VacuumRange {
+    /// Low (rough) vacuum.
+    Low,
+    /// Medium vacuum.
+    Medium,
+    /// High vacuum.
+    High,
+    /// Ultra-high vacuum.
+    UltraHigh,
+    /// Extreme-high vacuum (2019 edition only).
+    ExtremeHigh,
+}
+
+impl VacuumRange {
+    /// The word used in output and configs.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            VacuumRange::Low => "low",
+            VacuumRange::Medium => "medium",
+            VacuumRange::High => "high",
+            VacuumRange::UltraHigh => "ultra-high",
+            VacuumRange::ExtremeHigh => "extreme-high",
+        }
+    }
+}
+
+impl fmt::Display for VacuumRange {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Edition of ISO 3529-1 whose range limits are used.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+pub enum IsoEdition {
+    /// ISO 3529-1:1981 (same limits as DIN 28400-1): high vacuum down to
+    /// 1e-5 Pa, ultra-high below; no extreme-high range.
+    #[serde(rename = "1981")]
+    Ed1981,
+    /// ISO 3529-1:2019: high vacuum down to 1e-6 Pa, ultra-high to 1e-9 Pa,
+    /// extreme-high below. The standard calls its limits approximate.
+    #[default]
+    #[serde(rename = "2019")]
+    Ed2019,
+}
+
+impl IsoEdition {
+    /// The year, as written in configs.
+    pub fn year(self) -> u16 {
+        match self {
+            IsoEdition::Ed1981 => 1981,
+            IsoEdition::Ed2019 => 2019,
+        }
+    }
+
+    /// Edition by year.
+    pub fn from_year(year: i64) -> Option<Self> {
+        match year {
+            1981 => Some(IsoEdition::Ed1981),
+            2019 => Some(IsoEdition::Ed2019),
+            _ => None,
+        }
+    }
+
+    /// Lower limits, Pa, of each range from `Low` downwards; a pressure at a
+    /// limit belongs to the range above it (100 Pa is low vacuum).
+    // Limits: ISO 3529-1 as recorded in REFERENCES.md (c, from memory; the
+    // 2019 text calls them approximate).
+    fn lower_limits(self) -> &'static [(VacuumRange, f64)] {
+        match self {
+            IsoEdition::Ed2019 => &[
+                (VacuumRange::Low, 100.0),
+                (VacuumRange::Medium, 0.1),
+                (VacuumRange::High, 1e-6),
+                (VacuumRange::UltraHigh, 1e-9),
+                (VacuumRange::ExtremeHigh, 0.0),
+            ],
+            IsoEdition::Ed1981 => &[
+                (VacuumRange::Low, 100.0),
+                (VacuumRange::Medium, 0.1),
+                (VacuumRange::High, 1e-5),
+                (VacuumRange::UltraHigh, 0.0),
+            ],
+        }
+    }
+
+    /// The vacuum range of `pressure_pa`.
+    pub fn classify(self, pressure_pa: f64) -> VacuumRange {
+        self.lower_limits()
+            .iter()
+            .find(|&&(_, lower)| pressure_pa >= lower)
+            .map_or(VacuumRange::Low, |&(r, _)| r)
+    }
+
+    /// The upper and lower pressure limits (Pa) of a range in this edition;
+    /// `None` when the edition has no such range.
+    pub fn limits(self, range: VacuumRange) -> Option<(f64, f64)> {
+        let limits = self.lower_limits();
+        let i = limits.iter().position(|&(r, _)| r == range)?;
+        let upper = if i == 0 { f64::INFINITY } else { limits[i - 1].1 };
+        Some((upper, limits[i].1))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn regimes_follow_the_bounds_inclusively() {
+        let b = RegimeBounds::default();
+        assert_eq!(b.classify(0.009_999), FlowRegime::Viscous);
+        assert_eq!(b.classify(0.01), FlowRegime::Transitional);
+        assert_eq!(b.classify(0.5), FlowRegime::Transitional);
+        assert_eq!(b.classify(0.500_001), FlowRegime::Molecular);
+        let us = RegimeBounds {
+            viscous_below: 0.01,
+            molecular_above: 1.0,
+        };
+        assert_eq!(us.classify(0.7), FlowRegime::Transitional);
+        assert!(
+            RegimeBounds {
+                viscous_below: 1.0,
+                molecular_above: 0.5
+            }
+            .validate()
+            .is_err()
+        );
+    }
+
+    #[test]
+    fn iso_3529_1_2019_ranges() {
+        // Limits: ISO 3529-1:2019 as recorded in REFERENCES.md (c, from memory).
+        let e = IsoEdition::Ed2019;
+        assert_eq!(e.classify(101_325.0), VacuumRange::Low);
+        assert_eq!(e.classify(100.0), VacuumRange::Low);
+        assert_eq!(e.classify(99.9), VacuumRange::Medium);
+        assert_eq!(e.classify(0.1), VacuumRange::Medium);
+        assert_eq!(e.classify(0.099), VacuumRange::High);
+        assert_eq!(e.classify(1e-6), VacuumRange::High);
+        assert_eq!(e.classify(9.9e-7), VacuumRange::UltraHigh);
+        assert_eq!(e.classify(1e-9), VacuumRange::UltraHigh);
+        assert_eq!(e.classify(1e-10), VacuumRange::ExtremeHigh);
+    }
+
+    #[test]
+    fn iso_3529_1_1981_ranges() {
+        // Limits: ISO 3529-1:1981 / DIN 28400-1 as recorded in REFERENCES.md
+        // (c, from memory).
+        let e = IsoEdition::Ed1981;
+        assert_eq!(e.classify(1e-5), VacuumRange::High);
+        assert_eq!(e.classify(9e-6), VacuumRange::UltraHigh);
+        assert_eq!(e.classify(1e-12), VacuumRange::UltraHigh);
+        assert_eq!(e.limits(VacuumRange::ExtremeHigh), None);
+        assert_eq!(e.limits(VacuumRange::High), Some((0.1, 1e-5)));
+    }
+}
