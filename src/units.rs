@@ -165,7 +165,7 @@ pub trait UnitKind: Copy + PartialEq + fmt::Debug + 'static {
 macro_rules! unit_family {
     (
         $(#[$meta:meta])*
-        $name:ident, $kind:literal, $example:literal {
+        $name:ident, $kind:literal, $example:literal $(, check = $check:path)? {
             $( $(#[$vmeta:meta])* $variant:ident => $symbol:literal [$($alias:literal),*] * $factor:expr ),+ $(,)?
         }
     ) => {
@@ -190,6 +190,17 @@ macro_rules! unit_family {
             }
             fn from_si(self, si: f64) -> f64 {
                 match self { $($name::$variant => si / $factor),+ }
+            }
+            $(
+            fn check(si: f64, text: &str) -> Result<(), UnitError> {
+                $check(si, text)
+            }
+            )?
+        }
+
+        impl<'de> serde::Deserialize<'de> for $name {
+            fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+                deserialize_unit(d)
             }
         }
     };
@@ -263,7 +274,7 @@ unit_family! {
 
 unit_family! {
     /// Time (duration) units.
-    TimeUnit, "duration", "120 s" {
+    TimeUnit, "duration", "120 s", check = check_duration {
         /// second
         S => "s" ["sec", "second", "seconds"] * 1.0,
         /// millisecond
@@ -333,7 +344,7 @@ impl UnitKind for TemperatureUnit {
 }
 
 /// A duration may be zero (no delay) but not negative.
-fn check_duration(si: f64, text: &str) -> Result<(), UnitError> {
+pub fn check_duration(si: f64, text: &str) -> Result<(), UnitError> {
     if si >= 0.0 {
         Ok(())
     } else {
@@ -473,7 +484,44 @@ fn parse_with<U: UnitKind>(
 
 /// Parses a duration (`"120 s"`, `"2 min"`, `"0 s"`); zero is allowed.
 pub fn parse_duration(text: &str) -> Result<Duration, UnitError> {
-    parse_with(text, check_duration)
+    parse::<TimeUnit>(text)
+}
+
+/// Deserializes a unit symbol (`"mbar"`) of family `U`.
+fn deserialize_unit<'de, U: UnitKind, D: serde::Deserializer<'de>>(d: D) -> Result<U, D::Error> {
+    let text = <String as serde::Deserialize>::deserialize(d)?;
+    U::lookup(text.trim()).ok_or_else(|| {
+        let hint = crate::suggest::nearest(&text, U::ALL.iter().map(|u| u.symbol()))
+            .map(|s| format!(" (did you mean \"{s}\"?)"))
+            .unwrap_or_default();
+        serde::de::Error::custom(format!(
+            "unknown {} unit \"{text}\"{hint}; expected one of {}",
+            U::KIND,
+            U::expected()
+        ))
+    })
+}
+
+impl<'de> serde::Deserialize<'de> for TemperatureUnit {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        deserialize_unit(d)
+    }
+}
+
+impl<'de, U: UnitKind> serde::Deserialize<'de> for Quantity<U> {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V<U>(std::marker::PhantomData<U>);
+        impl<U: UnitKind> serde::de::Visitor<'_> for V<U> {
+            type Value = Quantity<U>;
+            fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                write!(f, "a {} with its unit, e.g. \"{}\"", U::KIND, U::EXAMPLE)
+            }
+            fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<Self::Value, E> {
+                parse::<U>(v).map_err(E::custom)
+            }
+        }
+        d.deserialize_str(V(std::marker::PhantomData))
+    }
 }
 
 /// Parses a plain positive finite number (no unit), e.g. a site density.

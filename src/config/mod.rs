@@ -1,1 +1,480 @@
-//! Configuration.
+//! The TOML configuration: what the file may say ([`file`] types, every key
+//! checked, unknown keys refused with a suggestion) and the resolved
+//! [`Config`] the rest of the program uses.
+//!
+//! Errors name the file, line and column; several problems in one file are
+//! reported together.
+
+mod error;
+pub mod file;
+
+use std::path::{Path, PathBuf};
+
+pub use error::{ConfigError, ConfigErrors};
+
+use crate::engine::gauge::{CalibrationTable, GaugeKind};
+use crate::engine::mixture::Mixture;
+use crate::engine::regime::{IsoEdition, RegimeBounds};
+use crate::engine::{GaugeModel, GaugeOverrides, Model, NamedLength, Physics};
+use crate::gas::{Gas, GasSources, GasTable, T_REF_K};
+use crate::units::{PressureUnit, TemperatureUnit, UnitKind, format_sig};
+
+/// The chamber being watched.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Chamber {
+    /// Name shown on screen and written into logs.
+    pub name: String,
+    /// Volume, m³ (for leak rates and pumping speeds).
+    pub volume_m3: Option<f64>,
+    /// Inner surface area, m² (for outgassing rates).
+    pub surface_area_m2: Option<f64>,
+    /// Gas temperature to assume when no gauge measures it, K.
+    pub temperature_k: Option<f64>,
+}
+
+/// A gauge as configured, with its gas response resolved.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GaugeConfig {
+    /// Short id, also the channel name in logs.
+    pub id: String,
+    /// Human label.
+    pub label: String,
+    /// Kind of gauge.
+    pub kind: GaugeKind,
+    /// Gas the gauge sees (the chamber's, or the gauge's own override).
+    pub mixture: Mixture,
+    /// Reading → true pressure.
+    pub model: GaugeModel,
+}
+
+/// Display preferences.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Display {
+    /// Unit pressures are shown in.
+    pub pressure_unit: PressureUnit,
+    /// Unit temperatures are shown in.
+    pub temperature_unit: TemperatureUnit,
+    /// Length of the trend history, s.
+    pub history_s: f64,
+}
+
+impl Default for Display {
+    fn default() -> Self {
+        Display {
+            pressure_unit: PressureUnit::Mbar,
+            temperature_unit: TemperatureUnit::C,
+            history_s: 3600.0,
+        }
+    }
+}
+
+/// A checked, resolved configuration.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Config {
+    /// Where it was read from; `None` for the built-in defaults.
+    pub path: Option<PathBuf>,
+    /// The chamber.
+    pub chamber: Chamber,
+    /// Built-in and user gases.
+    pub gases: GasTable,
+    /// The chamber's gas.
+    pub mixture: Mixture,
+    /// Gauges.
+    pub gauges: Vec<GaugeConfig>,
+    /// Named lengths for Knudsen numbers.
+    pub lengths: Vec<NamedLength>,
+    /// Physics settings.
+    pub physics: Physics,
+    /// Display preferences.
+    pub display: Display,
+}
+
+impl Default for Config {
+    fn default() -> Self {
+        let gases = GasTable::builtin();
+        let n2 = gases.get("N2").expect("built-in gas table has N2").clone();
+        Config {
+            path: None,
+            chamber: Chamber::default(),
+            mixture: Mixture::pure(n2),
+            gases,
+            gauges: Vec::new(),
+            lengths: Vec::new(),
+            physics: Physics::default(),
+            display: Display::default(),
+        }
+    }
+}
+
+/// Reads and checks a configuration file.
+pub fn load(path: &Path) -> Result<Config, ConfigErrors> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| ConfigError::file(path, format!("cannot read the file: {e}")))?;
+    parse(&text, path)
+}
+
+/// Parses and checks configuration text; `path` is used in messages.
+pub fn parse(text: &str, path: &Path) -> Result<Config, ConfigErrors> {
+    let raw: file::ConfigFile = toml::from_str(text).map_err(|e| {
+        let span = e.span().unwrap_or(0..0);
+        let section = error::section_at(text, span.start);
+        let message = error::explain_serde_message(e.message(), section.as_deref());
+        ConfigError::at(path, text, span, message)
+    })?;
+    Resolver {
+        path,
+        text,
+        errors: Vec::new(),
+    }
+    .resolve(raw)
+}
+
+struct Resolver<'a> {
+    path: &'a Path,
+    text: &'a str,
+    errors: Vec<ConfigError>,
+}
+
+impl Resolver<'_> {
+    fn err(&mut self, span: std::ops::Range<usize>, message: impl Into<String>) {
+        self.errors
+            .push(ConfigError::at(self.path, self.text, span, message));
+    }
+
+    fn resolve(mut self, raw: file::ConfigFile) -> Result<Config, ConfigErrors> {
+        let mut config = Config {
+            path: Some(self.path.to_path_buf()),
+            ..Config::default()
+        };
+        if let Some(c) = raw.chamber {
+            config.chamber = Chamber {
+                name: c.name.unwrap_or_default(),
+                volume_m3: c.volume.map(|v| v.si),
+                surface_area_m2: c.surface_area.map(|a| a.si),
+                temperature_k: c.temperature.map(|t| t.si),
+            };
+        }
+        if let Some(p) = raw.physics {
+            config.physics = self.physics(p);
+        }
+        if let Some(d) = raw.display {
+            let defaults = Display::default();
+            config.display = Display {
+                pressure_unit: d.pressure_unit.unwrap_or(defaults.pressure_unit),
+                temperature_unit: d.temperature_unit.unwrap_or(defaults.temperature_unit),
+                history_s: match d.history {
+                    Some(h) if h.get_ref().si <= 0.0 => {
+                        self.err(h.span(), "history must be longer than zero");
+                        defaults.history_s
+                    }
+                    Some(h) => h.get_ref().si,
+                    None => defaults.history_s,
+                },
+            };
+        }
+        if let Some(g) = raw.gas {
+            for custom in g.custom {
+                self.custom_gas(&mut config.gases, custom);
+            }
+            match (g.species, g.mix) {
+                (Some(_), Some(m)) => self.err(
+                    m.span(),
+                    "give either `species` or `mix` in [gas], not both",
+                ),
+                (Some(s), None) | (None, Some(s)) => {
+                    if let Some(m) = self.mixture(&config.gases, &s) {
+                        config.mixture = m;
+                    }
+                }
+                (None, None) => {}
+            }
+        }
+        let mut seen = Vec::<String>::new();
+        for l in raw.length {
+            let name = l.name.get_ref().trim().to_string();
+            if name.is_empty() {
+                self.err(l.name.span(), "a length needs a non-empty name");
+            } else if seen.contains(&name) {
+                self.err(l.name.span(), format!("length `{name}` is defined twice"));
+            } else {
+                seen.push(name.clone());
+                config.lengths.push(NamedLength::new(name, l.length.si));
+            }
+        }
+        let mut ids = Vec::<String>::new();
+        for g in raw.gauge {
+            let id = g.id.get_ref().trim().to_string();
+            if id.is_empty() || !id.chars().all(|c| c.is_ascii_alphanumeric() || "_-.".contains(c))
+            {
+                self.err(
+                    g.id.span(),
+                    "a gauge id must be non-empty and use only letters, digits, '_', '-' and '.'",
+                );
+                continue;
+            }
+            if ids.contains(&id) {
+                self.err(g.id.span(), format!("gauge id `{id}` is used twice"));
+                continue;
+            }
+            ids.push(id.clone());
+            if let Some(gauge) = self.gauge(&config, id, g) {
+                config.gauges.push(gauge);
+            }
+        }
+        if self.errors.is_empty() {
+            Ok(config)
+        } else {
+            Err(ConfigErrors(self.errors))
+        }
+    }
+
+    fn physics(&mut self, p: file::PhysicsSection) -> Physics {
+        let d = Physics::default();
+        let mut out = Physics {
+            model: p.model.unwrap_or(d.model),
+            ..d
+        };
+        let bounds = RegimeBounds {
+            viscous_below: p.viscous_below.as_ref().map_or(d.bounds.viscous_below, |s| *s.get_ref()),
+            molecular_above: p
+                .molecular_above
+                .as_ref()
+                .map_or(d.bounds.molecular_above, |s| *s.get_ref()),
+        };
+        match bounds.validate() {
+            Ok(()) => out.bounds = bounds,
+            Err(msg) => {
+                let span = p
+                    .viscous_below
+                    .as_ref()
+                    .or(p.molecular_above.as_ref())
+                    .map_or(0..0, |s| s.span());
+                self.err(span, msg);
+            }
+        }
+        if let Some(e) = p.iso_edition {
+            match IsoEdition::from_year(*e.get_ref()) {
+                Some(ed) => out.edition = ed,
+                None => self.err(
+                    e.span(),
+                    format!("unknown ISO 3529-1 edition {}; expected 1981 or 2019", e.get_ref()),
+                ),
+            }
+        }
+        if let Some(s) = p.sites_per_m2 {
+            let v = *s.get_ref();
+            if v.is_finite() && v > 0.0 {
+                out.sites_per_m2 = v;
+            } else {
+                self.err(s.span(), "sites_per_m2 must be a positive number (e.g. 1e19)");
+            }
+        }
+        if let Some(s) = p.sticking {
+            let v = *s.get_ref();
+            if v.is_finite() && v > 0.0 && v <= 1.0 {
+                out.sticking = v;
+            } else {
+                self.err(s.span(), "sticking must be greater than 0 and at most 1");
+            }
+        }
+        out
+    }
+
+    fn mixture(&mut self, table: &GasTable, text: &toml::Spanned<String>) -> Option<Mixture> {
+        match Mixture::parse(text.get_ref(), table) {
+            Ok(m) => Some(m),
+            Err(e) => {
+                self.err(text.span(), e.to_string());
+                None
+            }
+        }
+    }
+
+    fn custom_gas(&mut self, table: &mut GasTable, g: file::CustomGas) {
+        let id = g.id.get_ref().trim().to_string();
+        let gas = Gas {
+            name: g.name.unwrap_or_else(|| id.clone()),
+            id,
+            molar_mass_g_mol: g.molar_mass,
+            diameter_m: g.diameter.si,
+            reference_temperature_k: g.reference_temperature.map_or(T_REF_K, |t| t.si),
+            sutherland_k: g.sutherland.map(|t| t.si),
+            fit_range_k: g
+                .valid_range
+                .map_or((0.0, f64::INFINITY), |[lo, hi]| (lo.si, hi.si)),
+            ion_sensitivity: g.ion_sensitivity,
+            thermal_sensitivity: g.thermal_sensitivity,
+            sources: {
+                let s = g.source.unwrap_or_else(|| "user configuration".to_string());
+                GasSources {
+                    molar_mass: s.clone(),
+                    diameter: s.clone(),
+                    ion_sensitivity: s.clone(),
+                    thermal_sensitivity: s,
+                }
+            },
+        };
+        if let Err(e) = table.add(gas) {
+            self.err(g.id.span(), e.to_string());
+        }
+    }
+
+    fn gauge(&mut self, config: &Config, id: String, g: file::GaugeSection) -> Option<GaugeConfig> {
+        let mixture = match &g.gas {
+            Some(text) => self.mixture(&config.gases, text)?,
+            None => config.mixture.clone(),
+        };
+        let range_pa = match g.range {
+            Some([lo, hi]) if lo.si >= hi.si => {
+                self.err(
+                    g.id.span(),
+                    format!("gauge `{id}`: range must be [low, high] with low < high"),
+                );
+                None
+            }
+            Some([lo, hi]) => Some((lo.si, hi.si)),
+            None => None,
+        };
+        let table = match &g.calibration {
+            Some(c) => {
+                let points: Vec<(f64, f64)> = c
+                    .get_ref()
+                    .points
+                    .iter()
+                    .map(|[a, b]| (c.get_ref().unit.to_si(*a), c.get_ref().unit.to_si(*b)))
+                    .collect();
+                match CalibrationTable::new(&points) {
+                    Ok(t) => Some(t),
+                    Err(e) => {
+                        self.err(c.span(), format!("gauge `{id}` calibration: {e}"));
+                        return None;
+                    }
+                }
+            }
+            None => None,
+        };
+        let mut overrides = GaugeOverrides {
+            sensitivity: g.sensitivity.as_ref().map(|s| *s.get_ref()),
+            thermal_sensitivity: g.thermal_sensitivity.as_ref().map(|s| *s.get_ref()),
+            table,
+            range_pa,
+        };
+        if let Some(cal) = &g.calibration_gas {
+            let cal_gas = match config.gases.get(cal.get_ref()) {
+                Ok(gas) => Mixture::pure(gas.clone()),
+                Err(e) => {
+                    self.err(cal.span(), e.to_string());
+                    return None;
+                }
+            };
+            // Sensitivities are relative to N2; a gauge calibrated for another
+            // gas reads S_gas / S_cal of the true pressure.
+            if cal_gas.components()[0].gas.id != "N2" && overrides.table.is_none() {
+                let scale = |kind: GaugeKind, user: Option<f64>, this: &mut Self| {
+                    let o = GaugeOverrides {
+                        sensitivity: user,
+                        ..GaugeOverrides::default()
+                    };
+                    let s_gas = GaugeModel::new(kind, &mixture, &o).ok()?.correct(1.0).sensitivity?;
+                    match GaugeModel::new(kind, &cal_gas, &GaugeOverrides::default()) {
+                        Ok(m) => Some(s_gas / m.correct(1.0).sensitivity?),
+                        Err(e) => {
+                            this.err(cal.span(), format!("gauge `{id}`: {e}"));
+                            None
+                        }
+                    }
+                };
+                match g.kind {
+                    GaugeKind::Capacitance => {}
+                    GaugeKind::Combined => {
+                        overrides.sensitivity =
+                            scale(GaugeKind::Ionization, overrides.sensitivity, self);
+                        overrides.thermal_sensitivity =
+                            scale(GaugeKind::Thermal, overrides.thermal_sensitivity, self);
+                    }
+                    k => overrides.sensitivity = scale(k, overrides.sensitivity, self),
+                }
+            }
+        }
+        match GaugeModel::new(g.kind, &mixture, &overrides) {
+            Ok(model) => Some(GaugeConfig {
+                label: g.label.unwrap_or_else(|| id.clone()),
+                id,
+                kind: g.kind,
+                mixture,
+                model,
+            }),
+            Err(e) => {
+                let span = g
+                    .sensitivity
+                    .as_ref()
+                    .map(|s| s.span())
+                    .or(g.gas.as_ref().map(|s| s.span()))
+                    .unwrap_or(g.id.span());
+                self.err(span, format!("gauge `{id}` ({}): {e}", g.kind));
+                None
+            }
+        }
+    }
+}
+
+impl Config {
+    /// A short human summary, as printed by `rarefy config check`.
+    pub fn summary(&self) -> String {
+        let mut out = String::new();
+        let mut line = |s: String| {
+            out.push_str(&s);
+            out.push('\n');
+        };
+        let name = if self.chamber.name.is_empty() {
+            "(unnamed)"
+        } else {
+            &self.chamber.name
+        };
+        line(format!("chamber    {name}"));
+        if let Some(v) = self.chamber.volume_m3 {
+            line(format!("  volume   {} L", format_sig(v * 1e3, 4)));
+        }
+        if let Some(a) = self.chamber.surface_area_m2 {
+            line(format!("  surface  {} m2", format_sig(a, 4)));
+        }
+        if let Some(t) = self.chamber.temperature_k {
+            line(format!(
+                "  assumed temperature {}",
+                crate::units::format_temperature(t, self.display.temperature_unit)
+            ));
+        }
+        line(format!("gas        {}", self.mixture.label()));
+        line(format!(
+            "physics    model {}, viscous below Kn {}, molecular above Kn {}, ISO 3529-1:{}, {:e} sites/m2, sticking {}",
+            Model::as_str(self.physics.model),
+            self.physics.bounds.viscous_below,
+            self.physics.bounds.molecular_above,
+            self.physics.edition.year(),
+            self.physics.sites_per_m2,
+            self.physics.sticking
+        ));
+        for l in &self.lengths {
+            line(format!("length     {:<24} {} m", l.name, format_sig(l.length_m, 4)));
+        }
+        for g in &self.gauges {
+            let s = g.model.correct(1e-3).sensitivity;
+            let response = match (g.kind.is_gas_dependent(), s) {
+                (false, _) => "reads true pressure".to_string(),
+                (true, Some(s)) => format!("sensitivity {s:.3} for {}", g.mixture.label()),
+                (true, None) => format!("calibration table for {}", g.mixture.label()),
+            };
+            line(format!("gauge      {:<12} {:<12} {response}", g.id, g.kind.as_str()));
+        }
+        line(format!(
+            "display    pressure in {}, temperature in {}, history {} s",
+            UnitKind::symbol(self.display.pressure_unit),
+            UnitKind::symbol(self.display.temperature_unit),
+            self.display.history_s
+        ));
+        out
+    }
+}
+
+#[cfg(test)]
+mod tests;

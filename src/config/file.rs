@@ -1,0 +1,157 @@
+//! What a configuration file may contain. Every section refuses unknown keys;
+//! quantities are strings with their unit (`"0.3 m"`, `"5e-6 mbar"`).
+
+use serde::Deserialize;
+use toml::Spanned;
+
+use crate::engine::Model;
+use crate::engine::gauge::GaugeKind;
+use crate::units::{Area, Duration, Length, Pressure, PressureUnit, Temperature, TemperatureUnit, Volume};
+
+/// The whole file.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ConfigFile {
+    /// `[chamber]`
+    pub chamber: Option<ChamberSection>,
+    /// `[[gauge]]`
+    #[serde(default)]
+    pub gauge: Vec<GaugeSection>,
+    /// `[gas]`
+    pub gas: Option<GasSection>,
+    /// `[[length]]`
+    #[serde(default)]
+    pub length: Vec<LengthSection>,
+    /// `[physics]`
+    pub physics: Option<PhysicsSection>,
+    /// `[display]`
+    pub display: Option<DisplaySection>,
+}
+
+/// `[chamber]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChamberSection {
+    /// Name shown on screen and written into logs.
+    pub name: Option<String>,
+    /// `"85 L"`
+    pub volume: Option<Volume>,
+    /// `"1.6 m2"`
+    pub surface_area: Option<Area>,
+    /// Gas temperature to assume when no gauge measures it, `"22 C"`.
+    pub temperature: Option<Temperature>,
+}
+
+/// `[[gauge]]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct GaugeSection {
+    /// Short id (the channel name in logs).
+    pub id: Spanned<String>,
+    /// Human label.
+    pub label: Option<String>,
+    /// `capacitance`, `thermal`, `ionization` or `combined`.
+    pub kind: GaugeKind,
+    /// Gas the gauge's readings are calibrated for (default N2).
+    pub calibration_gas: Option<Spanned<String>>,
+    /// Trusted range `["1e-9 mbar", "1e-2 mbar"]`.
+    pub range: Option<[Pressure; 2]>,
+    /// Gas at this gauge, overriding `[gas]` (`"Ar"` or a mixture).
+    pub gas: Option<Spanned<String>>,
+    /// Relative sensitivity (reading / true pressure) of a thermal or
+    /// ionization gauge, or of a combined gauge's ionization element.
+    pub sensitivity: Option<Spanned<f64>>,
+    /// Relative sensitivity of a combined gauge's thermal element.
+    pub thermal_sensitivity: Option<Spanned<f64>>,
+    /// A calibration table for the gauge in this gas.
+    pub calibration: Option<Spanned<CalibrationSection>>,
+}
+
+/// `calibration = { unit = "mbar", points = [[indicated, true], …] }`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CalibrationSection {
+    /// Unit of both columns.
+    pub unit: PressureUnit,
+    /// (indicated, true) pairs, increasing.
+    pub points: Vec<[f64; 2]>,
+}
+
+/// `[gas]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct GasSection {
+    /// A single gas, `"N2"`.
+    pub species: Option<Spanned<String>>,
+    /// A mixture, `"H2=0.6,H2O=0.3,N2=0.1"`.
+    pub mix: Option<Spanned<String>>,
+    /// `[[gas.custom]]`: user gases.
+    #[serde(default)]
+    pub custom: Vec<CustomGas>,
+}
+
+/// `[[gas.custom]]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CustomGas {
+    /// Id used in `species`, `mix` and on the command line.
+    pub id: Spanned<String>,
+    /// Human name.
+    pub name: Option<String>,
+    /// g/mol
+    pub molar_mass: f64,
+    /// Viscosity diameter, `"0.51 nm"`.
+    pub diameter: Length,
+    /// Temperature the diameter holds at (default 273.15 K).
+    pub reference_temperature: Option<Temperature>,
+    /// Sutherland constant, `"200 K"`.
+    pub sutherland: Option<Temperature>,
+    /// Temperature range the values hold over.
+    pub valid_range: Option<[Temperature; 2]>,
+    /// Ionization-gauge sensitivity relative to N2.
+    pub ion_sensitivity: Option<f64>,
+    /// Thermal-gauge sensitivity relative to N2.
+    pub thermal_sensitivity: Option<f64>,
+    /// Where the numbers come from.
+    pub source: Option<String>,
+}
+
+/// `[[length]]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LengthSection {
+    /// Name, e.g. `"source-to-substrate"`.
+    pub name: Spanned<String>,
+    /// `"0.25 m"`
+    pub length: Length,
+}
+
+/// `[physics]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PhysicsSection {
+    /// `sutherland` (default) or `hard-sphere`.
+    pub model: Option<Model>,
+    /// Kn below which flow is viscous (default 0.01).
+    pub viscous_below: Option<Spanned<f64>>,
+    /// Kn above which flow is molecular (default 0.5).
+    pub molecular_above: Option<Spanned<f64>>,
+    /// ISO 3529-1 edition, 2019 (default) or 1981.
+    pub iso_edition: Option<Spanned<i64>>,
+    /// Adsorption sites per m² (default 1e19).
+    pub sites_per_m2: Option<Spanned<f64>>,
+    /// Sticking coefficient (default 1).
+    pub sticking: Option<Spanned<f64>>,
+}
+
+/// `[display]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DisplaySection {
+    /// `"mbar"`
+    pub pressure_unit: Option<PressureUnit>,
+    /// `"C"`
+    pub temperature_unit: Option<TemperatureUnit>,
+    /// Trend history, `"1 h"`.
+    pub history: Option<Spanned<Duration>>,
+}
