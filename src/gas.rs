@@ -87,24 +87,71 @@ struct Row {
 // 1 for air (common practice, no source); none for other gases, whose response
 // depends on the gauge's design and is not a constant factor.
 const ROWS: &[Row] = &[
-    row("N2", "nitrogen", 28.0134, 0.37509, 118.57, 1.0, Some(1.0), false), // 0.098 %
+    row(
+        "N2",
+        "nitrogen",
+        28.0134,
+        0.37509,
+        118.57,
+        1.0,
+        Some(1.0),
+        false,
+    ), // 0.098 %
     Row {
         molar_mass_src: "CoolProp 8.0.0 pseudo-pure air",
         ion_src: "0.99: mole-fraction mean of the CRC sec. 15 values for N2, O2, Ar over dry air (78.08/20.95/0.93 %, from memory)",
-        ..row("air", "dry air", 28.96546, 0.37171, 122.54, 0.99, Some(1.0), false) // 0.098 %
+        ..row(
+            "air",
+            "dry air",
+            28.96546,
+            0.37171,
+            122.54,
+            0.99,
+            Some(1.0),
+            false,
+        ) // 0.098 %
     },
     row("O2", "oxygen", 31.9988, 0.36147, 136.23, 0.96, None, false), // 0.101 %
     row("Ar", "argon", 39.948, 0.36462, 157.76, 1.4, None, false),    // 0.108 %
     row("He", "helium", 4.002602, 0.21776, 85.75, 0.18, None, false), // 0.407 %
     row("H2", "hydrogen", 2.01588, 0.27398, 87.79, 0.43, None, false), // 0.372 %
     // Water is polar; no Sutherland form follows its viscosity closer than this.
-    row("H2O", "water vapour", 18.01528, 0.46116, 539.89, 0.93, None, false), // 1.593 %
-    row("CO2", "carbon dioxide", 44.0095, 0.46254, 267.73, 1.4, None, false), // 0.164 %
-    row("CO", "carbon monoxide", 28.0101, 0.37646, 117.87, 1.0, None, true), // 0.034 %
-    row("Ne", "neon", 20.1797, 0.25904, 95.62, 0.31, None, true),         // 0.070 %
-    row("Kr", "krypton", 83.798, 0.41455, 191.87, 1.9, None, true),       // 0.118 %
-    row("Xe", "xenon", 131.293, 0.48741, 260.24, 2.7, None, true),        // 0.083 %
-    row("CH4", "methane", 16.04246, 0.41296, 167.61, 1.6, None, false),   // 0.143 %
+    row(
+        "H2O",
+        "water vapour",
+        18.01528,
+        0.46116,
+        539.89,
+        0.93,
+        None,
+        false,
+    ), // 1.593 %
+    row(
+        "CO2",
+        "carbon dioxide",
+        44.0095,
+        0.46254,
+        267.73,
+        1.4,
+        None,
+        false,
+    ), // 0.164 %
+    row(
+        "CO",
+        "carbon monoxide",
+        28.0101,
+        0.37646,
+        117.87,
+        1.0,
+        None,
+        true,
+    ), // 0.034 %
+    row("Ne", "neon", 20.1797, 0.25904, 95.62, 0.31, None, true), // 0.070 %
+    row("Kr", "krypton", 83.798, 0.41455, 191.87, 1.9, None, true), // 0.118 %
+    row("Xe", "xenon", 131.293, 0.48741, 260.24, 2.7, None, true), // 0.083 %
+    row(
+        "CH4", "methane", 16.04246, 0.41296, 167.61, 1.6, None, false,
+    ), // 0.143 %
 ];
 
 #[allow(clippy::too_many_arguments)]
@@ -137,7 +184,9 @@ impl Row {
         let thermal_src = match (self.id, self.thermal) {
             ("N2", _) => "1 by definition (gauges are calibrated for N2)",
             (_, Some(_)) => "common practice, no source",
-            (_, None) => "none: depends on the gauge design; give a sensitivity or a calibration table",
+            (_, None) => {
+                "none: depends on the gauge design; give a sensitivity or a calibration table"
+            }
         };
         Gas {
             id: self.id.to_string(),
@@ -245,7 +294,11 @@ impl GasTable {
 
     /// Adds a user-defined gas after checking its values.
     pub fn add(&mut self, gas: Gas) -> Result<(), GasError> {
-        if self.gases.iter().any(|g| g.id.eq_ignore_ascii_case(&gas.id)) {
+        if self
+            .gases
+            .iter()
+            .any(|g| g.id.eq_ignore_ascii_case(&gas.id))
+        {
             return Err(GasError::Duplicate(gas.id));
         }
         let invalid = |what: &str| GasError::Invalid {
@@ -254,7 +307,9 @@ impl GasTable {
         };
         let positive = |x: f64| x.is_finite() && x > 0.0;
         if gas.id.trim().is_empty() || gas.id.contains(['=', ',', ' ']) {
-            return Err(invalid("an id must be non-empty, without spaces, '=' or ','"));
+            return Err(invalid(
+                "an id must be non-empty, without spaces, '=' or ','",
+            ));
         }
         if !positive(gas.molar_mass_g_mol) {
             return Err(invalid("molar mass must be positive"));
@@ -265,7 +320,10 @@ impl GasTable {
         if !positive(gas.reference_temperature_k) {
             return Err(invalid("reference temperature must be positive"));
         }
-        if gas.sutherland_k.is_some_and(|s| !(s.is_finite() && s >= 0.0)) {
+        if gas
+            .sutherland_k
+            .is_some_and(|s| !(s.is_finite() && s >= 0.0))
+        {
             return Err(invalid("Sutherland constant must be zero or positive"));
         }
         for (what, s) in [
@@ -296,7 +354,9 @@ mod tests {
         let t = GasTable::builtin();
         assert_eq!(
             t.ids(),
-            ["N2", "air", "O2", "Ar", "He", "H2", "H2O", "CO2", "CO", "Ne", "Kr", "Xe", "CH4"]
+            [
+                "N2", "air", "O2", "Ar", "He", "H2", "H2O", "CO2", "CO", "Ne", "Kr", "Xe", "CH4"
+            ]
         );
     }
 
@@ -315,7 +375,12 @@ mod tests {
     fn molar_masses_match_iupac_values() {
         // Source: REFERENCES.md (b), chemicals 1.5.2 / IUPAC standard atomic weights.
         let t = GasTable::builtin();
-        for (id, m) in [("N2", 28.0134), ("Ar", 39.948), ("H2O", 18.01528), ("Xe", 131.293)] {
+        for (id, m) in [
+            ("N2", 28.0134),
+            ("Ar", 39.948),
+            ("H2O", 18.01528),
+            ("Xe", 131.293),
+        ] {
             assert_eq!(t.get(id).map(|g| g.molar_mass_g_mol), Ok(m), "{id}");
         }
     }
@@ -353,7 +418,13 @@ mod tests {
     fn ion_sensitivities_are_the_crc_values() {
         // Source: CRC Handbook of Chemistry and Physics, sec. 15 (REFERENCES.md (a)).
         let t = GasTable::builtin();
-        for (id, s) in [("He", 0.18), ("Ar", 1.4), ("H2", 0.43), ("CH4", 1.6), ("H2O", 0.93)] {
+        for (id, s) in [
+            ("He", 0.18),
+            ("Ar", 1.4),
+            ("H2", 0.43),
+            ("CH4", 1.6),
+            ("H2O", 0.93),
+        ] {
             assert_eq!(t.get(id).map(|g| g.ion_sensitivity), Ok(Some(s)), "{id}");
         }
     }

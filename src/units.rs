@@ -90,7 +90,7 @@ pub enum UnitError {
         kind: &'static str,
     },
     /// A temperature at or below absolute zero.
-    #[error("temperature \"{text}\" is at or below absolute zero ({kelvin} K)")]
+    #[error("temperature \"{text}\" is at or below absolute zero ({kelvin:.2} K)")]
     BelowAbsoluteZero {
         /// The offending text.
         text: String,
@@ -116,7 +116,7 @@ pub trait UnitKind: Copy + PartialEq + fmt::Debug + 'static {
     /// Converts a value in this unit to SI.
     fn to_si(self, value: f64) -> f64;
     /// Converts an SI value to this unit.
-    fn from_si(self, si: f64) -> f64;
+    fn value_of(self, si: f64) -> f64;
     /// Checks the SI value for physical sense. The default requires > 0.
     fn check(si: f64, text: &str) -> Result<(), UnitError> {
         if si > 0.0 {
@@ -188,7 +188,7 @@ macro_rules! unit_family {
             fn to_si(self, value: f64) -> f64 {
                 match self { $($name::$variant => value * $factor),+ }
             }
-            fn from_si(self, si: f64) -> f64 {
+            fn value_of(self, si: f64) -> f64 {
                 match self { $($name::$variant => si / $factor),+ }
             }
             $(
@@ -324,7 +324,7 @@ impl UnitKind for TemperatureUnit {
             TemperatureUnit::F => (value - 32.0) * 5.0 / 9.0 + ZERO_CELSIUS_K,
         }
     }
-    fn from_si(self, si: f64) -> f64 {
+    fn value_of(self, si: f64) -> f64 {
         match self {
             TemperatureUnit::K => si,
             TemperatureUnit::C => si - ZERO_CELSIUS_K,
@@ -372,13 +372,18 @@ impl<U: UnitKind> Quantity<U> {
 
     /// The value expressed in the quantity's own unit.
     pub fn in_own_unit(&self) -> f64 {
-        self.unit.from_si(self.si)
+        self.unit.value_of(self.si)
     }
 }
 
 impl<U: UnitKind> fmt::Display for Quantity<U> {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{} {}", format_sig(self.in_own_unit(), 3), self.unit.symbol())
+        write!(
+            f,
+            "{} {}",
+            format_sig(self.in_own_unit(), 3),
+            self.unit.symbol()
+        )
     }
 }
 
@@ -579,12 +584,12 @@ pub fn format_sig(x: f64, sig: usize) -> String {
 /// Formats a pressure in pascal in `unit`, scientific with three significant
 /// digits (`1.23e-6 mbar`).
 pub fn format_pressure(pa: f64, unit: PressureUnit) -> String {
-    format!("{:.2e} {}", unit.from_si(pa), unit.symbol())
+    format!("{:.2e} {}", unit.value_of(pa), unit.symbol())
 }
 
 /// Formats a temperature in kelvin in `unit` with one decimal (`22.0 C`).
 pub fn format_temperature(kelvin: f64, unit: TemperatureUnit) -> String {
-    format!("{:.1} {}", unit.from_si(kelvin), unit.symbol())
+    format!("{:.1} {}", unit.value_of(kelvin), unit.symbol())
 }
 
 #[cfg(test)]
@@ -716,7 +721,10 @@ mod tests {
 
     #[test]
     fn formatting_is_engineering_friendly() {
-        assert_eq!(format_pressure(1.234e-4, PressureUnit::Mbar), "1.23e-6 mbar");
+        assert_eq!(
+            format_pressure(1.234e-4, PressureUnit::Mbar),
+            "1.23e-6 mbar"
+        );
         assert_eq!(format_temperature(295.15, TemperatureUnit::C), "22.0 C");
         assert_eq!(format_sig(0.3, 3), "0.300");
         assert_eq!(format_sig(222.0, 3), "222");

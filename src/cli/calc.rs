@@ -16,7 +16,7 @@ use crate::units::{
     UnitKind, format_pressure, format_sig, format_temperature,
 };
 
-const LONG_ABOUT: &str = "\
+pub(super) const LONG_ABOUT: &str = "\
 One-shot derived quantities: number density, mean, most probable and rms \
 speeds, mean free path, wall impingement rate, time to a monolayer, the ISO \
 3529-1 vacuum range, and a Knudsen number and flow regime for every --length.
@@ -36,7 +36,6 @@ is then reported as assumed.";
 
 /// `rarefy calc` arguments.
 #[derive(Debug, Args)]
-#[command(long_about = LONG_ABOUT)]
 pub struct CalcArgs {
     /// Pressure with its unit, e.g. "1e-6 mbar" (Pa, kPa, hPa, mbar, bar, Torr, mTorr, micron, atm, psi).
     #[arg(long, short = 'p', value_parser = quantity::<PressureUnit>, allow_hyphen_values = true)]
@@ -57,7 +56,7 @@ pub struct CalcArgs {
     #[arg(long, value_enum)]
     gauge: Option<GaugeArg>,
     /// Gauge sensitivity relative to N2 (reading / true pressure), replacing the table's.
-    #[arg(long, value_parser = positive_number, requires = "gauge")]
+    #[arg(long, allow_hyphen_values = true, value_parser = positive_number, requires = "gauge")]
     sensitivity: Option<f64>,
     /// Diameter model.
     #[arg(long, value_enum)]
@@ -66,10 +65,10 @@ pub struct CalcArgs {
     #[arg(long, value_parser = quantity::<LengthUnit>, conflicts_with = "mix")]
     diameter: Option<Length>,
     /// Adsorption sites per m² for the monolayer time (default 1e19).
-    #[arg(long, value_parser = positive_number)]
+    #[arg(long, allow_hyphen_values = true, value_parser = positive_number)]
     sites: Option<f64>,
     /// Sticking coefficient, 0 < s ≤ 1 (default 1).
-    #[arg(long, value_parser = sticking)]
+    #[arg(long, allow_hyphen_values = true, value_parser = sticking)]
     sticking: Option<f64>,
     /// Also give the exposure for holding this pressure this long, e.g. "10 min".
     #[arg(long = "for", value_parser = quantity::<units::TimeUnit>)]
@@ -139,7 +138,11 @@ fn sticking(s: &str) -> Result<f64, String> {
 fn named_length(s: &str) -> Result<NamedLength, String> {
     let (name, value) = match s.split_once('=') {
         Some((n, v)) if !n.trim().is_empty() => (n.trim().to_string(), v),
-        Some(_) => return Err(format!("length \"{s}\" has an empty name; write name=0.3 m")),
+        Some(_) => {
+            return Err(format!(
+                "length \"{s}\" has an empty name; write name=0.3 m"
+            ));
+        }
         None => (String::new(), s),
     };
     let q = quantity::<LengthUnit>(value)?;
@@ -242,7 +245,9 @@ pub fn run(args: &CalcArgs) -> Result<u8, CliError> {
                 ..GaugeOverrides::default()
             };
             let model = GaugeModel::new(kind.into(), &mixture, &overrides).map_err(|e| {
-                CliError::Usage(format!("--gauge: {e}; on the command line: --sensitivity S"))
+                CliError::Usage(format!(
+                    "--gauge: {e}; on the command line: --sensitivity S"
+                ))
             })?;
             let c = model.correct(indicated_pa);
             gauge_warnings = c.warnings;
@@ -321,12 +326,22 @@ fn table(out: &Output, unit: PressureUnit, temp_unit: TemperatureUnit) -> String
             Some(_) => "reads true pressure".to_string(),
             None => "corrected with a calibration table".to_string(),
         };
-        row("indicated", format!("{} ({g} gauge), {how}", p(i.indicated_pa)));
+        row(
+            "indicated",
+            format!("{} ({g} gauge), {how}", p(i.indicated_pa)),
+        );
     }
-    let assumed = if i.temperature_assumed { " (assumed)" } else { "" };
+    let assumed = if i.temperature_assumed {
+        " (assumed)"
+    } else {
+        ""
+    };
     row(
         "temperature",
-        format!("{}{assumed}", format_temperature(i.temperature_k, temp_unit)),
+        format!(
+            "{}{assumed}",
+            format_temperature(i.temperature_k, temp_unit)
+        ),
     );
     row(
         "vacuum range",

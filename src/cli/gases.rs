@@ -41,7 +41,8 @@ pub fn run(args: &GasesArgs) -> Result<u8, CliError> {
             g.molar_mass_g_mol,
             format!("{:.5}", g.diameter_m * 1e9),
             g.reference_temperature_k,
-            g.sutherland_k.map_or("-".to_string(), |v| format!("{v:.2}")),
+            g.sutherland_k
+                .map_or("-".to_string(), |v| format!("{v:.2}")),
             opt(g.ion_sensitivity, 3),
             opt(g.thermal_sensitivity, 3),
         ));
@@ -55,8 +56,14 @@ pub fn run(args: &GasesArgs) -> Result<u8, CliError> {
             "    diameter, S     {} (valid {lo}-{hi} K)\n",
             g.sources.diameter
         ));
-        s.push_str(&format!("    ion S           {}\n", g.sources.ion_sensitivity));
-        s.push_str(&format!("    thermal S       {}\n", g.sources.thermal_sensitivity));
+        s.push_str(&format!(
+            "    ion S           {}\n",
+            g.sources.ion_sensitivity
+        ));
+        s.push_str(&format!(
+            "    thermal S       {}\n",
+            g.sources.thermal_sensitivity
+        ));
     }
     s.push_str(
         "\nS is a gauge's sensitivity relative to N2 (reading / true pressure); \

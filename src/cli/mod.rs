@@ -37,6 +37,7 @@ struct Cli {
 #[derive(Debug, Subcommand)]
 enum Command {
     /// One-shot derived quantities for a pressure, temperature and gas.
+    #[command(long_about = calc::LONG_ABOUT)]
     Calc(Box<calc::CalcArgs>),
     /// The built-in gas table with every value's source.
     Gases(gases::GasesArgs),

@@ -39,7 +39,9 @@ impl ConfigError {
         let start = span.start.min(source.len());
         let end = span.end.clamp(start, source.len());
         let line_start = source[..start].rfind('\n').map_or(0, |i| i + 1);
-        let line_end = source[start..].find('\n').map_or(source.len(), |i| start + i);
+        let line_end = source[start..]
+            .find('\n')
+            .map_or(source.len(), |i| start + i);
         let line = source[..start].matches('\n').count() + 1;
         let column = source[line_start..start].chars().count() + 1;
         let width = source[start..end.min(line_end)].chars().count().max(1);
@@ -48,7 +50,11 @@ impl ConfigError {
             line: Some(line),
             column: Some(column),
             message: message.into(),
-            snippet: Some(source[line_start..line_end].trim_end_matches('\r').to_string()),
+            snippet: Some(
+                source[line_start..line_end]
+                    .trim_end_matches('\r')
+                    .to_string(),
+            ),
             width,
         }
     }

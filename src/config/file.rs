@@ -6,7 +6,9 @@ use toml::Spanned;
 
 use crate::engine::Model;
 use crate::engine::gauge::GaugeKind;
-use crate::units::{Area, Duration, Length, Pressure, PressureUnit, Temperature, TemperatureUnit, Volume};
+use crate::units::{
+    Area, Duration, Length, Pressure, PressureUnit, Temperature, TemperatureUnit, Volume,
+};
 
 /// The whole file.
 #[derive(Debug, Deserialize)]

@@ -204,7 +204,10 @@ impl Resolver<'_> {
         let mut ids = Vec::<String>::new();
         for g in raw.gauge {
             let id = g.id.get_ref().trim().to_string();
-            if id.is_empty() || !id.chars().all(|c| c.is_ascii_alphanumeric() || "_-.".contains(c))
+            if id.is_empty()
+                || !id
+                    .chars()
+                    .all(|c| c.is_ascii_alphanumeric() || "_-.".contains(c))
             {
                 self.err(
                     g.id.span(),
@@ -235,7 +238,10 @@ impl Resolver<'_> {
             ..d
         };
         let bounds = RegimeBounds {
-            viscous_below: p.viscous_below.as_ref().map_or(d.bounds.viscous_below, |s| *s.get_ref()),
+            viscous_below: p
+                .viscous_below
+                .as_ref()
+                .map_or(d.bounds.viscous_below, |s| *s.get_ref()),
             molecular_above: p
                 .molecular_above
                 .as_ref()
@@ -257,7 +263,10 @@ impl Resolver<'_> {
                 Some(ed) => out.edition = ed,
                 None => self.err(
                     e.span(),
-                    format!("unknown ISO 3529-1 edition {}; expected 1981 or 2019", e.get_ref()),
+                    format!(
+                        "unknown ISO 3529-1 edition {}; expected 1981 or 2019",
+                        e.get_ref()
+                    ),
                 ),
             }
         }
@@ -266,7 +275,10 @@ impl Resolver<'_> {
             if v.is_finite() && v > 0.0 {
                 out.sites_per_m2 = v;
             } else {
-                self.err(s.span(), "sites_per_m2 must be a positive number (e.g. 1e19)");
+                self.err(
+                    s.span(),
+                    "sites_per_m2 must be a positive number (e.g. 1e19)",
+                );
             }
         }
         if let Some(s) = p.sticking {
@@ -375,7 +387,10 @@ impl Resolver<'_> {
                         sensitivity: user,
                         ..GaugeOverrides::default()
                     };
-                    let s_gas = GaugeModel::new(kind, &mixture, &o).ok()?.correct(1.0).sensitivity?;
+                    let s_gas = GaugeModel::new(kind, &mixture, &o)
+                        .ok()?
+                        .correct(1.0)
+                        .sensitivity?;
                     match GaugeModel::new(kind, &cal_gas, &GaugeOverrides::default()) {
                         Ok(m) => Some(s_gas / m.correct(1.0).sensitivity?),
                         Err(e) => {
@@ -455,7 +470,11 @@ impl Config {
             self.physics.sticking
         ));
         for l in &self.lengths {
-            line(format!("length     {:<24} {} m", l.name, format_sig(l.length_m, 4)));
+            line(format!(
+                "length     {:<24} {} m",
+                l.name,
+                format_sig(l.length_m, 4)
+            ));
         }
         for g in &self.gauges {
             let s = g.model.correct(1e-3).sensitivity;
@@ -464,7 +483,11 @@ impl Config {
                 (true, Some(s)) => format!("sensitivity {s:.3} for {}", g.mixture.label()),
                 (true, None) => format!("calibration table for {}", g.mixture.label()),
             };
-            line(format!("gauge      {:<12} {:<12} {response}", g.id, g.kind.as_str()));
+            line(format!(
+                "gauge      {:<12} {:<12} {response}",
+                g.id,
+                g.kind.as_str()
+            ));
         }
         line(format!(
             "display    pressure in {}, temperature in {}, history {} s",

@@ -37,21 +37,45 @@ fn empty_file_gives_defaults() {
 fn unknown_key_is_located_with_a_suggestion() {
     let e = one_error("[chamber]\nname = \"x\"\nvolum = \"3 L\"\n");
     assert_eq!((e.line, e.column), (Some(3), Some(1)));
-    assert!(e.message.contains("unknown key `volum` in [chamber]"), "{}", e.message);
-    assert!(e.message.contains("did you mean `volume`?"), "{}", e.message);
+    assert!(
+        e.message.contains("unknown key `volum` in [chamber]"),
+        "{}",
+        e.message
+    );
+    assert!(
+        e.message.contains("did you mean `volume`?"),
+        "{}",
+        e.message
+    );
     let e = one_error("[physic]\nmodel = \"sutherland\"\n");
-    assert!(e.message.contains("did you mean `physics`?"), "{}", e.message);
+    assert!(
+        e.message.contains("did you mean `physics`?"),
+        "{}",
+        e.message
+    );
 }
 
 #[test]
 fn bad_values_are_located() {
     let e = one_error("[[length]]\nname = \"a\"\nlength = \"0.3 mbar\"\n");
     assert_eq!(e.line, Some(3));
-    assert!(e.message.contains("unknown length unit \"mbar\""), "{}", e.message);
+    assert!(
+        e.message.contains("unknown length unit \"mbar\""),
+        "{}",
+        e.message
+    );
     let e = one_error("[chamber]\nvolume = 85\n");
-    assert!(e.message.contains("expected a volume with its unit"), "{}", e.message);
+    assert!(
+        e.message.contains("expected a volume with its unit"),
+        "{}",
+        e.message
+    );
     let e = one_error("[physics]\nmodel = \"hardsphere\"\n");
-    assert!(e.message.contains("did you mean `hard-sphere`?"), "{}", e.message);
+    assert!(
+        e.message.contains("did you mean `hard-sphere`?"),
+        "{}",
+        e.message
+    );
     let e = one_error("[physics]\niso_edition = 2001\n");
     assert_eq!((e.line, e.column), (Some(2), Some(15)));
     assert!(e.message.contains("expected 1981 or 2019"), "{}", e.message);
@@ -77,14 +101,23 @@ fn several_problems_are_reported_together() {
     );
     assert_eq!(v.len(), 3, "{v:?}");
     assert!(v[0].message.contains("defined twice"), "{}", v[0].message);
-    assert!(v[1].message.contains("no thermal gauge sensitivity is known for Ar"), "{}", v[1].message);
+    assert!(
+        v[1].message
+            .contains("no thermal gauge sensitivity is known for Ar"),
+        "{}",
+        v[1].message
+    );
     assert!(v[2].message.contains("used twice"), "{}", v[2].message);
 }
 
 #[test]
 fn gauge_problems() {
     let e = one_error("[[gauge]]\nid = \"a\"\nkind = \"ionisation\"\n");
-    assert!(e.message.contains("did you mean `ionization`?"), "{}", e.message);
+    assert!(
+        e.message.contains("did you mean `ionization`?"),
+        "{}",
+        e.message
+    );
     let e = one_error("[[gauge]]\nid = \"a b\"\nkind = \"thermal\"\n");
     assert!(e.message.contains("gauge id"), "{}", e.message);
     let e = one_error(
@@ -125,7 +158,11 @@ fn custom_gas_is_usable_in_the_mix() {
     let e = one_error("[[gas.custom]]\nid = \"N2\"\nmolar_mass = 50.0\ndiameter = \"0.4 nm\"\n");
     assert!(e.message.contains("already defined"), "{}", e.message);
     let e = one_error("[[gas.custom]]\nid = \"Q\"\nmolar_mass = -5.0\ndiameter = \"0.4 nm\"\n");
-    assert!(e.message.contains("molar mass must be positive"), "{}", e.message);
+    assert!(
+        e.message.contains("molar mass must be positive"),
+        "{}",
+        e.message
+    );
 }
 
 #[test]

@@ -82,7 +82,9 @@ pub enum CalibrationError {
     #[error("a calibration table needs at least two points, got {0}")]
     TooFew(usize),
     /// A point is zero, negative or not finite.
-    #[error("calibration point {index} ({indicated}, {actual}) must have positive, finite pressures")]
+    #[error(
+        "calibration point {index} ({indicated}, {actual}) must have positive, finite pressures"
+    )]
     NotPositive {
         /// Zero-based point index.
         index: usize,
@@ -248,7 +250,10 @@ mod tests {
 
     #[test]
     fn bad_tables_are_refused() {
-        assert_eq!(CalibrationTable::new(&[(1.0, 1.0)]), Err(CalibrationError::TooFew(1)));
+        assert_eq!(
+            CalibrationTable::new(&[(1.0, 1.0)]),
+            Err(CalibrationError::TooFew(1))
+        );
         assert!(matches!(
             CalibrationTable::new(&[(1.0, 1.0), (0.5, 2.0)]),
             Err(CalibrationError::NotMonotonic { index: 1, .. })

@@ -169,9 +169,15 @@ mod tests {
         let t = GasTable::builtin();
         let e = |s: &str| Mixture::parse(s, &t).unwrap_err();
         assert!(matches!(e("H2=0.6,N2=0.3"), MixtureError::BadSum { .. }));
-        assert!(matches!(e("H2=0.6,N2"), MixtureError::BadItem { index: 2, .. }));
+        assert!(matches!(
+            e("H2=0.6,N2"),
+            MixtureError::BadItem { index: 2, .. }
+        ));
         assert!(matches!(e("H2=x,N2=0.4"), MixtureError::BadFraction { .. }));
-        assert!(matches!(e("H2=-0.5,N2=1.5"), MixtureError::BadFraction { .. }));
+        assert!(matches!(
+            e("H2=-0.5,N2=1.5"),
+            MixtureError::BadFraction { .. }
+        ));
         assert!(matches!(e("H2=0.5,H2=0.5"), MixtureError::Repeated(_)));
         assert!(matches!(e("Q2=0.5,N2=0.5"), MixtureError::Gas(_)));
         assert!(matches!(e(""), MixtureError::Empty));

@@ -304,16 +304,16 @@ pub fn derive(
             diameter_m: diameters[i],
             mean_free_path_m: 1.0 / inv_mfp,
             impingement_per_m2_s: phi,
-            monolayer_time_s: kinetics::monolayer_time(
-                physics.sites_per_m2,
-                physics.sticking,
-                phi,
-            ),
+            monolayer_time_s: kinetics::monolayer_time(physics.sites_per_m2, physics.sticking, phi),
         });
     }
 
     let weighted = |f: &dyn Fn(usize, &SpeciesDerived) -> f64| -> f64 {
-        species.iter().enumerate().map(|(i, s)| s.fraction * f(i, s)).sum()
+        species
+            .iter()
+            .enumerate()
+            .map(|(i, s)| s.fraction * f(i, s))
+            .sum()
     };
     let mean_free_path_m = weighted(&|_, s| s.mean_free_path_m);
     let mean_speed = weighted(&|_, s| s.mean_speed_m_per_s);
@@ -508,19 +508,17 @@ impl GaugeModel {
                 ),
             ));
         }
-        if self.kind == GaugeKind::Thermal || self.kind.element(indicated_pa) == GaugeKind::Thermal
+        if self.kind.element(indicated_pa) == GaugeKind::Thermal
+            && let Response::Sensitivity(s) = response
+            && *s != 1.0
+            && indicated_pa > 100.0
         {
-            if let Response::Sensitivity(s) = response
-                && *s != 1.0
-                && indicated_pa > 100.0
-            {
-                warnings.push(Warning::new(
-                    "thermal-factor-nonlinear",
-                    "a constant gas factor for a thermal gauge holds only in its linear range \
-                     (below about 1 mbar); above, use a calibration table"
-                        .to_string(),
-                ));
-            }
+            warnings.push(Warning::new(
+                "thermal-factor-nonlinear",
+                "a constant gas factor for a thermal gauge holds only in its linear range \
+                 (below about 1 mbar); above, use a calibration table"
+                    .to_string(),
+            ));
         }
         let sensitivity = match response {
             Response::Direct => Some(1.0),

@@ -189,7 +189,11 @@ impl IsoEdition {
     pub fn limits(self, range: VacuumRange) -> Option<(f64, f64)> {
         let limits = self.lower_limits();
         let i = limits.iter().position(|&(r, _)| r == range)?;
-        let upper = if i == 0 { f64::INFINITY } else { limits[i - 1].1 };
+        let upper = if i == 0 {
+            f64::INFINITY
+        } else {
+            limits[i - 1].1
+        };
         Some((upper, limits[i].1))
     }
 }

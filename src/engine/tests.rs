@@ -17,7 +17,12 @@ fn close(actual: f64, expected: f64, rel: f64) -> bool {
 macro_rules! assert_close {
     ($a:expr, $e:expr, $rel:expr) => {{
         let (a, e) = ($a, $e);
-        assert!(close(a, e, $rel), "{} = {a}, expected {e} within {}", stringify!($a), $rel);
+        assert!(
+            close(a, e, $rel),
+            "{} = {a}, expected {e} within {}",
+            stringify!($a),
+            $rel
+        );
     }};
 }
 
@@ -62,9 +67,17 @@ fn impingement_rate_hertz_knudsen() {
     assert_close!(d.impingement_per_m2_s * 1e-4, 3.8641e14, 1e-4);
     // Source: REFERENCES.md (b): Phi = C p / sqrt(M T), C = 2.63478e24.
     let d = at(1e-3, 400.0, "Ar");
-    assert_close!(d.impingement_per_m2_s, 2.63478e24 * 1e-3 / (39.948f64 * 400.0).sqrt(), 1e-5);
+    assert_close!(
+        d.impingement_per_m2_s,
+        2.63478e24 * 1e-3 / (39.948f64 * 400.0).sqrt(),
+        1e-5
+    );
     // n v̄ / 4 identity (kinetic theory).
-    assert_close!(d.impingement_per_m2_s, d.number_density_per_m3 * d.mean_speed_m_per_s / 4.0, 1e-12);
+    assert_close!(
+        d.impingement_per_m2_s,
+        d.number_density_per_m3 * d.mean_speed_m_per_s / 4.0,
+        1e-12
+    );
 }
 
 #[test]
@@ -95,7 +108,11 @@ fn mean_free_path_matches_chapman_enskog_from_viscosity() {
         ("air", 273.15, 6.1496e-3),
     ] {
         let d = at(1.0, t, gas);
-        assert!(close(d.mean_free_path_m, lp, 0.005), "{gas} {t} K: {}", d.mean_free_path_m);
+        assert!(
+            close(d.mean_free_path_m, lp, 0.005),
+            "{gas} {t} K: {}",
+            d.mean_free_path_m
+        );
     }
 }
 
@@ -105,7 +122,11 @@ fn air_mean_free_path_rules_of_thumb() {
     // "about 5 cm at 1e-3 Torr"; "about 68 nm at 1 atm" (each within 2.3 % of
     // the Chapman-Enskog value, REFERENCES.md).
     assert_close!(at(1.0, 293.15, "air").mean_free_path_m, 6.6e-3, 0.025);
-    assert_close!(at(1e-3 * TORR_PA, 293.15, "air").mean_free_path_m, 0.05, 0.025);
+    assert_close!(
+        at(1e-3 * TORR_PA, 293.15, "air").mean_free_path_m,
+        0.05,
+        0.025
+    );
     assert_close!(at(101_325.0, 293.15, "air").mean_free_path_m, 68e-9, 0.025);
 }
 
@@ -131,7 +152,12 @@ fn the_json_example_of_the_calc_command() {
     // Source: the Step 1 issue's example (N2, 1e-4 Pa, 295 K, L = 0.3 m),
     // itself consistent with REFERENCES.md (b) values.
     let lengths = [NamedLength::new("chamber", 0.3)];
-    let d = derive(&Conditions::new(1e-4, 295.0), &pure("N2"), &lengths, &Physics::default());
+    let d = derive(
+        &Conditions::new(1e-4, 295.0),
+        &pure("N2"),
+        &lengths,
+        &Physics::default(),
+    );
     assert_close!(d.number_density_per_m3, 2.455e16, 1e-3);
     assert_close!(d.mean_speed_m_per_s, 472.2, 1e-3);
     assert_close!(d.most_probable_speed_m_per_s, 418.5, 1e-3);
@@ -172,7 +198,11 @@ fn mixture_uses_species_collision_sums() {
     // the mole-fraction-weighted mean.
     let sum: f64 = d.species.iter().map(|s| s.impingement_per_m2_s).sum();
     assert_close!(d.impingement_per_m2_s, sum, 1e-12);
-    let weighted: f64 = d.species.iter().map(|s| s.fraction * s.mean_free_path_m).sum();
+    let weighted: f64 = d
+        .species
+        .iter()
+        .map(|s| s.fraction * s.mean_free_path_m)
+        .sum();
     assert_close!(d.mean_free_path_m, weighted, 1e-12);
     // Partial pressures add up.
     let pp: f64 = d.species.iter().map(|s| s.partial_pressure_pa).sum();
@@ -184,7 +214,11 @@ fn mixture_uses_species_collision_sums() {
 #[test]
 fn warnings_flag_temperatures_outside_the_fit() {
     let d = at(1.0, 77.0, "N2");
-    assert!(d.warnings.iter().any(|w| w.code == "temperature-outside-fit"));
+    assert!(
+        d.warnings
+            .iter()
+            .any(|w| w.code == "temperature-outside-fit")
+    );
     let d = at(2e5, 295.0, "N2");
     assert!(d.warnings.iter().any(|w| w.code == "above-atmospheric"));
 }
@@ -258,5 +292,9 @@ fn calibration_table_replaces_the_factor() {
     assert_close!(c.pressure_pa, 2e-2, 1e-12);
     assert_eq!(c.sensitivity, None);
     let c = g.correct(10.0);
-    assert!(c.warnings.iter().any(|w| w.code == "calibration-extrapolated"));
+    assert!(
+        c.warnings
+            .iter()
+            .any(|w| w.code == "calibration-extrapolated")
+    );
 }

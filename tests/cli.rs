@@ -1,0 +1,327 @@
+//! The real binary: outputs, exit codes, and bad input.
+
+use std::path::Path;
+use std::process::{Command, Output};
+
+fn rarefy(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_rarefy"))
+        .args(args)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .expect("run rarefy")
+}
+
+fn stdout(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+fn json(args: &[&str]) -> serde_json::Value {
+    let o = rarefy(args);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    serde_json::from_slice(&o.stdout).expect("valid JSON")
+}
+
+fn num(v: &serde_json::Value, key: &str) -> f64 {
+    v[key]
+        .as_f64()
+        .unwrap_or_else(|| panic!("{key} missing in {v}"))
+}
+
+#[test]
+fn calc_json_has_the_documented_shape() {
+    // The shape and numbers of the Step 1 issue's example (N2, 1e-4 Pa, 295 K).
+    let v = json(&[
+        "calc",
+        "--pressure",
+        "1e-4 Pa",
+        "--temperature",
+        "295 K",
+        "--gas",
+        "N2",
+        "--length",
+        "chamber=0.3 m",
+        "--json",
+    ]);
+    let i = &v["inputs"];
+    assert_eq!(num(i, "pressure_pa"), 1e-4);
+    assert_eq!(num(i, "indicated_pa"), 1e-4);
+    assert_eq!(num(i, "temperature_k"), 295.0);
+    assert_eq!(i["temperature_assumed"], false);
+    assert_eq!(i["gas"], "N2");
+    assert_eq!(i["model"], "sutherland");
+    let close = |key: &str, expect: f64, rel: f64| {
+        let got = num(&v, key);
+        assert!(
+            ((got - expect) / expect).abs() < rel,
+            "{key}: {got} vs {expect}"
+        );
+    };
+    close("number_density_per_m3", 2.455e16, 1e-3);
+    close("mean_speed_m_per_s", 472.2, 1e-3);
+    close("most_probable_speed_m_per_s", 418.5, 1e-3);
+    close("rms_speed_m_per_s", 512.5, 1e-3);
+    close("mean_free_path_m", 66.6, 5e-3);
+    close("impingement_per_m2_s", 2.898e18, 1e-3);
+    close("monolayer_time_s", 3.45, 2e-3);
+    assert_eq!(v["vacuum_range"], "high");
+    let s = &v["species"][0];
+    assert_eq!(s["gas"], "N2");
+    assert_eq!(num(s, "fraction"), 1.0);
+    assert_eq!(num(s, "partial_pressure_pa"), 1e-4);
+    for key in [
+        "mean_free_path_m",
+        "impingement_per_m2_s",
+        "monolayer_time_s",
+    ] {
+        assert_eq!(s[key], v[key], "{key}");
+    }
+    let l = &v["lengths"][0];
+    assert_eq!(l["name"], "chamber");
+    assert_eq!(num(l, "length_m"), 0.3);
+    assert!((num(l, "knudsen") - 222.0).abs() < 1.5);
+    assert_eq!(l["regime"], "molecular");
+    assert_eq!(v["warnings"], serde_json::json!([]));
+}
+
+#[test]
+fn calc_assumes_22_c_and_says_so() {
+    let v = json(&["calc", "-p", "1e-6 mbar", "--json"]);
+    assert_eq!(v["inputs"]["temperature_assumed"], true);
+    assert!((num(&v["inputs"], "temperature_k") - 295.15).abs() < 1e-9);
+    let o = rarefy(&["calc", "-p", "1e-6 mbar"]);
+    assert!(stdout(&o).contains("22.0 C (assumed)"), "{}", stdout(&o));
+}
+
+#[test]
+fn calc_corrects_an_ion_gauge_reading_for_argon() {
+    // Source: CRC Handbook sec. 15, S(Ar) = 1.4: 1.0e-6 Pa indicated -> 7.143e-7 Pa.
+    let v = json(&[
+        "calc",
+        "-p",
+        "1e-6 Pa",
+        "--gas",
+        "Ar",
+        "--gauge",
+        "ionization",
+        "--json",
+    ]);
+    assert!((num(&v["inputs"], "pressure_pa") - 7.143e-7).abs() < 1e-10);
+    assert_eq!(num(&v["inputs"], "indicated_pa"), 1e-6);
+    assert_eq!(num(&v["inputs"], "sensitivity"), 1.4);
+}
+
+#[test]
+fn calc_mixture_totals() {
+    let v = json(&[
+        "calc",
+        "-p",
+        "1e-4 Pa",
+        "--mix",
+        "H2=0.6,H2O=0.3,N2=0.1",
+        "--json",
+    ]);
+    let species = v["species"].as_array().expect("species");
+    assert_eq!(species.len(), 3);
+    let sum: f64 = species.iter().map(|s| num(s, "impingement_per_m2_s")).sum();
+    assert!((sum / num(&v, "impingement_per_m2_s") - 1.0).abs() < 1e-12);
+    let weighted: f64 = species
+        .iter()
+        .map(|s| num(s, "fraction") * num(s, "mean_free_path_m"))
+        .sum();
+    assert!((weighted / num(&v, "mean_free_path_m") - 1.0).abs() < 1e-12);
+}
+
+#[test]
+fn calc_reports_out_of_model_inputs_as_warnings() {
+    let v = json(&["calc", "-p", "1 Pa", "-t", "77 K", "--json"]);
+    let codes: Vec<&str> = v["warnings"]
+        .as_array()
+        .expect("warnings")
+        .iter()
+        .filter_map(|w| w["code"].as_str())
+        .collect();
+    assert!(codes.contains(&"temperature-outside-fit"), "{codes:?}");
+    let v = json(&["calc", "-p", "10 mbar", "--gauge", "ionization", "--json"]);
+    assert_eq!(v["warnings"][0]["code"], "gauge-out-of-range");
+}
+
+#[test]
+fn calc_help_explains_mixture_means() {
+    let o = rarefy(&["calc", "--help"]);
+    let text = stdout(&o);
+    assert!(text.contains("mole-fraction-weighted mean"), "{text}");
+    let o = rarefy(&["--help"]);
+    assert!(stdout(&o).contains("not a safety interlock"));
+}
+
+#[test]
+fn bad_arguments_exit_2_naming_the_argument() {
+    let cases: &[(&[&str], &str)] = &[
+        (&["calc", "-p", "1e-6 mbr"], "unknown pressure unit \"mbr\""),
+        (&["calc", "-p", "1e-6"], "has no unit"),
+        (&["calc", "-p", "0 Pa"], "greater than zero"),
+        (&["calc", "-p", "-3 Pa"], "greater than zero"),
+        (&["calc", "-p", "NaN Pa"], "not a finite number"),
+        (&["calc", "-p", "lots"], "does not start with a number"),
+        (&["calc", "-p", "1 Pa", "-t", "-300 C"], "absolute zero"),
+        (
+            &["calc", "-p", "1 Pa", "-t", "300 Q"],
+            "unknown temperature unit",
+        ),
+        (
+            &["calc", "-p", "1 Pa", "--gas", "Nx"],
+            "did you mean \"N2\"",
+        ),
+        (
+            &["calc", "-p", "1 Pa", "--mix", "H2=0.5,N2=0.6"],
+            "sum to 1.1",
+        ),
+        (
+            &["calc", "-p", "1 Pa", "--mix", "H2=0.5,N2"],
+            "gas=fraction",
+        ),
+        (
+            &["calc", "-p", "1 Pa", "--length", "x=0 m"],
+            "greater than zero",
+        ),
+        (
+            &["calc", "-p", "1 Pa", "--length", "x=3 furlong"],
+            "unknown length unit",
+        ),
+        (&["calc", "-p", "1 Pa", "--sticking", "2"], "at most 1"),
+        (
+            &["calc", "-p", "1 Pa", "--sites", "-1"],
+            "greater than zero",
+        ),
+        (&["calc", "-p", "1 Pa", "--model", "soft"], "hard-sphere"),
+        (&["calc", "-p", "1 Pa", "--gauge", "pirani"], "capacitance"),
+        (
+            &["calc", "-p", "1 Pa", "-g", "Ar", "--gauge", "thermal"],
+            "--sensitivity",
+        ),
+        (
+            &["calc", "-p", "1 Pa", "--gas", "N2", "--mix", "N2=1"],
+            "cannot be used with",
+        ),
+        (
+            &["calc", "-p", "1 Pa", "--diameter", "0 nm"],
+            "greater than zero",
+        ),
+        (&["calc"], "--pressure"),
+        (
+            &["config", "check", "does/not/exist.toml"],
+            "cannot read the file",
+        ),
+        (&["frobnicate"], "unrecognized subcommand"),
+    ];
+    for (args, expect) in cases {
+        let o = rarefy(args);
+        let err = stderr(&o);
+        assert_eq!(o.status.code(), Some(2), "{args:?}: {err}");
+        assert!(
+            err.contains(expect),
+            "{args:?}: expected {expect:?} in {err}"
+        );
+        assert!(!err.contains("panicked"), "{args:?}: {err}");
+    }
+}
+
+#[test]
+fn invalid_configs_are_located() {
+    // (file, location, what the message says)
+    let cases = [
+        ("unknown_key.toml", ":3:1:", "did you mean `volume`?"),
+        (
+            "length_wrong_unit.toml",
+            ":3:10:",
+            "unknown length unit \"mbar\"",
+        ),
+        ("mix_bad_sum.toml", ":2:7:", "sum to 0.7"),
+        ("bad_edition.toml", ":2:15:", "expected 1981 or 2019"),
+        (
+            "gauge_kind_typo.toml",
+            ":3:8:",
+            "did you mean `ionization`?",
+        ),
+        (
+            "thermal_without_factor.toml",
+            ":4:7:",
+            "no thermal gauge sensitivity is known for Ar",
+        ),
+        ("syntax.toml", ":1:", "invalid"),
+        ("negative_history.toml", ":2:11:", "must not be negative"),
+        (
+            "calibration_not_monotonic.toml",
+            ":4:15:",
+            "increase strictly",
+        ),
+    ];
+    let dir = Path::new("tests/invalid_configs");
+    let mut seen = 0;
+    for (file, at, expect) in cases {
+        let path = dir.join(file);
+        let o = rarefy(&["config", "check", path.to_str().expect("utf-8 path")]);
+        let err = stderr(&o);
+        assert_eq!(o.status.code(), Some(2), "{file}: {err}");
+        assert!(
+            err.contains(&format!("{}{at}", path.display())),
+            "{file}: {err}"
+        );
+        assert!(err.contains(expect), "{file}: expected {expect:?} in {err}");
+        seen += 1;
+    }
+    let on_disk = std::fs::read_dir(Path::new(env!("CARGO_MANIFEST_DIR")).join(dir))
+        .expect("dir")
+        .count();
+    assert_eq!(
+        seen, on_disk,
+        "every file in tests/invalid_configs has a case"
+    );
+}
+
+#[test]
+fn sample_config_checks_and_feeds_calc() {
+    let o = rarefy(&["config", "check", "config/rarefy.toml"]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert!(stdout(&o).contains("KV-7"));
+    let v = json(&[
+        "calc",
+        "-p",
+        "1e-5 mbar",
+        "--config",
+        "config/rarefy.toml",
+        "--gas",
+        "SF6",
+        "--json",
+    ]);
+    assert_eq!(v["inputs"]["gas"], "SF6");
+    assert_eq!(v["lengths"].as_array().map(Vec::len), Some(3));
+}
+
+#[test]
+fn gases_lists_every_source() {
+    let o = rarefy(&["gases"]);
+    let text = stdout(&o);
+    for word in [
+        "CRC Handbook",
+        "CoolProp 8.0.0",
+        "thermo 0.6.1",
+        "chemicals 1.5.2",
+    ] {
+        assert!(text.contains(word), "{word} missing");
+    }
+    let v = json(&["gases", "--json"]);
+    let gases = v.as_array().expect("array");
+    assert_eq!(gases.len(), 13);
+    for g in gases {
+        assert!(
+            g["sources"]["diameter"]
+                .as_str()
+                .is_some_and(|s| !s.is_empty())
+        );
+    }
+}
