@@ -23,5 +23,6 @@ pub mod cli;
 pub mod config;
 pub mod engine;
 pub mod gas;
+pub mod sample;
 pub mod suggest;
 pub mod units;
