@@ -23,6 +23,7 @@ pub mod cli;
 pub mod config;
 pub mod engine;
 pub mod gas;
+pub mod log;
 pub mod sample;
 pub mod suggest;
 pub mod units;
