@@ -24,6 +24,7 @@ pub mod config;
 pub mod engine;
 pub mod gas;
 pub mod log;
+pub mod parse;
 pub mod sample;
 pub mod suggest;
 pub mod units;
