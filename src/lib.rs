@@ -25,6 +25,8 @@ pub mod engine;
 pub mod gas;
 pub mod log;
 pub mod parse;
+pub mod record;
 pub mod sample;
+pub mod source;
 pub mod suggest;
 pub mod units;
