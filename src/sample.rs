@@ -234,8 +234,9 @@ impl fmt::Display for SourceState {
 /// What a source sends down its channel.
 #[derive(Debug, Clone, PartialEq)]
 pub enum SourceEvent {
-    /// A reading.
-    Sample(Sample),
+    /// The readings of one line or record; they share a data time and go
+    /// into one row of the log.
+    Samples(Vec<Sample>),
     /// A change of connection state.
     Status {
         /// Source name (its URI).

@@ -288,6 +288,26 @@ unit_family! {
     }
 }
 
+unit_family! {
+    /// Data size units (decimal and binary prefixes).
+    SizeUnit, "size", "64 MB" {
+        /// byte
+        B => "B" ["bytes"] * 1.0,
+        /// kilobyte
+        KB => "kB" ["KB"] * 1e3,
+        /// megabyte
+        MB => "MB" [] * 1e6,
+        /// gigabyte
+        GB => "GB" [] * 1e9,
+        /// kibibyte
+        KiB => "KiB" [] * 1024.0,
+        /// mebibyte
+        MiB => "MiB" [] * 1_048_576.0,
+        /// gibibyte
+        GiB => "GiB" [] * 1_073_741_824.0,
+    }
+}
+
 /// Temperature units; these have offsets, so they are written out by hand.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum TemperatureUnit {
@@ -399,6 +419,8 @@ pub type Volume = Quantity<VolumeUnit>;
 pub type Area = Quantity<AreaUnit>;
 /// A duration, e.g. `"2 min"`.
 pub type Duration = Quantity<TimeUnit>;
+/// A data size, e.g. `"64 MB"`.
+pub type Size = Quantity<SizeUnit>;
 
 /// Splits `" 1e-6mbar "` into `("1e-6", "mbar")`: the longest leading run that
 /// parses as a number, and the rest with white space trimmed.

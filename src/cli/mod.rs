@@ -5,6 +5,7 @@
 mod calc;
 mod config_cmd;
 mod gases;
+mod record;
 
 use std::io::Write;
 use std::path::PathBuf;
@@ -41,6 +42,8 @@ enum Command {
     Calc(Box<calc::CalcArgs>),
     /// The built-in gas table with every value's source.
     Gases(gases::GasesArgs),
+    /// Headless ingest and recording: the log goes to --out DIR, events to stdout as JSON lines.
+    Record(Box<record::RecordArgs>),
     /// Work with configuration files.
     Config {
         #[command(subcommand)]
@@ -107,6 +110,7 @@ pub fn main() -> ExitCode {
     let result = match cli.command {
         Command::Calc(args) => calc::run(&args),
         Command::Gases(args) => gases::run(&args),
+        Command::Record(args) => record::run(&args),
         Command::Config { command } => config_cmd::run(&command),
     };
     match result {

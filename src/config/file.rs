@@ -28,6 +28,64 @@ pub struct ConfigFile {
     pub physics: Option<PhysicsSection>,
     /// `[display]`
     pub display: Option<DisplaySection>,
+    /// `[[source]]`
+    #[serde(default)]
+    pub source: Vec<SourceSection>,
+    /// `[record]`
+    pub record: Option<RecordSection>,
+}
+
+/// `[[source]]`: one gauge controller or data feed.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SourceSection {
+    /// `serial:///dev/ttyUSB0?baud=9600`, `tcp://host:port`, `file:///…`, `stdin:`, `sim:`.
+    pub uri: Spanned<String>,
+    /// A request sent every `poll_interval`, with escapes (`"PR1\\r\\n"`).
+    pub poll: Option<Spanned<String>>,
+    /// How often to send `poll` (default 1 s).
+    pub poll_interval: Option<Spanned<Duration>>,
+    /// `[[source.template]]`: how to read its lines; none = the plain format.
+    #[serde(default)]
+    pub template: Vec<Spanned<TemplateSection>>,
+}
+
+/// `[[source.template]]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TemplateSection {
+    /// Regular expression with a named group per channel.
+    pub pattern: String,
+    /// Unit of every channel without an entry in `units`.
+    pub unit: Option<String>,
+    /// Unit per channel.
+    #[serde(default)]
+    pub units: std::collections::BTreeMap<String, String>,
+    /// Device words mapped to statuses.
+    #[serde(default)]
+    pub status: std::collections::BTreeMap<String, crate::sample::Status>,
+    /// Format of the `time` group.
+    pub time_format: Option<String>,
+}
+
+/// `[record]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RecordSection {
+    /// Directory for the log files.
+    pub dir: Option<String>,
+    /// File name prefix (default `rarefy`).
+    pub prefix: Option<Spanned<String>>,
+    /// Start a new file at this size, `"64 MB"`.
+    pub max_size: Option<crate::units::Size>,
+    /// Start a new file when the UTC day changes (default true).
+    pub rotate_daily: Option<bool>,
+    /// How often rows are written to the OS (default `"1 s"`).
+    pub flush: Option<Spanned<Duration>>,
+    /// Rows kept in memory while writing fails (default 200000).
+    pub buffer_rows: Option<Spanned<i64>>,
+    /// Also write derived columns (default false).
+    pub derived: Option<bool>,
 }
 
 /// `[chamber]`

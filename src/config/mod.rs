@@ -17,6 +17,10 @@ use crate::engine::mixture::Mixture;
 use crate::engine::regime::{IsoEdition, RegimeBounds};
 use crate::engine::{GaugeModel, GaugeOverrides, Model, NamedLength, Physics};
 use crate::gas::{Gas, GasSources, GasTable, T_REF_K};
+use crate::parse::template::{Template, TemplateSpec, TimeFormat};
+use crate::record::RecordSettings;
+use crate::sample::ChannelUnit;
+use crate::source::{Poll, SourceUri};
 use crate::units::{PressureUnit, TemperatureUnit, UnitKind, format_sig};
 
 /// The chamber being watched.
@@ -68,8 +72,72 @@ impl Default for Display {
     }
 }
 
-/// A checked, resolved configuration.
+/// A configured source, ready to start.
+#[derive(Debug, Clone)]
+pub struct SourceConfig {
+    /// Where to read.
+    pub uri: SourceUri,
+    /// Poll request, if the controller must be asked.
+    pub poll: Option<Poll>,
+    /// Line templates; empty means the plain format.
+    pub templates: Vec<Template>,
+}
+
+impl SourceConfig {
+    /// A source from a URI alone (the plain format).
+    pub fn from_uri(uri: SourceUri) -> Self {
+        SourceConfig {
+            uri,
+            poll: None,
+            templates: Vec::new(),
+        }
+    }
+
+    /// The decoder for this source's lines.
+    pub fn decoder(&self) -> Box<dyn crate::parse::Decoder> {
+        if self.templates.is_empty() {
+            let unit = self
+                .uri
+                .unit
+                .as_deref()
+                .and_then(ChannelUnit::parse)
+                .unwrap_or(ChannelUnit::Pressure(PressureUnit::Mbar));
+            let channel = self.uri.channel.clone().unwrap_or_else(|| "p".into());
+            Box::new(crate::parse::plain::PlainDecoder::new(channel, unit))
+        } else {
+            Box::new(crate::parse::template::TemplateDecoder::new(
+                self.templates.clone(),
+            ))
+        }
+    }
+}
+
+/// Recording settings.
 #[derive(Debug, Clone, PartialEq)]
+pub struct RecordConfig {
+    /// Directory from the config, if given.
+    pub dir: Option<PathBuf>,
+    /// Rotation and buffering.
+    pub settings: RecordSettings,
+    /// Flush interval, s.
+    pub flush_s: f64,
+    /// Write derived columns.
+    pub derived: bool,
+}
+
+impl Default for RecordConfig {
+    fn default() -> Self {
+        RecordConfig {
+            dir: None,
+            settings: RecordSettings::default(),
+            flush_s: 1.0,
+            derived: false,
+        }
+    }
+}
+
+/// A checked, resolved configuration.
+#[derive(Debug, Clone)]
 pub struct Config {
     /// Where it was read from; `None` for the built-in defaults.
     pub path: Option<PathBuf>,
@@ -87,6 +155,10 @@ pub struct Config {
     pub physics: Physics,
     /// Display preferences.
     pub display: Display,
+    /// Sources.
+    pub sources: Vec<SourceConfig>,
+    /// Recording.
+    pub record: RecordConfig,
 }
 
 impl Default for Config {
@@ -102,6 +174,8 @@ impl Default for Config {
             lengths: Vec::new(),
             physics: Physics::default(),
             display: Display::default(),
+            sources: Vec::new(),
+            record: RecordConfig::default(),
         }
     }
 }
@@ -224,11 +298,153 @@ impl Resolver<'_> {
                 config.gauges.push(gauge);
             }
         }
+        for src in raw.source {
+            if let Some(s) = self.source(src) {
+                config.sources.push(s);
+            }
+        }
+        if let Some(r) = raw.record {
+            config.record = self.record(r);
+        }
         if self.errors.is_empty() {
             Ok(config)
         } else {
             Err(ConfigErrors(self.errors))
         }
+    }
+
+    fn source(&mut self, s: file::SourceSection) -> Option<SourceConfig> {
+        let uri = match SourceUri::parse(s.uri.get_ref()) {
+            Ok(u) => u,
+            Err(e) => {
+                self.err(s.uri.span(), e);
+                return None;
+            }
+        };
+        let poll = match &s.poll {
+            Some(p) => match crate::parse::unescape(p.get_ref()) {
+                Ok(bytes) => {
+                    let every = s.poll_interval.as_ref().map_or(1.0, |d| d.get_ref().si);
+                    if every <= 0.0 {
+                        let span = s.poll_interval.as_ref().map_or(p.span(), |d| d.span());
+                        self.err(span, "poll_interval must be longer than zero");
+                        None
+                    } else {
+                        Some(Poll {
+                            bytes,
+                            every: std::time::Duration::from_secs_f64(every),
+                        })
+                    }
+                }
+                Err(e) => {
+                    self.err(p.span(), e);
+                    None
+                }
+            },
+            None => {
+                if let Some(d) = &s.poll_interval {
+                    self.err(d.span(), "poll_interval without a poll string");
+                }
+                None
+            }
+        };
+        let mut templates = Vec::new();
+        for t in &s.template {
+            let span = t.span();
+            let t = t.get_ref();
+            let unit = |this: &mut Self, text: &str| -> Option<ChannelUnit> {
+                let u = ChannelUnit::parse(text);
+                if u.is_none() {
+                    this.err(
+                        span.clone(),
+                        format!("unknown unit \"{text}\"; expected a pressure or temperature unit (mbar, Torr, Pa, C, K …)"),
+                    );
+                }
+                u
+            };
+            let mut spec = TemplateSpec {
+                pattern: t.pattern.clone(),
+                unit: None,
+                units: Default::default(),
+                status: t.status.clone(),
+                time_format: None,
+            };
+            let mut ok = true;
+            if let Some(u) = &t.unit {
+                spec.unit = unit(self, u);
+                ok &= spec.unit.is_some();
+            }
+            for (ch, u) in &t.units {
+                match unit(self, u) {
+                    Some(u) => {
+                        spec.units.insert(ch.clone(), u);
+                    }
+                    None => ok = false,
+                }
+            }
+            if let Some(f) = &t.time_format {
+                match TimeFormat::parse(f) {
+                    Ok(f) => spec.time_format = Some(f),
+                    Err(e) => {
+                        self.err(span.clone(), e);
+                        ok = false;
+                    }
+                }
+            }
+            if !ok {
+                continue;
+            }
+            match Template::new(&spec) {
+                Ok(t) => templates.push(t),
+                Err(e) => self.err(span, format!("template: {e}")),
+            }
+        }
+        Some(SourceConfig {
+            uri,
+            poll,
+            templates,
+        })
+    }
+
+    fn record(&mut self, r: file::RecordSection) -> RecordConfig {
+        let mut out = RecordConfig {
+            dir: r.dir.map(PathBuf::from),
+            ..RecordConfig::default()
+        };
+        if let Some(p) = r.prefix {
+            let v = p.get_ref();
+            if v.is_empty() || v.contains(['/', '\\']) {
+                self.err(
+                    p.span(),
+                    "prefix must be a non-empty file name part without '/'",
+                );
+            } else {
+                out.settings.prefix = v.clone();
+            }
+        }
+        if let Some(m) = r.max_size {
+            out.settings.max_bytes = Some(m.si as u64);
+        }
+        if let Some(d) = r.rotate_daily {
+            out.settings.rotate_daily = d;
+        }
+        if let Some(f) = r.flush {
+            if f.get_ref().si <= 0.0 {
+                self.err(f.span(), "flush must be longer than zero");
+            } else {
+                out.flush_s = f.get_ref().si;
+            }
+        }
+        if let Some(b) = r.buffer_rows {
+            match usize::try_from(*b.get_ref()) {
+                Ok(n) if n > 0 => out.settings.buffer_rows = n,
+                _ => self.err(b.span(), "buffer_rows must be a positive whole number"),
+            }
+        }
+        if let Some(d) = r.derived {
+            out.derived = d;
+        }
+        out
     }
 
     fn physics(&mut self, p: file::PhysicsSection) -> Physics {

@@ -130,7 +130,7 @@ impl Decoder for PlainDecoder {
             .map_err(|e| format!("invalid UTF-8 at byte {}", e.valid_up_to()))
             .and_then(|text| self.parse_line(text, received));
         match parsed {
-            Ok(samples) => samples.into_iter().map(SourceEvent::Sample).collect(),
+            Ok(samples) => vec![SourceEvent::Samples(samples)],
             Err(why) => vec![SourceEvent::Unparsed {
                 source: source.to_string(),
                 time: received,
@@ -158,7 +158,7 @@ mod tests {
         let mut out = Vec::new();
         for e in events {
             match e {
-                SourceEvent::Sample(s) => out.push(s),
+                SourceEvent::Samples(s) => out.extend(s),
                 SourceEvent::Unparsed { text, .. } => return Err(text),
                 other => panic!("{other:?}"),
             }

@@ -226,7 +226,7 @@ impl Decoder for TemplateDecoder {
         for t in &self.templates {
             match t.apply(line, received) {
                 None => continue,
-                Some(Ok(samples)) => return samples.into_iter().map(SourceEvent::Sample).collect(),
+                Some(Ok(samples)) => return vec![SourceEvent::Samples(samples)],
                 Some(Err(e)) => {
                     return vec![SourceEvent::Unparsed {
                         source: source.to_string(),
@@ -279,9 +279,9 @@ mod tests {
     fn samples(events: Vec<SourceEvent>) -> Vec<Sample> {
         events
             .into_iter()
-            .map(|e| match e {
-                SourceEvent::Sample(s) => s,
-                other => panic!("expected a sample, got {other:?}"),
+            .flat_map(|e| match e {
+                SourceEvent::Samples(s) => s,
+                other => panic!("expected samples, got {other:?}"),
             })
             .collect()
     }

@@ -101,12 +101,18 @@ impl Deriver {
                 &self.lengths,
                 &self.physics,
             );
-            out.push(Cell::Value(d.number_density_per_m3));
-            out.push(Cell::Value(d.mean_free_path_m));
-            out.push(Cell::Value(d.impingement_per_m2_s));
-            out.push(Cell::Value(d.monolayer_time_s));
-            out.extend(d.lengths.iter().map(|l| Cell::Value(l.knudsen)));
+            let cell = |x: f64| Cell::Value(round_sig(x));
+            out.push(cell(d.number_density_per_m3));
+            out.push(cell(d.mean_free_path_m));
+            out.push(cell(d.impingement_per_m2_s));
+            out.push(cell(d.monolayer_time_s));
+            out.extend(d.lengths.iter().map(|l| cell(l.knudsen)));
         }
         out
     }
+}
+
+/// Derived values are recomputable, so six significant digits are written.
+fn round_sig(x: f64) -> f64 {
+    format!("{x:.5e}").parse().unwrap_or(x)
 }

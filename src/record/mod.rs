@@ -106,10 +106,14 @@ struct Segment {
     rows: u64,
 }
 
-/// A row waiting to be written: its time and its cells by column index.
+/// A row waiting to be written: its time, its cells by channel index, and
+/// its derived cells. Channels are only ever appended and derived columns
+/// follow the channels in order, so a row's derived cells stay a prefix of
+/// the derived columns however many channels appear later.
 struct Pending {
     time: DateTime<Utc>,
     cells: Vec<(usize, Cell)>,
+    derived: Vec<Cell>,
 }
 
 /// Writes batches of about this size.
@@ -123,7 +127,6 @@ pub struct Recorder {
     channels: Vec<ChannelInfo>,
     deriver: Option<Deriver>,
     current: Option<Segment>,
-    open_row: Option<Pending>,
     pending: VecDeque<Pending>,
     failing: bool,
     events: Vec<RecordEvent>,
@@ -142,7 +145,6 @@ impl Recorder {
             channels: Vec::new(),
             deriver: None,
             current: None,
-            open_row: None,
             pending: VecDeque::new(),
             failing: false,
             events: Vec::new(),
@@ -192,7 +194,7 @@ impl Recorder {
 
     /// Rows waiting in memory.
     pub fn buffered(&self) -> usize {
-        self.pending.len() + usize::from(self.open_row.is_some())
+        self.pending.len()
     }
 
     /// Whether writing is currently failing.
@@ -205,66 +207,72 @@ impl Recorder {
         self.current.as_ref().map(|s| s.path.as_path())
     }
 
-    /// Records one sample. Returns `true` when enough is waiting that the
-    /// caller should [`flush`](Self::flush) now.
-    pub fn push(&mut self, s: &Sample) -> bool {
-        let idx = match self.channels.iter().position(|c| c.id == s.channel) {
-            Some(i) if self.channels[i].unit == s.unit => i,
-            Some(_) => {
-                // Same channel id in another unit: a channel of its own.
-                let id = format!("{}.{}", s.channel, s.unit.symbol());
-                match self.channels.iter().position(|c| c.id == id) {
-                    Some(j) => j,
-                    None => {
-                        self.close_row();
-                        self.add_channel(ChannelInfo::new(id, s.unit));
-                        self.channels.len() - 1
-                    }
-                }
-            }
-            None => {
-                self.close_row();
-                self.add_channel(ChannelInfo::new(s.channel.clone(), s.unit));
-                self.channels.len() - 1
-            }
+    fn channel_index(&mut self, s: &Sample) -> usize {
+        let id = match self.channels.iter().position(|c| c.id == s.channel) {
+            Some(i) if self.channels[i].unit == s.unit => return i,
+            // Same channel id in another unit: a channel of its own.
+            Some(_) => format!("{}.{}", s.channel, s.unit.symbol()),
+            None => s.channel.clone(),
         };
-        let cell = Cell::of(s);
-        match &mut self.open_row {
-            Some(row) if row.time == s.time && !row.cells.iter().any(|(i, _)| *i == idx) => {
-                row.cells.push((idx, cell));
-            }
-            _ => {
-                self.close_row();
-                self.open_row = Some(Pending {
-                    time: s.time,
-                    cells: vec![(idx, cell)],
-                });
+        if let Some(j) = self.channels.iter().position(|c| c.id == id) {
+            return j;
+        }
+        self.add_channel(ChannelInfo::new(id, s.unit));
+        self.channels.len() - 1
+    }
+
+    /// Records the samples of one line or record as one row. Returns `true`
+    /// when enough is waiting that the caller should [`flush`](Self::flush).
+    pub fn push_row(&mut self, samples: &[Sample]) -> bool {
+        let Some(first) = samples.first() else {
+            return false;
+        };
+        let mut row = Pending {
+            time: first.time,
+            cells: Vec::with_capacity(samples.len()),
+            derived: Vec::new(),
+        };
+        for s in samples {
+            let idx = self.channel_index(s);
+            let cell = Cell::of(s);
+            match row.cells.iter_mut().find(|(i, _)| *i == idx) {
+                // A channel twice in one record: the later reading wins; the
+                // earlier one is kept in a row of its own.
+                Some(slot) => {
+                    let earlier = Pending {
+                        time: row.time,
+                        cells: vec![*slot],
+                        derived: Vec::new(),
+                    };
+                    self.queue(earlier);
+                    slot.1 = cell;
+                }
+                None => row.cells.push((idx, cell)),
             }
         }
+        if let Some(d) = &mut self.deriver {
+            row.derived = d.derive(&self.channels, &row.cells);
+        }
+        self.queue(row);
         self.pending.len() >= 1024
     }
 
-    fn close_row(&mut self) {
-        if let Some(mut row) = self.open_row.take() {
-            if let Some(d) = &mut self.deriver {
-                let first = self.channels.len();
-                for (k, cell) in d.derive(&self.channels, &row.cells).into_iter().enumerate() {
-                    if cell != Cell::Empty {
-                        row.cells.push((first + k, cell));
-                    }
-                }
-            }
-            self.pending.push_back(row);
-            let limit = self.settings.buffer_rows.max(1);
-            if self.pending.len() > limit {
-                let over = (self.pending.len() - limit) as u64;
-                self.pending.drain(..over as usize);
-                self.rows_lost += over;
-                self.events.push(RecordEvent::Lost {
-                    rows: over,
-                    total: self.rows_lost,
-                });
-            }
+    /// Records one sample as a row of its own.
+    pub fn push(&mut self, s: &Sample) -> bool {
+        self.push_row(std::slice::from_ref(s))
+    }
+
+    fn queue(&mut self, row: Pending) {
+        self.pending.push_back(row);
+        let limit = self.settings.buffer_rows.max(1);
+        if self.pending.len() > limit {
+            let over = self.pending.len() - limit;
+            self.pending.drain(..over);
+            self.rows_lost += over as u64;
+            self.events.push(RecordEvent::Lost {
+                rows: over as u64,
+                total: self.rows_lost,
+            });
         }
     }
 
@@ -356,7 +364,6 @@ impl Recorder {
     /// Writes every complete row to the OS. Returns `false` while writing
     /// fails (rows are then kept and retried on the next call).
     pub fn flush(&mut self) -> bool {
-        self.close_row();
         if self.pending.is_empty() {
             return !self.failing;
         }
@@ -397,6 +404,12 @@ impl Recorder {
                 cells.iter_mut().for_each(|c| *c = Cell::Empty);
                 for &(i, c) in &row.cells {
                     cells[i] = c;
+                }
+                let first_derived = self.channels.len();
+                for (k, &c) in row.derived.iter().enumerate() {
+                    if let Some(slot) = cells.get_mut(first_derived + k) {
+                        *slot = c;
+                    }
                 }
                 v1::write_row(&mut text, row.time, &cells);
                 n += 1;

@@ -58,10 +58,12 @@ fn samples_of_one_line_share_a_row() {
     let dir = tempdir("rows");
     let chans = [ChannelInfo::new("a", MBAR), ChannelInfo::new("b", MBAR)];
     let mut r = Recorder::new(settings(&dir), LogMeta::default(), &chans);
-    r.push(&Sample::ok(t(0), "a", 1e-3, MBAR));
-    r.push(&Sample::ok(t(0), "b", 2e-3, MBAR));
+    r.push_row(&[
+        Sample::ok(t(0), "a", 1e-3, MBAR),
+        Sample::ok(t(0), "b", 2e-3, MBAR),
+    ]);
     r.push(&Sample::bad(t(1), "b", MBAR, Status::OverRange));
-    r.push(&Sample::ok(t(1), "b", 5.0, MBAR)); // same channel again: new row
+    r.push(&Sample::ok(t(1), "b", 5.0, MBAR)); // another line at the same time
     assert_eq!(r.close(), 0);
     let f = files(&dir);
     assert_eq!(f.len(), 1);
@@ -172,7 +174,7 @@ fn an_unwritable_place_buffers_then_counts_losses_exactly() {
             _ => None,
         })
         .sum();
-    // 150 rows, 100 kept (the last still open counts among them).
+    // 150 rows, 100 kept.
     assert_eq!(r.buffered(), 100);
     assert_eq!(lost + 100, 150);
     assert_eq!(r.rows_lost(), lost);

@@ -143,6 +143,15 @@ impl Sink {
     }
 }
 
+/// Channels a source will produce that its decoder cannot know in advance
+/// (the simulated chamber's gauges).
+pub fn channels_of(uri: &SourceUri) -> Vec<crate::sample::ChannelInfo> {
+    match &uri.kind {
+        SourceKind::Sim(_) => Vec::new(), // wired with src/sim
+        _ => Vec::new(),
+    }
+}
+
 /// Starts a source task. It ends when the source ends (end of a file that is
 /// not followed, stdin closed, the simulation over) or when `tx`'s receiver
 /// is dropped.
