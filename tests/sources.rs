@@ -41,14 +41,24 @@ struct Probe {
 }
 
 impl Probe {
-    fn start(uri: &str, decoder: Box<dyn Decoder>, poll: Option<Poll>) -> (Probe, tokio::task::JoinHandle<()>) {
+    fn start(
+        uri: &str,
+        decoder: Box<dyn Decoder>,
+        poll: Option<Poll>,
+    ) -> (Probe, tokio::task::JoinHandle<()>) {
         let (tx, rx) = mpsc::channel(64);
         let spec = SourceSpec {
             uri: SourceUri::parse(uri).expect("uri"),
             decoder,
             poll,
         };
-        (Probe { rx, seen: Seen::default() }, source::spawn(spec, tx))
+        (
+            Probe {
+                rx,
+                seen: Seen::default(),
+            },
+            source::spawn(spec, tx),
+        )
     }
 
     fn take(&mut self, ev: SourceEvent) {
@@ -77,7 +87,11 @@ impl Probe {
 
     async fn connected(&mut self, n: usize) {
         self.until("connected", |s| {
-            s.states.iter().filter(|st| **st == SourceState::Connected).count() >= n
+            s.states
+                .iter()
+                .filter(|st| **st == SourceState::Connected)
+                .count()
+                >= n
         })
         .await;
     }
@@ -92,13 +106,19 @@ fn controller_template() -> Box<dyn Decoder> {
     let spec = TemplateSpec {
         pattern: r"^(?P<a_status>\d),(?P<a>[^,]+),(?P<b_status>\d),(?P<b>[^,]+)$".into(),
         unit: Some(MBAR),
-        status: [("0", Status::Ok), ("1", Status::UnderRange), ("2", Status::OverRange)]
-            .into_iter()
-            .map(|(k, v)| (k.to_string(), v))
-            .collect(),
+        status: [
+            ("0", Status::Ok),
+            ("1", Status::UnderRange),
+            ("2", Status::OverRange),
+        ]
+        .into_iter()
+        .map(|(k, v)| (k.to_string(), v))
+        .collect(),
         ..TemplateSpec::default()
     };
-    Box::new(TemplateDecoder::new(vec![Template::new(&spec).expect("valid template")]))
+    Box::new(TemplateDecoder::new(vec![
+        Template::new(&spec).expect("valid template"),
+    ]))
 }
 
 /// A pseudo-terminal whose slave is reachable at a stable symlink, as a
@@ -156,14 +176,30 @@ async fn serial_port_through_a_pty_with_unplug_and_replug() {
     assert_eq!(p.seen.values[3].2, Status::OverRange);
     assert_eq!(p.seen.values[3].1, None);
     assert_eq!(p.seen.values[5].2, Status::UnderRange);
-    assert!(p.seen.unparsed[0].starts_with("\\x1b[2J\\xff\\xfe garbage"), "{:?}", p.seen.unparsed);
-    assert!(p.seen.unparsed[1].contains("20000 bytes"), "{:?}", p.seen.unparsed);
+    assert!(
+        p.seen.unparsed[0].starts_with("\\x1b[2J\\xff\\xfe garbage"),
+        "{:?}",
+        p.seen.unparsed
+    );
+    assert!(
+        p.seen.unparsed[1].contains("20000 bytes"),
+        "{:?}",
+        p.seen.unparsed
+    );
 
     // Unplug: the reader sees the port go and retries.
     port.unplug(&link);
-    p.until("retrying", |s| s.states.iter().any(|st| matches!(st, SourceState::Retrying { .. })))
-        .await;
-    assert!(p.seen.errors.iter().any(|e| e.contains("disconnected")), "{:?}", p.seen.errors);
+    p.until("retrying", |s| {
+        s.states
+            .iter()
+            .any(|st| matches!(st, SourceState::Retrying { .. }))
+    })
+    .await;
+    assert!(
+        p.seen.errors.iter().any(|e| e.contains("disconnected")),
+        "{:?}",
+        p.seen.errors
+    );
 
     // Replug at the same path: it reconnects, and no record after that is lost.
     let mut port = FakePort::plug(&link);
@@ -172,9 +208,18 @@ async fn serial_port_through_a_pty_with_unplug_and_replug() {
     for i in 0..200 {
         port.send(format!("0,{i}.5E-07,0,1.0E-03\r\n").as_bytes());
     }
-    p.until("200 records after replug", |s| s.values.len() >= before + 400).await;
-    let after: Vec<f64> = p.seen.values[before..].iter().step_by(2).filter_map(|v| v.1).collect();
-    let expected: Vec<f64> = (0..200).map(|i| format!("{i}.5E-07").parse().expect("num")).collect();
+    p.until("200 records after replug", |s| {
+        s.values.len() >= before + 400
+    })
+    .await;
+    let after: Vec<f64> = p.seen.values[before..]
+        .iter()
+        .step_by(2)
+        .filter_map(|v| v.1)
+        .collect();
+    let expected: Vec<f64> = (0..200)
+        .map(|i| format!("{i}.5E-07").parse().expect("num"))
+        .collect();
     assert_eq!(after, expected);
     task.abort();
     port.unplug(&link);
@@ -182,7 +227,9 @@ async fn serial_port_through_a_pty_with_unplug_and_replug() {
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn tcp_client_survives_server_restarts_and_polls() {
-    let listener = tokio::net::TcpListener::bind("127.0.0.1:0").await.expect("bind");
+    let listener = tokio::net::TcpListener::bind("127.0.0.1:0")
+        .await
+        .expect("bind");
     let addr = listener.local_addr().expect("addr");
     let poll = Poll {
         bytes: b"?\r\n".to_vec(),
@@ -197,13 +244,19 @@ async fn tcp_client_survives_server_restarts_and_polls() {
         let mut buf = [0u8; 3];
         conn.read_exact(&mut buf).await.expect("poll request");
         assert_eq!(&buf, b"?\r\n");
-        conn.write_all(format!("{i}e-6\n").as_bytes()).await.expect("write");
+        conn.write_all(format!("{i}e-6\n").as_bytes())
+            .await
+            .expect("write");
     }
     p.until("two readings", |s| s.values.len() >= 2).await;
     drop(conn);
     drop(listener);
-    p.until("retrying", |s| s.states.iter().any(|st| matches!(st, SourceState::Retrying { .. })))
-        .await;
+    p.until("retrying", |s| {
+        s.states
+            .iter()
+            .any(|st| matches!(st, SourceState::Retrying { .. }))
+    })
+    .await;
 
     // The server restarts on the same port.
     let listener = tokio::net::TcpListener::bind(addr).await.expect("rebind");
@@ -211,7 +264,14 @@ async fn tcp_client_survives_server_restarts_and_polls() {
     conn.write_all(b"3e-6\n4e-6\n").await.expect("write");
     p.until("two more readings", |s| s.values.len() >= 4).await;
     assert_eq!(p.values(), [1e-6, 2e-6, 3e-6, 4e-6]);
-    assert_eq!(p.seen.states.iter().filter(|s| **s == SourceState::Connected).count(), 2);
+    assert_eq!(
+        p.seen
+            .states
+            .iter()
+            .filter(|s| **s == SourceState::Connected)
+            .count(),
+        2
+    );
     task.abort();
 }
 
@@ -225,7 +285,10 @@ async fn followed_file_is_appended_rotated_and_truncated() {
     p.until("existing lines", |s| s.values.len() >= 2).await;
 
     let append = |text: &str| {
-        let mut f = std::fs::OpenOptions::new().append(true).open(&path).expect("open");
+        let mut f = std::fs::OpenOptions::new()
+            .append(true)
+            .open(&path)
+            .expect("open");
         f.write_all(text.as_bytes()).expect("append");
     };
     // A partial line is held back until it is complete.
@@ -233,25 +296,36 @@ async fn followed_file_is_appended_rotated_and_truncated() {
     p.until("appended line", |s| s.values.len() >= 3).await;
     tokio::time::sleep(Duration::from_millis(600)).await;
     append("-6\n");
-    p.until("completed partial line", |s| s.values.len() >= 4).await;
+    p.until("completed partial line", |s| s.values.len() >= 4)
+        .await;
 
     // Rotation: the file is renamed away, its last line written just
     // before, and a new file started.
     append("5e-6\n");
     std::fs::rename(&path, dir.join("chamber.log.1")).expect("rotate");
     std::fs::write(&path, "6e-6\n").expect("new file");
-    p.until("lines across rotation", |s| s.values.len() >= 6).await;
+    p.until("lines across rotation", |s| s.values.len() >= 6)
+        .await;
 
     // Truncation in place.
     tokio::time::sleep(Duration::from_millis(500)).await;
     std::fs::write(&path, "").expect("truncate");
     tokio::time::sleep(Duration::from_millis(600)).await;
     append("7e-6\n");
-    p.until("line after truncation", |s| s.values.len() >= 7).await;
+    p.until("line after truncation", |s| s.values.len() >= 7)
+        .await;
 
     assert_eq!(p.values(), [1e-6, 2e-6, 3e-6, 4e-6, 5e-6, 6e-6, 7e-6]);
-    assert!(p.seen.errors.iter().any(|e| e.contains("rotated")), "{:?}", p.seen.errors);
-    assert!(p.seen.errors.iter().any(|e| e.contains("truncated")), "{:?}", p.seen.errors);
+    assert!(
+        p.seen.errors.iter().any(|e| e.contains("rotated")),
+        "{:?}",
+        p.seen.errors
+    );
+    assert!(
+        p.seen.errors.iter().any(|e| e.contains("truncated")),
+        "{:?}",
+        p.seen.errors
+    );
     assert!(p.seen.unparsed.is_empty(), "{:?}", p.seen.unparsed);
     task.abort();
 }
@@ -263,6 +337,7 @@ async fn a_file_read_once_ends_with_its_last_line() {
     std::fs::write(&path, "1e-6\r\n2e-6\r3e-6").expect("write");
     let uri = format!("file://{}", path.display());
     let (mut p, _task) = Probe::start(&uri, Box::new(PlainDecoder::new("p", MBAR)), None);
-    p.until("ended", |s| s.states.contains(&SourceState::Ended)).await;
+    p.until("ended", |s| s.states.contains(&SourceState::Ended))
+        .await;
     assert_eq!(p.values(), [1e-6, 2e-6, 3e-6]);
 }

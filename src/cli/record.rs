@@ -155,7 +155,10 @@ pub fn run(args: &RecordArgs) -> Result<u8, CliError> {
         .enable_all()
         .build()
         .map_err(|e| CliError::Runtime(format!("cannot start the runtime: {e}")))?;
-    rt.block_on(record(args, &config, sources, dir))
+    let result = rt.block_on(record(args, &config, sources, dir));
+    // A blocking read of an open stdin would hold a normal shutdown forever.
+    rt.shutdown_background();
+    result
 }
 
 async fn record(
@@ -250,7 +253,20 @@ async fn record(
             report(recorder.take_events());
         }
     }
-    // Stop the sources, then keep everything they had already sent.
+    // On a signal, first take in what the sources already have in hand (a
+    // pipe's unread lines, a burst on the wire): until they are quiet for a
+    // moment, at most two seconds. Then stop them and keep whatever is queued.
+    if stopped_by.is_some() {
+        let deadline = tokio::time::Instant::now() + Duration::from_secs(2);
+        while let Ok(Some(ev)) = tokio::time::timeout_at(
+            deadline.min(tokio::time::Instant::now() + Duration::from_millis(200)),
+            rx.recv(),
+        )
+        .await
+        {
+            handle(ev, &mut recorder, &mut samples, &mut unparsed);
+        }
+    }
     for t in &tasks {
         t.abort();
     }

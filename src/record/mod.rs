@@ -378,9 +378,9 @@ impl Recorder {
             }
         }
         let mut text = String::with_capacity(BATCH_BYTES + 256);
-        // One immediate retry in a new file after a write error: a file-size
-        // limit is per file, so the next file takes the rows.
-        let mut retry = true;
+        // After a write error, one row per write: a file-size limit then
+        // fills each file with complete rows before the next file is started.
+        let mut one_row = false;
         while let Some(first_time) = self.pending.front().map(|p| p.time) {
             if let Some(reason) = self.rotation_needed(first_time) {
                 self.close_segment();
@@ -389,30 +389,11 @@ impl Recorder {
                     return false;
                 }
             }
-            // Batch the rows that fit the current file's rules.
-            text.clear();
-            let mut n = 0;
-            let ncols = self.columns.len();
             let day = self.current.as_ref().map(|s| s.day);
-            let mut cells = vec![Cell::Empty; ncols];
-            for row in &self.pending {
-                if text.len() >= BATCH_BYTES
-                    || (self.settings.rotate_daily && Some(row.time.date_naive()) != day)
-                {
-                    break;
-                }
-                cells.iter_mut().for_each(|c| *c = Cell::Empty);
-                for &(i, c) in &row.cells {
-                    cells[i] = c;
-                }
-                let first_derived = self.channels.len();
-                for (k, &c) in row.derived.iter().enumerate() {
-                    if let Some(slot) = cells.get_mut(first_derived + k) {
-                        *slot = c;
-                    }
-                }
-                v1::write_row(&mut text, row.time, &cells);
-                n += 1;
+            let n = self.format_batch(&mut text, day, if one_row { 1 } else { usize::MAX });
+            if n == 0 {
+                // Cannot happen: rotation makes the first row fit. Never spin.
+                return false;
             }
             let Some(seg) = self.current.as_mut() else {
                 return false;
@@ -434,17 +415,48 @@ impl Recorder {
                     // Cut the file back to its last complete row, so that it
                     // reads back cleanly, and retry the rows in a new file.
                     let _ = seg.file.set_len(seg.committed);
+                    let fresh = seg.rows == 0;
                     let path = seg.path.clone();
                     self.close_segment();
                     self.fail(path, e.to_string());
-                    if std::mem::take(&mut retry) {
-                        continue;
+                    if one_row && fresh {
+                        // Not even one row fits a new file: a real failure.
+                        return false;
                     }
-                    return false;
+                    one_row = true;
                 }
             }
         }
         true
+    }
+
+    /// Formats up to `max_rows` pending rows (and about [`BATCH_BYTES`]) that
+    /// belong in a file of data day `day`; returns how many.
+    fn format_batch(&self, text: &mut String, day: Option<NaiveDate>, max_rows: usize) -> usize {
+        text.clear();
+        let mut cells = vec![Cell::Empty; self.columns.len()];
+        let first_derived = self.channels.len();
+        let mut n = 0;
+        for row in &self.pending {
+            if n >= max_rows
+                || text.len() >= BATCH_BYTES
+                || (self.settings.rotate_daily && Some(row.time.date_naive()) != day)
+            {
+                break;
+            }
+            cells.iter_mut().for_each(|c| *c = Cell::Empty);
+            for &(i, c) in &row.cells {
+                cells[i] = c;
+            }
+            for (k, &c) in row.derived.iter().enumerate() {
+                if let Some(slot) = cells.get_mut(first_derived + k) {
+                    *slot = c;
+                }
+            }
+            v1::write_row(text, row.time, &cells);
+            n += 1;
+        }
+        n
     }
 
     fn fail(&mut self, path: PathBuf, error: String) {

@@ -1,0 +1,231 @@
+//! The real `rarefy record` binary: exact row counts, SIGTERM in the middle,
+//! and a file-size limit.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, Stdio};
+use std::time::{Duration, Instant};
+
+fn bin() -> &'static str {
+    env!("CARGO_BIN_EXE_rarefy")
+}
+
+fn tempdir(tag: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("rarefy-record-{tag}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    d
+}
+
+/// Data rows of every log file in `dir`, in file-name order, checking that
+/// each file is a complete v1 log whose rows all have the header's width.
+fn rows(dir: &Path) -> Vec<String> {
+    let mut files: Vec<PathBuf> = std::fs::read_dir(dir)
+        .expect("out dir")
+        .map(|e| e.expect("entry").path())
+        .filter(|p| p.extension().is_some_and(|e| e == "csv"))
+        .collect();
+    files.sort();
+    let mut out = Vec::new();
+    for f in files {
+        let text = std::fs::read_to_string(&f).expect("read log");
+        assert!(text.starts_with("# rarefy log v1\n"), "{}", f.display());
+        assert!(
+            text.is_empty() || text.ends_with('\n'),
+            "{} ends mid-row",
+            f.display()
+        );
+        let mut lines = text.lines().skip_while(|l| l.starts_with('#'));
+        let header = lines.next().expect("header row");
+        let width = header.split(',').count();
+        for l in lines {
+            assert_eq!(l.split(',').count(), width, "{}: {l}", f.display());
+            out.push(l.to_string());
+        }
+    }
+    out
+}
+
+fn wait(child: &mut Child, limit: Duration) -> std::process::ExitStatus {
+    let start = Instant::now();
+    loop {
+        if let Some(status) = child.try_wait().expect("wait") {
+            return status;
+        }
+        if start.elapsed() > limit {
+            let _ = child.kill();
+            panic!("rarefy record did not exit within {limit:?}");
+        }
+        std::thread::sleep(Duration::from_millis(20));
+    }
+}
+
+#[test]
+fn stdin_n_lines_give_exactly_n_rows() {
+    let dir = tempdir("stdin");
+    let n = 5000;
+    let mut child = Command::new(bin())
+        .args([
+            "record",
+            "--source",
+            "stdin:?channel=chamber&unit=mbar",
+            "--out",
+        ])
+        .arg(&dir)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    {
+        let mut stdin = child.stdin.take().expect("stdin");
+        for i in 0..n {
+            writeln!(stdin, "{}e-7", i + 1).expect("write");
+        }
+    }
+    let out = child.wait_with_output().expect("wait");
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let rows = rows(&dir);
+    assert_eq!(rows.len(), n);
+    for (i, r) in rows.iter().enumerate() {
+        let v: f64 = r.split(',').nth(1).expect("cell").parse().expect("number");
+        let expect: f64 = format!("{}e-7", i + 1).parse().expect("number");
+        assert_eq!(v, expect, "row {i}");
+    }
+    // The summary on stdout is a JSON line with the counts.
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let summary: serde_json::Value = stdout
+        .lines()
+        .filter_map(|l| serde_json::from_str(l).ok())
+        .find(|v: &serde_json::Value| v["event"] == "summary")
+        .expect("summary event");
+    assert_eq!(summary["rows"], n);
+    assert_eq!(summary["rows_lost"], 0);
+}
+
+#[test]
+fn unparsed_lines_are_counted_and_reported_not_dropped() {
+    let dir = tempdir("unparsed");
+    let mut child = Command::new(bin())
+        .args(["record", "--out"])
+        .arg(&dir)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    child
+        .stdin
+        .take()
+        .expect("stdin")
+        .write_all(b"1e-6\n\x1b[31mjunk\xff\n2e-6\n")
+        .expect("write");
+    let out = child.wait_with_output().expect("wait");
+    assert_eq!(out.status.code(), Some(0));
+    assert_eq!(rows(&dir).len(), 2);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let unparsed: Vec<serde_json::Value> = stdout
+        .lines()
+        .filter_map(|l| serde_json::from_str(l).ok())
+        .filter(|v: &serde_json::Value| v["event"] == "unparsed")
+        .collect();
+    assert_eq!(unparsed.len(), 1);
+    assert!(
+        unparsed[0]["text"]
+            .as_str()
+            .is_some_and(|t| t.starts_with("\\x1b[31mjunk\\xff"))
+    );
+    // Terminal control never reaches stderr unescaped.
+    assert!(!out.stderr.contains(&0x1b));
+}
+
+#[test]
+fn sigterm_in_the_middle_keeps_every_row_sent_before_it() {
+    let dir = tempdir("sigterm");
+    let mut child = Command::new(bin())
+        .args(["record", "--source", "stdin:", "--out"])
+        .arg(&dir)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .expect("spawn");
+    let mut stdin = child.stdin.take().expect("stdin");
+    let n = 3000;
+    for i in 0..n {
+        writeln!(stdin, "{}e-8", i + 1).expect("write");
+    }
+    stdin.flush().expect("flush");
+    std::thread::sleep(Duration::from_millis(300));
+    let pid = nix::unistd::Pid::from_raw(child.id() as i32);
+    nix::sys::signal::kill(pid, nix::sys::signal::Signal::SIGTERM).expect("SIGTERM");
+    let status = wait(&mut child, Duration::from_secs(20));
+    assert_eq!(status.code(), Some(0));
+    // stdin is still open: the recorder stopped on the signal, not at EOF.
+    drop(stdin);
+    assert_eq!(rows(&dir).len(), n);
+}
+
+#[test]
+fn a_file_size_limit_is_reported_and_survived_in_new_files() {
+    let dir = tempdir("fsize");
+    let n = 4000;
+    // prlimit (util-linux) sets RLIMIT_FSIZE for the child only.
+    let mut child = Command::new("prlimit")
+        .arg("--fsize=20000")
+        .arg(bin())
+        .args(["record", "--source", "stdin:", "--out"])
+        .arg(&dir)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn prlimit");
+    {
+        let mut stdin = child.stdin.take().expect("stdin");
+        for i in 0..n {
+            writeln!(stdin, "{}e-9", i + 1).expect("write");
+        }
+    }
+    let out = child.wait_with_output().expect("wait");
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{stderr}");
+    assert!(stderr.contains("WRITE FAILED"), "{stderr}");
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(stdout.contains("\"event\":\"write-failed\""), "{stdout}");
+    // Every file stays under the limit and ends on a complete row; together
+    // they hold every row.
+    for e in std::fs::read_dir(&dir).expect("dir") {
+        let len = e.expect("entry").metadata().expect("meta").len();
+        assert!(len <= 20000, "{len}");
+    }
+    let rows = rows(&dir);
+    assert_eq!(rows.len(), n);
+}
+
+#[test]
+fn record_needs_an_output_directory() {
+    let out = Command::new(bin())
+        .args(["record", "--source", "stdin:"])
+        .stdin(Stdio::null())
+        .output()
+        .expect("run");
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--out DIR"));
+    let out = Command::new(bin())
+        .args([
+            "record",
+            "--source",
+            "serial:///dev/x?bauds=9600",
+            "--out",
+            "/tmp/x",
+        ])
+        .output()
+        .expect("run");
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("did you mean `baud`?"));
+}
