@@ -259,6 +259,32 @@ fn invalid_configs_are_located() {
             ":4:15:",
             "increase strictly",
         ),
+        ("source_bad_scheme.toml", ":2:7:", "did you mean `serial:`?"),
+        (
+            "source_bad_poll_escape.toml",
+            ":3:8:",
+            "bad escape at character 4",
+        ),
+        (
+            "template_bad_regex.toml",
+            ":5:11:",
+            "bad pattern: unclosed group",
+        ),
+        (
+            "template_missing_unit.toml",
+            ":4:1:",
+            "no unit for channel `wall`",
+        ),
+        (
+            "template_bad_status_word.toml",
+            ":7:19:",
+            "did you mean `over-range`?",
+        ),
+        (
+            "record_negative_buffer.toml",
+            ":2:15:",
+            "positive whole number",
+        ),
     ];
     let dir = Path::new("tests/invalid_configs");
     let mut seen = 0;

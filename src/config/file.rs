@@ -55,7 +55,7 @@ pub struct SourceSection {
 #[serde(deny_unknown_fields)]
 pub struct TemplateSection {
     /// Regular expression with a named group per channel.
-    pub pattern: String,
+    pub pattern: Spanned<String>,
     /// Unit of every channel without an entry in `units`.
     pub unit: Option<String>,
     /// Unit per channel.

@@ -363,7 +363,7 @@ impl Resolver<'_> {
                 u
             };
             let mut spec = TemplateSpec {
-                pattern: t.pattern.clone(),
+                pattern: t.pattern.get_ref().clone(),
                 unit: None,
                 units: Default::default(),
                 status: t.status.clone(),
@@ -396,7 +396,14 @@ impl Resolver<'_> {
             }
             match Template::new(&spec) {
                 Ok(t) => templates.push(t),
-                Err(e) => self.err(span, format!("template: {e}")),
+                Err(e) => {
+                    let at = if e.starts_with("bad pattern") {
+                        t.pattern.span()
+                    } else {
+                        span
+                    };
+                    self.err(at, format!("template: {e}"));
+                }
             }
         }
         Some(SourceConfig {

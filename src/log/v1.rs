@@ -130,6 +130,8 @@ pub enum Cell {
     Empty,
     /// A valid value in the column's unit.
     Value(f64),
+    /// A derived value, written with six significant digits.
+    Derived(f64),
     /// A bad reading.
     Status(Status),
 }
@@ -155,6 +157,9 @@ pub fn write_row(out: &mut String, time: DateTime<Utc>, cells: &[Cell]) {
             // `{:e}` is the shortest form that reads back to the same f64.
             Cell::Value(v) => {
                 let _ = write!(out, "{v:e}");
+            }
+            Cell::Derived(v) => {
+                let _ = write!(out, "{v:.5e}");
             }
             Cell::Status(s) => out.push_str(s.as_str()),
         }

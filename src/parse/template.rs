@@ -117,7 +117,18 @@ impl Template {
     /// Compiles and checks a template: every value group needs a unit, a
     /// `_status` group needs its channel, a `time` group needs a format.
     pub fn new(spec: &TemplateSpec) -> Result<Self, String> {
-        let regex = Regex::new(&spec.pattern).map_err(|e| format!("bad pattern: {e}"))?;
+        let regex = Regex::new(&spec.pattern).map_err(|e| {
+            // The regex error spans several lines with a caret; its last
+            // line says what is wrong.
+            let text = e.to_string();
+            let why = text
+                .lines()
+                .last()
+                .unwrap_or(&text)
+                .trim()
+                .trim_start_matches("error: ");
+            format!("bad pattern: {why}")
+        })?;
         let mut values = Vec::new();
         let mut statuses = Vec::new();
         let mut time = None;

@@ -101,7 +101,7 @@ impl Deriver {
                 &self.lengths,
                 &self.physics,
             );
-            let cell = |x: f64| Cell::Value(round_sig(x));
+            let cell = Cell::Derived;
             out.push(cell(d.number_density_per_m3));
             out.push(cell(d.mean_free_path_m));
             out.push(cell(d.impingement_per_m2_s));
@@ -110,9 +110,4 @@ impl Deriver {
         }
         out
     }
-}
-
-/// Derived values are recomputable, so six significant digits are written.
-fn round_sig(x: f64) -> f64 {
-    format!("{x:.5e}").parse().unwrap_or(x)
 }
