@@ -28,6 +28,8 @@ pub struct ConfigFile {
     pub physics: Option<PhysicsSection>,
     /// `[display]`
     pub display: Option<DisplaySection>,
+    /// `[log]`: how to read another logger's CSV export.
+    pub log: Option<crate::log::foreign::LogSection>,
 }
 
 /// `[chamber]`

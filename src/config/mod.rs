@@ -87,6 +87,8 @@ pub struct Config {
     pub physics: Physics,
     /// Display preferences.
     pub display: Display,
+    /// How to read another logger's CSV (`[log]`), when configured.
+    pub log: Option<crate::log::foreign::ForeignLogSpec>,
 }
 
 impl Default for Config {
@@ -102,6 +104,7 @@ impl Default for Config {
             lengths: Vec::new(),
             physics: Physics::default(),
             display: Display::default(),
+            log: None,
         }
     }
 }
@@ -222,6 +225,16 @@ impl Resolver<'_> {
             ids.push(id.clone());
             if let Some(gauge) = self.gauge(&config, id, g) {
                 config.gauges.push(gauge);
+            }
+        }
+        if let Some(l) = raw.log {
+            match l.resolve() {
+                Ok(spec) => config.log = Some(spec),
+                Err(problems) => {
+                    for (span, message) in problems {
+                        self.err(span, message);
+                    }
+                }
             }
         }
         if self.errors.is_empty() {
@@ -495,6 +508,9 @@ impl Config {
             UnitKind::symbol(self.display.temperature_unit),
             self.display.history_s
         ));
+        if let Some(l) = &self.log {
+            line(format!("log        {}", l.summary()));
+        }
         out
     }
 }
