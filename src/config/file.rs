@@ -33,6 +33,8 @@ pub struct ConfigFile {
     pub source: Vec<SourceSection>,
     /// `[record]`
     pub record: Option<RecordSection>,
+    /// `[log]`: how to read another logger's CSV export.
+    pub log: Option<crate::log::foreign::LogSection>,
 }
 
 /// `[[source]]`: one gauge controller or data feed.

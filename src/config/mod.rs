@@ -159,6 +159,8 @@ pub struct Config {
     pub sources: Vec<SourceConfig>,
     /// Recording.
     pub record: RecordConfig,
+    /// How to read another logger's CSV (`[log]`), when configured.
+    pub log: Option<crate::log::foreign::ForeignLogSpec>,
 }
 
 impl Default for Config {
@@ -176,6 +178,7 @@ impl Default for Config {
             display: Display::default(),
             sources: Vec::new(),
             record: RecordConfig::default(),
+            log: None,
         }
     }
 }
@@ -305,6 +308,16 @@ impl Resolver<'_> {
         }
         if let Some(r) = raw.record {
             config.record = self.record(r);
+        }
+        if let Some(l) = raw.log {
+            match l.resolve() {
+                Ok(spec) => config.log = Some(spec),
+                Err(problems) => {
+                    for (span, message) in problems {
+                        self.err(span, message);
+                    }
+                }
+            }
         }
         if self.errors.is_empty() {
             Ok(config)
@@ -718,6 +731,9 @@ impl Config {
             UnitKind::symbol(self.display.temperature_unit),
             self.display.history_s
         ));
+        if let Some(l) = &self.log {
+            line(format!("log        {}", l.summary()));
+        }
         out
     }
 }

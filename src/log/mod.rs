@@ -23,7 +23,142 @@
 //! * A cell holds a number (shortest exact form, so no digit is lost), a status
 //!   word (`over-range`, `sensor-off` … — a bad reading is never written as a
 //!   number), or nothing (no reading of that channel at that time).
+//! * A quoted cell (header names with commas) ends on its own line.
+//!
+//! [`read`] reads v1 back; [`foreign`] reads other loggers' CSV exports
+//! through a `[log]` configuration section; [`open_log`] opens either.
 
+pub mod foreign;
+mod lines;
+pub mod read;
 pub mod v1;
 
+use std::fs::File;
+use std::io::{BufRead, BufReader};
+use std::path::Path;
+
+pub use foreign::{ForeignLogSpec, ForeignReader, LogSection};
+pub use lines::{Encoding, MAX_LINE_BYTES};
+pub use read::{LogError, LogReader, Row};
 pub use v1::{Column, ColumnKind, LogMeta, MAGIC};
+
+use crate::sample::ChannelInfo;
+
+/// Which reader a log is read with.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LogFormat {
+    /// rarefy's own log format v1.
+    V1,
+    /// Another logger's CSV, read through a `[log]` section.
+    Foreign,
+}
+
+/// A log being read, whatever its format: its metadata and columns, and an
+/// iterator of rows (a bad row is a located error; iteration goes on after it).
+pub trait LogSource: Iterator<Item = Result<Row, LogError>> + Send {
+    /// The format being read.
+    fn format(&self) -> LogFormat;
+    /// Metadata (for a foreign log: its preamble lines, in `extra`).
+    fn meta(&self) -> &LogMeta;
+    /// Columns after the time, in file order.
+    fn columns(&self) -> &[Column];
+    /// The measured channels (derived columns left out).
+    fn channels(&self) -> Vec<ChannelInfo> {
+        read::channels_of(self.columns())
+    }
+    /// Problems before the data that did not stop the reading.
+    fn warnings(&self) -> &[LogError] {
+        &[]
+    }
+    /// How many rows so far had a time earlier than the row before.
+    fn times_went_back(&self) -> u64;
+    /// How many rows so far had an ambiguous local time (foreign logs in a
+    /// zone with daylight-saving time).
+    fn ambiguous_times(&self) -> u64 {
+        0
+    }
+}
+
+impl<R: BufRead + Send> LogSource for LogReader<R> {
+    fn format(&self) -> LogFormat {
+        LogFormat::V1
+    }
+    fn meta(&self) -> &LogMeta {
+        LogReader::meta(self)
+    }
+    fn columns(&self) -> &[Column] {
+        LogReader::columns(self)
+    }
+    fn warnings(&self) -> &[LogError] {
+        LogReader::warnings(self)
+    }
+    fn times_went_back(&self) -> u64 {
+        LogReader::times_went_back(self)
+    }
+}
+
+impl<R: BufRead + Send> LogSource for ForeignReader<R> {
+    fn format(&self) -> LogFormat {
+        LogFormat::Foreign
+    }
+    fn meta(&self) -> &LogMeta {
+        ForeignReader::meta(self)
+    }
+    fn columns(&self) -> &[Column] {
+        ForeignReader::columns(self)
+    }
+    fn times_went_back(&self) -> u64 {
+        ForeignReader::times_went_back(self)
+    }
+    fn ambiguous_times(&self) -> u64 {
+        ForeignReader::ambiguous_times(self)
+    }
+}
+
+/// Opens a log file: a file starting with the v1 magic line is read as v1
+/// (even when `foreign` is given); any other file needs `foreign`, the
+/// checked `[log]` section of a configuration.
+pub fn open_log(
+    path: &Path,
+    foreign: Option<&ForeignLogSpec>,
+) -> Result<Box<dyn LogSource>, LogError> {
+    let name = path.display().to_string();
+    let file =
+        File::open(path).map_err(|e| LogError::file(&name, format!("cannot open the log: {e}")))?;
+    open_log_from(BufReader::new(file), &name, foreign)
+}
+
+/// [`open_log`] for any buffered reader (stdin, a test buffer); `name` is
+/// used in messages.
+pub fn open_log_from<R: BufRead + Send + 'static>(
+    mut reader: R,
+    name: &str,
+    foreign: Option<&ForeignLogSpec>,
+) -> Result<Box<dyn LogSource>, LogError> {
+    let head = reader
+        .fill_buf()
+        .map_err(|e| LogError::file(name, format!("cannot read the log: {e}")))?;
+    let head = head.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(head);
+    if head.starts_with(b"# rarefy log") {
+        return Ok(Box::new(LogReader::new(reader, name)?));
+    }
+    if let Some(spec) = foreign {
+        return Ok(Box::new(ForeignReader::new(reader, name, spec)?));
+    }
+    let first = head.split(|&b| b == b'\n').next().unwrap_or_default();
+    let first = first.strip_suffix(b"\r").unwrap_or(first);
+    let shown = read::show(&String::from_utf8_lossy(first));
+    let what = if head.is_empty() {
+        "the file is empty".to_string()
+    } else {
+        format!("first line \"{shown}\"")
+    };
+    Err(LogError::at(
+        name,
+        1,
+        None,
+        format!(
+            "not a rarefy log v1 ({what}); give a config with a [log] section to read other loggers' CSV"
+        ),
+    ))
+}

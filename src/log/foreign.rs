@@ -1,0 +1,1217 @@
+//! Other loggers' CSV exports, read through a `[log]` section of the
+//! configuration:
+//!
+//! ```toml
+//! [log]
+//! delimiter = ";"            # ",", ";", "\t" or "tab", "|", " " or "space"
+//! decimal_comma = true       # numbers are written 1,5E-03
+//! skip_rows = 3              # lines before the column-name row
+//! time = { column = "Timestamp", format = "%d.%m.%Y %H:%M:%S", timezone = "Europe/Vienna" }
+//!
+//! [[log.column]]
+//! name = "P chamber"         # header cell text, or `index = 2` (0-based)
+//! channel = "chamber"
+//! unit = "mbar"
+//! status = { "OR" = "over-range", "UR" = "under-range", "ERR" = "sensor-error" }
+//! ```
+//!
+//! `format` is `"rfc3339"`, `"epoch-s"`, `"epoch-ms"` or a strftime pattern.
+//! A pattern without a UTC offset (`%z`) is local time and needs `timezone`: a
+//! time-zone name (`"Europe/Vienna"`, `"UTC"`) or a fixed offset (`"+01:00"`).
+//!
+//! Daylight-saving changes, with a named zone:
+//!
+//! * a local time that occurs twice (the hour repeated when the clocks go
+//!   back) is read as the earlier instant, unless that would put the row
+//!   before the row above it while the later instant would not — so a log
+//!   written straight through the change reads in order. Each such row is
+//!   counted ([`ForeignReader::ambiguous_times`]);
+//! * a local time that does not exist (skipped when the clocks go forward) is
+//!   a located error: the logger's clock was wrong, and no guess is made.
+//!
+//! Cells that are empty give no sample (a gap). Columns not named in the
+//! configuration are ignored.
+
+use chrono::format::{Fixed, Item, Numeric, StrftimeItems};
+use chrono::{DateTime, FixedOffset, LocalResult, NaiveDate, NaiveDateTime, Offset, TimeZone, Utc};
+use chrono_tz::Tz;
+use serde::Deserialize;
+use std::collections::BTreeMap;
+use std::fmt::{self, Write as _};
+use std::fs::File;
+use std::io::{BufRead, BufReader};
+use std::ops::Range;
+use std::path::Path;
+use toml::Spanned;
+
+use super::lines::{self, Encoding, Lines};
+use super::read::{LogError, Row, show, text_in};
+use super::v1::{Column, ColumnKind, LogMeta};
+use crate::sample::{ChannelInfo, ChannelUnit, Sample, Status};
+use crate::units::{PressureUnit, TemperatureUnit, UnitKind};
+
+/// `[log]`: how to read another logger's CSV export.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LogSection {
+    /// Cell delimiter: `","` (default), `";"`, `"\t"` or `"tab"`, `"|"`,
+    /// `" "` or `"space"`.
+    pub delimiter: Option<Spanned<String>>,
+    /// Numbers are written with a decimal comma (`1,5E-03`); default false.
+    pub decimal_comma: Option<Spanned<bool>>,
+    /// Lines before the column-name row (title, device, export date …);
+    /// default 0.
+    pub skip_rows: Option<Spanned<i64>>,
+    /// Whether a column-name row follows the skipped lines (default true).
+    /// Without one, columns are chosen by `index`.
+    pub header: Option<Spanned<bool>>,
+    /// Text encoding: `"utf-8"` (default) or `"latin-1"`.
+    pub encoding: Option<Spanned<String>>,
+    /// The time column.
+    pub time: Spanned<TimeSection>,
+    /// `[[log.column]]`: the gauge columns to read.
+    #[serde(default)]
+    pub column: Vec<ColumnSection>,
+}
+
+/// `time = { column = "Timestamp", format = "…", timezone = "…" }`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TimeSection {
+    /// Header cell text of the time column.
+    pub column: Option<Spanned<String>>,
+    /// Or its 0-based position.
+    pub index: Option<Spanned<i64>>,
+    /// `"rfc3339"`, `"epoch-s"`, `"epoch-ms"` or a strftime pattern such as
+    /// `"%d.%m.%Y %H:%M:%S"`.
+    pub format: Spanned<String>,
+    /// Time zone of local times: an IANA name (`"Europe/Vienna"`, `"UTC"`) or
+    /// a fixed offset (`"+01:00"`). Needed by patterns without `%z`.
+    pub timezone: Option<Spanned<String>>,
+}
+
+/// `[[log.column]]`: one gauge column.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ColumnSection {
+    /// Header cell text.
+    pub name: Option<Spanned<String>>,
+    /// Or its 0-based position.
+    pub index: Option<Spanned<i64>>,
+    /// Channel id the readings get (the gauge id).
+    pub channel: Spanned<String>,
+    /// Unit of the numbers, a pressure or temperature unit (`"mbar"`, `"C"`).
+    pub unit: Spanned<String>,
+    /// The logger's words for bad readings, mapped to statuses
+    /// (`{ "OR" = "over-range" }`).
+    #[serde(default)]
+    pub status: BTreeMap<String, Spanned<String>>,
+}
+
+/// Which cell of a row a column is.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum ColumnRef {
+    /// The cell under this header text.
+    Name(String),
+    /// The cell at this 0-based position.
+    Index(usize),
+}
+
+impl fmt::Display for ColumnRef {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            ColumnRef::Name(n) => write!(f, "\"{n}\""),
+            ColumnRef::Index(i) => write!(f, "index {i}"),
+        }
+    }
+}
+
+/// How row times are written.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum TimeFormat {
+    /// RFC 3339 with an offset (`2026-10-25T01:20:00+02:00`).
+    Rfc3339,
+    /// Seconds since 1970-01-01 UTC, optionally with a fraction.
+    EpochSeconds,
+    /// Milliseconds since 1970-01-01 UTC.
+    EpochMillis,
+    /// A strftime pattern.
+    Pattern {
+        /// The pattern.
+        pattern: String,
+        /// Whether the text carries its own offset (`%z`, `%s` …); else it is
+        /// local time in the spec's zone.
+        absolute: bool,
+    },
+}
+
+/// A time zone for local times.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Zone {
+    /// An IANA time zone, with its daylight-saving rules.
+    Named(Tz),
+    /// A fixed offset from UTC.
+    Fixed(FixedOffset),
+}
+
+impl fmt::Display for Zone {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Zone::Named(tz) => f.write_str(tz.name()),
+            Zone::Fixed(o) => write!(f, "{o}"),
+        }
+    }
+}
+
+/// The time column, resolved.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TimeColumn {
+    /// Where the time is.
+    pub column: ColumnRef,
+    /// How it is written.
+    pub format: TimeFormat,
+    /// Zone of local times (pattern formats without an offset).
+    pub zone: Option<Zone>,
+}
+
+/// A gauge column, resolved.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ForeignColumn {
+    /// Where the cell is.
+    pub column: ColumnRef,
+    /// Channel id.
+    pub channel: String,
+    /// Unit of the numbers.
+    pub unit: ChannelUnit,
+    /// The logger's status words and what they mean.
+    pub status: Vec<(String, Status)>,
+}
+
+/// A checked `[log]` section: everything needed to read a foreign log.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ForeignLogSpec {
+    /// Cell delimiter.
+    pub delimiter: char,
+    /// Numbers use a decimal comma.
+    pub decimal_comma: bool,
+    /// Lines before the column-name row.
+    pub skip_rows: u64,
+    /// Whether there is a column-name row.
+    pub header: bool,
+    /// Text encoding.
+    pub encoding: Encoding,
+    /// The time column.
+    pub time: TimeColumn,
+    /// The gauge columns.
+    pub columns: Vec<ForeignColumn>,
+}
+
+impl ForeignLogSpec {
+    /// One line saying how logs will be read, for `config check`.
+    pub fn summary(&self) -> String {
+        let delimiter = match self.delimiter {
+            '\t' => "tab".to_string(),
+            ' ' => "space".to_string(),
+            c => format!("\"{c}\""),
+        };
+        let format = match &self.time.format {
+            TimeFormat::Rfc3339 => "rfc3339".to_string(),
+            TimeFormat::EpochSeconds => "epoch-s".to_string(),
+            TimeFormat::EpochMillis => "epoch-ms".to_string(),
+            TimeFormat::Pattern { pattern, .. } => format!("\"{pattern}\""),
+        };
+        let zone = self
+            .time
+            .zone
+            .map(|z| format!(" in {z}"))
+            .unwrap_or_default();
+        let channels = self
+            .columns
+            .iter()
+            .map(|c| format!("{} [{}]", c.channel, c.unit))
+            .collect::<Vec<_>>()
+            .join(", ");
+        format!(
+            "foreign CSV, delimiter {delimiter}{}, {} line(s) skipped, time {} as {format}{zone}; channels {channels}",
+            if self.decimal_comma {
+                ", decimal comma"
+            } else {
+                ""
+            },
+            self.skip_rows,
+            self.time.column,
+        )
+    }
+}
+
+/// Problems found resolving a section: byte spans in the TOML text and messages.
+pub type SpanErrors = Vec<(Range<usize>, String)>;
+
+const DELIMITERS: &str = "\",\", \";\", \"\\t\" (or \"tab\"), \"|\", \" \" (or \"space\")";
+
+impl LogSection {
+    /// Checks the section and resolves it; every problem is reported with the
+    /// span of the offending value.
+    pub fn resolve(self) -> Result<ForeignLogSpec, SpanErrors> {
+        let mut errors: SpanErrors = Vec::new();
+        let mut err = |span: Range<usize>, msg: String| errors.push((span, msg));
+
+        let delimiter = match &self.delimiter {
+            None => ',',
+            Some(d) => match d.get_ref().as_str() {
+                "," => ',',
+                ";" => ';',
+                "\t" | "tab" | "\\t" => '\t',
+                "|" => '|',
+                " " | "space" => ' ',
+                other => {
+                    err(
+                        d.span(),
+                        format!(
+                            "unknown delimiter \"{}\"; expected {DELIMITERS}",
+                            other.escape_debug()
+                        ),
+                    );
+                    ','
+                }
+            },
+        };
+        let decimal_comma = self.decimal_comma.as_ref().is_some_and(|d| *d.get_ref());
+        if decimal_comma && delimiter == ',' {
+            let span = self.decimal_comma.as_ref().map_or(0..0, |d| d.span());
+            err(
+                span,
+                "decimal_comma = true needs a delimiter other than \",\" (e.g. delimiter = \";\")"
+                    .into(),
+            );
+        }
+        let encoding = match &self.encoding {
+            None => Encoding::Utf8,
+            Some(e) => match e.get_ref().to_ascii_lowercase().as_str() {
+                "utf-8" | "utf8" => Encoding::Utf8,
+                "latin-1" | "latin1" | "iso-8859-1" => Encoding::Latin1,
+                other => {
+                    let hint = crate::suggest::nearest(other, ["utf-8", "latin-1"])
+                        .map(|s| format!("; did you mean \"{s}\"?"))
+                        .unwrap_or_default();
+                    err(
+                        e.span(),
+                        format!(
+                            "unknown encoding \"{}\"{hint} (expected \"utf-8\" or \"latin-1\")",
+                            other.escape_debug()
+                        ),
+                    );
+                    Encoding::Utf8
+                }
+            },
+        };
+        let header = self.header.as_ref().is_none_or(|h| *h.get_ref());
+        let skip_rows = match &self.skip_rows {
+            None => 0,
+            Some(s) => u64::try_from(*s.get_ref()).unwrap_or_else(|_| {
+                err(
+                    s.span(),
+                    format!(
+                        "skip_rows must be 0 or more (the number of lines before the column-name row), got {}",
+                        s.get_ref()
+                    ),
+                );
+                0
+            }),
+        };
+
+        // Every column reference, with its span, to find those used twice.
+        let mut refs: Vec<(ColumnRef, Range<usize>, String)> = Vec::new();
+        let mut column_ref = |name: &Option<Spanned<String>>,
+                              index: &Option<Spanned<i64>>,
+                              whole: Range<usize>,
+                              what: String,
+                              err: &mut dyn FnMut(Range<usize>, String)|
+         -> Option<ColumnRef> {
+            let r = match (name, index) {
+                (Some(_), Some(i)) => {
+                    err(
+                        i.span(),
+                        format!("{what}: give either `name`/`column` or `index`, not both"),
+                    );
+                    return None;
+                }
+                (None, None) => {
+                    err(
+                        whole,
+                        format!(
+                            "{what}: say which column it is, with `name`/`column` (header text) or `index` (0-based)"
+                        ),
+                    );
+                    return None;
+                }
+                (Some(n), None) => {
+                    let text = n.get_ref().trim();
+                    if text.is_empty() {
+                        err(n.span(), format!("{what}: the column name is empty"));
+                        return None;
+                    }
+                    if !header {
+                        err(
+                            n.span(),
+                            format!(
+                                "{what}: with header = false there are no column names; use `index`"
+                            ),
+                        );
+                        return None;
+                    }
+                    (ColumnRef::Name(text.to_string()), n.span())
+                }
+                (None, Some(i)) => match usize::try_from(*i.get_ref()) {
+                    Ok(v) if v < 100_000 => (ColumnRef::Index(v), i.span()),
+                    _ => {
+                        let why = if *i.get_ref() < 0 {
+                            "must be 0 or more (the first column is 0)"
+                        } else {
+                            "is too large"
+                        };
+                        err(i.span(), format!("{what}: index {} {why}", i.get_ref()));
+                        return None;
+                    }
+                },
+            };
+            if let Some((_, _, first)) = refs.iter().find(|(c, _, _)| *c == r.0) {
+                err(
+                    r.1,
+                    format!("{what}: column {} is already read as {first}", r.0),
+                );
+                return None;
+            }
+            refs.push((r.0.clone(), r.1, what));
+            Some(r.0)
+        };
+
+        // The time column.
+        let t = self.time.get_ref();
+        let time_ref = column_ref(
+            &t.column,
+            &t.index,
+            self.time.span(),
+            "the time".to_string(),
+            &mut err,
+        );
+        let format_text = t.format.get_ref().trim();
+        let format = match format_text {
+            "rfc3339" | "RFC3339" | "rfc-3339" => Some(TimeFormat::Rfc3339),
+            "epoch-s" => Some(TimeFormat::EpochSeconds),
+            "epoch-ms" => Some(TimeFormat::EpochMillis),
+            p if p.contains('%') => match check_pattern(p) {
+                Ok(absolute) => Some(TimeFormat::Pattern {
+                    pattern: p.to_string(),
+                    absolute,
+                }),
+                Err(msg) => {
+                    err(t.format.span(), msg);
+                    None
+                }
+            },
+            other => {
+                let hint = crate::suggest::nearest(other, ["rfc3339", "epoch-s", "epoch-ms"])
+                    .map(|s| format!("did you mean \"{s}\"? "))
+                    .unwrap_or_default();
+                err(
+                    t.format.span(),
+                    format!(
+                        "unknown time format \"{}\"; {hint}expected \"rfc3339\", \"epoch-s\", \"epoch-ms\" \
+                         or a strftime pattern such as \"%d.%m.%Y %H:%M:%S\"",
+                        other.escape_debug()
+                    ),
+                );
+                None
+            }
+        };
+        let zone = match &t.timezone {
+            None => None,
+            Some(z) => match parse_zone(z.get_ref()) {
+                Ok(zone) => Some(zone),
+                Err(msg) => {
+                    err(z.span(), msg);
+                    None
+                }
+            },
+        };
+        let local = matches!(
+            format,
+            Some(TimeFormat::Pattern {
+                absolute: false,
+                ..
+            })
+        );
+        match (&t.timezone, local, &format) {
+            (None, true, _) => err(
+                t.format.span(),
+                format!(
+                    "the time format \"{}\" has no UTC offset, so give the logger's `timezone` \
+                     (e.g. timezone = \"Europe/Vienna\", \"UTC\" or \"+01:00\")",
+                    format_text.escape_debug()
+                ),
+            ),
+            (Some(z), false, Some(_)) => err(
+                z.span(),
+                "`timezone` has no effect: these times carry their own offset; remove it".into(),
+            ),
+            _ => {}
+        }
+
+        // The gauge columns.
+        if self.column.is_empty() {
+            err(
+                self.time.span(),
+                "[log] reads no gauge column; add at least one [[log.column]] with `name`, `channel` and `unit`"
+                    .into(),
+            );
+        }
+        let mut columns = Vec::new();
+        let mut channels: Vec<String> = Vec::new();
+        for c in &self.column {
+            let channel = c.channel.get_ref().trim().to_string();
+            let what = format!("column for channel `{channel}`");
+            let r = column_ref(&c.name, &c.index, c.channel.span(), what, &mut err);
+            if channel.is_empty()
+                || !channel
+                    .chars()
+                    .all(|ch| ch.is_ascii_alphanumeric() || "_-.".contains(ch))
+            {
+                err(
+                    c.channel.span(),
+                    "a channel id must be non-empty and use only letters, digits, '_', '-' and '.'"
+                        .into(),
+                );
+                continue;
+            }
+            if channels.contains(&channel) {
+                err(
+                    c.channel.span(),
+                    format!("channel `{channel}` is read from two columns"),
+                );
+                continue;
+            }
+            channels.push(channel.clone());
+            let unit = match ChannelUnit::parse(c.unit.get_ref()) {
+                Some(u) => Some(u),
+                None => {
+                    err(c.unit.span(), unknown_unit(c.unit.get_ref()));
+                    None
+                }
+            };
+            let mut status = Vec::new();
+            for (word, meaning) in &c.status {
+                let w = word.trim();
+                if w.is_empty() {
+                    err(
+                        meaning.span(),
+                        "an empty status word: empty cells are gaps already".into(),
+                    );
+                    continue;
+                }
+                if w.replace(',', ".").parse::<f64>().is_ok() {
+                    err(
+                        meaning.span(),
+                        format!(
+                            "status word \"{}\" reads as a number; it would hide readings",
+                            w.escape_debug()
+                        ),
+                    );
+                    continue;
+                }
+                match meaning.get_ref().parse::<Status>() {
+                    Ok(Status::Ok) => err(
+                        meaning.span(),
+                        format!(
+                            "status word \"{}\" cannot mean `ok`: a valid reading is a number; expected one of {}",
+                            w.escape_debug(),
+                            super::read::status_words()
+                        ),
+                    ),
+                    Ok(s) => status.push((w.to_string(), s)),
+                    Err(_) => {
+                        let words = Status::ALL
+                            .iter()
+                            .filter(|s| !s.is_ok())
+                            .map(|s| s.as_str());
+                        let hint = crate::suggest::nearest(meaning.get_ref(), words)
+                            .map(|s| format!("; did you mean \"{s}\"?"))
+                            .unwrap_or_default();
+                        err(
+                            meaning.span(),
+                            format!(
+                                "unknown status \"{}\"{hint} (expected one of {})",
+                                meaning.get_ref().escape_debug(),
+                                super::read::status_words()
+                            ),
+                        );
+                    }
+                }
+            }
+            if let (Some(column), Some(unit)) = (r, unit) {
+                columns.push(ForeignColumn {
+                    column,
+                    channel,
+                    unit,
+                    status,
+                });
+            }
+        }
+
+        match (time_ref, format) {
+            (Some(column), Some(format)) if errors.is_empty() => Ok(ForeignLogSpec {
+                delimiter,
+                decimal_comma,
+                skip_rows,
+                header,
+                encoding,
+                time: TimeColumn {
+                    column,
+                    format,
+                    zone,
+                },
+                columns,
+            }),
+            _ => Err(errors),
+        }
+    }
+}
+
+fn unknown_unit(text: &str) -> String {
+    let symbols: Vec<&str> = PressureUnit::ALL
+        .iter()
+        .map(|u| u.symbol())
+        .chain(TemperatureUnit::ALL.iter().map(|u| u.symbol()))
+        .collect();
+    let hint = crate::suggest::nearest(text.trim(), symbols.iter().copied())
+        .map(|s| format!("; did you mean \"{s}\"?"))
+        .unwrap_or_default();
+    format!(
+        "unknown unit \"{}\"{hint}; a gauge column is a pressure or a temperature: {}",
+        text.escape_debug(),
+        symbols.join(", ")
+    )
+}
+
+/// Checks a strftime pattern: every `%` item known, and a formatted time
+/// reads back. Returns whether the text carries its own offset.
+fn check_pattern(pattern: &str) -> Result<bool, String> {
+    let items: Vec<Item> = StrftimeItems::new(pattern).collect();
+    if items.iter().any(|i| matches!(i, Item::Error)) {
+        return Err(format!(
+            "bad strftime pattern \"{}\": an unknown or incomplete `%` specifier \
+             (e.g. %Y year, %m month, %d day, %H hour, %M minute, %S second, %.3f milliseconds, %z offset)",
+            pattern.escape_debug()
+        ));
+    }
+    if items
+        .iter()
+        .any(|i| matches!(i, Item::Numeric(Numeric::Timestamp, _)))
+    {
+        return Err(format!(
+            "strftime pattern \"{}\" uses %s; for seconds since 1970 use format = \"epoch-s\"",
+            pattern.escape_debug()
+        ));
+    }
+    let absolute = items.iter().any(|i| {
+        matches!(
+            i,
+            Item::Fixed(
+                Fixed::TimezoneOffset
+                    | Fixed::TimezoneOffsetColon
+                    | Fixed::TimezoneOffsetDoubleColon
+                    | Fixed::TimezoneOffsetTripleColon
+                    | Fixed::TimezoneOffsetColonZ
+                    | Fixed::TimezoneOffsetZ
+                    | Fixed::RFC2822
+                    | Fixed::RFC3339
+            )
+        )
+    });
+    let reference = NaiveDate::from_ymd_opt(2001, 2, 3)
+        .and_then(|d| d.and_hms_milli_opt(14, 5, 6, 789))
+        .ok_or("internal: reference time")?;
+    let offset = FixedOffset::east_opt(3600).ok_or("internal: reference offset")?;
+    let zoned = offset
+        .from_local_datetime(&reference)
+        .single()
+        .ok_or("internal: reference time")?;
+    let mut text = String::new();
+    if write!(text, "{}", zoned.format_with_items(items.iter())).is_err() {
+        return Err(format!(
+            "bad strftime pattern \"{}\": it cannot format a time",
+            pattern.escape_debug()
+        ));
+    }
+    let back = if absolute {
+        DateTime::parse_from_str(&text, pattern).map(|_| ())
+    } else {
+        NaiveDateTime::parse_from_str(&text, pattern).map(|_| ())
+    };
+    back.map_err(|e| {
+        format!(
+            "strftime pattern \"{}\" does not give a full date and time ({e}); \
+             it needs at least the year, month, day, hour and minute",
+            pattern.escape_debug()
+        )
+    })?;
+    Ok(absolute)
+}
+
+/// Reads a time zone: an IANA name or a fixed offset `+01:00`.
+fn parse_zone(text: &str) -> Result<Zone, String> {
+    let t = text.trim();
+    if let Ok(tz) = t.parse::<Tz>() {
+        return Ok(Zone::Named(tz));
+    }
+    if t.starts_with(['+', '-']) {
+        let bad = || {
+            format!(
+                "bad UTC offset \"{}\"; expected e.g. \"+01:00\" or \"-05:30\"",
+                t.escape_debug()
+            )
+        };
+        let sign = if t.starts_with('-') { -1 } else { 1 };
+        let body = &t[1..];
+        let (h, m) = body.split_once(':').unwrap_or((body, "0"));
+        let (Ok(h), Ok(m)) = (h.parse::<i32>(), m.parse::<i32>()) else {
+            return Err(bad());
+        };
+        if !(0..=23).contains(&h) || !(0..=59).contains(&m) {
+            return Err(bad());
+        }
+        return FixedOffset::east_opt(sign * (h * 3600 + m * 60))
+            .map(Zone::Fixed)
+            .ok_or_else(bad);
+    }
+    let names = chrono_tz::TZ_VARIANTS.iter().map(|z| z.name());
+    let lower = t.to_ascii_lowercase();
+    let hint = names
+        .clone()
+        .find(|n| n.to_ascii_lowercase() == lower)
+        .or_else(|| {
+            let suffix = format!("/{lower}");
+            names
+                .clone()
+                .find(|n| n.to_ascii_lowercase().ends_with(&suffix))
+        })
+        .or_else(|| crate::suggest::nearest(t, names));
+    let hint = hint
+        .map(|s| format!("; did you mean \"{s}\"?"))
+        .unwrap_or_default();
+    Err(format!(
+        "unknown time zone \"{}\"{hint} (expected an IANA name such as \"Europe/Vienna\" or \"UTC\", or an offset such as \"+01:00\")",
+        t.escape_debug()
+    ))
+}
+
+/// Picks the instant for a local time (see the module docs).
+fn localize(
+    naive: NaiveDateTime,
+    zone: Zone,
+    previous: Option<DateTime<Utc>>,
+) -> Result<(DateTime<Utc>, bool), String> {
+    let result = match zone {
+        Zone::Fixed(o) => o.from_local_datetime(&naive).map(|t| t.with_timezone(&Utc)),
+        Zone::Named(tz) => tz
+            .from_local_datetime(&naive)
+            .map(|t| t.with_timezone(&Utc)),
+    };
+    match result {
+        LocalResult::Single(t) => Ok((t, false)),
+        LocalResult::Ambiguous(early, late) => {
+            let chosen = match previous {
+                Some(p) if early < p && late >= p => late,
+                _ => early,
+            };
+            Ok((chosen, true))
+        }
+        LocalResult::None => Err(format!(
+            "local time {naive} does not exist in {zone} (the clocks skip it when they go forward); \
+             the logger's clock was wrong"
+        )),
+    }
+}
+
+/// Parses `[-]digits[.digits]` units since the epoch; `scale` is nanoseconds
+/// per unit (1e9 for seconds, 1e6 for milliseconds).
+fn parse_epoch(text: &str, scale: i128) -> Option<DateTime<Utc>> {
+    let (negative, body) = match text.strip_prefix('-') {
+        Some(b) => (true, b),
+        None => (false, text.strip_prefix('+').unwrap_or(text)),
+    };
+    let (int, frac) = body.split_once('.').unwrap_or((body, ""));
+    if int.is_empty() || !int.bytes().all(|b| b.is_ascii_digit()) || int.len() > 15 {
+        return None;
+    }
+    if !frac.bytes().all(|b| b.is_ascii_digit()) {
+        return None;
+    }
+    let mut nanos: i128 = int.parse::<i128>().ok()? * scale;
+    let mut place = scale / 10;
+    for d in frac.bytes() {
+        if place == 0 {
+            break;
+        }
+        nanos += i128::from(d - b'0') * place;
+        place /= 10;
+    }
+    if negative {
+        nanos = -nanos;
+    }
+    let secs = i64::try_from(nanos.div_euclid(1_000_000_000)).ok()?;
+    let sub = u32::try_from(nanos.rem_euclid(1_000_000_000)).ok()?;
+    DateTime::from_timestamp(secs, sub)
+}
+
+/// Reads a foreign log as described by a [`ForeignLogSpec`].
+pub struct ForeignReader<R> {
+    lines: Lines<R>,
+    name: String,
+    spec: ForeignLogSpec,
+    time_cell: usize,
+    /// (cell index, header text for messages) per spec column.
+    cells: Vec<(usize, String)>,
+    time_header: String,
+    columns: Vec<Column>,
+    meta: LogMeta,
+    last_time: Option<DateTime<Utc>>,
+    went_back: u64,
+    ambiguous: u64,
+}
+
+impl ForeignReader<BufReader<File>> {
+    /// Opens a file and reads up to its column-name row.
+    pub fn open(path: &Path, spec: &ForeignLogSpec) -> Result<Self, LogError> {
+        let name = path.display().to_string();
+        let file = File::open(path)
+            .map_err(|e| LogError::file(&name, format!("cannot open the log: {e}")))?;
+        ForeignReader::new(BufReader::new(file), &name, spec)
+    }
+}
+
+impl<R: BufRead> ForeignReader<R> {
+    /// Reads the preamble and the column-name row from `reader`; `name` is
+    /// the file name used in messages.
+    pub fn new(reader: R, name: &str, spec: &ForeignLogSpec) -> Result<Self, LogError> {
+        let mut lines = Lines::new(reader);
+        let mut meta = LogMeta::default();
+        let read_err =
+            |e: std::io::Error| LogError::file(name, format!("cannot read the log: {e}"));
+        for n in 0..spec.skip_rows {
+            match lines.next_line() {
+                None => {
+                    return Err(LogError::file(
+                        name,
+                        format!(
+                            "the file has only {n} lines, fewer than skip_rows = {} before the {}",
+                            spec.skip_rows,
+                            if spec.header {
+                                "column-name row"
+                            } else {
+                                "data"
+                            }
+                        ),
+                    ));
+                }
+                Some(Err(e)) => return Err(read_err(e)),
+                Some(Ok(raw)) => {
+                    let text = match lines::decode(&raw.bytes, spec.encoding, raw.number == 1) {
+                        Ok(t) => t,
+                        Err(_) => crate::sample::escape_bytes(&raw.bytes),
+                    };
+                    let text = text.trim_end_matches(spec.delimiter).trim().to_string();
+                    if !text.is_empty() {
+                        meta.extra.push(("preamble".to_string(), text));
+                    }
+                }
+            }
+        }
+        let mut header_cells: Vec<String> = Vec::new();
+        let mut header_line = spec.skip_rows + 1;
+        if spec.header {
+            let raw = match lines.next_line() {
+                None => {
+                    return Err(LogError::file(
+                        name,
+                        format!(
+                            "the file ends before its column-name row (line {header_line}, after skip_rows = {})",
+                            spec.skip_rows
+                        ),
+                    ));
+                }
+                Some(Err(e)) => return Err(read_err(e)),
+                Some(Ok(raw)) => raw,
+            };
+            header_line = raw.number;
+            let text = text_in(name, &raw, spec.delimiter, spec.encoding)?;
+            if text.trim().is_empty() {
+                return Err(LogError::at(
+                    name,
+                    raw.number,
+                    None,
+                    format!(
+                        "line {} should be the column-name row but is blank; check skip_rows (now {})",
+                        raw.number, spec.skip_rows
+                    ),
+                ));
+            }
+            header_cells = lines::split(&text, spec.delimiter)
+                .map_err(|e| LogError::at(name, raw.number, Some(e.field), e.message))?
+                .into_iter()
+                .map(|f| f.text)
+                .collect();
+        }
+        let find = |r: &ColumnRef| -> Result<usize, LogError> {
+            let at = |msg: String| LogError::at(name, header_line, None, msg);
+            match r {
+                ColumnRef::Index(i) => {
+                    if spec.header && *i >= header_cells.len() {
+                        Err(at(format!(
+                            "index {i} is past the last column: the column-name row has {} cells (index 0 to {})",
+                            header_cells.len(),
+                            header_cells.len().saturating_sub(1)
+                        )))
+                    } else {
+                        Ok(*i)
+                    }
+                }
+                ColumnRef::Name(n) => {
+                    let exact: Vec<usize> = (0..header_cells.len())
+                        .filter(|&i| header_cells[i].trim() == n)
+                        .collect();
+                    let found = if exact.is_empty() {
+                        (0..header_cells.len())
+                            .filter(|&i| header_cells[i].trim().to_lowercase() == n.to_lowercase())
+                            .collect()
+                    } else {
+                        exact
+                    };
+                    match found.as_slice() {
+                        [i] => Ok(*i),
+                        [a, b, ..] => Err(LogError::at(
+                            name,
+                            header_line,
+                            Some(b + 1),
+                            format!(
+                                "column \"{}\" appears twice in the column-name row (cells {} and {}); choose it by `index`",
+                                show(n),
+                                a + 1,
+                                b + 1
+                            ),
+                        )),
+                        [] => {
+                            let hint =
+                                crate::suggest::nearest(n, header_cells.iter().map(|s| s.trim()))
+                                    .map(|s| format!("; did you mean \"{}\"?", show(s)))
+                                    .unwrap_or_default();
+                            let list = header_cells
+                                .iter()
+                                .map(|c| format!("\"{}\"", show(c)))
+                                .collect::<Vec<_>>()
+                                .join(", ");
+                            Err(at(format!(
+                                "no column \"{}\" in the column-name row{hint} (its cells: {list}); check the name or skip_rows",
+                                show(n)
+                            )))
+                        }
+                    }
+                }
+            }
+        };
+        let header_text = |i: usize| {
+            header_cells
+                .get(i)
+                .cloned()
+                .unwrap_or_else(|| format!("column {i}"))
+        };
+        let time_cell = find(&spec.time.column)?;
+        let mut cells = Vec::new();
+        for c in &spec.columns {
+            let i = find(&c.column)?;
+            if i == time_cell || cells.iter().any(|&(j, _)| j == i) {
+                return Err(LogError::at(
+                    name,
+                    header_line,
+                    Some(i + 1),
+                    format!(
+                        "column \"{}\" (cell {}) is named twice in [log] (by name and by index)",
+                        show(&header_text(i)),
+                        i + 1
+                    ),
+                ));
+            }
+            cells.push((i, header_text(i)));
+        }
+        let columns = spec
+            .columns
+            .iter()
+            .map(|c| Column {
+                name: c.channel.clone(),
+                kind: ColumnKind::Channel(c.unit),
+            })
+            .collect();
+        Ok(ForeignReader {
+            lines,
+            name: name.to_string(),
+            spec: spec.clone(),
+            time_cell,
+            cells,
+            time_header: header_text(time_cell),
+            columns,
+            meta,
+            last_time: None,
+            went_back: 0,
+            ambiguous: 0,
+        })
+    }
+
+    /// Metadata: the preamble lines, kept in `extra` as `preamble` entries.
+    pub fn meta(&self) -> &LogMeta {
+        &self.meta
+    }
+
+    /// One channel column per configured gauge column.
+    pub fn columns(&self) -> &[Column] {
+        &self.columns
+    }
+
+    /// The channels read.
+    pub fn channels(&self) -> Vec<ChannelInfo> {
+        super::read::channels_of(&self.columns)
+    }
+
+    /// How many rows so far had a time earlier than the row before.
+    pub fn times_went_back(&self) -> u64 {
+        self.went_back
+    }
+
+    /// How many rows so far had a local time that occurs twice (the hour
+    /// repeated when daylight-saving time ends).
+    pub fn ambiguous_times(&self) -> u64 {
+        self.ambiguous
+    }
+
+    fn parse_time(&mut self, text: &str) -> Result<DateTime<Utc>, String> {
+        let bad = |why: String| {
+            format!(
+                "time \"{}\" in column \"{}\" {why}",
+                show(text),
+                show(&self.time_header)
+            )
+        };
+        if text.is_empty() {
+            return Err(bad("is empty".into()));
+        }
+        let normalized;
+        let text_num = if self.spec.decimal_comma {
+            normalized = text.replace(',', ".");
+            normalized.as_str()
+        } else {
+            text
+        };
+        match &self.spec.time.format {
+            TimeFormat::Rfc3339 => DateTime::parse_from_rfc3339(text)
+                .map(|t| t.with_timezone(&Utc))
+                .map_err(|e| {
+                    bad(format!(
+                        "is not RFC 3339, e.g. 2026-10-25T01:20:00+02:00 ({e})"
+                    ))
+                }),
+            TimeFormat::EpochSeconds => parse_epoch(text_num, 1_000_000_000)
+                .ok_or_else(|| bad("is not a number of seconds since 1970-01-01 UTC".into())),
+            TimeFormat::EpochMillis => parse_epoch(text_num, 1_000_000)
+                .ok_or_else(|| bad("is not a number of milliseconds since 1970-01-01 UTC".into())),
+            TimeFormat::Pattern {
+                pattern,
+                absolute: true,
+            } => DateTime::parse_from_str(text, pattern)
+                .map(|t| t.with_timezone(&Utc))
+                .map_err(|e| bad(format!("does not match format \"{pattern}\" ({e})"))),
+            TimeFormat::Pattern {
+                pattern,
+                absolute: false,
+            } => {
+                let naive = NaiveDateTime::parse_from_str(text, pattern)
+                    .map_err(|e| bad(format!("does not match format \"{pattern}\" ({e})")))?;
+                let zone = self.spec.time.zone.unwrap_or(Zone::Fixed(Utc.fix()));
+                let (t, ambiguous) = localize(naive, zone, self.last_time).map_err(bad)?;
+                if ambiguous {
+                    self.ambiguous += 1;
+                }
+                Ok(t)
+            }
+        }
+    }
+
+    fn cell(&self, k: usize, text: &str) -> Result<Option<Result<f64, Status>>, String> {
+        if text.is_empty() {
+            return Ok(None);
+        }
+        let col = &self.spec.columns[k];
+        let header = &self.cells[k].1;
+        if let Some((_, s)) = col.status.iter().find(|(w, _)| w == text).or_else(|| {
+            col.status
+                .iter()
+                .find(|(w, _)| w.eq_ignore_ascii_case(text))
+        }) {
+            return Ok(Some(Err(*s)));
+        }
+        let prefix = format!("column \"{}\": cell \"{}\"", show(header), show(text));
+        let number = if self.spec.decimal_comma {
+            if text.contains('.') {
+                return Err(format!(
+                    "{prefix} has a '.', but the [log] section says decimal_comma = true"
+                ));
+            }
+            text.replace(',', ".")
+        } else {
+            text.to_string()
+        };
+        match number.parse::<f64>() {
+            Ok(v) if v.is_finite() => Ok(Some(Ok(v))),
+            Ok(_) => Err(format!(
+                "{prefix} is not a finite number; map the word to a status with `status = {{ \"{}\" = \"sensor-error\" }}`",
+                show(text)
+            )),
+            Err(_) => {
+                let hint = if !self.spec.decimal_comma
+                    && text.contains(',')
+                    && text.replace(',', ".").parse::<f64>().is_ok()
+                {
+                    " (set decimal_comma = true in [log] if the logger writes decimal commas)"
+                        .to_string()
+                } else if col.status.is_empty() {
+                    format!(
+                        "; no status words are set for this column (add e.g. `status = {{ \"{}\" = \"sensor-error\" }}` to its [[log.column]])",
+                        show(text)
+                    )
+                } else {
+                    let words = col
+                        .status
+                        .iter()
+                        .map(|(w, _)| format!("\"{}\"", show(w)))
+                        .collect::<Vec<_>>()
+                        .join(", ");
+                    format!(" or a status word of this column ({words})")
+                };
+                Err(format!("{prefix} is not a number{hint}"))
+            }
+        }
+    }
+
+    fn row(&mut self, raw: &lines::RawLine) -> Option<Result<Row, LogError>> {
+        let text = match text_in(&self.name, raw, self.spec.delimiter, self.spec.encoding) {
+            Ok(t) => t,
+            Err(e) => return Some(Err(e)),
+        };
+        let at =
+            |name: &str, col: Option<usize>, msg: String| LogError::at(name, raw.number, col, msg);
+        if text.trim().is_empty() {
+            return None;
+        }
+        let cells = match lines::split(&text, self.spec.delimiter) {
+            Ok(c) => c,
+            Err(e) => return Some(Err(at(&self.name, Some(e.field), e.message))),
+        };
+        if cells.iter().all(|c| c.text.is_empty()) {
+            return None;
+        }
+        let Some(time_text) = cells.get(self.time_cell) else {
+            return Some(Err(at(
+                &self.name,
+                Some(cells.len() + 1),
+                format!(
+                    "row has {} cells; the time (\"{}\") is cell {}",
+                    cells.len(),
+                    show(&self.time_header),
+                    self.time_cell + 1
+                ),
+            )));
+        };
+        let time = match self.parse_time(&time_text.text) {
+            Ok(t) => t,
+            Err(msg) => return Some(Err(at(&self.name, Some(self.time_cell + 1), msg))),
+        };
+        let mut samples = Vec::new();
+        let mut bad: Vec<(usize, String)> = Vec::new();
+        for (k, (i, header)) in self.cells.iter().enumerate() {
+            let col = &self.spec.columns[k];
+            let Some(cell) = cells.get(*i) else {
+                samples.push(Sample::bad(time, &col.channel, col.unit, Status::Unparsed));
+                bad.push((
+                    cells.len() + 1,
+                    format!(
+                        "row has {} cells; column \"{}\" is cell {}",
+                        cells.len(),
+                        show(header),
+                        i + 1
+                    ),
+                ));
+                continue;
+            };
+            match self.cell(k, &cell.text) {
+                Ok(None) => {}
+                Ok(Some(Ok(v))) => samples.push(Sample::ok(time, &col.channel, v, col.unit)),
+                Ok(Some(Err(s))) => samples.push(Sample::bad(time, &col.channel, col.unit, s)),
+                Err(msg) => {
+                    samples.push(Sample::bad(time, &col.channel, col.unit, Status::Unparsed));
+                    bad.push((i + 1, msg));
+                }
+            }
+        }
+        let time_went_back = self.last_time.is_some_and(|last| time < last);
+        if time_went_back {
+            self.went_back += 1;
+        }
+        self.last_time = Some(time);
+        let row = Row {
+            line: raw.number,
+            time,
+            samples,
+            time_went_back,
+        };
+        let mut bad = bad.into_iter();
+        match bad.next() {
+            None => Some(Ok(row)),
+            Some((col, mut msg)) => {
+                let more = bad.count();
+                if more > 0 {
+                    msg.push_str(&format!(
+                        " (and {more} more bad cell{} in this row)",
+                        if more == 1 { "" } else { "s" }
+                    ));
+                }
+                let mut e = at(&self.name, Some(col), msg);
+                e.row = Some(Box::new(row));
+                Some(Err(e))
+            }
+        }
+    }
+}
+
+impl<R: BufRead> Iterator for ForeignReader<R> {
+    type Item = Result<Row, LogError>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        loop {
+            let raw = match self.lines.next_line()? {
+                Ok(raw) => raw,
+                Err(e) => {
+                    return Some(Err(LogError::at(
+                        &self.name,
+                        self.lines.number() + 1,
+                        None,
+                        format!("cannot read the log: {e}"),
+                    )));
+                }
+            };
+            if let Some(item) = self.row(&raw) {
+                return Some(item);
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests;

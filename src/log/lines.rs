@@ -1,0 +1,308 @@
+//! Line and cell splitting shared by the log readers: bounded, streaming
+//! line reads and a small CSV cell splitter that reports where it failed.
+
+use std::io::{self, BufRead};
+
+/// Longest line the readers accept; a longer one is reported and skipped, so
+/// a file without line breaks cannot exhaust memory.
+pub const MAX_LINE_BYTES: usize = 1 << 20;
+
+/// One physical line as read.
+pub(crate) struct RawLine {
+    /// 1-based line number.
+    pub number: u64,
+    /// The bytes without the line break (`\n` or `\r\n`), capped at
+    /// [`MAX_LINE_BYTES`].
+    pub bytes: Vec<u8>,
+    /// Whether the line was longer than the cap (the rest was skipped).
+    pub too_long: bool,
+}
+
+/// Reads physical lines one at a time from a `BufRead`, never holding more
+/// than one line.
+pub(crate) struct Lines<R> {
+    inner: R,
+    number: u64,
+    done: bool,
+}
+
+impl<R: BufRead> Lines<R> {
+    pub fn new(inner: R) -> Self {
+        Lines {
+            inner,
+            number: 0,
+            done: false,
+        }
+    }
+
+    /// Number of the last line returned.
+    pub fn number(&self) -> u64 {
+        self.number
+    }
+
+    /// The next line; `None` at the end; an I/O error ends the reading.
+    pub fn next_line(&mut self) -> Option<io::Result<RawLine>> {
+        if self.done {
+            return None;
+        }
+        let mut bytes = Vec::new();
+        let mut too_long = false;
+        let mut any = false;
+        loop {
+            let avail = match self.inner.fill_buf() {
+                Ok(b) => b,
+                Err(e) if e.kind() == io::ErrorKind::Interrupted => continue,
+                Err(e) => {
+                    self.done = true;
+                    return Some(Err(e));
+                }
+            };
+            if avail.is_empty() {
+                self.done = true;
+                if !any {
+                    return None;
+                }
+                break;
+            }
+            any = true;
+            let (chunk, used, end) = match avail.iter().position(|&b| b == b'\n') {
+                Some(i) => (&avail[..i], i + 1, true),
+                None => (avail, avail.len(), false),
+            };
+            let room = MAX_LINE_BYTES.saturating_sub(bytes.len());
+            if chunk.len() > room {
+                too_long = true;
+            }
+            bytes.extend_from_slice(&chunk[..chunk.len().min(room)]);
+            self.inner.consume(used);
+            if end {
+                break;
+            }
+        }
+        if bytes.last() == Some(&b'\r') {
+            bytes.pop();
+        }
+        self.number += 1;
+        Some(Ok(RawLine {
+            number: self.number,
+            bytes,
+            too_long,
+        }))
+    }
+}
+
+/// Text encodings a log may be written in.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Encoding {
+    /// UTF-8 (a leading byte-order mark is ignored).
+    #[default]
+    Utf8,
+    /// ISO 8859-1: every byte is the character of the same code.
+    Latin1,
+}
+
+/// Decodes a line; on invalid UTF-8 gives the character column of the first
+/// bad byte and the valid text before it.
+pub(crate) fn decode(
+    bytes: &[u8],
+    encoding: Encoding,
+    first: bool,
+) -> Result<String, (String, u8)> {
+    match encoding {
+        Encoding::Latin1 => Ok(bytes.iter().map(|&b| char::from(b)).collect()),
+        Encoding::Utf8 => {
+            let bytes = if first {
+                bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes)
+            } else {
+                bytes
+            };
+            match std::str::from_utf8(bytes) {
+                Ok(s) => Ok(s.to_string()),
+                Err(e) => {
+                    let good = &bytes[..e.valid_up_to()];
+                    let prefix = String::from_utf8_lossy(good).into_owned();
+                    Err((prefix, bytes[e.valid_up_to()]))
+                }
+            }
+        }
+    }
+}
+
+/// A cell after splitting: its text (quotes removed, unquoted cells trimmed).
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Field {
+    pub text: String,
+}
+
+/// A splitting problem: 1-based field number and message.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct SplitError {
+    pub field: usize,
+    pub message: String,
+}
+
+/// Splits one line into cells. A cell may be quoted with `"` (a quote inside
+/// is doubled); a quoted cell must end on the same line and be followed by the
+/// delimiter or the end of the line.
+pub(crate) fn split(line: &str, delim: char) -> Result<Vec<Field>, SplitError> {
+    let mut fields = Vec::new();
+    let mut chars = line.chars().peekable();
+    loop {
+        let number = fields.len() + 1;
+        // Leading blanks (not the delimiter itself, which may be a tab or space).
+        while let Some(&c) = chars.peek() {
+            if c != delim && (c == ' ' || c == '\t') {
+                chars.next();
+            } else {
+                break;
+            }
+        }
+        let mut text = String::new();
+        if chars.peek() == Some(&'"') {
+            chars.next();
+            loop {
+                match chars.next() {
+                    None => {
+                        return Err(SplitError {
+                            field: number,
+                            message:
+                                "quoted cell is not closed on this line (a closing \" is missing)"
+                                    .into(),
+                        });
+                    }
+                    Some('"') if chars.peek() == Some(&'"') => {
+                        chars.next();
+                        text.push('"');
+                    }
+                    Some('"') => break,
+                    Some(c) => text.push(c),
+                }
+            }
+            // Only blanks may follow the closing quote.
+            loop {
+                match chars.next() {
+                    None => {
+                        fields.push(Field { text });
+                        return Ok(fields);
+                    }
+                    Some(c) if c == delim => break,
+                    Some(' ' | '\t') => {}
+                    Some(c) => {
+                        return Err(SplitError {
+                            field: number,
+                            message: format!(
+                                "text after the closing quote of a quoted cell ({c:?}); \
+                                 double a quote inside a quoted cell (\"\")"
+                            ),
+                        });
+                    }
+                }
+            }
+            fields.push(Field { text });
+        } else {
+            let mut ended = true;
+            for c in chars.by_ref() {
+                if c == delim {
+                    ended = false;
+                    break;
+                }
+                text.push(c);
+            }
+            let trimmed = text.trim_matches([' ', '\t']).to_string();
+            fields.push(Field { text: trimmed });
+            if ended {
+                return Ok(fields);
+            }
+        }
+    }
+}
+
+/// The 1-based field in which the text `prefix` (the start of a line) ends,
+/// for locating an invalid byte.
+pub(crate) fn field_of(prefix: &str, delim: char) -> usize {
+    let mut quoted = false;
+    let mut field = 1;
+    for c in prefix.chars() {
+        if c == '"' {
+            quoted = !quoted;
+        } else if c == delim && !quoted {
+            field += 1;
+        }
+    }
+    field
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn texts(line: &str, d: char) -> Vec<String> {
+        split(line, d)
+            .unwrap_or_else(|e| panic!("{e:?}"))
+            .into_iter()
+            .map(|f| f.text)
+            .collect()
+    }
+
+    #[test]
+    fn splits_quoted_and_plain_cells() {
+        assert_eq!(texts("a,b,,c", ','), ["a", "b", "", "c"]);
+        assert_eq!(
+            texts("\"a,b\",\"say \"\"hi\"\"\"", ','),
+            ["a,b", "say \"hi\""]
+        );
+        assert_eq!(texts(" 1 ; 2 ", ';'), ["1", "2"]);
+        assert_eq!(texts("1\t\t2", '\t'), ["1", "", "2"]);
+        assert_eq!(texts("", ','), [""]);
+        assert_eq!(texts("a,", ','), ["a", ""]);
+        let e = split("a,\"b", ',').expect_err("open quote");
+        assert_eq!(e.field, 2);
+        let e = split("\"b\"x,c", ',').expect_err("after quote");
+        assert_eq!(e.field, 1);
+    }
+
+    #[test]
+    fn reads_lines_with_any_ending() {
+        let mut l = Lines::new(&b"a\r\nb\n\nc"[..]);
+        let mut got = Vec::new();
+        while let Some(Ok(line)) = l.next_line() {
+            got.push((line.number, line.bytes));
+        }
+        assert_eq!(
+            got,
+            [
+                (1, b"a".to_vec()),
+                (2, b"b".to_vec()),
+                (3, b"".to_vec()),
+                (4, b"c".to_vec())
+            ]
+        );
+    }
+
+    #[test]
+    fn caps_long_lines() {
+        let mut data = vec![b'x'; MAX_LINE_BYTES + 10];
+        data.extend_from_slice(b"\nnext\n");
+        let mut l = Lines::new(std::io::BufReader::with_capacity(1000, &data[..]));
+        let first = l.next_line().and_then(Result::ok).expect("line");
+        assert!(first.too_long);
+        assert_eq!(first.bytes.len(), MAX_LINE_BYTES);
+        let second = l.next_line().and_then(Result::ok).expect("line");
+        assert_eq!((second.number, second.bytes), (2, b"next".to_vec()));
+        assert!(l.next_line().is_none());
+    }
+
+    #[test]
+    fn decodes_and_locates_bad_utf8() {
+        assert_eq!(
+            decode(b"\xEF\xBB\xBFa", Encoding::Utf8, true),
+            Ok("a".into())
+        );
+        assert_eq!(
+            decode(b"ab\xffc", Encoding::Utf8, false),
+            Err(("ab".into(), 0xff))
+        );
+        assert_eq!(decode(b"\xb0C", Encoding::Latin1, false), Ok("°C".into()));
+        assert_eq!(field_of("a,\"b,c\",d", ','), 3);
+    }
+}

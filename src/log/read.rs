@@ -1,0 +1,610 @@
+//! Reading log format v1 (see the module docs of [`crate::log`]), streaming:
+//! one line in memory at a time, so logs larger than memory can be read.
+//!
+//! [`LogReader::new`] reads the header block (magic line, metadata, header
+//! row); the reader is then an iterator of [`Row`]s. A bad line gives a
+//! located [`LogError`] and the iterator goes on with the next line; the
+//! caller decides whether to stop. An I/O error ends the iteration.
+
+use chrono::{DateTime, Utc};
+use std::fmt;
+use std::fs::File;
+use std::io::{BufRead, BufReader};
+use std::path::Path;
+
+use super::lines::{self, Encoding, Lines, RawLine};
+use super::v1::{Column, ColumnKind, LogMeta, MAGIC};
+use crate::sample::{ChannelInfo, ChannelUnit, Sample, Status};
+
+/// A problem reading a log, located by file, line and column.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LogError {
+    /// The file (as named by the caller).
+    pub file: String,
+    /// 1-based line, when the problem is on a line.
+    pub line: Option<u64>,
+    /// 1-based column: the field (cell) number in a row or header, or the
+    /// character column in a metadata line.
+    pub column: Option<usize>,
+    /// What is wrong and what is expected.
+    pub message: String,
+    /// For a row with bad cells: the row with those cells kept as
+    /// [`Status::Unparsed`] samples, so a caller may still use the good ones.
+    pub row: Option<Box<Row>>,
+}
+
+impl LogError {
+    /// An error at `line` and `column` of `file`.
+    pub fn at(file: &str, line: u64, column: Option<usize>, message: impl Into<String>) -> Self {
+        LogError {
+            file: file.to_string(),
+            line: Some(line),
+            column,
+            message: message.into(),
+            row: None,
+        }
+    }
+
+    /// An error for the whole file (cannot open it, not a log …).
+    pub fn file(file: &str, message: impl Into<String>) -> Self {
+        LogError {
+            file: file.to_string(),
+            line: None,
+            column: None,
+            message: message.into(),
+            row: None,
+        }
+    }
+}
+
+impl fmt::Display for LogError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.file)?;
+        if let Some(l) = self.line {
+            write!(f, ":{l}")?;
+            if let Some(c) = self.column {
+                write!(f, ":{c}")?;
+            }
+        }
+        write!(f, ": {}", self.message)
+    }
+}
+
+impl std::error::Error for LogError {}
+
+/// One data row: its time and one sample per non-empty channel cell.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Row {
+    /// 1-based line number in the file.
+    pub line: u64,
+    /// Row time, UTC.
+    pub time: DateTime<Utc>,
+    /// Samples, in column order; empty cells give none.
+    pub samples: Vec<Sample>,
+    /// The time is earlier than the previous row's (a clock jump): not an
+    /// error, but worth a warning.
+    pub time_went_back: bool,
+}
+
+/// Shortens and escapes text taken from a file for a message.
+pub(crate) fn show(text: &str) -> String {
+    const MAX: usize = 60;
+    let escaped = crate::sample::escape_bytes(text.as_bytes()).replace('"', "\\\"");
+    if escaped.chars().count() > MAX {
+        let cut: String = escaped.chars().take(MAX).collect();
+        format!("{cut}…")
+    } else {
+        escaped
+    }
+}
+
+/// The bad statuses, as listed in messages.
+pub(crate) fn status_words() -> String {
+    Status::ALL
+        .iter()
+        .filter(|s| !s.is_ok())
+        .map(|s| s.as_str())
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// Reads a log v1 from any buffered reader.
+pub struct LogReader<R> {
+    lines: Lines<R>,
+    name: String,
+    meta: LogMeta,
+    columns: Vec<Column>,
+    warnings: Vec<LogError>,
+    last_time: Option<DateTime<Utc>>,
+    went_back: u64,
+}
+
+impl LogReader<BufReader<File>> {
+    /// Opens a log file and reads its header block.
+    pub fn open(path: &Path) -> Result<Self, LogError> {
+        let name = path.display().to_string();
+        let file = File::open(path)
+            .map_err(|e| LogError::file(&name, format!("cannot open the log: {e}")))?;
+        LogReader::new(BufReader::new(file), &name)
+    }
+}
+
+impl<R: BufRead> LogReader<R> {
+    /// Reads the header block from `reader`; `name` is the file name used in
+    /// messages.
+    pub fn new(reader: R, name: &str) -> Result<Self, LogError> {
+        let mut r = LogReader {
+            lines: Lines::new(reader),
+            name: name.to_string(),
+            meta: LogMeta::default(),
+            columns: Vec::new(),
+            warnings: Vec::new(),
+            last_time: None,
+            went_back: 0,
+        };
+        r.read_magic()?;
+        loop {
+            let Some((number, text)) = r.next_text()? else {
+                return Err(LogError::file(
+                    name,
+                    "the log ends before its header row (`time,<channel> [<unit>],…`)",
+                ));
+            };
+            if text.trim().is_empty() {
+                continue;
+            }
+            if let Some(rest) = text.strip_prefix('#') {
+                r.meta_line(number, rest);
+                continue;
+            }
+            r.columns = header_row(name, number, &text)?;
+            return Ok(r);
+        }
+    }
+
+    /// The metadata lines.
+    pub fn meta(&self) -> &LogMeta {
+        &self.meta
+    }
+
+    /// The columns after `time`, in file order.
+    pub fn columns(&self) -> &[Column] {
+        &self.columns
+    }
+
+    /// The measured channels (derived columns left out).
+    pub fn channels(&self) -> Vec<ChannelInfo> {
+        channels_of(&self.columns)
+    }
+
+    /// Problems in the metadata lines that did not stop the reading (a value
+    /// that does not parse, a line that is not `# key: value` …).
+    pub fn warnings(&self) -> &[LogError] {
+        &self.warnings
+    }
+
+    /// How many rows so far had a time earlier than the row before.
+    pub fn times_went_back(&self) -> u64 {
+        self.went_back
+    }
+
+    /// The next line as text, header-block style: errors are fatal.
+    fn next_text(&mut self) -> Result<Option<(u64, String)>, LogError> {
+        match self.lines.next_line() {
+            None => Ok(None),
+            Some(Err(e)) => Err(LogError::file(
+                &self.name,
+                format!("cannot read the log: {e}"),
+            )),
+            Some(Ok(raw)) => text_of(&self.name, &raw, ',').map(|t| Some((raw.number, t))),
+        }
+    }
+
+    fn read_magic(&mut self) -> Result<(), LogError> {
+        let name = self.name.clone();
+        let Some((number, text)) = self.next_text()? else {
+            return Err(LogError::file(
+                &name,
+                format!("the file is empty; a rarefy log starts with `{MAGIC}`"),
+            ));
+        };
+        let first = text.trim_end();
+        if first == MAGIC {
+            return Ok(());
+        }
+        let prefix = "# rarefy log";
+        if let Some(rest) = first.strip_prefix(prefix) {
+            let version = rest.trim();
+            if let Some(v) = version.strip_prefix('v')
+                && !v.is_empty()
+                && v.chars().all(|c| c.is_ascii_digit())
+            {
+                return Err(LogError::at(
+                    &name,
+                    number,
+                    Some(prefix.len() + 2),
+                    format!(
+                        "unsupported version {version} of the rarefy log format; this rarefy reads v1"
+                    ),
+                ));
+            }
+            return Err(LogError::at(
+                &name,
+                number,
+                Some(prefix.len() + 1),
+                format!("bad first line \"{}\"; expected `{MAGIC}`", show(first)),
+            ));
+        }
+        Err(LogError::at(
+            &name,
+            number,
+            Some(1),
+            format!(
+                "not a rarefy log v1 (first line \"{}\"; expected `{MAGIC}`)",
+                show(first)
+            ),
+        ))
+    }
+
+    fn meta_line(&mut self, number: u64, rest: &str) {
+        let warn = |r: &mut Self, col: usize, msg: String| {
+            r.warnings
+                .push(LogError::at(&r.name, number, Some(col), msg));
+        };
+        let body = rest.trim_start();
+        let key_col = 1 + rest.len() - body.len() + 1;
+        let Some((key, value)) = body.split_once(':') else {
+            warn(
+                self,
+                key_col,
+                format!(
+                    "metadata line \"{}\" is not `# key: value`; ignored",
+                    show(body)
+                ),
+            );
+            return;
+        };
+        let raw_key_len = key.len();
+        let key = key.trim();
+        let value = value.trim();
+        let after_colon = &body[raw_key_len + 1..];
+        let value_col = key_col
+            + body[..raw_key_len].chars().count()
+            + 1
+            + (after_colon.len() - after_colon.trim_start().len());
+        if key.is_empty() {
+            warn(self, key_col, "metadata line without a key; ignored".into());
+            return;
+        }
+        let quantity = |unit: &str| -> Result<f64, String> {
+            let number = value
+                .strip_suffix(unit)
+                .map(str::trim)
+                .ok_or_else(|| format!("expected a number in {unit}, e.g. \"8.5e-2 {unit}\""))?;
+            match number.parse::<f64>() {
+                Ok(v) if v.is_finite() && v > 0.0 => Ok(v),
+                Ok(_) => Err(format!("must be a positive finite number in {unit}")),
+                Err(_) => Err(format!(
+                    "expected a number in {unit}, e.g. \"8.5e-2 {unit}\""
+                )),
+            }
+        };
+        let duplicate = match key {
+            "chamber" => self.meta.chamber.replace(value.to_string()).is_some(),
+            "gas" => self.meta.gas.replace(value.to_string()).is_some(),
+            "source" => self.meta.source.replace(value.to_string()).is_some(),
+            "volume" | "surface_area" | "started" => {
+                let parsed = match key {
+                    "volume" => quantity("m3").map(|v| self.meta.volume_m3.replace(v).is_some()),
+                    "surface_area" => {
+                        quantity("m2").map(|v| self.meta.surface_area_m2.replace(v).is_some())
+                    }
+                    _ => DateTime::parse_from_rfc3339(value)
+                        .map(|t| self.meta.started.replace(t.with_timezone(&Utc)).is_some())
+                        .map_err(|e| {
+                            format!(
+                                "expected an RFC 3339 time such as 2026-12-01T19:00:00.000Z ({e})"
+                            )
+                        }),
+                };
+                match parsed {
+                    Ok(had) => had,
+                    Err(msg) => {
+                        warn(
+                            self,
+                            value_col,
+                            format!("metadata `{key}`: \"{}\": {msg}; ignored", show(value)),
+                        );
+                        return;
+                    }
+                }
+            }
+            _ => {
+                self.meta.extra.push((key.to_string(), value.to_string()));
+                false
+            }
+        };
+        if duplicate {
+            warn(
+                self,
+                key_col,
+                format!("metadata `{key}` is given twice; the last one is used"),
+            );
+        }
+    }
+
+    fn row(&mut self, raw: &RawLine) -> Option<Result<Row, LogError>> {
+        let name = self.name.as_str();
+        let text = match text_of(name, raw, ',') {
+            Ok(t) => t,
+            Err(e) => return Some(Err(e)),
+        };
+        if text.trim().is_empty() {
+            return None;
+        }
+        let at = |col: usize, msg: String| LogError::at(name, raw.number, Some(col), msg);
+        if text.starts_with('#') {
+            return Some(Err(at(
+                1,
+                "a `#` line after the header row; metadata belongs before it".into(),
+            )));
+        }
+        let cells = match lines::split(&text, ',') {
+            Ok(c) => c,
+            Err(e) => return Some(Err(at(e.field, e.message))),
+        };
+        let expected = self.columns.len() + 1;
+        if cells.len() != expected {
+            let col = cells.len().min(expected) + 1;
+            return Some(Err(at(
+                col,
+                format!(
+                    "row has {} cells; the header has {expected} (time and {} columns)",
+                    cells.len(),
+                    self.columns.len()
+                ),
+            )));
+        }
+        let time = match parse_time(&cells[0].text) {
+            Ok(t) => t,
+            Err(msg) => return Some(Err(at(1, msg))),
+        };
+        let mut samples = Vec::new();
+        let mut bad: Vec<(usize, String)> = Vec::new();
+        for (i, (cell, column)) in cells[1..].iter().zip(&self.columns).enumerate() {
+            let ColumnKind::Channel(unit) = column.kind else {
+                continue;
+            };
+            match parse_cell(&cell.text) {
+                Ok(None) => {}
+                Ok(Some(Ok(v))) => samples.push(Sample::ok(time, &column.name, v, unit)),
+                Ok(Some(Err(status))) => {
+                    samples.push(Sample::bad(time, &column.name, unit, status));
+                }
+                Err(msg) => {
+                    samples.push(Sample::bad(time, &column.name, unit, Status::Unparsed));
+                    bad.push((i + 2, msg));
+                }
+            }
+        }
+        let time_went_back = self.last_time.is_some_and(|last| time < last);
+        if time_went_back {
+            self.went_back += 1;
+        }
+        self.last_time = Some(time);
+        let row = Row {
+            line: raw.number,
+            time,
+            samples,
+            time_went_back,
+        };
+        let mut bad = bad.into_iter();
+        match bad.next() {
+            None => Some(Ok(row)),
+            Some((col, mut msg)) => {
+                let more = bad.count();
+                if more > 0 {
+                    msg.push_str(&format!(
+                        " (and {more} more bad cell{} in this row)",
+                        if more == 1 { "" } else { "s" }
+                    ));
+                }
+                let mut e = at(col, msg);
+                e.row = Some(Box::new(row));
+                Some(Err(e))
+            }
+        }
+    }
+}
+
+impl<R: BufRead> Iterator for LogReader<R> {
+    type Item = Result<Row, LogError>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        loop {
+            let raw = match self.lines.next_line()? {
+                Ok(raw) => raw,
+                Err(e) => {
+                    return Some(Err(LogError::at(
+                        &self.name,
+                        self.lines.number() + 1,
+                        None,
+                        format!("cannot read the log: {e}"),
+                    )));
+                }
+            };
+            if let Some(item) = self.row(&raw) {
+                return Some(item);
+            }
+        }
+    }
+}
+
+/// The measured channels among `columns`.
+pub(crate) fn channels_of(columns: &[Column]) -> Vec<ChannelInfo> {
+    columns
+        .iter()
+        .filter_map(|c| match c.kind {
+            ColumnKind::Channel(u) => Some(ChannelInfo::new(c.name.clone(), u)),
+            ColumnKind::Derived(_) => None,
+        })
+        .collect()
+}
+
+/// A line's text, or a located error for a line too long or not in the
+/// encoding.
+pub(crate) fn text_of(name: &str, raw: &RawLine, delim: char) -> Result<String, LogError> {
+    text_in(name, raw, delim, Encoding::Utf8)
+}
+
+/// [`text_of`] for a given encoding.
+pub(crate) fn text_in(
+    name: &str,
+    raw: &RawLine,
+    delim: char,
+    encoding: Encoding,
+) -> Result<String, LogError> {
+    if raw.too_long {
+        return Err(LogError::at(
+            name,
+            raw.number,
+            None,
+            format!(
+                "line is longer than {} bytes; skipped",
+                lines::MAX_LINE_BYTES
+            ),
+        ));
+    }
+    lines::decode(&raw.bytes, encoding, raw.number == 1).map_err(|(prefix, byte)| {
+        let field = lines::field_of(&prefix, delim);
+        LogError::at(
+            name,
+            raw.number,
+            Some(field),
+            format!(
+                "invalid UTF-8 (byte 0x{byte:02x} after \"{}\") in cell {field}",
+                show(prefix.rsplit(delim).next().unwrap_or_default())
+            ),
+        )
+    })
+}
+
+/// Parses the header row into columns.
+fn header_row(name: &str, number: u64, text: &str) -> Result<Vec<Column>, LogError> {
+    let at = |col: usize, msg: String| LogError::at(name, number, Some(col), msg);
+    let cells = lines::split(text, ',').map_err(|e| at(e.field, e.message))?;
+    if cells[0].text != "time" {
+        return Err(at(
+            1,
+            format!(
+                "the header row must start with `time`, found \"{}\"",
+                show(&cells[0].text)
+            ),
+        ));
+    }
+    let mut columns: Vec<Column> = Vec::new();
+    for (i, cell) in cells.iter().enumerate().skip(1) {
+        let col = i + 1;
+        let t = cell.text.trim();
+        let (Some(open), true) = (t.rfind('['), t.ends_with(']')) else {
+            return Err(at(
+                col,
+                format!(
+                    "header cell \"{}\" has no unit; expected `<name> [<unit>]`, e.g. `chamber [mbar]`",
+                    show(t)
+                ),
+            ));
+        };
+        let column_name = t[..open].trim();
+        let unit = t[open + 1..t.len() - 1].trim();
+        if column_name.is_empty() {
+            return Err(at(
+                col,
+                format!("header cell \"{}\" has no name before its unit", show(t)),
+            ));
+        }
+        if unit.is_empty() {
+            return Err(at(
+                col,
+                format!("header cell \"{}\" has an empty unit", show(t)),
+            ));
+        }
+        if let Some(first) = columns.iter().position(|c| c.name == column_name) {
+            return Err(at(
+                col,
+                format!(
+                    "column \"{}\" appears twice in the header (cells {} and {col})",
+                    show(column_name),
+                    first + 2
+                ),
+            ));
+        }
+        let kind = match ChannelUnit::parse(unit) {
+            Some(u) => ColumnKind::Channel(u),
+            None => ColumnKind::Derived(unit.to_string()),
+        };
+        columns.push(Column {
+            name: column_name.to_string(),
+            kind,
+        });
+    }
+    Ok(columns)
+}
+
+/// Parses a row time: RFC 3339, any offset (converted to UTC), with or
+/// without fractional seconds.
+fn parse_time(text: &str) -> Result<DateTime<Utc>, String> {
+    if text.is_empty() {
+        return Err("the time cell is empty".into());
+    }
+    DateTime::parse_from_rfc3339(text)
+        .map(|t| t.with_timezone(&Utc))
+        .map_err(|e| {
+            format!(
+                "time \"{}\" is not an RFC 3339 time such as 2026-12-01T19:00:00.000Z ({e})",
+                show(text)
+            )
+        })
+}
+
+/// A cell: `None` when empty, a value, or a bad status; `Err` with a message
+/// when it is neither.
+type CellValue = Option<Result<f64, Status>>;
+
+fn parse_cell(text: &str) -> Result<CellValue, String> {
+    if text.is_empty() {
+        return Ok(None);
+    }
+    if let Ok(status) = text.parse::<Status>() {
+        if status.is_ok() {
+            return Err(
+                "cell \"ok\" has no value; a valid reading is written as its number".into(),
+            );
+        }
+        return Ok(Some(Err(status)));
+    }
+    match text.parse::<f64>() {
+        Ok(v) if v.is_finite() => Ok(Some(Ok(v))),
+        Ok(_) => Err(format!(
+            "cell \"{}\" is not a finite number; a log never holds NaN or infinity",
+            show(text)
+        )),
+        Err(_) => {
+            let words = Status::ALL
+                .iter()
+                .filter(|s| !s.is_ok())
+                .map(|s| s.as_str());
+            let hint = crate::suggest::nearest(text, words)
+                .map(|s| format!("; did you mean \"{s}\"?"))
+                .unwrap_or_default();
+            Err(format!(
+                "cell \"{}\" is neither a number nor a status word ({}){hint}",
+                show(text),
+                status_words()
+            ))
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests;

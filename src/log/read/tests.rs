@@ -1,0 +1,570 @@
+use super::*;
+use crate::log::v1::{Cell, header, write_row};
+use crate::units::{PressureUnit, TemperatureUnit};
+use proptest::prelude::*;
+
+const MBAR: ChannelUnit = ChannelUnit::Pressure(PressureUnit::Mbar);
+
+fn time(text: &str) -> DateTime<Utc> {
+    DateTime::parse_from_rfc3339(text)
+        .map(|t| t.with_timezone(&Utc))
+        .unwrap_or_else(|e| panic!("{text}: {e}"))
+}
+
+fn reader(text: &str) -> LogReader<&[u8]> {
+    LogReader::new(text.as_bytes(), "run.csv").unwrap_or_else(|e| panic!("{e}"))
+}
+
+fn open_error(text: &[u8]) -> LogError {
+    match LogReader::new(text, "run.csv") {
+        Ok(_) => panic!("expected an error for {:?}", String::from_utf8_lossy(text)),
+        Err(e) => e,
+    }
+}
+
+/// The items of a log with two channels `a [mbar]` and `b [C]` and `body`.
+fn rows(body: &str) -> Vec<Result<Row, LogError>> {
+    let text = format!("{MAGIC}\ntime,a [mbar],b [C]\n{body}");
+    reader(&text).collect()
+}
+
+fn one_row_error(body: &str) -> LogError {
+    let items = rows(body);
+    assert_eq!(items.len(), 1, "{items:?}");
+    match items.into_iter().next() {
+        Some(Err(e)) => e,
+        other => panic!("expected an error, got {other:?}"),
+    }
+}
+
+fn columns() -> Vec<Column> {
+    vec![
+        Column::channel(&ChannelInfo::new("chamber", MBAR)),
+        Column::channel(&ChannelInfo::new(
+            "wall",
+            ChannelUnit::Temperature(TemperatureUnit::C),
+        )),
+        Column {
+            name: "chamber.knudsen, bore".into(),
+            kind: ColumnKind::Derived("1".into()),
+        },
+        Column::channel(&ChannelInfo::new(
+            "foreline",
+            ChannelUnit::Pressure(PressureUnit::Torr),
+        )),
+    ]
+}
+
+/// Writes rows with the v1 writer and reads them back, comparing bits.
+fn round_trip(cells: &[(DateTime<Utc>, Vec<Cell>)]) {
+    let meta = LogMeta {
+        chamber: Some("Hollowmere L-3 load lock".into()),
+        volume_m3: Some(0.085),
+        surface_area_m2: Some(1.6),
+        gas: Some("H2=0.6,N2=0.4".into()),
+        source: Some("sim:pumpdown".into()),
+        started: Some(time("2026-12-01T19:00:00.250Z")),
+        extra: vec![
+            ("operator shift".into(), "night: B".into()),
+            ("note".into(), "a: b: c".into()),
+        ],
+    };
+    let cols = columns();
+    let mut text = header(&meta, &cols);
+    for (t, c) in cells {
+        write_row(&mut text, *t, c);
+    }
+    let mut r = reader(&text);
+    assert_eq!(r.meta(), &meta);
+    assert_eq!(r.columns(), cols.as_slice());
+    assert!(r.warnings().is_empty(), "{:?}", r.warnings());
+    assert_eq!(r.channels().len(), 3);
+    let mut n = 0;
+    for ((t, written), read) in cells.iter().zip(r.by_ref()) {
+        let row = read.unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(row.time, *t);
+        let mut samples = row.samples.iter();
+        for (cell, col) in written.iter().zip(&cols) {
+            let ColumnKind::Channel(unit) = col.kind else {
+                continue;
+            };
+            match cell {
+                Cell::Empty => {}
+                Cell::Value(v) => {
+                    let s = samples.next().expect("a sample");
+                    assert_eq!(s.channel, col.name);
+                    assert_eq!(s.unit, unit);
+                    assert_eq!(s.status, Status::Ok);
+                    assert_eq!(s.value.map(f64::to_bits), Some(v.to_bits()), "{v:e}");
+                    assert_eq!(s.time, *t);
+                }
+                Cell::Status(st) => {
+                    let s = samples.next().expect("a sample");
+                    assert_eq!(
+                        (s.channel.as_str(), s.status, s.value),
+                        (col.name.as_str(), *st, None)
+                    );
+                }
+            }
+        }
+        assert!(samples.next().is_none());
+        n += 1;
+    }
+    assert_eq!(n, cells.len());
+    assert!(r.next().is_none());
+}
+
+#[test]
+fn round_trip_is_bit_exact() {
+    let t0 = time("2026-12-01T19:00:00.000Z");
+    let ms = chrono::Duration::milliseconds;
+    let cells = vec![
+        (
+            t0,
+            vec![
+                Cell::Value(1013.25),
+                Cell::Value(22.0),
+                Cell::Value(6.6e-8),
+                Cell::Value(760.0),
+            ],
+        ),
+        (
+            t0 + ms(1),
+            vec![
+                Cell::Status(Status::OverRange),
+                Cell::Empty,
+                Cell::Empty,
+                Cell::Value(0.1 + 0.2),
+            ],
+        ),
+        (
+            t0 + ms(999),
+            vec![
+                Cell::Value(f64::MIN_POSITIVE),
+                Cell::Value(-40.000_000_000_000_01),
+                Cell::Value(1.0),
+                Cell::Value(5e-324),
+            ],
+        ),
+        (
+            t0 + ms(86_400_123),
+            vec![
+                Cell::Value(-0.0),
+                Cell::Status(Status::SensorError),
+                Cell::Empty,
+                Cell::Value(f64::MAX),
+            ],
+        ),
+        (
+            t0 + ms(86_400_124),
+            vec![
+                Cell::Status(Status::UnderRange),
+                Cell::Status(Status::SensorOff),
+                Cell::Empty,
+                Cell::Status(Status::Stale),
+            ],
+        ),
+        (
+            t0 + ms(86_400_125),
+            vec![
+                Cell::Status(Status::Unparsed),
+                Cell::Empty,
+                Cell::Empty,
+                Cell::Empty,
+            ],
+        ),
+    ];
+    round_trip(&cells);
+}
+
+fn cell_strategy() -> impl Strategy<Value = Cell> {
+    prop_oneof![
+        Just(Cell::Empty),
+        any::<f64>()
+            .prop_filter("finite", |v| v.is_finite())
+            .prop_map(Cell::Value),
+        (1..Status::ALL.len()).prop_map(|i| Cell::Status(Status::ALL[i])),
+    ]
+}
+
+proptest! {
+    #[test]
+    fn random_rows_round_trip(
+        rows in prop::collection::vec(
+            (0i64..4_000_000_000_000, prop::collection::vec(cell_strategy(), 4)),
+            0..20,
+        )
+    ) {
+        let cells: Vec<(DateTime<Utc>, Vec<Cell>)> = rows
+            .into_iter()
+            .map(|(ms, c)| (DateTime::from_timestamp_millis(ms).unwrap_or_default(), c))
+            .collect();
+        round_trip(&cells);
+    }
+
+    #[test]
+    fn random_bytes_never_panic(bytes in prop::collection::vec(any::<u8>(), 0..400)) {
+        if let Ok(r) = LogReader::new(&bytes[..], "x") {
+            for item in r.take(1000) {
+                let _ = item.map_err(|e| e.to_string());
+            }
+        }
+    }
+
+    #[test]
+    fn random_bodies_never_panic(body in prop::collection::vec(
+        prop_oneof![
+            Just(b','), Just(b'"'), Just(b'\n'), Just(b'\r'), Just(b'#'), Just(b'e'),
+            Just(b'-'), Just(b'.'), Just(b' '), Just(b'T'), Just(b':'), Just(b'Z'),
+            any::<u8>(), b'0'..=b'9',
+        ],
+        0..400,
+    )) {
+        let mut text = format!("{MAGIC}\n# volume: 1 m3\ntime,a [mbar],b [m]\n2026-01-01T00:00:00Z,1,2\n")
+            .into_bytes();
+        text.extend_from_slice(&body);
+        let r = LogReader::new(&text[..], "x").expect("valid header");
+        let mut n = 0;
+        for item in r {
+            n += 1;
+            if let Err(e) = item {
+                prop_assert!(e.line.is_some(), "{e}");
+                let _ = e.to_string();
+            }
+        }
+        prop_assert!(n >= 1);
+    }
+}
+
+#[test]
+fn magic_line_problems() {
+    let e = open_error(b"");
+    assert!(e.message.contains("empty"), "{e}");
+    let e = open_error(b"time,a [mbar]\n");
+    assert_eq!(
+        e.to_string(),
+        "run.csv:1:1: not a rarefy log v1 (first line \"time,a [mbar]\"; expected `# rarefy log v1`)"
+    );
+    let e = open_error(b"# rarefy log v2\ntime\n");
+    assert_eq!(e.line, Some(1));
+    assert!(
+        e.message
+            .contains("unsupported version v2 of the rarefy log format"),
+        "{e}"
+    );
+    let e = open_error(b"# rarefy log v13\n");
+    assert!(e.message.contains("unsupported version v13"), "{e}");
+    let e = open_error(b"# rarefy log\n");
+    assert!(e.message.contains("bad first line"), "{e}");
+    let e = open_error(b"# rarefy log version one\n");
+    assert!(e.message.contains("bad first line"), "{e}");
+    let e = open_error(b"\xff\xfe# rarefy\n");
+    assert!(e.message.contains("invalid UTF-8"), "{e}");
+    // A byte-order mark and CRLF are fine.
+    let r = reader("\u{feff}# rarefy log v1\r\ntime,a [mbar]\r\n");
+    assert_eq!(r.columns().len(), 1);
+}
+
+#[test]
+fn metadata_is_read_and_problems_are_warnings() {
+    let r = reader(
+        "# rarefy log v1\n# chamber: Fenwick A\n# volume: 85 L\n# surface_area: 1.6e0 m2\n\
+         # started: 2026-12-01T20:00:00+01:00\n# gas: N2\n# gas: Ar\n# just a comment\n\
+         # custom key: with: colons\n#: nothing\n\ntime,a [mbar]\n",
+    );
+    let m = r.meta();
+    assert_eq!(m.chamber.as_deref(), Some("Fenwick A"));
+    assert_eq!(m.volume_m3, None);
+    assert_eq!(m.surface_area_m2, Some(1.6));
+    assert_eq!(m.started, Some(time("2026-12-01T19:00:00Z")));
+    assert_eq!(m.gas.as_deref(), Some("Ar"));
+    assert_eq!(
+        m.extra,
+        [("custom key".to_string(), "with: colons".to_string())]
+    );
+    let w: Vec<String> = r.warnings().iter().map(ToString::to_string).collect();
+    assert_eq!(w.len(), 4, "{w:?}");
+    assert!(
+        w[0].starts_with("run.csv:3:11: metadata `volume`: \"85 L\": expected a number in m3"),
+        "{}",
+        w[0]
+    );
+    assert!(
+        w[1].starts_with("run.csv:7:3: metadata `gas` is given twice"),
+        "{}",
+        w[1]
+    );
+    assert!(
+        w[2].starts_with("run.csv:8:3: metadata line \"just a comment\" is not"),
+        "{}",
+        w[2]
+    );
+    assert!(w[3].contains("without a key"), "{}", w[3]);
+    let r = reader("# rarefy log v1\n# volume: -1 m3\n# started: yesterday\ntime\n");
+    assert_eq!(r.warnings().len(), 2);
+    assert!(
+        r.warnings()[0].message.contains("positive"),
+        "{:?}",
+        r.warnings()
+    );
+    assert!(
+        r.warnings()[1].message.contains("RFC 3339"),
+        "{:?}",
+        r.warnings()
+    );
+}
+
+#[test]
+fn header_problems_are_located() {
+    let cases: [(&str, &str); 9] = [
+        (
+            "time,chamber\n",
+            "run.csv:2:2: header cell \"chamber\" has no unit",
+        ),
+        (
+            "t,a [mbar]\n",
+            "run.csv:2:1: the header row must start with `time`, found \"t\"",
+        ),
+        (
+            "time,a [mbar],b [C],a [Torr]\n",
+            "run.csv:2:4: column \"a\" appears twice in the header (cells 2 and 4)",
+        ),
+        (
+            "time, [mbar]\n",
+            "run.csv:2:2: header cell \"[mbar]\" has no name",
+        ),
+        (
+            "time,a []\n",
+            "run.csv:2:2: header cell \"a []\" has an empty unit",
+        ),
+        (
+            "time,\"a [mbar]\n",
+            "run.csv:2:2: quoted cell is not closed",
+        ),
+        (
+            "time,a [mbar],\n",
+            "run.csv:2:3: header cell \"\" has no unit",
+        ),
+        (
+            "time,\"a\" [mbar]\n",
+            "run.csv:2:2: text after the closing quote",
+        ),
+        (
+            "time,a [mbar\n",
+            "run.csv:2:2: header cell \"a [mbar\" has no unit",
+        ),
+    ];
+    for (head, expect) in cases {
+        let e = open_error(format!("{MAGIC}\n{head}").as_bytes());
+        assert!(e.to_string().starts_with(expect), "{head:?}: {e}");
+    }
+    let e = open_error(format!("{MAGIC}\n# chamber: x\n\n").as_bytes());
+    assert!(e.message.contains("ends before its header row"), "{e}");
+}
+
+#[test]
+fn header_cells_may_be_quoted_and_derived() {
+    let text =
+        format!("{MAGIC}\ntime,\"a, upper [mbar]\",\"a.\"\"knudsen\"\" [1]\",w [K], x [1/m3] \n");
+    let r = reader(&text);
+    let c = r.columns();
+    assert_eq!(c[0].name, "a, upper");
+    assert_eq!(c[0].kind, ColumnKind::Channel(MBAR));
+    assert_eq!(c[1].name, "a.\"knudsen\"");
+    assert_eq!(c[1].kind, ColumnKind::Derived("1".into()));
+    assert_eq!(
+        c[2].kind,
+        ColumnKind::Channel(ChannelUnit::Temperature(TemperatureUnit::K))
+    );
+    assert_eq!(c[3].kind, ColumnKind::Derived("1/m3".into()));
+    assert_eq!(r.channels().len(), 2);
+}
+
+#[test]
+fn bad_cells_are_located_and_specific() {
+    let e = one_row_error("2026-12-01T19:00:00.000Z,1.2.3,\n");
+    assert_eq!(
+        e.to_string(),
+        "run.csv:3:2: cell \"1.2.3\" is neither a number nor a status word \
+         (over-range, under-range, sensor-off, sensor-error, stale, unparsed)"
+    );
+    let e = one_row_error("2026-12-01T19:00:00.000Z,1,over_range\n");
+    assert_eq!(e.column, Some(3));
+    assert!(e.message.ends_with("did you mean \"over-range\"?"), "{e}");
+    for bad in ["NaN", "inf", "-inf", "infinity", "1e999"] {
+        let e = one_row_error(&format!("2026-12-01T19:00:00.000Z,{bad},\n"));
+        assert!(e.message.contains("not a finite number"), "{bad}: {e}");
+    }
+    let e = one_row_error("2026-12-01T19:00:00.000Z,ok,\n");
+    assert!(e.message.contains("cell \"ok\" has no value"), "{e}");
+    // The good cells of a bad row are kept, the bad one as `unparsed`.
+    let e = one_row_error("2026-12-01T19:00:00.000Z,x,21.5\n");
+    let row = e.row.expect("partial row");
+    assert_eq!(row.samples.len(), 2);
+    assert_eq!(row.samples[0].status, Status::Unparsed);
+    assert_eq!(row.samples[1].value, Some(21.5));
+    let e = one_row_error("2026-12-01T19:00:00.000Z,x,y\n");
+    assert!(
+        e.message.ends_with("(and 1 more bad cell in this row)"),
+        "{e}"
+    );
+    // Control characters in a cell are escaped in the message.
+    let e = one_row_error("2026-12-01T19:00:00.000Z,\u{1b}[2J,\n");
+    assert!(e.message.contains("cell \"\\x1b[2J\""), "{e}");
+}
+
+#[test]
+fn bad_rows_are_located_and_specific() {
+    let cases: [(&[u8], &str); 9] = [
+        (
+            b"2026-12-01T19:00:00.000Z,1\n",
+            "run.csv:3:3: row has 2 cells; the header has 3 (time and 2 columns)",
+        ),
+        (
+            b"2026-12-01T19:00:00.000Z,1,2,3\n",
+            "run.csv:3:4: row has 4 cells; the header has 3",
+        ),
+        (b",1,2\n", "run.csv:3:1: the time cell is empty"),
+        (
+            b"2026-12-01 19:00,1,2\n",
+            "run.csv:3:1: time \"2026-12-01 19:00\" is not an RFC 3339 time",
+        ),
+        (
+            b"2026-13-01T19:00:00Z,1,2\n",
+            "run.csv:3:1: time \"2026-13-01T19:00:00Z\" is not an RFC 3339 time",
+        ),
+        (b"1764615600,1,2\n", "run.csv:3:1: time \"1764615600\""),
+        (
+            b"# note: late\n",
+            "run.csv:3:1: a `#` line after the header row",
+        ),
+        (
+            b"2026-12-01T19:00:00Z,\"1,2\n",
+            "run.csv:3:2: quoted cell is not closed",
+        ),
+        (
+            b"2026-12-01T19:00:00Z,1\xff,2\n",
+            "run.csv:3:2: invalid UTF-8 (byte 0xff after \"1\") in cell 2",
+        ),
+    ];
+    for (body, expect) in cases {
+        let mut bytes = format!("{MAGIC}\ntime,a [mbar],b [C]\n").into_bytes();
+        bytes.extend_from_slice(body);
+        let items: Vec<_> = LogReader::new(&bytes[..], "run.csv")
+            .expect("header")
+            .collect();
+        let shown = String::from_utf8_lossy(body);
+        assert_eq!(items.len(), 1, "{shown:?}: {items:?}");
+        match &items[0] {
+            Err(e) => assert!(e.to_string().starts_with(expect), "{shown:?}: {e}"),
+            Ok(r) => panic!("{shown:?}: expected an error, got {r:?}"),
+        }
+    }
+}
+
+#[test]
+fn reading_goes_on_after_an_error() {
+    let items = rows(
+        "2026-12-01T19:00:00.000Z,1,2\nbad\n\n\r\n2026-12-01T19:00:02.000Z,,\n2026-12-01T19:00:03.000Z,3,\n",
+    );
+    assert_eq!(items.len(), 4, "{items:?}");
+    assert!(items[0].is_ok());
+    assert_eq!(items[1].as_ref().err().and_then(|e| e.line), Some(4));
+    let r = items[2].as_ref().expect("row");
+    assert_eq!((r.line, r.samples.len()), (7, 0));
+    let r = items[3].as_ref().expect("row");
+    assert_eq!(r.line, 8);
+}
+
+#[test]
+fn crlf_partial_last_line_and_offsets() {
+    let items = rows(
+        "2026-12-01T20:00:00+01:00,1.5e-6,\r\n2026-12-01T19:00:01Z,sensor-off,22\r\n2026-12-01t19:00:02.5z,2,",
+    );
+    let rows: Vec<Row> = items
+        .into_iter()
+        .map(|r| r.unwrap_or_else(|e| panic!("{e}")))
+        .collect();
+    assert_eq!(rows.len(), 3);
+    assert_eq!(rows[0].time, time("2026-12-01T19:00:00Z"));
+    assert_eq!(
+        rows[0].samples,
+        [Sample::ok(rows[0].time, "a", 1.5e-6, MBAR)]
+    );
+    assert_eq!(rows[1].samples[0].status, Status::SensorOff);
+    assert_eq!(rows[1].samples[1].value, Some(22.0));
+    assert_eq!(rows[2].time, time("2026-12-01T19:00:02.500Z"));
+    assert_eq!(rows[2].line, 5);
+}
+
+#[test]
+fn times_going_back_are_flagged_not_errors() {
+    let text = format!(
+        "{MAGIC}\ntime,a [mbar],b [C]\n2026-12-01T19:00:10Z,1,\n2026-12-01T19:00:05Z,1,\n\
+         2026-12-01T19:00:05Z,1,\n2026-12-01T19:00:06Z,1,\n2026-12-01T18:00:00Z,1,\n"
+    );
+    let mut r = reader(&text);
+    let flags: Vec<bool> = r
+        .by_ref()
+        .map(|x| {
+            x.map(|row| row.time_went_back)
+                .unwrap_or_else(|e| panic!("{e}"))
+        })
+        .collect();
+    assert_eq!(flags, [false, true, false, false, true]);
+    assert_eq!(r.times_went_back(), 2);
+}
+
+#[test]
+fn overlong_lines_are_skipped_with_an_error() {
+    let mut text = format!("{MAGIC}\ntime,a [mbar],b [C]\n").into_bytes();
+    text.extend(std::iter::repeat_n(b'1', crate::log::MAX_LINE_BYTES + 5));
+    text.extend_from_slice(b"\n2026-12-01T19:00:00Z,1,2\n");
+    let items: Vec<_> = LogReader::new(&text[..], "run.csv")
+        .expect("header")
+        .collect();
+    assert_eq!(items.len(), 2);
+    let e = items[0].as_ref().expect_err("too long");
+    assert_eq!(e.line, Some(3));
+    assert!(e.message.contains("longer than"), "{e}");
+    assert_eq!(items[1].as_ref().map(|r| r.line).ok(), Some(4));
+}
+
+#[test]
+fn read_errors_end_the_iteration() {
+    struct Failing(usize);
+    impl std::io::Read for Failing {
+        fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+            let data = b"# rarefy log v1\ntime,a [mbar]\n2026-12-01T19:00:00Z,1\n";
+            if self.0 >= data.len() {
+                return Err(std::io::Error::other("disk on fire"));
+            }
+            let n = (data.len() - self.0).min(buf.len());
+            buf[..n].copy_from_slice(&data[self.0..self.0 + n]);
+            self.0 += n;
+            Ok(n)
+        }
+    }
+    let r = LogReader::new(std::io::BufReader::new(Failing(0)), "run.csv").expect("header");
+    let items: Vec<_> = r.collect();
+    assert_eq!(items.len(), 2, "{items:?}");
+    assert!(items[0].is_ok());
+    let e = items[1].as_ref().expect_err("io");
+    assert!(
+        e.to_string().contains("cannot read the log: disk on fire"),
+        "{e}"
+    );
+}
+
+#[test]
+fn open_reports_a_missing_file() {
+    let e = match LogReader::open(Path::new("/nonexistent/run.csv")) {
+        Ok(_) => panic!("opened"),
+        Err(e) => e,
+    };
+    assert!(
+        e.to_string()
+            .starts_with("/nonexistent/run.csv: cannot open the log"),
+        "{e}"
+    );
+}
