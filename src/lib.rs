@@ -25,5 +25,6 @@ pub mod engine;
 pub mod gas;
 pub mod log;
 pub mod sample;
+pub mod sim;
 pub mod suggest;
 pub mod units;
