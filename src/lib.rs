@@ -27,6 +27,7 @@ pub mod log;
 pub mod parse;
 pub mod record;
 pub mod sample;
+pub mod sim;
 pub mod source;
 pub mod suggest;
 pub mod units;
