@@ -6,6 +6,7 @@ mod calc;
 mod config_cmd;
 mod gases;
 mod record;
+mod simulate;
 
 use std::io::Write;
 use std::path::PathBuf;
@@ -44,6 +45,8 @@ enum Command {
     Gases(gases::GasesArgs),
     /// Headless ingest and recording: the log goes to --out DIR, events to stdout as JSON lines.
     Record(Box<record::RecordArgs>),
+    /// Write a log of the simulated chamber (log format v1), as fast as it computes.
+    Simulate(Box<simulate::SimulateArgs>),
     /// Work with configuration files.
     Config {
         #[command(subcommand)]
@@ -111,6 +114,7 @@ pub fn main() -> ExitCode {
         Command::Calc(args) => calc::run(&args),
         Command::Gases(args) => gases::run(&args),
         Command::Record(args) => record::run(&args),
+        Command::Simulate(args) => simulate::run(&args),
         Command::Config { command } => config_cmd::run(&command),
     };
     match result {

@@ -189,6 +189,10 @@ async fn record(
     let (tx, mut rx) = mpsc::channel::<SourceEvent>(4096);
     let mut tasks = Vec::new();
     let names: Vec<String> = sources.iter().map(|s| s.uri.text.clone()).collect();
+    let sim_meta = sources.iter().find_map(|s| match &s.uri.kind {
+        crate::source::SourceKind::Sim(settings) => source::sim::simulator(settings).ok(),
+        _ => None,
+    });
     for s in sources {
         let decoder = s.decoder();
         for c in decoder
@@ -211,7 +215,7 @@ async fn record(
     }
     drop(tx);
 
-    let meta = LogMeta {
+    let mut meta = LogMeta {
         chamber: (!config.chamber.name.is_empty()).then(|| config.chamber.name.clone()),
         volume_m3: config.chamber.volume_m3,
         surface_area_m2: config.chamber.surface_area_m2,
@@ -219,6 +223,13 @@ async fn record(
         source: Some(names.join(" ")),
         ..LogMeta::default()
     };
+    // Recording the simulated chamber: its own name and size, unless the
+    // config describes the chamber.
+    if let Some(sim) = sim_meta.as_ref().filter(|_| meta.chamber.is_none()) {
+        meta.chamber = Some(sim.chamber_name().to_string());
+        meta.volume_m3 = Some(sim.volume_m3());
+        meta.surface_area_m2 = Some(sim.surface_area_m2());
+    }
     let mut recorder = Recorder::new(settings, meta, &channels);
     if args.derived || config.record.derived {
         recorder = recorder.with_derived(Deriver::from_config(config));

@@ -103,7 +103,9 @@ impl SourceConfig {
                 .and_then(ChannelUnit::parse)
                 .unwrap_or(ChannelUnit::Pressure(PressureUnit::Mbar));
             let channel = self.uri.channel.clone().unwrap_or_else(|| "p".into());
-            Box::new(crate::parse::plain::PlainDecoder::new(channel, unit))
+            Box::new(crate::parse::logline::AutoDecoder::new(
+                crate::parse::plain::PlainDecoder::new(channel, unit),
+            ))
         } else {
             Box::new(crate::parse::template::TemplateDecoder::new(
                 self.templates.clone(),

@@ -3,6 +3,7 @@
 //! expression [`template`]s for ASCII controllers and the built-in
 //! [`plain`] `name=value unit` format for pipes. Pure: no I/O.
 
+pub mod logline;
 pub mod plain;
 pub mod template;
 

@@ -8,6 +8,7 @@
 //! `retrying in Ns` as a [`SourceState`].
 
 mod file;
+pub mod sim;
 mod stream;
 pub mod uri;
 
@@ -147,7 +148,7 @@ impl Sink {
 /// (the simulated chamber's gauges).
 pub fn channels_of(uri: &SourceUri) -> Vec<crate::sample::ChannelInfo> {
     match &uri.kind {
-        SourceKind::Sim(_) => Vec::new(), // wired with src/sim
+        SourceKind::Sim(s) => sim::simulator(s).map(|s| s.channels()).unwrap_or_default(),
         _ => Vec::new(),
     }
 }
@@ -168,7 +169,7 @@ pub fn spawn(spec: SourceSpec, tx: mpsc::Sender<SourceEvent>) -> JoinHandle<()> 
                 follow,
                 from_end,
             } => file::run(path, follow, from_end, decoder, sink).await,
-            SourceKind::Sim(_) => sink.error("sim: not wired yet").await, // wired with src/sim
+            SourceKind::Sim(settings) => sim::run(settings, sink).await,
         };
     })
 }

@@ -396,6 +396,9 @@ impl SourceUri {
                 }
             }
         }
+        s.scenario
+            .parse::<crate::sim::Scenario>()
+            .map_err(|e| format!("sim: {e}"))?;
         Ok(SourceKind::Sim(s))
     }
 }
@@ -466,6 +469,7 @@ mod tests {
         assert!(e("file://").contains("needs a path"));
         assert!(e("file:///x?follow=maybe").contains("true or false"));
         assert!(e("sim:?rate=-2").contains("positive"));
+        assert!(e("sim:pumpdwn").contains("pumpdown"));
         assert!(e("sim:?duration=5 parsecs").contains("duration"));
         assert!(e("serail:///dev/x").contains("did you mean `serial:`?"));
         assert!(e("nothing").contains("not a source URI"));

@@ -1,0 +1,200 @@
+//! Lines of a rarefy log v1 arriving one by one (a followed log file, a log
+//! piped into stdin), read with the same reader as whole files.
+//!
+//! [`AutoDecoder`] reads the plain format until a line starts a v1 log
+//! (`# rarefy log v1`), then reads v1 until another such line starts a new
+//! log (a rotated file) — so a source can carry either.
+
+use std::io::Cursor;
+
+use chrono::{DateTime, Utc};
+
+use super::Decoder;
+use super::plain::PlainDecoder;
+use crate::log::LogReader;
+use crate::sample::{ChannelInfo, SourceEvent, escape_bytes};
+
+/// The v1 part: the header lines seen so far, then the data rows.
+#[derive(Debug, Clone, Default)]
+struct V1 {
+    /// Magic, metadata and (once seen) the header row, each with `\n`.
+    header: String,
+    /// Whether the header row has been seen.
+    complete: bool,
+    /// Header lines, to give data rows their line numbers in messages.
+    header_lines: u64,
+    rows: u64,
+    channels: Vec<ChannelInfo>,
+}
+
+/// The plain format, switching to log v1 when a log starts.
+#[derive(Debug, Clone)]
+pub struct AutoDecoder {
+    plain: PlainDecoder,
+    v1: Option<V1>,
+}
+
+impl AutoDecoder {
+    /// Plain lines go to `plain`.
+    pub fn new(plain: PlainDecoder) -> Self {
+        AutoDecoder { plain, v1: None }
+    }
+
+    fn unparsed(source: &str, time: DateTime<Utc>, text: String) -> Vec<SourceEvent> {
+        vec![SourceEvent::Unparsed {
+            source: source.to_string(),
+            time,
+            text,
+        }]
+    }
+}
+
+impl Decoder for AutoDecoder {
+    fn decode(&mut self, line: &[u8], received: DateTime<Utc>, source: &str) -> Vec<SourceEvent> {
+        if line.starts_with(b"# rarefy log") || line.starts_with(b"\xEF\xBB\xBF# rarefy log") {
+            // A new log starts (the first, or after rotation).
+            let mut v1 = V1::default();
+            v1.header.push_str(&String::from_utf8_lossy(line));
+            v1.header.push('\n');
+            v1.header_lines = 1;
+            self.v1 = Some(v1);
+            return Vec::new();
+        }
+        let Some(v1) = self.v1.as_mut() else {
+            return self.plain.decode(line, received, source);
+        };
+        let Ok(text) = std::str::from_utf8(line) else {
+            return Self::unparsed(
+                source,
+                received,
+                format!("{}  (log row is not UTF-8)", escape_bytes(line)),
+            );
+        };
+        if !v1.complete {
+            v1.header.push_str(text);
+            v1.header.push('\n');
+            v1.header_lines += 1;
+            if text.starts_with('#') {
+                return Vec::new();
+            }
+            // The header row: check it by reading the header alone.
+            return match LogReader::new(Cursor::new(v1.header.clone().into_bytes()), source) {
+                Ok(r) => {
+                    v1.channels = r.channels();
+                    v1.complete = true;
+                    Vec::new()
+                }
+                Err(e) => {
+                    self.v1 = None;
+                    Self::unparsed(source, received, format!("bad log header: {e}"))
+                }
+            };
+        }
+        v1.rows += 1;
+        let mut doc = v1.header.clone();
+        doc.push_str(text);
+        doc.push('\n');
+        let line_no = v1.header_lines + v1.rows;
+        match LogReader::new(Cursor::new(doc.into_bytes()), source).map(|mut r| r.next()) {
+            Ok(Some(Ok(row))) => vec![SourceEvent::Samples(row.samples)],
+            Ok(Some(Err(e))) => {
+                // Keep the row's good cells; report the bad ones.
+                let mut out = Vec::new();
+                if let Some(row) = e.row.clone() {
+                    out.push(SourceEvent::Samples(row.samples));
+                }
+                let msg = e.message.clone();
+                out.extend(Self::unparsed(
+                    source,
+                    received,
+                    format!("{}  (log line {line_no}: {msg})", escape_bytes(line)),
+                ));
+                out
+            }
+            Ok(None) => Vec::new(),
+            Err(e) => Self::unparsed(source, received, format!("{}  ({e})", escape_bytes(line))),
+        }
+    }
+
+    fn channels(&self) -> Vec<ChannelInfo> {
+        match &self.v1 {
+            Some(v) => v.channels.clone(),
+            None => self.plain.channels(),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::sample::{ChannelUnit, Status};
+    use crate::units::PressureUnit;
+
+    type Got = (String, Option<f64>, Status, String);
+
+    fn feed(d: &mut AutoDecoder, text: &str) -> (Vec<Got>, Vec<String>) {
+        let mut samples = Vec::new();
+        let mut unparsed = Vec::new();
+        for line in text.lines() {
+            for e in d.decode(line.as_bytes(), DateTime::<Utc>::UNIX_EPOCH, "file") {
+                match e {
+                    SourceEvent::Samples(s) => samples.extend(
+                        s.into_iter()
+                            .map(|s| (s.channel, s.value, s.status, s.time.to_rfc3339())),
+                    ),
+                    SourceEvent::Unparsed { text, .. } => unparsed.push(text),
+                    other => panic!("{other:?}"),
+                }
+            }
+        }
+        (samples, unparsed)
+    }
+
+    #[test]
+    fn plain_then_v1_with_device_times_then_a_rotated_log() {
+        let mut d = AutoDecoder::new(PlainDecoder::new(
+            "p",
+            ChannelUnit::Pressure(PressureUnit::Mbar),
+        ));
+        let text = "1e-6\n# rarefy log v1\n# chamber: X\ntime,a [mbar],b [mbar]\n\
+                    2026-01-01T00:00:01.000Z,2e-6,over-range\n2026-01-01T00:00:02.000Z,,3e-6\n\
+                    # rarefy log v1\ntime,c [Torr]\n2026-01-01T00:00:03.000Z,4e-6\n";
+        let (s, u) = feed(&mut d, text);
+        assert!(u.is_empty(), "{u:?}");
+        let got: Vec<(&str, Option<f64>, Status)> = s
+            .iter()
+            .map(|(c, v, st, _)| (c.as_str(), *v, *st))
+            .collect();
+        assert_eq!(
+            got,
+            [
+                ("p", Some(1e-6), Status::Ok),
+                ("a", Some(2e-6), Status::Ok),
+                ("b", None, Status::OverRange),
+                ("b", Some(3e-6), Status::Ok),
+                ("c", Some(4e-6), Status::Ok),
+            ]
+        );
+        assert_eq!(s[1].3, "2026-01-01T00:00:01+00:00");
+        assert_eq!(d.channels().len(), 1);
+    }
+
+    #[test]
+    fn bad_rows_keep_good_cells_and_say_where() {
+        let mut d = AutoDecoder::new(PlainDecoder::new(
+            "p",
+            ChannelUnit::Pressure(PressureUnit::Mbar),
+        ));
+        let text = "# rarefy log v1\ntime,a [mbar],b [mbar]\n2026-01-01T00:00:01.000Z,2e-6,1.2.3\n";
+        let (s, u) = feed(&mut d, text);
+        assert_eq!(s[0].1, Some(2e-6));
+        assert_eq!(u.len(), 1);
+        assert!(u[0].contains("log line 3"), "{u:?}");
+        let mut d = AutoDecoder::new(PlainDecoder::new(
+            "p",
+            ChannelUnit::Pressure(PressureUnit::Mbar),
+        ));
+        let (_, u) = feed(&mut d, "# rarefy log v1\ntime,a\n");
+        assert!(u[0].contains("bad log header"), "{u:?}");
+    }
+}
