@@ -35,6 +35,93 @@ pub struct ConfigFile {
     pub record: Option<RecordSection>,
     /// `[log]`: how to read another logger's CSV export.
     pub log: Option<crate::log::foreign::LogSection>,
+    /// `[[alarm]]`
+    #[serde(default)]
+    pub alarm: Vec<AlarmSection>,
+    /// `[[gate]]`
+    #[serde(default)]
+    pub gate: Vec<GateSection>,
+    /// `[alarms]`: settings shared by all alarms and gates.
+    pub alarms: Option<AlarmsSection>,
+}
+
+/// `[[alarm]]`: one alarm rule.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AlarmSection {
+    /// Id, unique among alarms.
+    pub id: Spanned<String>,
+    /// Human label.
+    pub label: Option<String>,
+    /// Gauge watched (default: `[alarms] default_gauge`).
+    pub gauge: Option<Spanned<String>>,
+    /// `pressure`, `temperature`, `mean_free_path`, `knudsen`, `impingement`,
+    /// `monolayer_time`, `exposure`, `rate_of_change`, `regime`, `vacuum_range`.
+    pub quantity: Spanned<String>,
+    /// Named length, for `knudsen` and `regime`.
+    pub length: Option<Spanned<String>>,
+    /// In alarm above this value (with unit).
+    pub above: Option<Spanned<String>>,
+    /// In alarm below this value (with unit).
+    pub below: Option<Spanned<String>>,
+    /// In alarm while the regime or range is this one.
+    pub enters: Option<Spanned<String>>,
+    /// In alarm while the regime or range is not this one.
+    pub leaves: Option<Spanned<String>>,
+    /// In alarm at each crossing of this boundary, `"transitional/molecular"`.
+    pub crosses: Option<Spanned<String>>,
+    /// `"10 %"`, `"0.1 decade"` or a value with unit.
+    pub deadband: Option<Spanned<String>>,
+    /// The condition must hold this long first.
+    pub on_delay: Option<Spanned<Duration>>,
+    /// The condition must be clear this long before the return.
+    pub off_delay: Option<Spanned<Duration>>,
+    /// `notice`, `warning` (default) or `trip`.
+    pub severity: Option<crate::alarm::Severity>,
+    /// Stays in alarm until acknowledged.
+    pub latching: Option<bool>,
+    /// The rule is suppressed by design while this condition is false.
+    pub enable: Option<Spanned<String>>,
+    /// A command run on each of this alarm's events: program and arguments.
+    pub command: Option<Spanned<Vec<String>>>,
+    /// The command is stopped after this long (default 10 s).
+    pub command_timeout: Option<Spanned<Duration>>,
+    /// At most one run of the command this often (default 60 s).
+    pub repeat_after: Option<Spanned<Duration>>,
+}
+
+/// `[[gate]]`: a readiness gate.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct GateSection {
+    /// Id, unique among gates.
+    pub id: Spanned<String>,
+    /// Human label.
+    pub label: Option<String>,
+    /// Conditions, each `[gauge] quantity above|below|is VALUE`.
+    pub conditions: Vec<Spanned<String>>,
+    /// How long they must all hold, `"120 s"`.
+    pub hold: Spanned<Duration>,
+    /// A command run on each of this gate's events.
+    pub command: Option<Spanned<Vec<String>>>,
+    /// The command is stopped after this long (default 10 s).
+    pub command_timeout: Option<Spanned<Duration>>,
+}
+
+/// `[alarms]`
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AlarmsSection {
+    /// Gauge for rules and conditions that name none.
+    pub default_gauge: Option<Spanned<String>>,
+    /// A gauge with no reading for this long is stale (default 10 s).
+    pub stale_after: Option<Spanned<Duration>>,
+    /// Window of the rate-of-change fit (default 10 s).
+    pub rate_window: Option<Spanned<Duration>>,
+    /// Severity of the automatic no-valid-reading alarms (default warning).
+    pub input_severity: Option<crate::alarm::Severity>,
+    /// Ring the terminal bell on new alarms in the dashboard (default true).
+    pub bell: Option<bool>,
 }
 
 /// `[[source]]`: one gauge controller or data feed.

@@ -1,0 +1,159 @@
+//! Readiness gates: all of a list of conditions held continuously for a
+//! duration before a process step may start.
+
+use chrono::{DateTime, Utc};
+use serde::Serialize;
+use std::fmt;
+
+use super::syntax::Condition;
+
+/// A gate as configured.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Gate {
+    /// Id, unique among gates.
+    pub id: String,
+    /// Human label.
+    pub label: String,
+    /// Every one must hold.
+    pub conditions: Vec<Condition>,
+    /// For this long, continuously, s.
+    pub hold_s: f64,
+}
+
+/// Gate states.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum GateState {
+    /// A condition fails, or they have not held long enough yet.
+    NotReady,
+    /// All conditions have held for the duration.
+    Ready,
+}
+
+impl GateState {
+    /// The word.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            GateState::NotReady => "not-ready",
+            GateState::Ready => "ready",
+        }
+    }
+}
+
+impl fmt::Display for GateState {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// The outcome of one condition at one time.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Check {
+    /// It holds.
+    Holds,
+    /// It fails; the text says what the value is.
+    Fails(String),
+    /// It cannot be judged (bad or stale input): counts as failing.
+    Unknown(String),
+}
+
+/// A change of a gate's state.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GateTransition {
+    /// Data time.
+    pub time: DateTime<Utc>,
+    /// Old state.
+    pub from: GateState,
+    /// New state.
+    pub to: GateState,
+    /// Why it is not ready (the first failing condition), when it is not.
+    pub reason: Option<String>,
+}
+
+/// A gate with its state.
+#[derive(Debug, Clone)]
+pub struct GateMachine {
+    /// The gate.
+    pub gate: Gate,
+    state: GateState,
+    held_since: Option<DateTime<Utc>>,
+    reason: Option<String>,
+    last_time: Option<DateTime<Utc>>,
+}
+
+impl GateMachine {
+    /// A gate, not ready.
+    pub fn new(gate: Gate) -> Self {
+        GateMachine {
+            gate,
+            state: GateState::NotReady,
+            held_since: None,
+            reason: Some("no data yet".into()),
+            last_time: None,
+        }
+    }
+
+    /// Current state.
+    pub fn state(&self) -> GateState {
+        self.state
+    }
+
+    /// Why it is not ready: the first failing condition and its value, or
+    /// that the conditions hold but not yet long enough.
+    pub fn reason(&self) -> Option<&str> {
+        self.reason.as_deref()
+    }
+
+    /// Seconds left until ready, when every condition holds now.
+    pub fn time_left_s(&self) -> Option<f64> {
+        if self.state == GateState::Ready {
+            return Some(0.0);
+        }
+        let (since, now) = (self.held_since?, self.last_time?);
+        Some((self.gate.hold_s - (now - since).num_milliseconds() as f64 / 1000.0).max(0.0))
+    }
+
+    /// Feeds the checks of every condition (in order) at data time `time`.
+    pub fn update(&mut self, time: DateTime<Utc>, checks: &[Check]) -> Option<GateTransition> {
+        self.last_time = Some(time);
+        let failing = checks
+            .iter()
+            .zip(&self.gate.conditions)
+            .find_map(|(c, cond)| match c {
+                Check::Holds => None,
+                Check::Fails(why) | Check::Unknown(why) => Some(format!("{}: {why}", cond.text)),
+            });
+        let to = match failing {
+            Some(why) => {
+                self.held_since = None;
+                self.reason = Some(why);
+                GateState::NotReady
+            }
+            None => {
+                let since = *self.held_since.get_or_insert(time);
+                let held = (time - since).num_milliseconds() as f64 / 1000.0;
+                if held >= self.gate.hold_s {
+                    self.reason = None;
+                    GateState::Ready
+                } else {
+                    self.reason = Some(format!(
+                        "all conditions hold; {:.0} s of {:.0} s to go",
+                        (self.gate.hold_s - held).ceil(),
+                        self.gate.hold_s
+                    ));
+                    GateState::NotReady
+                }
+            }
+        };
+        if to == self.state {
+            return None;
+        }
+        let from = std::mem::replace(&mut self.state, to);
+        Some(GateTransition {
+            time,
+            from,
+            to,
+            reason: self.reason.clone(),
+        })
+    }
+}

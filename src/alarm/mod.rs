@@ -1,0 +1,27 @@
+//! Alarms and readiness gates: pure state machines driven by readings and data
+//! time, so replay, record, report and the dashboard give the same events for
+//! the same log.
+//!
+//! * [`rule`]: a rule on one quantity of one gauge, with deadband, delays,
+//!   severity and latching, in the states of ISA-18.2 / IEC 62682.
+//! * [`gate`]: conditions that must all hold continuously for a duration.
+//! * [`syntax`]: the small language of conditions and one-off alarms.
+//! * [`monitor`]: keeps each gauge's latest kinetics and drives both.
+//! * [`event`]: the transitions, as JSON lines.
+//!
+//! Alarms are advisory: rarefy is not a safety interlock.
+
+pub mod event;
+pub mod gate;
+pub mod monitor;
+pub mod quantity;
+pub mod rule;
+pub mod syntax;
+
+#[cfg(test)]
+mod tests;
+
+pub use event::{Event, EventKind};
+pub use gate::{Gate, GateMachine, GateState};
+pub use monitor::{Monitor, MonitorSetup, RuleSpec};
+pub use rule::{AlarmState, Rule, RuleMachine, Severity};

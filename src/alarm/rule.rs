@@ -1,0 +1,483 @@
+//! Alarm rules and their state machine, with the states and terms of
+//! ISA-18.2 / IEC 62682: normal, unacknowledged, acknowledged,
+//! returned-to-normal unacknowledged, shelved, suppressed by design.
+//!
+//! The machine is driven by readings and data time only, so the same log
+//! gives the same events in replay, record, report and the dashboard.
+
+use chrono::{DateTime, Utc};
+use serde::{Deserialize, Serialize};
+use std::fmt;
+
+use super::quantity::{Class, Quantity};
+
+/// How serious an alarm is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Severity {
+    /// For information.
+    Notice,
+    /// Needs attention.
+    Warning,
+    /// A process step must stop; `record` exits 3 on it.
+    Trip,
+}
+
+impl Severity {
+    /// The word.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Severity::Notice => "notice",
+            Severity::Warning => "warning",
+            Severity::Trip => "trip",
+        }
+    }
+
+    /// Reads `notice`, `warning` or `trip`.
+    pub fn parse(s: &str) -> Result<Severity, String> {
+        match s {
+            "notice" => Ok(Severity::Notice),
+            "warning" => Ok(Severity::Warning),
+            "trip" => Ok(Severity::Trip),
+            _ => Err(format!(
+                "unknown severity \"{s}\"; expected notice, warning or trip"
+            )),
+        }
+    }
+}
+
+impl fmt::Display for Severity {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Alarm states (ISA-18.2).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum AlarmState {
+    /// Not in alarm.
+    Normal,
+    /// In alarm, not yet acknowledged.
+    Unacknowledged,
+    /// In alarm, acknowledged.
+    Acknowledged,
+    /// Returned to normal before it was acknowledged.
+    ReturnedUnacknowledged,
+    /// Taken out of service by an operator until a time.
+    Shelved,
+    /// Its enabling condition is false (a gauge switched off …).
+    SuppressedByDesign,
+}
+
+impl AlarmState {
+    /// The word used in events and on screen.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            AlarmState::Normal => "normal",
+            AlarmState::Unacknowledged => "unacknowledged",
+            AlarmState::Acknowledged => "acknowledged",
+            AlarmState::ReturnedUnacknowledged => "returned-unacknowledged",
+            AlarmState::Shelved => "shelved",
+            AlarmState::SuppressedByDesign => "suppressed-by-design",
+        }
+    }
+
+    /// Whether the alarm is in alarm (active) in this state.
+    pub fn is_active(self) -> bool {
+        matches!(self, AlarmState::Unacknowledged | AlarmState::Acknowledged)
+    }
+}
+
+impl fmt::Display for AlarmState {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Hysteresis around a threshold.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Deadband {
+    /// None: clears as soon as the value is back at the threshold.
+    None,
+    /// In the quantity's SI unit.
+    Absolute(f64),
+    /// A fraction of the threshold (`10 %` is 0.1).
+    Fraction(f64),
+    /// Decades (`0.1 decade` clears at threshold ÷ 10^0.1 for `above`).
+    Decades(f64),
+}
+
+impl Deadband {
+    /// Parses `"10 %"`, `"0.1 decade"`, or an absolute value read by `absolute`.
+    pub fn parse(
+        text: &str,
+        absolute: impl Fn(&str) -> Result<f64, String>,
+    ) -> Result<Deadband, String> {
+        let t = text.trim();
+        let number = |s: &str| -> Result<f64, String> {
+            let v: f64 = s
+                .trim()
+                .parse()
+                .map_err(|_| format!("deadband \"{t}\": \"{s}\" is not a number"))?;
+            if v.is_finite() && v >= 0.0 {
+                Ok(v)
+            } else {
+                Err(format!("deadband \"{t}\" must be zero or positive"))
+            }
+        };
+        if let Some(p) = t.strip_suffix('%') {
+            let f = number(p)? / 100.0;
+            if f >= 1.0 {
+                return Err(format!("deadband \"{t}\" must be less than 100 %"));
+            }
+            return Ok(Deadband::Fraction(f));
+        }
+        for suffix in ["decades", "decade"] {
+            if let Some(d) = t.strip_suffix(suffix) {
+                return Ok(Deadband::Decades(number(d)?));
+            }
+        }
+        let v = absolute(t)
+            .map_err(|e| format!("deadband: {e}; or give \"10 %\" or \"0.1 decade\""))?;
+        if v < 0.0 {
+            return Err(format!("deadband \"{t}\" must be zero or positive"));
+        }
+        Ok(Deadband::Absolute(v))
+    }
+
+    /// The value at which an alarm on `threshold` clears.
+    fn clear_level(self, threshold: f64, above: bool) -> f64 {
+        let sign = if above { -1.0 } else { 1.0 };
+        match self {
+            Deadband::None => threshold,
+            Deadband::Absolute(a) => threshold + sign * a,
+            Deadband::Fraction(f) => threshold * (1.0 + sign * f),
+            Deadband::Decades(d) => threshold * 10f64.powf(sign * d),
+        }
+    }
+}
+
+/// What a rule compares.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Test {
+    /// In alarm while the value is above the threshold (SI).
+    Above(f64),
+    /// In alarm while the value is below the threshold (SI).
+    Below(f64),
+    /// In alarm while the class is this one.
+    Enters(Class),
+    /// In alarm while the class is not this one.
+    Leaves(Class),
+    /// In alarm at each crossing of the boundary between two neighbouring
+    /// classes, either way; it returns to normal at the next reading.
+    Crosses(Class, Class),
+}
+
+/// One alarm rule.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Rule {
+    /// Id, unique among rules.
+    pub id: String,
+    /// Human label.
+    pub label: String,
+    /// Gauge (channel) it watches.
+    pub gauge: String,
+    /// What it watches.
+    pub quantity: Quantity,
+    /// How it compares.
+    pub test: Test,
+    /// Hysteresis.
+    pub deadband: Deadband,
+    /// The condition must hold this long before the alarm, s.
+    pub on_delay_s: f64,
+    /// The condition must be clear this long before the return, s.
+    pub off_delay_s: f64,
+    /// Severity.
+    pub severity: Severity,
+    /// Stays in alarm after the return until acknowledged.
+    pub latching: bool,
+}
+
+/// One input to a rule at a data time.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Input {
+    /// A number in SI.
+    Value(f64),
+    /// A class (regime or range).
+    Class(Class),
+    /// No usable value (bad or stale reading): the rule holds its state.
+    Unusable,
+    /// The rule's enabling condition is false.
+    Disabled,
+}
+
+/// A change of a rule's state.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Transition {
+    /// Data time.
+    pub time: DateTime<Utc>,
+    /// Old state.
+    pub from: AlarmState,
+    /// New state.
+    pub to: AlarmState,
+    /// The value that caused it, when there is one.
+    pub value: Option<Input>,
+    /// Why, for operator operations (`acknowledged by ana`).
+    pub note: Option<String>,
+}
+
+/// A rule with its state.
+#[derive(Debug, Clone)]
+pub struct RuleMachine {
+    /// The rule.
+    pub rule: Rule,
+    state: AlarmState,
+    /// The condition, after its delays.
+    condition: bool,
+    pending_since: Option<DateTime<Utc>>,
+    shelved_until: Option<DateTime<Utc>>,
+    since: Option<DateTime<Utc>>,
+    last_class: Option<Class>,
+    last_value: Option<Input>,
+}
+
+fn seconds(a: DateTime<Utc>, b: DateTime<Utc>) -> f64 {
+    (b - a).num_milliseconds() as f64 / 1000.0
+}
+
+impl RuleMachine {
+    /// A rule in the normal state.
+    pub fn new(rule: Rule) -> Self {
+        RuleMachine {
+            rule,
+            state: AlarmState::Normal,
+            condition: false,
+            pending_since: None,
+            shelved_until: None,
+            since: None,
+            last_class: None,
+            last_value: None,
+        }
+    }
+
+    /// Current state.
+    pub fn state(&self) -> AlarmState {
+        self.state
+    }
+
+    /// When the current state began (data time).
+    pub fn since(&self) -> Option<DateTime<Utc>> {
+        self.since
+    }
+
+    /// The last value seen.
+    pub fn last_value(&self) -> Option<Input> {
+        self.last_value
+    }
+
+    /// Whether the condition currently holds (after its delays).
+    pub fn condition(&self) -> bool {
+        self.condition
+    }
+
+    /// When a shelved alarm returns to service.
+    pub fn shelved_until(&self) -> Option<DateTime<Utc>> {
+        self.shelved_until
+    }
+
+    /// The raw condition for an input, with hysteresis: `None` when the
+    /// input says nothing (unusable).
+    fn raw(&mut self, input: Input) -> Option<bool> {
+        let active = self.condition;
+        match (&self.rule.test, input) {
+            (Test::Above(t), Input::Value(v)) => Some(if active {
+                v > self.rule.deadband.clear_level(*t, true)
+            } else {
+                v > *t
+            }),
+            (Test::Below(t), Input::Value(v)) => Some(if active {
+                v < self.rule.deadband.clear_level(*t, false)
+            } else {
+                v < *t
+            }),
+            (Test::Enters(c), Input::Class(k)) => Some(k == *c),
+            (Test::Leaves(c), Input::Class(k)) => Some(k != *c),
+            (Test::Crosses(a, b), Input::Class(k)) => {
+                let prev = self.last_class.replace(k);
+                let (lo, hi) = if a.rank() < b.rank() {
+                    (*a, *b)
+                } else {
+                    (*b, *a)
+                };
+                Some(prev.is_some_and(|p| {
+                    (p.rank() <= lo.rank() && k.rank() >= hi.rank())
+                        || (p.rank() >= hi.rank() && k.rank() <= lo.rank())
+                }))
+            }
+            _ => None,
+        }
+    }
+
+    fn set(
+        &mut self,
+        time: DateTime<Utc>,
+        to: AlarmState,
+        out: &mut Vec<Transition>,
+        note: Option<String>,
+    ) {
+        if to != self.state {
+            out.push(Transition {
+                time,
+                from: self.state,
+                to,
+                value: self.last_value,
+                note,
+            });
+            self.state = to;
+            self.since = Some(time);
+        }
+    }
+
+    /// Feeds one input at data time `time`; returns the state changes.
+    pub fn update(&mut self, time: DateTime<Utc>, input: Input) -> Vec<Transition> {
+        let mut out = Vec::new();
+        if self.since.is_none() {
+            self.since = Some(time);
+        }
+        if input != Input::Unusable {
+            self.last_value = Some(input);
+        }
+        // Shelving expires on data time.
+        if self.state == AlarmState::Shelved
+            && let Some(until) = self.shelved_until
+            && time >= until
+        {
+            self.shelved_until = None;
+            let to = if self.condition {
+                AlarmState::Unacknowledged
+            } else {
+                AlarmState::Normal
+            };
+            self.set(time, to, &mut out, Some("shelving expired".into()));
+        }
+        if input == Input::Disabled {
+            self.condition = false;
+            self.pending_since = None;
+            self.last_class = None;
+            if self.state != AlarmState::Shelved {
+                self.set(time, AlarmState::SuppressedByDesign, &mut out, None);
+            }
+            return out;
+        }
+        if self.state == AlarmState::SuppressedByDesign {
+            self.set(time, AlarmState::Normal, &mut out, None);
+        }
+        let Some(raw) = self.raw(input) else {
+            // No usable value: hold the state and restart any delay.
+            self.pending_since = None;
+            return out;
+        };
+        let delay = if self.condition {
+            self.rule.off_delay_s
+        } else {
+            self.rule.on_delay_s
+        };
+        if raw != self.condition {
+            let since = *self.pending_since.get_or_insert(time);
+            if seconds(since, time) >= delay {
+                self.condition = raw;
+                self.pending_since = None;
+            }
+        } else {
+            self.pending_since = None;
+        }
+        if self.state == AlarmState::Shelved {
+            return out;
+        }
+        let to = match (self.state, self.condition) {
+            (AlarmState::Normal | AlarmState::ReturnedUnacknowledged, true) => {
+                AlarmState::Unacknowledged
+            }
+            (AlarmState::Unacknowledged, false) if !self.rule.latching => {
+                AlarmState::ReturnedUnacknowledged
+            }
+            (AlarmState::Acknowledged, false) if !self.rule.latching => AlarmState::Normal,
+            (s, _) => s,
+        };
+        self.set(time, to, &mut out, None);
+        // A crossing is momentary: the condition is spent once reported.
+        if matches!(self.rule.test, Test::Crosses(..)) {
+            self.condition = false;
+        }
+        out
+    }
+
+    /// Operator acknowledges the alarm. Returns the change, or why nothing
+    /// changed.
+    pub fn acknowledge(
+        &mut self,
+        time: DateTime<Utc>,
+        who: &str,
+    ) -> Result<Vec<Transition>, String> {
+        let mut out = Vec::new();
+        let note = Some(format!("acknowledged by {who}"));
+        match self.state {
+            AlarmState::Unacknowledged if self.condition => {
+                self.set(time, AlarmState::Acknowledged, &mut out, note);
+            }
+            // Latched, and the condition has since cleared.
+            AlarmState::Unacknowledged | AlarmState::ReturnedUnacknowledged => {
+                self.set(time, AlarmState::Normal, &mut out, note);
+            }
+            AlarmState::Acknowledged if !self.condition => {
+                // A latched alarm is reset by acknowledging it once clear.
+                self.set(time, AlarmState::Normal, &mut out, note);
+            }
+            s => return Err(format!("{} is {s}; nothing to acknowledge", self.rule.id)),
+        }
+        Ok(out)
+    }
+
+    /// Operator shelves the alarm until `until` (data time).
+    pub fn shelve(
+        &mut self,
+        time: DateTime<Utc>,
+        until: DateTime<Utc>,
+        who: &str,
+    ) -> Result<Vec<Transition>, String> {
+        if until <= time {
+            return Err("a shelving must end in the future".into());
+        }
+        if self.state == AlarmState::SuppressedByDesign {
+            return Err(format!(
+                "{} is suppressed by design; nothing to shelve",
+                self.rule.id
+            ));
+        }
+        let mut out = Vec::new();
+        self.shelved_until = Some(until);
+        let note = Some(format!(
+            "shelved by {who} until {}",
+            crate::log::v1::format_time(until)
+        ));
+        self.set(time, AlarmState::Shelved, &mut out, note);
+        Ok(out)
+    }
+
+    /// Operator returns a shelved alarm to service now.
+    pub fn unshelve(&mut self, time: DateTime<Utc>, who: &str) -> Result<Vec<Transition>, String> {
+        if self.state != AlarmState::Shelved {
+            return Err(format!("{} is not shelved", self.rule.id));
+        }
+        self.shelved_until = None;
+        let mut out = Vec::new();
+        let to = if self.condition {
+            AlarmState::Unacknowledged
+        } else {
+            AlarmState::Normal
+        };
+        self.set(time, to, &mut out, Some(format!("unshelved by {who}")));
+        Ok(out)
+    }
+}
