@@ -19,6 +19,7 @@
 //! ```
 #![deny(missing_docs)]
 
+pub mod action;
 pub mod alarm;
 pub mod cli;
 pub mod config;

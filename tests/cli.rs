@@ -285,6 +285,38 @@ fn invalid_configs_are_located() {
             ":2:15:",
             "positive whole number",
         ),
+        (
+            "alarm_unknown_quantity.toml",
+            ":4:12:",
+            "did you mean `pressure`?",
+        ),
+        (
+            "alarm_missing_length.toml",
+            ":9:10:",
+            "no length named `throw`",
+        ),
+        ("alarm_wrong_unit_kind.toml", ":5:9:", "expected a length"),
+        (
+            "alarm_negative_delay.toml",
+            ":6:12:",
+            "must not be negative",
+        ),
+        (
+            "alarm_two_tests.toml",
+            ":2:6:",
+            "exactly one of above, below",
+        ),
+        (
+            "alarm_unknown_gauge.toml",
+            ":7:9:",
+            "did you mean `chamber`?",
+        ),
+        ("gate_bad_condition.toml", ":3:15:", "is not of the form"),
+        (
+            "alarm_crosses_not_neighbours.toml",
+            ":16:11:",
+            "not neighbours",
+        ),
     ];
     let dir = Path::new("tests/invalid_configs");
     let mut seen = 0;

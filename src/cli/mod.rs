@@ -5,6 +5,8 @@
 mod calc;
 mod config_cmd;
 mod gases;
+mod gate;
+mod ingest;
 mod record;
 mod simulate;
 
@@ -47,6 +49,11 @@ enum Command {
     Record(Box<record::RecordArgs>),
     /// Write a log of the simulated chamber (log format v1), as fast as it computes.
     Simulate(Box<simulate::SimulateArgs>),
+    /// Readiness gates, for scripts.
+    Gate {
+        #[command(subcommand)]
+        command: gate::GateCommand,
+    },
     /// Work with configuration files.
     Config {
         #[command(subcommand)]
@@ -116,6 +123,7 @@ pub fn main() -> ExitCode {
         Command::Record(args) => record::run(&args),
         Command::Simulate(args) => simulate::run(&args),
         Command::Config { command } => config_cmd::run(&command),
+        Command::Gate { command } => gate::run(&command),
     };
     match result {
         Ok(code) => ExitCode::from(code),

@@ -7,16 +7,17 @@ use std::path::PathBuf;
 use std::time::Duration;
 
 use clap::Args;
-use serde_json::{Value, json};
+use serde_json::json;
 use tokio::signal::unix::{SignalKind, signal};
-use tokio::sync::mpsc;
 
+use super::ingest::{self, DataClock, emit, event_json, say};
 use super::{CliError, load_config};
+use crate::action::ActionRunner;
+use crate::alarm::{Event, Monitor};
 use crate::config::{Config, SourceConfig};
 use crate::log::v1::{LogMeta, format_time};
 use crate::record::{Deriver, RecordEvent, Recorder};
-use crate::sample::{ChannelInfo, SourceEvent, SourceState};
-use crate::source::{self, SourceSpec, SourceUri};
+use crate::sample::{SourceEvent, SourceState};
 use crate::units::{self, SizeUnit, TimeUnit};
 
 /// `rarefy record` arguments.
@@ -44,6 +45,12 @@ pub struct RecordArgs {
     /// Rows kept in memory while writing fails.
     #[arg(long)]
     buffer_rows: Option<usize>,
+    /// A one-off alarm, e.g. "pressure above 2e-5 mbar for 10 s as trip"; repeatable (see the README).
+    #[arg(long)]
+    alarm: Vec<String>,
+    /// Exit 3 as soon as an alarm of severity trip is active.
+    #[arg(long)]
+    exit_on_trip: bool,
 }
 
 fn size(s: &str) -> Result<u64, String> {
@@ -58,23 +65,6 @@ fn duration(s: &str) -> Result<f64, String> {
         Ok(_) => Err("must be longer than zero".into()),
         Err(e) => Err(e.to_string()),
     }
-}
-
-/// Prints one JSON event line to stdout (wall time added).
-fn emit(mut v: Value) {
-    if let Value::Object(m) = &mut v {
-        m.insert(
-            "wall_time".into(),
-            Value::String(format_time(chrono::Utc::now())),
-        );
-    }
-    let mut out = std::io::stdout().lock();
-    let _ = writeln!(out, "{v}");
-    let _ = out.flush();
-}
-
-fn say(text: &str) {
-    eprintln!("rarefy: {text}");
 }
 
 fn report(events: Vec<RecordEvent>) {
@@ -114,35 +104,10 @@ fn report(events: Vec<RecordEvent>) {
     }
 }
 
-/// The sources to run: `--source` URIs (with the config's templates when a
-/// config source has the same URI), else the config's, else `stdin:`.
-fn sources(args: &RecordArgs, config: &Config) -> Result<Vec<SourceConfig>, CliError> {
-    if args.source.is_empty() {
-        if config.sources.is_empty() {
-            let uri = SourceUri::parse("stdin:").map_err(CliError::Usage)?;
-            return Ok(vec![SourceConfig::from_uri(uri)]);
-        }
-        return Ok(config.sources.clone());
-    }
-    args.source
-        .iter()
-        .map(|text| {
-            let uri =
-                SourceUri::parse(text).map_err(|e| CliError::Usage(format!("--source: {e}")))?;
-            Ok(config
-                .sources
-                .iter()
-                .find(|s| s.uri.text == uri.text)
-                .cloned()
-                .unwrap_or_else(|| SourceConfig::from_uri(uri)))
-        })
-        .collect()
-}
-
 /// Runs `rarefy record`.
 pub fn run(args: &RecordArgs) -> Result<u8, CliError> {
     let config = load_config(args.config.as_ref())?;
-    let sources = sources(args, &config)?;
+    let sources = ingest::sources(&args.source, &config)?;
     let dir = args
         .out
         .clone()
@@ -185,35 +150,19 @@ async fn record(
     }
     let flush_s = args.flush.unwrap_or(config.record.flush_s);
 
-    let mut channels = Vec::new();
-    let (tx, mut rx) = mpsc::channel::<SourceEvent>(4096);
-    let mut tasks = Vec::new();
-    let names: Vec<String> = sources.iter().map(|s| s.uri.text.clone()).collect();
-    let sim_meta = sources.iter().find_map(|s| match &s.uri.kind {
-        crate::source::SourceKind::Sim(settings) => source::sim::simulator(settings).ok(),
-        _ => None,
-    });
-    for s in sources {
-        let decoder = s.decoder();
-        for c in decoder
-            .channels()
-            .into_iter()
-            .chain(source::channels_of(&s.uri))
-        {
-            if !channels.iter().any(|k: &ChannelInfo| k.id == c.id) {
-                channels.push(c);
-            }
-        }
-        tasks.push(source::spawn(
-            SourceSpec {
-                uri: s.uri,
-                decoder,
-                poll: s.poll,
-            },
-            tx.clone(),
-        ));
-    }
-    drop(tx);
+    let started = ingest::start(sources, 4096);
+    let rules = ingest::cli_rules(&args.alarm, config, &started.channels)?;
+    let mut monitor = Monitor::new(config.monitor_setup(rules));
+    let (mut actions, mut outcomes) = ActionRunner::new(config.alarms.actions.clone());
+    let ingest::Started {
+        mut rx,
+        tasks,
+        channels,
+        names,
+        sim: sim_meta,
+    } = started;
+    let mut events_file: Option<(PathBuf, std::fs::File)> = None;
+    let mut clock = DataClock::default();
 
     let mut meta = LogMeta {
         chamber: (!config.chamber.name.is_empty()).then(|| config.chamber.name.clone()),
@@ -241,6 +190,20 @@ async fn record(
     let mut unparsed: u64 = 0;
     let mut last_reminder = std::time::Instant::now();
     let mut stopped_by = None;
+    let events_dir = recorder_dir(&recorder);
+    let mut on_events = |events: Vec<Event>, actions: &mut ActionRunner| {
+        for e in events {
+            say(&format!(
+                "{} {}: {}",
+                e.time.format("%H:%M:%S"),
+                e.id,
+                e.text
+            ));
+            emit(event_json(&e));
+            write_event(&mut events_file, &events_dir, &e);
+            actions.fire(&e);
+        }
+    };
     loop {
         tokio::select! {
             biased;
@@ -248,9 +211,28 @@ async fn record(
             _ = sigint.recv() => { stopped_by = Some("SIGINT"); break; }
             ev = rx.recv() => {
                 let Some(ev) = ev else { break };
+                if let SourceEvent::Samples(s) = &ev {
+                    if let Some(t) = s.iter().map(|s| s.time).max() {
+                        clock.saw(t);
+                    }
+                    on_events(monitor.push(s), &mut actions);
+                }
                 handle(ev, &mut recorder, &mut samples, &mut unparsed);
+                if args.exit_on_trip && monitor.trip_active() {
+                    stopped_by = Some("a trip alarm");
+                    break;
+                }
+            }
+            Some(o) = outcomes.recv() => {
+                if o.status != "ok" {
+                    say(&format!("action for {}: {}: {}", o.id, o.status, o.message));
+                }
+                emit(json!({"event": "action", "id": o.id, "status": o.status, "message": o.message}));
             }
             _ = tick.tick() => {
+                if let Some(now) = clock.now() {
+                    on_events(monitor.tick(now), &mut actions);
+                }
                 recorder.flush();
                 report(recorder.take_events());
                 if recorder.is_failing() && last_reminder.elapsed() > Duration::from_secs(10) {
@@ -267,7 +249,7 @@ async fn record(
     // On a signal, first take in what the sources already have in hand (a
     // pipe's unread lines, a burst on the wire): until they are quiet for a
     // moment, at most two seconds. Then stop them and keep whatever is queued.
-    if stopped_by.is_some() {
+    if stopped_by.is_some_and(|s| s.starts_with("SIG")) {
         let deadline = tokio::time::Instant::now() + Duration::from_secs(2);
         while let Ok(Some(ev)) = tokio::time::timeout_at(
             deadline.min(tokio::time::Instant::now() + Duration::from_millis(200)),
@@ -286,6 +268,13 @@ async fn record(
     }
     let left = recorder.close();
     report(recorder.take_events());
+    actions.finish().await;
+    while let Ok(o) = outcomes.try_recv() {
+        if o.status != "ok" {
+            say(&format!("action for {}: {}: {}", o.id, o.status, o.message));
+        }
+        emit(json!({"event": "action", "id": o.id, "status": o.status, "message": o.message}));
+    }
     if let Some(sig) = stopped_by {
         say(&format!("{sig}: stopped"));
     }
@@ -308,7 +297,46 @@ async fn record(
         ));
         return Ok(1);
     }
+    if monitor.trip_seen() {
+        say("a trip alarm was active: exit code 3");
+        return Ok(3);
+    }
     Ok(0)
+}
+
+fn recorder_dir(r: &Recorder) -> PathBuf {
+    r.dir().to_path_buf()
+}
+
+/// Appends an event to the run's event log beside the recording,
+/// `events-<time of the first event>.jsonl`.
+fn write_event(file: &mut Option<(PathBuf, std::fs::File)>, dir: &std::path::Path, e: &Event) {
+    if file.is_none() {
+        let path = dir.join(format!("events-{}.jsonl", e.time.format("%Y%m%dT%H%M%SZ")));
+        match std::fs::create_dir_all(dir).and_then(|()| {
+            std::fs::OpenOptions::new()
+                .create(true)
+                .append(true)
+                .open(&path)
+        }) {
+            Ok(f) => *file = Some((path, f)),
+            Err(err) => {
+                say(&format!(
+                    "cannot write the event log {}: {err}",
+                    path.display()
+                ));
+                return;
+            }
+        }
+    }
+    if let Some((path, f)) = file.as_mut()
+        && let Err(err) = writeln!(f, "{}", e.to_json())
+    {
+        say(&format!(
+            "cannot write the event log {}: {err}",
+            path.display()
+        ));
+    }
 }
 
 fn handle(ev: SourceEvent, recorder: &mut Recorder, samples: &mut u64, unparsed: &mut u64) {

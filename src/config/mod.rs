@@ -582,6 +582,8 @@ impl Resolver<'_> {
             }
             ids.push(id.clone());
             let gauge = match (&a.gauge, &out.default_gauge) {
+                // Temperature channels are not gauges of the config.
+                (Some(g), _) if a.quantity.get_ref() == "temperature" => g.get_ref().clone(),
                 (Some(g), _) => {
                     if !known_gauge(self, g) {
                         continue;
@@ -1113,6 +1115,29 @@ impl Config {
                 "gauge      {:<12} {:<12} {response}",
                 g.id,
                 g.kind.as_str()
+            ));
+        }
+        for r in &self.alarms.rules {
+            let enable = r
+                .enable
+                .as_ref()
+                .map(|c| format!(", enabled while {}", c.text))
+                .unwrap_or_default();
+            line(format!(
+                "alarm      {:<20} {:<8} {} {}{enable}",
+                r.rule.id,
+                r.rule.severity.as_str(),
+                r.rule.gauge,
+                r.rule.quantity
+            ));
+        }
+        for g in &self.alarms.gates {
+            let conds: Vec<&str> = g.conditions.iter().map(|c| c.text.as_str()).collect();
+            line(format!(
+                "gate       {:<20} {} for {} s",
+                g.id,
+                conds.join(" and "),
+                g.hold_s
             ));
         }
         line(format!(

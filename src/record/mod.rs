@@ -202,6 +202,11 @@ impl Recorder {
         self.failing
     }
 
+    /// The directory log files go into.
+    pub fn dir(&self) -> &Path {
+        &self.settings.dir
+    }
+
     /// The file being written.
     pub fn current_path(&self) -> Option<&Path> {
         self.current.as_ref().map(|s| s.path.as_path())
