@@ -32,4 +32,5 @@ pub mod sample;
 pub mod sim;
 pub mod source;
 pub mod suggest;
+pub mod ui;
 pub mod units;

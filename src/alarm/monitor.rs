@@ -605,6 +605,35 @@ impl Monitor {
         ts.iter().map(|t| self.alarm_event(&r.rule, t)).collect()
     }
 
+    /// Changes a rule's threshold (the value of its above/below test) in
+    /// place; its state is kept.
+    pub fn set_threshold(&mut self, id: &str, threshold: f64) -> Result<(), String> {
+        let m = self.rule_mut(id)?;
+        m.rule.test = match m.rule.test {
+            Test::Above(_) => Test::Above(threshold),
+            Test::Below(_) => Test::Below(threshold),
+            _ => return Err(format!("{id} has no numeric threshold")),
+        };
+        if let Some(spec) = self.setup.rules.iter_mut().find(|r| r.rule.id == id) {
+            spec.rule.test = m_test(&spec.rule.test, threshold);
+        }
+        Ok(())
+    }
+
+    /// Changes a gate's hold time.
+    pub fn set_hold(&mut self, id: &str, hold_s: f64) -> Result<(), String> {
+        let g = self
+            .gates
+            .iter_mut()
+            .find(|g| g.gate.id == id)
+            .ok_or_else(|| format!("no gate `{id}`"))?;
+        g.gate.hold_s = hold_s;
+        if let Some(spec) = self.setup.gates.iter_mut().find(|g| g.id == id) {
+            spec.hold_s = hold_s;
+        }
+        Ok(())
+    }
+
     /// Acknowledges one alarm at data time `now`, recording `who`.
     pub fn acknowledge(
         &mut self,
@@ -664,4 +693,12 @@ pub fn local_user() -> String {
     std::env::var("USER")
         .or_else(|_| std::env::var("LOGNAME"))
         .unwrap_or_else(|_| "unknown".into())
+}
+
+fn m_test(t: &Test, threshold: f64) -> Test {
+    match t {
+        Test::Above(_) => Test::Above(threshold),
+        Test::Below(_) => Test::Below(threshold),
+        other => other.clone(),
+    }
 }

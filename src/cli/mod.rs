@@ -6,9 +6,10 @@ mod calc;
 mod config_cmd;
 mod gases;
 mod gate;
-mod ingest;
+pub(crate) mod ingest;
 mod record;
 mod simulate;
+mod watch;
 
 use std::io::Write;
 use std::path::PathBuf;
@@ -40,6 +41,10 @@ struct Cli {
 
 #[derive(Debug, Subcommand)]
 enum Command {
+    /// The live dashboard; --demo runs the simulated chamber.
+    Watch(Box<watch::WatchArgs>),
+    /// The dashboard over a recorded log, on data time.
+    Replay(Box<watch::ReplayArgs>),
     /// One-shot derived quantities for a pressure, temperature and gas.
     #[command(long_about = calc::LONG_ABOUT)]
     Calc(Box<calc::CalcArgs>),
@@ -119,6 +124,8 @@ pub fn main() -> ExitCode {
     };
     let result = match cli.command {
         Command::Calc(args) => calc::run(&args),
+        Command::Watch(args) => watch::watch(&args),
+        Command::Replay(args) => watch::replay(&args),
         Command::Gases(args) => gases::run(&args),
         Command::Record(args) => record::run(&args),
         Command::Simulate(args) => simulate::run(&args),

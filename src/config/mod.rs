@@ -5,6 +5,7 @@
 //! Errors name the file, line and column; several problems in one file are
 //! reported together.
 
+pub mod edit;
 mod error;
 pub mod file;
 

@@ -1,0 +1,376 @@
+//! The dashboard's state: plain data, updated by source events and keys,
+//! drawn by [`super::render`]. Nothing here touches the terminal or a clock.
+
+use std::collections::{BTreeMap, VecDeque};
+use std::path::PathBuf;
+
+use chrono::{DateTime, Utc};
+
+use super::history::History;
+use crate::alarm::{AlarmState, Event, Monitor};
+use crate::engine::gauge::GaugeKind;
+use crate::sample::{ChannelUnit, SourceEvent, SourceState, Status};
+use crate::units::{PressureUnit, TemperatureUnit, UnitKind};
+
+/// Trend windows offered by the window key, s.
+pub const WINDOWS: [f64; 7] = [
+    60.0,
+    300.0,
+    900.0,
+    3600.0,
+    4.0 * 3600.0,
+    86_400.0,
+    7.0 * 86_400.0,
+];
+
+/// Replay speed.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Speed {
+    /// Data seconds per wall second.
+    Times(f64),
+    /// As fast as it computes.
+    Max,
+}
+
+impl Speed {
+    /// The speeds offered, slowest first.
+    pub const STEPS: [Speed; 6] = [
+        Speed::Times(1.0),
+        Speed::Times(10.0),
+        Speed::Times(60.0),
+        Speed::Times(300.0),
+        Speed::Times(1000.0),
+        Speed::Max,
+    ];
+
+    /// As shown (`60x`, `max`).
+    pub fn label(self) -> String {
+        match self {
+            Speed::Times(x) => format!("{}x", crate::units::format_sig(x, 3)),
+            Speed::Max => "max".into(),
+        }
+    }
+}
+
+/// Replay state.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Replay {
+    /// The log.
+    pub file: PathBuf,
+    /// Paused.
+    pub paused: bool,
+    /// Speed.
+    pub speed: Speed,
+    /// First and last row times.
+    pub start: DateTime<Utc>,
+    /// Last row time.
+    pub end: DateTime<Utc>,
+    /// Alarm events found in the whole log: (time, id, new state).
+    pub marks: Vec<(DateTime<Utc>, String, String)>,
+    /// Gaps in the log (no row for much longer than usual).
+    pub gaps: Vec<(DateTime<Utc>, DateTime<Utc>)>,
+    /// Rows the reader reported as bad.
+    pub bad_rows: u64,
+    /// Whether the log ended.
+    pub at_end: bool,
+}
+
+/// A modal overlay.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Overlay {
+    /// None.
+    None,
+    /// Keys and the safety caution.
+    Help,
+    /// Typing a time to jump to (replay).
+    Goto(String),
+    /// Typing how long to shelve the selected alarm.
+    Shelve(String),
+    /// Typing a new threshold or hold for the selected alarm or gate.
+    Edit(Edit),
+    /// Confirming a save to the config file.
+    Confirm(Edit),
+}
+
+/// An edit of a threshold or a gate's hold, before and after confirmation.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Edit {
+    /// `alarm` or `gate`.
+    pub kind: &'static str,
+    /// Its id.
+    pub id: String,
+    /// The key edited (`above`, `below`, `hold`).
+    pub key: String,
+    /// The value before.
+    pub old: String,
+    /// What is typed.
+    pub input: String,
+}
+
+/// A gauge as shown.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GaugeInfo {
+    /// Channel id.
+    pub id: String,
+    /// Label.
+    pub label: String,
+    /// Kind, when configured.
+    pub kind: Option<GaugeKind>,
+    /// Unit of its values.
+    pub unit: ChannelUnit,
+}
+
+/// Counters shown on the status line.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Counters {
+    /// Rows received.
+    pub rows: u64,
+    /// Samples received.
+    pub samples: u64,
+    /// Lines no template matched.
+    pub unparsed: u64,
+    /// Readings waiting in the queue when last looked (display behind).
+    pub behind: usize,
+    /// Rows per second of data time, recently.
+    pub rate: f64,
+}
+
+/// What a frozen display shows: the monitor, history and time at freezing.
+pub type Frozen = Box<(Monitor, History, Option<DateTime<Utc>>)>;
+
+/// The dashboard state.
+#[derive(Debug, Clone)]
+pub struct App {
+    /// Chamber name.
+    pub title: String,
+    /// `None` live; replay state otherwise.
+    pub replay: Option<Replay>,
+    /// Alarms, gates, per-gauge kinetics.
+    pub monitor: Monitor,
+    /// Trend history.
+    pub history: History,
+    /// Origin of the history's seconds.
+    pub origin: Option<DateTime<Utc>>,
+    /// Gauges in display order.
+    pub gauges: Vec<GaugeInfo>,
+    /// Source states by name.
+    pub sources: BTreeMap<String, SourceState>,
+    /// The last source error, escaped.
+    pub source_error: Option<String>,
+    /// The file being recorded.
+    pub log_file: Option<PathBuf>,
+    /// Counters.
+    pub counters: Counters,
+    /// Pressure unit shown.
+    pub pressure_unit: PressureUnit,
+    /// Temperature unit shown.
+    pub temperature_unit: TemperatureUnit,
+    /// Trend window, s.
+    pub window_s: f64,
+    /// A frozen copy shown while data keeps coming.
+    pub frozen: Option<Frozen>,
+    /// Modal overlay.
+    pub overlay: Overlay,
+    /// Selected alarm (index into `monitor.alarms()`).
+    pub selected: usize,
+    /// A message for the status line.
+    pub message: Option<String>,
+    /// The last unparsed line, escaped.
+    pub last_unparsed: Option<String>,
+    /// Recent events, newest last.
+    pub events: VecDeque<Event>,
+    /// A new alarm asks for the bell.
+    pub bell: bool,
+    /// Whether the bell is wanted at all.
+    pub bell_enabled: bool,
+    /// Draw with ASCII only.
+    pub ascii: bool,
+    /// Use colour.
+    pub color: bool,
+    /// Config file, for saving edits.
+    pub config_path: Option<PathBuf>,
+    /// Whether something changed since the last draw.
+    pub dirty: bool,
+    rate_window: VecDeque<DateTime<Utc>>,
+}
+
+/// What a key asks the loop around the app to do.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Effect {
+    /// Nothing beyond redrawing.
+    None,
+    /// Leave.
+    Quit,
+    /// Write this text to the config file.
+    Save(PathBuf, String),
+    /// Replay: go to this data time.
+    Seek(DateTime<Utc>),
+    /// Replay: one row forward while paused.
+    Step,
+}
+
+impl App {
+    /// A dashboard over `monitor`.
+    pub fn new(title: impl Into<String>, monitor: Monitor, gauges: Vec<GaugeInfo>) -> Self {
+        let setup = monitor.setup();
+        let (pressure_unit, temperature_unit) = (setup.pressure_unit, setup.temperature_unit);
+        App {
+            title: title.into(),
+            replay: None,
+            monitor,
+            history: History::default(),
+            origin: None,
+            gauges,
+            sources: BTreeMap::new(),
+            source_error: None,
+            log_file: None,
+            counters: Counters::default(),
+            pressure_unit,
+            temperature_unit,
+            window_s: 900.0,
+            frozen: None,
+            overlay: Overlay::None,
+            selected: 0,
+            message: None,
+            last_unparsed: None,
+            events: VecDeque::new(),
+            bell: false,
+            bell_enabled: true,
+            ascii: false,
+            color: true,
+            config_path: None,
+            dirty: true,
+            rate_window: VecDeque::new(),
+        }
+    }
+
+    /// The monitor, history and time being shown (frozen or live).
+    pub fn shown(&self) -> (&Monitor, &History, Option<DateTime<Utc>>) {
+        match &self.frozen {
+            Some(f) => (&f.0, &f.1, f.2),
+            None => (&self.monitor, &self.history, self.monitor.now()),
+        }
+    }
+
+    /// Seconds of `t` on the history's origin.
+    pub fn secs(&self, t: DateTime<Utc>) -> f64 {
+        self.origin
+            .map_or(0.0, |o| (t - o).num_milliseconds() as f64 / 1000.0)
+    }
+
+    fn note_events(&mut self, events: Vec<Event>) {
+        for e in events {
+            if e.to == AlarmState::Unacknowledged.as_str() {
+                self.bell = self.bell_enabled;
+            }
+            if self.events.len() >= 200 {
+                self.events.pop_front();
+            }
+            self.events.push_back(e);
+        }
+    }
+
+    /// Takes one source event.
+    pub fn ingest(&mut self, ev: &SourceEvent) {
+        self.dirty = true;
+        match ev {
+            SourceEvent::Samples(samples) => {
+                self.counters.rows += 1;
+                self.counters.samples += samples.len() as u64;
+                for s in samples {
+                    if !self.gauges.iter().any(|g| g.id == s.channel) {
+                        self.gauges.push(GaugeInfo {
+                            id: s.channel.clone(),
+                            label: s.channel.clone(),
+                            kind: None,
+                            unit: s.unit,
+                        });
+                    }
+                }
+                let events = self.monitor.push(samples);
+                let origin = *self.origin.get_or_insert_with(|| {
+                    samples
+                        .first()
+                        .map_or(DateTime::<Utc>::UNIX_EPOCH, |s| s.time)
+                });
+                for s in samples {
+                    let t = (s.time - origin).num_milliseconds() as f64 / 1000.0;
+                    let v = match (s.status, self.monitor.track(&s.channel)) {
+                        (Status::Ok, Some(track)) if s.unit.is_pressure() => track.pressure_pa,
+                        (Status::Ok, Some(track)) => track.temperature_k,
+                        _ => None,
+                    };
+                    if let Some(v) = v {
+                        self.history.push(&s.channel, t, v);
+                    }
+                }
+                if let Some(t) = samples.first().map(|s| s.time) {
+                    self.rate_window.push_back(t);
+                    while self
+                        .rate_window
+                        .front()
+                        .is_some_and(|f| (t - *f).num_seconds() > 10)
+                    {
+                        self.rate_window.pop_front();
+                    }
+                    let span = self
+                        .rate_window
+                        .front()
+                        .map_or(0.0, |f| (t - *f).num_milliseconds() as f64 / 1000.0);
+                    self.counters.rate = if span > 0.0 {
+                        (self.rate_window.len() - 1) as f64 / span
+                    } else {
+                        0.0
+                    };
+                }
+                self.note_events(events);
+            }
+            SourceEvent::Status { source, state } => {
+                self.sources.insert(source.clone(), *state);
+            }
+            SourceEvent::Unparsed { text, .. } => {
+                self.counters.unparsed += 1;
+                // Device text is escaped by the decoder; keep it short.
+                self.last_unparsed = Some(text.chars().take(200).collect());
+            }
+            SourceEvent::Error { message, .. } => {
+                self.source_error = Some(crate::sample::escape_bytes(message.as_bytes()));
+            }
+        }
+    }
+
+    /// Advances data time without readings (stale detection).
+    pub fn tick(&mut self, now: DateTime<Utc>) {
+        let events = self.monitor.tick(now);
+        if !events.is_empty() {
+            self.dirty = true;
+        }
+        self.note_events(events);
+    }
+
+    /// Ids of the alarms, in display order.
+    pub fn alarm_ids(&self) -> Vec<String> {
+        self.monitor
+            .alarms()
+            .iter()
+            .map(|a| a.rule.id.clone())
+            .collect()
+    }
+
+    /// Switches to the next pressure unit.
+    pub fn next_unit(&mut self) {
+        const CYCLE: [PressureUnit; 5] = [
+            PressureUnit::Mbar,
+            PressureUnit::Pa,
+            PressureUnit::Torr,
+            PressureUnit::MTorr,
+            PressureUnit::HPa,
+        ];
+        let i = CYCLE
+            .iter()
+            .position(|u| *u == self.pressure_unit)
+            .map_or(0, |i| i + 1);
+        self.pressure_unit = CYCLE[i % CYCLE.len()];
+        self.message = Some(format!("pressure in {}", self.pressure_unit.symbol()));
+    }
+}

@@ -1,0 +1,428 @@
+//! Key handling, apart from drawing: a key changes the [`App`] and may ask
+//! the loop for an [`Effect`].
+
+use chrono::{DateTime, NaiveTime, TimeZone, Utc};
+use crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
+
+use super::app::{App, Edit, Effect, Overlay, Speed, WINDOWS};
+use crate::alarm::monitor::local_user;
+use crate::alarm::rule::Test;
+use crate::units::{self, TimeUnit};
+
+/// The footer's key list, live.
+pub const FOOTER_LIVE: &str =
+    "?:help  a:ack  A:ack all  s:shelve  e:edit  u:unit  w/W:window  f:freeze  q:quit";
+/// The footer's key list, replay.
+pub const FOOTER_REPLAY: &str =
+    "?:help  space:pause  </>:speed  ←/→:10s  [/]:1min  {/}:10min  n/p:alarm  t:time  q:quit";
+
+/// Every key, for the help overlay: (keys, what).
+pub const HELP: [(&str, &str); 22] = [
+    ("? h F1", "this help (Esc closes)"),
+    ("q", "quit (recording stops cleanly)"),
+    ("↑ ↓ j k", "select an alarm or gate"),
+    ("a", "acknowledge the selected alarm"),
+    ("A", "acknowledge every alarm"),
+    ("s", "shelve the selected alarm for a time"),
+    ("S", "return a shelved alarm to service"),
+    (
+        "e",
+        "edit the threshold or hold of the selection, then save",
+    ),
+    ("u", "next pressure unit"),
+    ("w W", "longer / shorter trend window"),
+    ("f", "freeze the display (data keeps recording)"),
+    ("space", "replay: pause / resume"),
+    (".", "replay: one row forward while paused"),
+    ("< >", "replay: slower / faster (1x … 1000x, max)"),
+    ("← →", "replay: back / forward 10 s"),
+    ("[ ]", "replay: back / forward 1 min"),
+    ("{ }", "replay: back / forward 10 min"),
+    ("Home End g G", "replay: start / end of the log"),
+    ("n p", "replay: next / previous alarm event"),
+    ("t", "replay: go to a time (HH:MM:SS or RFC 3339)"),
+    ("Enter", "confirm a prompt"),
+    ("Esc", "cancel a prompt"),
+];
+
+fn now(app: &App) -> DateTime<Utc> {
+    app.monitor.now().unwrap_or(DateTime::<Utc>::UNIX_EPOCH)
+}
+
+/// Number of selectable rows (alarms, then gates).
+fn selectable(app: &App) -> usize {
+    app.monitor.alarms().len() + app.monitor.gates().len()
+}
+
+/// Reads a typed time: `HH:MM[:SS]` on the day of the replay position, or
+/// RFC 3339.
+pub fn parse_time(text: &str, around: DateTime<Utc>) -> Result<DateTime<Utc>, String> {
+    let t = text.trim();
+    if let Ok(d) = DateTime::parse_from_rfc3339(t) {
+        return Ok(d.with_timezone(&Utc));
+    }
+    let time = NaiveTime::parse_from_str(t, "%H:%M:%S")
+        .or_else(|_| NaiveTime::parse_from_str(t, "%H:%M"))
+        .map_err(|_| format!("\"{t}\" is not a time; type HH:MM:SS (UTC) or RFC 3339"))?;
+    Utc.from_local_datetime(&around.date_naive().and_time(time))
+        .single()
+        .ok_or_else(|| format!("\"{t}\" is not a time"))
+}
+
+fn seek_by(app: &App, seconds: i64) -> Effect {
+    let Some(r) = &app.replay else {
+        return Effect::None;
+    };
+    let t = now(app) + chrono::Duration::seconds(seconds);
+    Effect::Seek(t.clamp(r.start, r.end))
+}
+
+fn jump_to_mark(app: &App, forward: bool) -> Effect {
+    let Some(r) = &app.replay else {
+        return Effect::None;
+    };
+    let here = now(app);
+    let target = if forward {
+        r.marks.iter().map(|m| m.0).find(|t| *t > here)
+    } else {
+        // Strictly before the current position, skipping the event at it.
+        r.marks
+            .iter()
+            .map(|m| m.0)
+            .rev()
+            .find(|t| *t < here - chrono::Duration::milliseconds(500))
+    };
+    match target {
+        Some(t) => Effect::Seek(t),
+        None => Effect::None,
+    }
+}
+
+/// Handles one key.
+pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
+    app.dirty = true;
+    if key.modifiers.contains(KeyModifiers::CONTROL) && key.code == KeyCode::Char('c') {
+        return Effect::Quit;
+    }
+    match app.overlay.clone() {
+        Overlay::Help => {
+            app.overlay = Overlay::None;
+            return Effect::None;
+        }
+        Overlay::Goto(s) | Overlay::Shelve(s) if key.code == KeyCode::Esc => {
+            let _ = s;
+            app.overlay = Overlay::None;
+            return Effect::None;
+        }
+        Overlay::Goto(mut s) => return prompt(app, key, &mut s, true),
+        Overlay::Shelve(mut s) => return prompt(app, key, &mut s, false),
+        Overlay::Edit(mut e) => return edit_key(app, key, &mut e),
+        Overlay::Confirm(e) => return confirm_key(app, key, e),
+        Overlay::None => {}
+    }
+    app.message = None;
+    let replay = app.replay.is_some();
+    match key.code {
+        KeyCode::Char('q') => return Effect::Quit,
+        KeyCode::Char('?' | 'h') | KeyCode::F(1) => app.overlay = Overlay::Help,
+        KeyCode::Char('u') => app.next_unit(),
+        KeyCode::Char('w') => {
+            let i = WINDOWS.iter().position(|w| *w >= app.window_s).unwrap_or(0);
+            app.window_s = WINDOWS[(i + 1).min(WINDOWS.len() - 1)];
+        }
+        KeyCode::Char('W') => {
+            let i = WINDOWS.iter().position(|w| *w >= app.window_s).unwrap_or(0);
+            app.window_s = WINDOWS[i.saturating_sub(1)];
+        }
+        KeyCode::Char('f') => {
+            let was = app.frozen.take();
+            if was.is_none() {
+                app.frozen = Some(Box::new((
+                    app.monitor.clone(),
+                    app.history.clone(),
+                    app.monitor.now(),
+                )));
+                app.message = Some("display frozen; data keeps recording (f to resume)".into());
+            }
+        }
+        KeyCode::Up | KeyCode::Char('k') => app.selected = app.selected.saturating_sub(1),
+        KeyCode::Down | KeyCode::Char('j') => {
+            app.selected = (app.selected + 1).min(selectable(app).saturating_sub(1));
+        }
+        KeyCode::Char('a') => {
+            if let Some(id) = app.alarm_ids().get(app.selected).cloned() {
+                match app.monitor.acknowledge(&id, &local_user(), now(app)) {
+                    Ok(ev) => {
+                        app.message = Some(format!("{id} acknowledged"));
+                        app.events.extend(ev);
+                    }
+                    Err(e) => app.message = Some(e),
+                }
+            }
+        }
+        KeyCode::Char('A') => {
+            let ev = app.monitor.acknowledge_all(&local_user(), now(app));
+            app.message = Some(format!("{} acknowledged", ev.len()));
+            app.events.extend(ev);
+        }
+        KeyCode::Char('s') if app.selected < app.alarm_ids().len() => {
+            app.overlay = Overlay::Shelve("30 min".into());
+        }
+        KeyCode::Char('S') => {
+            if let Some(id) = app.alarm_ids().get(app.selected).cloned() {
+                match app.monitor.unshelve(&id, &local_user(), now(app)) {
+                    Ok(ev) => app.events.extend(ev),
+                    Err(e) => app.message = Some(e),
+                }
+            }
+        }
+        KeyCode::Char('e') => start_edit(app),
+        KeyCode::Char(' ') if replay => {
+            if let Some(r) = &mut app.replay {
+                r.paused = !r.paused;
+            }
+        }
+        KeyCode::Char('.') if replay => return Effect::Step,
+        KeyCode::Char('>') if replay => change_speed(app, 1),
+        KeyCode::Char('<') if replay => change_speed(app, -1),
+        KeyCode::Right if replay => return seek_by(app, 10),
+        KeyCode::Left if replay => return seek_by(app, -10),
+        KeyCode::Char(']') if replay => return seek_by(app, 60),
+        KeyCode::Char('[') if replay => return seek_by(app, -60),
+        KeyCode::Char('}') if replay => return seek_by(app, 600),
+        KeyCode::Char('{') if replay => return seek_by(app, -600),
+        KeyCode::Home | KeyCode::Char('g') if replay => {
+            return app
+                .replay
+                .as_ref()
+                .map_or(Effect::None, |r| Effect::Seek(r.start));
+        }
+        KeyCode::End | KeyCode::Char('G') if replay => {
+            return app
+                .replay
+                .as_ref()
+                .map_or(Effect::None, |r| Effect::Seek(r.end));
+        }
+        KeyCode::Char('n') if replay => return jump_to_mark(app, true),
+        KeyCode::Char('p') if replay => return jump_to_mark(app, false),
+        KeyCode::Char('t') if replay => app.overlay = Overlay::Goto(String::new()),
+        _ => {}
+    }
+    Effect::None
+}
+
+fn change_speed(app: &mut App, by: i32) {
+    if let Some(r) = &mut app.replay {
+        let i = Speed::STEPS.iter().position(|s| *s == r.speed).unwrap_or(0) as i32;
+        let j = (i + by).clamp(0, Speed::STEPS.len() as i32 - 1) as usize;
+        r.speed = Speed::STEPS[j];
+        app.message = Some(format!("speed {}", r.speed.label()));
+    }
+}
+
+/// Typing into a one-line prompt; `goto` picks what Enter does.
+fn prompt(app: &mut App, key: KeyEvent, text: &mut String, goto: bool) -> Effect {
+    match key.code {
+        KeyCode::Char(c) if !c.is_control() => text.push(c),
+        KeyCode::Backspace => {
+            text.pop();
+        }
+        KeyCode::Enter => {
+            app.overlay = Overlay::None;
+            if goto {
+                match parse_time(text, now(app)) {
+                    Ok(t) => return Effect::Seek(t),
+                    Err(e) => app.message = Some(e),
+                }
+            } else {
+                let Some(id) = app.alarm_ids().get(app.selected).cloned() else {
+                    return Effect::None;
+                };
+                match units::parse::<TimeUnit>(text) {
+                    Ok(d) if d.si > 0.0 => {
+                        match app.monitor.shelve(&id, d.si, &local_user(), now(app)) {
+                            Ok(ev) => {
+                                app.message = Some(format!("{id} shelved for {}", text.trim()));
+                                app.events.extend(ev);
+                            }
+                            Err(e) => app.message = Some(e),
+                        }
+                    }
+                    Ok(_) => app.message = Some("shelve for longer than zero".into()),
+                    Err(e) => app.message = Some(e.to_string()),
+                }
+            }
+            return Effect::None;
+        }
+        _ => {}
+    }
+    app.overlay = if goto {
+        Overlay::Goto(text.clone())
+    } else {
+        Overlay::Shelve(text.clone())
+    };
+    Effect::None
+}
+
+fn start_edit(app: &mut App) {
+    let alarms = app.monitor.alarms();
+    let n = alarms.len();
+    if app.selected < n {
+        let a = &alarms[app.selected];
+        let (key, value) = match a.rule.test {
+            Test::Above(v) => ("above", v),
+            Test::Below(v) => ("below", v),
+            _ => {
+                app.message = Some(format!("{} has no numeric threshold to edit", a.rule.id));
+                return;
+            }
+        };
+        if a.rule.id.ends_with(".input") || a.rule.id.starts_with("cli-") {
+            app.message = Some(format!("{} is not in the config file", a.rule.id));
+            return;
+        }
+        let old = threshold_text(&a.rule.quantity, value, app);
+        app.overlay = Overlay::Edit(Edit {
+            kind: "alarm",
+            id: a.rule.id.clone(),
+            key: key.into(),
+            input: old.clone(),
+            old,
+        });
+    } else if let Some(g) = app.monitor.gates().get(app.selected - n) {
+        let old = format!("{} s", g.gate.hold_s);
+        app.overlay = Overlay::Edit(Edit {
+            kind: "gate",
+            id: g.gate.id.clone(),
+            key: "hold".into(),
+            input: old.clone(),
+            old,
+        });
+    }
+}
+
+/// A threshold written back in the display unit.
+fn threshold_text(q: &crate::alarm::quantity::Quantity, si: f64, app: &App) -> String {
+    use crate::alarm::quantity::Quantity;
+    use crate::units::UnitKind;
+    match q {
+        Quantity::Pressure => format!(
+            "{:e} {}",
+            app.pressure_unit.value_of(si),
+            app.pressure_unit.symbol()
+        ),
+        Quantity::Temperature => format!(
+            "{} {}",
+            app.temperature_unit.value_of(si),
+            app.temperature_unit.symbol()
+        ),
+        Quantity::MeanFreePath => format!("{si} m"),
+        Quantity::MonolayerTime => format!("{si} s"),
+        Quantity::Exposure => format!("{si:e} Pa s"),
+        Quantity::RateOfChange => format!(
+            "{:e} {}/s",
+            app.pressure_unit.value_of(si),
+            app.pressure_unit.symbol()
+        ),
+        Quantity::DecadesPerMinute => format!("{si} decade/min"),
+        _ => format!("{si}"),
+    }
+}
+
+fn edit_key(app: &mut App, key: KeyEvent, e: &mut Edit) -> Effect {
+    match key.code {
+        KeyCode::Esc => {
+            app.overlay = Overlay::None;
+            return Effect::None;
+        }
+        KeyCode::Char(c) if !c.is_control() => e.input.push(c),
+        KeyCode::Backspace => {
+            e.input.pop();
+        }
+        KeyCode::Enter => {
+            // Check the value now, so the confirmation is for a valid one.
+            let check = if e.kind == "gate" {
+                units::parse::<TimeUnit>(&e.input)
+                    .map(|_| ())
+                    .map_err(|x| x.to_string())
+            } else {
+                let q = app
+                    .monitor
+                    .alarms()
+                    .iter()
+                    .find(|a| a.rule.id == e.id)
+                    .map(|a| a.rule.quantity.clone());
+                match q {
+                    Some(q) => q.threshold(&e.input).map(|_| ()),
+                    None => Err("the alarm is gone".into()),
+                }
+            };
+            match check {
+                Ok(()) => app.overlay = Overlay::Confirm(e.clone()),
+                Err(err) => {
+                    app.message = Some(err);
+                    app.overlay = Overlay::Edit(e.clone());
+                }
+            }
+            return Effect::None;
+        }
+        _ => {}
+    }
+    app.overlay = Overlay::Edit(e.clone());
+    Effect::None
+}
+
+fn confirm_key(app: &mut App, key: KeyEvent, e: Edit) -> Effect {
+    match key.code {
+        KeyCode::Char('y' | 'Y') => {
+            app.overlay = Overlay::None;
+            // Apply in place first: the change takes effect even unsaved.
+            let applied = if e.kind == "gate" {
+                units::parse::<TimeUnit>(&e.input)
+                    .map_err(|x| x.to_string())
+                    .and_then(|d| app.monitor.set_hold(&e.id, d.si))
+            } else {
+                let q = app
+                    .monitor
+                    .alarms()
+                    .iter()
+                    .find(|a| a.rule.id == e.id)
+                    .map(|a| a.rule.quantity.clone());
+                q.ok_or_else(|| "the alarm is gone".to_string())
+                    .and_then(|q| q.threshold(&e.input))
+                    .and_then(|v| app.monitor.set_threshold(&e.id, v))
+            };
+            if let Err(err) = applied {
+                app.message = Some(err);
+                return Effect::None;
+            }
+            let Some(path) = app.config_path.clone() else {
+                app.message = Some(format!(
+                    "{} {} = {} (no config file to save to)",
+                    e.id, e.key, e.input
+                ));
+                return Effect::None;
+            };
+            let text = match std::fs::read_to_string(&path) {
+                Ok(t) => t,
+                Err(err) => {
+                    app.message = Some(format!("cannot read {}: {err}", path.display()));
+                    return Effect::None;
+                }
+            };
+            match crate::config::edit::set_value(&text, e.kind, &e.id, &e.key, e.input.trim()) {
+                Ok(new) => match crate::config::parse(&new, &path) {
+                    Ok(_) => return Effect::Save(path, new),
+                    Err(err) => app.message = Some(format!("not saved: {err}")),
+                },
+                Err(err) => app.message = Some(format!("not saved: {err}")),
+            }
+        }
+        KeyCode::Char('n' | 'N') | KeyCode::Esc => {
+            app.overlay = Overlay::None;
+            app.message = Some("not saved".into());
+        }
+        _ => app.overlay = Overlay::Confirm(e),
+    }
+    Effect::None
+}

@@ -1,0 +1,18 @@
+//! The dashboard: `rarefy watch` (live) and `rarefy replay` (a recorded log,
+//! on data time).
+//!
+//! * [`app`]: the state, plain data, with bounded decimated [`history`];
+//! * [`keys`]: what each key does, apart from drawing;
+//! * [`render`]: one function per panel, and the layout;
+//! * [`run`]: the event loops; [`term`]: the terminal and its restoration.
+//!
+//! Advisory only: the help screen carries the safety caution.
+
+pub mod app;
+pub mod history;
+pub mod keys;
+pub mod render;
+pub mod run;
+pub mod term;
+
+pub use app::App;

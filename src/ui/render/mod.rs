@@ -1,0 +1,805 @@
+//! Drawing: one function per panel, and a layout that fills large terminals
+//! and collapses in a fixed order on small ones (the trend goes first, then
+//! the lengths, then the kinetics; readings, alarms and the status line
+//! always stay).
+
+mod trend;
+
+use chrono::{DateTime, Utc};
+use ratatui::Frame;
+use ratatui::buffer::Buffer;
+use ratatui::layout::{Constraint, Direction, Layout, Rect};
+use ratatui::style::{Color, Modifier, Style};
+use ratatui::symbols::border;
+use ratatui::text::{Line, Span};
+use ratatui::widgets::{Block, Borders, Clear, Paragraph, Wrap};
+
+use super::app::{App, Overlay};
+use super::keys::{FOOTER_LIVE, FOOTER_REPLAY, HELP};
+use crate::alarm::{AlarmState, GateState};
+use crate::sample::{ChannelUnit, SourceState, Status};
+use crate::units::{self, format_sig};
+
+/// Styles and glyphs, with colour or without, Unicode or ASCII.
+#[derive(Debug, Clone)]
+pub struct Look {
+    /// ASCII only.
+    pub ascii: bool,
+    /// Colour.
+    pub color: bool,
+    /// Secondary text.
+    pub dim: Style,
+    /// Decade rules.
+    pub grid: Style,
+    /// Threshold lines.
+    pub threshold: Style,
+    /// Alarm marks and unacknowledged alarms.
+    pub alarm: Style,
+    /// Titles.
+    pub title: Style,
+}
+
+impl Look {
+    /// The look for an app.
+    pub fn of(app: &App) -> Look {
+        let c = app.color;
+        Look {
+            ascii: app.ascii,
+            color: c,
+            dim: if c {
+                Style::default().fg(Color::Gray)
+            } else {
+                Style::default()
+            },
+            grid: if c {
+                Style::default().fg(Color::DarkGray)
+            } else {
+                Style::default()
+            },
+            threshold: if c {
+                Style::default().fg(Color::Yellow)
+            } else {
+                Style::default()
+            },
+            alarm: if c {
+                Style::default().fg(Color::Red).add_modifier(Modifier::BOLD)
+            } else {
+                Style::default().add_modifier(Modifier::BOLD | Modifier::REVERSED)
+            },
+            title: Style::default().add_modifier(Modifier::BOLD),
+        }
+    }
+
+    fn block<'a>(&self, title: &'a str) -> Block<'a> {
+        let set = if self.ascii {
+            border::Set {
+                top_left: "+",
+                top_right: "+",
+                bottom_left: "+",
+                bottom_right: "+",
+                vertical_left: "|",
+                vertical_right: "|",
+                horizontal_top: "-",
+                horizontal_bottom: "-",
+            }
+        } else {
+            border::ROUNDED
+        };
+        Block::default()
+            .borders(Borders::ALL)
+            .border_set(set)
+            .title(Span::styled(format!(" {title} "), self.title))
+    }
+
+    fn state_style(&self, s: AlarmState) -> Style {
+        let base = Style::default();
+        match (s, self.color) {
+            (AlarmState::Unacknowledged, _) => self.alarm,
+            (AlarmState::Acknowledged, true) => base.fg(Color::Red),
+            (AlarmState::Acknowledged, false) => base.add_modifier(Modifier::BOLD),
+            (AlarmState::ReturnedUnacknowledged, true) => base.fg(Color::Yellow),
+            (AlarmState::ReturnedUnacknowledged, false) => base.add_modifier(Modifier::UNDERLINED),
+            (AlarmState::Shelved | AlarmState::SuppressedByDesign, _) => self.dim,
+            (AlarmState::Normal, true) => base.fg(Color::Green),
+            (AlarmState::Normal, false) => base,
+        }
+    }
+
+    /// Short glyph-free words for quantities in ASCII mode.
+    fn sym(&self, unicode: &'static str, ascii: &'static str) -> &'static str {
+        if self.ascii { ascii } else { unicode }
+    }
+}
+
+/// Short state words for the alarm table.
+fn state_word(s: AlarmState) -> &'static str {
+    match s {
+        AlarmState::Normal => "normal",
+        AlarmState::Unacknowledged => "ALARM",
+        AlarmState::Acknowledged => "acked",
+        AlarmState::ReturnedUnacknowledged => "rtn-unack",
+        AlarmState::Shelved => "shelved",
+        AlarmState::SuppressedByDesign => "suppressed",
+    }
+}
+
+fn age(now: Option<DateTime<Utc>>, t: Option<DateTime<Utc>>) -> String {
+    match (now, t) {
+        (Some(n), Some(t)) => {
+            let s = (n - t).num_milliseconds() as f64 / 1000.0;
+            if s < 100.0 {
+                format!("{s:.0} s")
+            } else {
+                trend::span_text(s)
+            }
+        }
+        _ => "-".into(),
+    }
+}
+
+/// Which panels fit.
+struct Plan {
+    kinetics: bool,
+    lengths: bool,
+    trend: bool,
+    wide: bool,
+}
+
+fn plan(area: Rect) -> Plan {
+    Plan {
+        trend: area.height >= 20 && area.width >= 60,
+        lengths: area.height >= 16,
+        kinetics: area.height >= 12,
+        wide: area.width >= 110 && area.height >= 30,
+    }
+}
+
+/// Draws the whole screen.
+pub fn draw(frame: &mut Frame, app: &App) {
+    let area = frame.area();
+    let look = Look::of(app);
+    let buf = frame.buffer_mut();
+    draw_into(app, &look, area, buf);
+}
+
+/// Draws the whole screen into a buffer (what [`draw`] does; for tests).
+pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    if area.width < 20 || area.height < 6 {
+        buf.set_string(area.x, area.y, "rarefy: terminal too small", look.alarm);
+        return;
+    }
+    let p = plan(area);
+    let timeline = app.replay.is_some();
+    let mut rows = vec![Constraint::Length(1)];
+    if timeline {
+        rows.push(Constraint::Length(1));
+    }
+    rows.push(Constraint::Min(4));
+    rows.push(Constraint::Length(1));
+    rows.push(Constraint::Length(1));
+    let v = Layout::default()
+        .direction(Direction::Vertical)
+        .constraints(rows)
+        .split(area);
+    let mut i = 0;
+    title_bar(app, look, v[i], buf);
+    i += 1;
+    if timeline {
+        timeline_bar(app, look, v[i], buf);
+        i += 1;
+    }
+    let body = v[i];
+    status_line(app, look, v[i + 1], buf);
+    footer(app, look, v[i + 2], buf);
+
+    let gauges = app.gauges.len().max(1) as u16;
+    if p.wide {
+        // Left column of numbers, right column of trend and alarms.
+        let h = Layout::default()
+            .direction(Direction::Horizontal)
+            .constraints([Constraint::Length(52), Constraint::Min(40)])
+            .split(body);
+        let left = Layout::default()
+            .direction(Direction::Vertical)
+            .constraints([
+                Constraint::Length(gauges + 3),
+                Constraint::Length(11),
+                Constraint::Min(4),
+            ])
+            .split(h[0]);
+        readings(app, look, left[0], buf);
+        kinetics(app, look, left[1], buf);
+        lengths(app, look, left[2], buf);
+        let right = Layout::default()
+            .direction(Direction::Vertical)
+            .constraints([Constraint::Min(10), Constraint::Length(alarm_rows(app) + 2)])
+            .split(h[1]);
+        trend_panel(app, look, right[0], buf);
+        alarms(app, look, right[1], buf);
+    } else {
+        let top_h = (gauges + 3).max(if p.kinetics { 10 } else { 0 });
+        let mut parts = vec![Constraint::Length(top_h)];
+        let mid_h = (app.monitor.setup().lengths.len() as u16 + 3).max(alarm_rows(app).min(6) + 2);
+        parts.push(Constraint::Length(mid_h));
+        if p.trend {
+            parts.push(Constraint::Min(6));
+        }
+        let v2 = Layout::default()
+            .direction(Direction::Vertical)
+            .constraints(parts)
+            .split(body);
+        if p.kinetics {
+            let h = Layout::default()
+                .direction(Direction::Horizontal)
+                .constraints([Constraint::Percentage(50), Constraint::Percentage(50)])
+                .split(v2[0]);
+            readings(app, look, h[0], buf);
+            kinetics(app, look, h[1], buf);
+        } else {
+            readings(app, look, v2[0], buf);
+        }
+        if p.lengths {
+            let h = Layout::default()
+                .direction(Direction::Horizontal)
+                .constraints([Constraint::Percentage(45), Constraint::Percentage(55)])
+                .split(v2[1]);
+            lengths(app, look, h[0], buf);
+            alarms(app, look, h[1], buf);
+        } else {
+            alarms(app, look, v2[1], buf);
+        }
+        if p.trend && v2.len() > 2 {
+            trend_panel(app, look, v2[2], buf);
+        }
+    }
+    overlay(app, look, area, buf);
+}
+
+fn alarm_rows(app: &App) -> u16 {
+    (app.monitor.alarms().len() + app.monitor.gates().len()).max(1) as u16
+}
+
+fn title_bar(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let (_, _, now) = app.shown();
+    let mode = match &app.replay {
+        None => "LIVE".to_string(),
+        Some(r) if r.at_end => "REPLAY end of log".into(),
+        Some(r) if r.paused => "REPLAY PAUSED".into(),
+        Some(r) => format!("REPLAY {}", r.speed.label()),
+    };
+    let frozen = if app.frozen.is_some() { "  FROZEN" } else { "" };
+    let time = now.map_or("--".to_string(), |t| {
+        t.format("%Y-%m-%d %H:%M:%S UTC").to_string()
+    });
+    let line = Line::from(vec![
+        Span::styled(format!(" rarefy · {} ", app.title), look.title),
+        Span::styled(
+            format!(" {mode}{frozen} "),
+            Style::default().add_modifier(Modifier::REVERSED),
+        ),
+        Span::raw(format!("  {time}")),
+    ]);
+    let line = if look.ascii {
+        Line::from(
+            line.spans
+                .into_iter()
+                .map(|s| Span::styled(s.content.replace('·', "-"), s.style))
+                .collect::<Vec<_>>(),
+        )
+    } else {
+        line
+    };
+    Paragraph::new(line).render_into(area, buf);
+}
+
+/// A small helper to render a widget into a buffer area.
+trait RenderInto {
+    fn render_into(self, area: Rect, buf: &mut Buffer);
+}
+
+impl<W: ratatui::widgets::Widget> RenderInto for W {
+    fn render_into(self, area: Rect, buf: &mut Buffer) {
+        self.render(area, buf);
+    }
+}
+
+fn timeline_bar(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let Some(r) = &app.replay else { return };
+    let (_, _, now) = app.shown();
+    let span = (r.end - r.start).num_milliseconds().max(1) as f64;
+    let label = format!(" {} ", r.start.format("%H:%M"));
+    let end_label = format!(" {} ", r.end.format("%H:%M"));
+    let x0 = area.x + label.len() as u16;
+    let w = area
+        .width
+        .saturating_sub((label.len() + end_label.len()) as u16);
+    buf.set_string(area.x, area.y, &label, look.dim);
+    buf.set_string(x0 + w, area.y, &end_label, look.dim);
+    if w == 0 {
+        return;
+    }
+    let col = |t: DateTime<Utc>| -> u16 {
+        let f = (t - r.start).num_milliseconds() as f64 / span;
+        (f.clamp(0.0, 1.0) * f64::from(w - 1)).round() as u16
+    };
+    for x in 0..w {
+        buf[(x0 + x, area.y)]
+            .set_symbol(look.sym("─", "-"))
+            .set_style(look.dim);
+    }
+    for (a, b) in &r.gaps {
+        for x in col(*a)..=col(*b) {
+            buf[(x0 + x, area.y)].set_char(' ');
+        }
+    }
+    for (t, _, to) in &r.marks {
+        if to == "unacknowledged" {
+            buf[(x0 + col(*t), area.y)]
+                .set_char('!')
+                .set_style(look.alarm);
+        }
+    }
+    if let Some(now) = now {
+        buf[(x0 + col(now), area.y)]
+            .set_symbol(look.sym("█", "#"))
+            .set_style(Style::default().add_modifier(Modifier::BOLD));
+    }
+}
+
+fn readings(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let (monitor, _, now) = app.shown();
+    let block = look.block("readings");
+    let inner = block.inner(area);
+    block.render_into(area, buf);
+    let mut lines = Vec::new();
+    if app.gauges.is_empty() {
+        lines.push(Line::styled("waiting for the first reading…", look.dim));
+    }
+    for g in &app.gauges {
+        let track = monitor.track(&g.id);
+        let stale = track
+            .and_then(|t| t.last_time)
+            .zip(now)
+            .is_some_and(|(t, n)| {
+                (n - t).num_milliseconds() as f64 / 1000.0 > monitor.setup().stale_after_s
+            });
+        let status = track.map_or(
+            Status::Stale,
+            |t| if stale { Status::Stale } else { t.status },
+        );
+        let value = match (status, track, g.unit) {
+            (Status::Ok, Some(t), ChannelUnit::Pressure(_)) => t
+                .pressure_pa
+                .map_or("-".into(), |p| units::format_pressure(p, app.pressure_unit)),
+            (Status::Ok, Some(t), ChannelUnit::Temperature(_)) => {
+                t.temperature_k.map_or("-".into(), |k| {
+                    units::format_temperature(k, app.temperature_unit)
+                })
+            }
+            (s, _, _) => s.as_str().to_string(),
+        };
+        let style = match status {
+            Status::Ok => Style::default().add_modifier(Modifier::BOLD),
+            Status::SensorOff => look.dim,
+            _ => look.alarm,
+        };
+        let kind = g
+            .kind
+            .map_or(if g.unit.is_pressure() { "" } else { "temp" }, |k| {
+                k.as_str()
+            });
+        let when = age(now, track.and_then(|t| t.last_time));
+        let name: String = g.id.chars().take(10).collect();
+        lines.push(Line::from(vec![
+            Span::raw(format!("{name:<10} ")),
+            Span::styled(format!("{value:>14}"), style),
+            Span::styled(format!(" {kind:<11} {when:>6}"), look.dim),
+        ]));
+    }
+    Paragraph::new(lines).render_into(inner, buf);
+}
+
+/// The gauge whose kinetics are shown: the default gauge, else the first
+/// pressure gauge with a valid reading.
+fn primary(app: &App) -> Option<String> {
+    let (monitor, _, _) = app.shown();
+    monitor.setup().default_gauge.clone().or_else(|| {
+        app.gauges
+            .iter()
+            .filter(|g| g.unit.is_pressure())
+            .find(|g| {
+                monitor
+                    .track(&g.id)
+                    .is_some_and(|t| t.pressure_pa.is_some())
+            })
+            .map(|g| g.id.clone())
+    })
+}
+
+fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let (monitor, _, _) = app.shown();
+    let id = primary(app);
+    let title = format!("gas kinetics · {}", id.as_deref().unwrap_or("-"));
+    let title = if look.ascii {
+        title.replace('·', "-")
+    } else {
+        title
+    };
+    let block = look.block(&title);
+    let inner = block.inner(area);
+    block.render_into(area, buf);
+    let track = id.as_deref().and_then(|g| monitor.track(g));
+    let Some((d, track)) = track.and_then(|t| t.derived.as_ref().map(|d| (d, t))) else {
+        Paragraph::new(Line::styled("no valid pressure yet", look.dim)).render_into(inner, buf);
+        return;
+    };
+    let gas = monitor
+        .setup()
+        .gauges
+        .iter()
+        .find(|g| Some(&g.id) == id.as_ref())
+        .map_or(monitor.setup().mixture.label(), |g| g.mixture.label());
+    let measured = monitor.tracks().any(|(_, t)| t.temperature_k.is_some());
+    let t_k = monitor
+        .tracks()
+        .find_map(|(_, t)| t.temperature_k)
+        .unwrap_or(monitor.setup().assumed_temperature_k);
+    let row = |k: &str, v: String| {
+        Line::from(vec![
+            Span::styled(format!("{k:<12}"), look.dim),
+            Span::raw(v),
+        ])
+    };
+    let exposure = track.exposure.pa_s();
+    let lines = vec![
+        row("gas", gas),
+        row(
+            "temperature",
+            format!(
+                "{} {}",
+                units::format_temperature(t_k, app.temperature_unit),
+                if measured { "measured" } else { "assumed" }
+            ),
+        ),
+        row(
+            look.sym("n", "n"),
+            format!("{} m^-3", format_sig(d.number_density_per_m3, 3)),
+        ),
+        row(
+            look.sym("v̄ mean", "v mean"),
+            format!("{} m/s", format_sig(d.mean_speed_m_per_s, 3)),
+        ),
+        row(look.sym("λ mfp", "mfp"), length(d.mean_free_path_m)),
+        row(
+            look.sym("Φ impinge", "impinge"),
+            format!("{} /m2/s", format_sig(d.impingement_per_m2_s, 3)),
+        ),
+        row(
+            look.sym("τ monolayer", "monolayer"),
+            duration(d.monolayer_time_s),
+        ),
+        row(
+            "exposure",
+            format!(
+                "{} Pa·s {} L",
+                format_sig(exposure, 3),
+                format_sig(exposure / units::LANGMUIR_PA_S, 3)
+            )
+            .replace('·', look.sym("·", "*")),
+        ),
+        row(
+            "range",
+            format!(
+                "{} (ISO 3529-1:{})",
+                d.vacuum_range,
+                monitor.setup().physics.edition.year()
+            ),
+        ),
+    ];
+    Paragraph::new(lines).render_into(inner, buf);
+}
+
+fn length(m: f64) -> String {
+    match m {
+        m if m < 1e-6 => format!("{} nm", format_sig(m * 1e9, 3)),
+        m if m < 1e-3 => format!("{} um", format_sig(m * 1e6, 3)),
+        m if m < 0.1 => format!("{} mm", format_sig(m * 1e3, 3)),
+        m if m < 1e4 => format!("{} m", format_sig(m, 3)),
+        m => format!("{} km", format_sig(m / 1e3, 3)),
+    }
+}
+
+fn duration(s: f64) -> String {
+    match s {
+        s if s < 120.0 => format!("{} s", format_sig(s, 3)),
+        s if s < 7200.0 => format!("{} min", format_sig(s / 60.0, 3)),
+        s if s < 172_800.0 => format!("{} h", format_sig(s / 3600.0, 3)),
+        s => format!("{} d", format_sig(s / 86_400.0, 3)),
+    }
+}
+
+fn lengths(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let (monitor, _, _) = app.shown();
+    let block = look.block("flow regime");
+    let inner = block.inner(area);
+    block.render_into(area, buf);
+    let id = primary(app);
+    let d = id
+        .as_deref()
+        .and_then(|g| monitor.track(g))
+        .and_then(|t| t.derived.as_ref());
+    let mut lines = Vec::new();
+    if monitor.setup().lengths.is_empty() {
+        lines.push(Line::styled("no [[length]] configured", look.dim));
+    }
+    for l in &monitor.setup().lengths {
+        let (kn, regime) = d
+            .and_then(|d| d.lengths.iter().find(|x| x.name == l.name))
+            .map_or(("-".to_string(), "-".to_string()), |x| {
+                (format_sig(x.knudsen, 3), x.regime.to_string())
+            });
+        let name: String = l.name.chars().take(20).collect();
+        lines.push(Line::from(vec![
+            Span::raw(format!("{name:<20} ")),
+            Span::styled(format!("{:>8} ", length(l.length_m)), look.dim),
+            Span::raw(format!("Kn {kn:>7} ")),
+            Span::styled(regime, Style::default().add_modifier(Modifier::BOLD)),
+        ]));
+    }
+    Paragraph::new(lines).render_into(inner, buf);
+}
+
+fn alarms(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let (monitor, _, now) = app.shown();
+    let views = monitor.alarms();
+    let active = views.iter().filter(|a| a.state.is_active()).count();
+    let title = format!("alarms & gates · {active} active");
+    let title = if look.ascii {
+        title.replace('·', "-")
+    } else {
+        title
+    };
+    let block = look.block(&title);
+    let inner = block.inner(area);
+    block.render_into(area, buf);
+    let mut lines: Vec<Line> = Vec::new();
+    let n = views.len();
+    for (i, a) in views.iter().enumerate() {
+        let sel = if i == app.selected { ">" } else { " " };
+        let since = a
+            .since
+            .map_or(String::new(), |s| format!("{} ago", age(now, Some(s))));
+        let extra = match a.shelved_until {
+            Some(u) => format!("until {}", u.format("%H:%M:%S")),
+            None => since,
+        };
+        let id: String = a.rule.id.chars().take(16).collect();
+        lines.push(Line::from(vec![
+            Span::raw(format!("{sel}{id:<16} ")),
+            Span::styled(
+                format!("{:<10}", state_word(a.state)),
+                look.state_style(a.state),
+            ),
+            Span::raw(format!(
+                " {:<11}",
+                a.value_text.clone().unwrap_or_else(|| "-".into())
+            )),
+            Span::styled(
+                format!(" {} · {extra}", a.threshold_text).replace('·', look.sym("·", "-")),
+                look.dim,
+            ),
+        ]));
+    }
+    for (j, g) in monitor.gates().iter().enumerate() {
+        let sel = if n + j == app.selected { ">" } else { " " };
+        let (word, style) = match g.state() {
+            GateState::Ready => (
+                "READY",
+                if look.color {
+                    Style::default()
+                        .fg(Color::Green)
+                        .add_modifier(Modifier::BOLD)
+                } else {
+                    Style::default().add_modifier(Modifier::BOLD)
+                },
+            ),
+            GateState::NotReady => (
+                "NOT READY",
+                if look.color {
+                    Style::default().fg(Color::Yellow)
+                } else {
+                    Style::default()
+                },
+            ),
+        };
+        let why = match (g.state(), g.time_left_s(), g.reason()) {
+            (GateState::Ready, _, _) => format!("held {} s", g.gate.hold_s),
+            (_, Some(left), _) if left > 0.0 => format!("{left:.0} s left"),
+            (_, _, Some(r)) => r.to_string(),
+            _ => String::new(),
+        };
+        let id: String = g.gate.id.chars().take(16).collect();
+        lines.push(Line::from(vec![
+            Span::raw(format!("{sel}{id:<16} ")),
+            Span::styled(format!("{word:<10}"), style),
+            Span::styled(format!(" {why}"), look.dim),
+        ]));
+    }
+    if lines.is_empty() {
+        lines.push(Line::styled("no alarms or gates configured", look.dim));
+    }
+    // Keep the selection in view.
+    let height = inner.height as usize;
+    let skip = app.selected.saturating_sub(height.saturating_sub(1));
+    Paragraph::new(lines.into_iter().skip(skip).collect::<Vec<_>>()).render_into(inner, buf);
+}
+
+fn trend_panel(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let title = format!("log pressure · last {}", trend::span_text(app.window_s));
+    let title = if look.ascii {
+        title.replace('·', "-")
+    } else {
+        title
+    };
+    let block = look.block(&title);
+    let inner = block.inner(area);
+    block.render_into(area, buf);
+    trend::draw(app, look, inner, buf);
+}
+
+fn status_line(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let mut parts: Vec<Span> = Vec::new();
+    if app.replay.is_none() {
+        for (name, state) in &app.sources {
+            let style = match state {
+                SourceState::Connected => Style::default(),
+                _ => look.alarm,
+            };
+            let short: String = name.chars().take(28).collect();
+            parts.push(Span::styled(format!("{short}: {state}  "), style));
+        }
+    } else if let Some(r) = &app.replay {
+        let name = r
+            .file
+            .file_name()
+            .map_or(String::new(), |n| n.to_string_lossy().into_owned());
+        parts.push(Span::raw(format!("{name}  ")));
+        if r.bad_rows > 0 {
+            parts.push(Span::styled(
+                format!("{} bad rows  ", r.bad_rows),
+                look.alarm,
+            ));
+        }
+    }
+    parts.push(Span::raw(format!(
+        "{} rows/s  ",
+        format_sig(app.counters.rate, 3)
+    )));
+    parts.push(Span::raw(format!("unparsed {}  ", app.counters.unparsed)));
+    parts.push(Span::raw(format!(
+        "decimated {}  ",
+        app.history.decimated()
+    )));
+    if app.counters.behind > 100 {
+        parts.push(Span::styled(
+            format!("DISPLAY BEHIND: {} queued  ", app.counters.behind),
+            look.alarm,
+        ));
+    }
+    if let Some(f) = &app.log_file {
+        parts.push(Span::styled(
+            format!("recording {}  ", f.display()),
+            look.dim,
+        ));
+    }
+    if let Some(m) = &app.message {
+        parts.push(Span::styled(
+            m.clone(),
+            Style::default().add_modifier(Modifier::BOLD),
+        ));
+    } else if let Some(u) = &app.last_unparsed {
+        parts.push(Span::styled(format!("last unparsed: {u}"), look.dim));
+    } else if let Some(e) = &app.source_error {
+        parts.push(Span::styled(e.clone(), look.dim));
+    }
+    Paragraph::new(Line::from(parts)).render_into(area, buf);
+}
+
+fn footer(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let keys = if app.replay.is_some() {
+        FOOTER_REPLAY
+    } else {
+        FOOTER_LIVE
+    };
+    let keys = if look.ascii {
+        keys.replace('←', "Left").replace('→', "Right")
+    } else {
+        keys.to_string()
+    };
+    Paragraph::new(Line::styled(
+        keys,
+        Style::default().add_modifier(Modifier::REVERSED),
+    ))
+    .render_into(area, buf);
+}
+
+fn centered(area: Rect, w: u16, h: u16) -> Rect {
+    let w = w.min(area.width);
+    let h = h.min(area.height);
+    Rect {
+        x: area.x + (area.width - w) / 2,
+        y: area.y + (area.height - h) / 2,
+        width: w,
+        height: h,
+    }
+}
+
+fn overlay(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    match &app.overlay {
+        Overlay::None => {}
+        Overlay::Help => {
+            let r = centered(area, 78, 40);
+            Clear.render_into(r, buf);
+            let title = "help · any key closes".replace('·', look.sym("·", "-"));
+            let block = look.block(&title);
+            let inner = block.inner(r);
+            block.render_into(r, buf);
+            let mut lines: Vec<Line> = vec![
+                Line::styled("CAUTION", look.alarm),
+                Line::raw(crate::cli::CAUTION),
+                Line::raw(""),
+            ];
+            for (k, what) in HELP {
+                let k = if look.ascii {
+                    k.replace('↑', "Up")
+                        .replace('↓', "Down")
+                        .replace('←', "Left")
+                        .replace('→', "Right")
+                } else {
+                    k.to_string()
+                };
+                lines.push(Line::from(vec![
+                    Span::styled(format!("{k:<14}"), look.title),
+                    Span::raw(what),
+                ]));
+            }
+            Paragraph::new(lines)
+                .wrap(Wrap { trim: true })
+                .render_into(inner, buf);
+        }
+        Overlay::Goto(s) => prompt_box(look, area, buf, "go to time (HH:MM:SS UTC or RFC 3339)", s),
+        Overlay::Shelve(s) => prompt_box(look, area, buf, "shelve the selected alarm for", s),
+        Overlay::Edit(e) => prompt_box(
+            look,
+            area,
+            buf,
+            &format!("{} {}: new {} (was {})", e.kind, e.id, e.key, e.old),
+            &e.input,
+        ),
+        Overlay::Confirm(e) => {
+            let target = app.config_path.as_ref().map_or(
+                "(no config file: applied in memory only)".to_string(),
+                |p| p.display().to_string(),
+            );
+            prompt_box(
+                look,
+                area,
+                buf,
+                &format!(
+                    "set {} {} = \"{}\" and save to {target}? y/n",
+                    e.kind, e.id, e.input
+                ),
+                "",
+            );
+        }
+    }
+}
+
+fn prompt_box(look: &Look, area: Rect, buf: &mut Buffer, title: &str, input: &str) {
+    let r = centered(area, (title.chars().count() as u16 + 6).max(40), 3);
+    Clear.render_into(r, buf);
+    let block = look.block(title);
+    let inner = block.inner(r);
+    block.render_into(r, buf);
+    Paragraph::new(Line::raw(format!("{input}_"))).render_into(inner, buf);
+}

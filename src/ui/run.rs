@@ -1,0 +1,419 @@
+//! The event loops: `select!` over terminal input, the sample channel (live)
+//! or the log reader (replay), signals, and a render tick that draws at most
+//! ten times a second and only when something changed.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::time::{Duration, Instant};
+
+use chrono::{DateTime, Utc};
+use crossterm::event::{Event as TermEvent, KeyEventKind};
+use tokio::signal::unix::{SignalKind, signal};
+use tokio::sync::mpsc;
+
+use super::app::{App, Effect, Replay, Speed};
+use super::keys;
+use super::render;
+use super::term::Guard;
+use crate::alarm::{Monitor, MonitorSetup};
+use crate::cli::ingest::DataClock;
+use crate::log::{LogSource, open_log};
+use crate::record::Recorder;
+use crate::sample::SourceEvent;
+
+/// Frame interval: at most ten redraws a second.
+pub const FRAME: Duration = Duration::from_millis(100);
+
+/// Reads terminal events on a thread of its own.
+fn input() -> mpsc::Receiver<TermEvent> {
+    let (tx, rx) = mpsc::channel(64);
+    std::thread::spawn(move || {
+        loop {
+            match crossterm::event::poll(Duration::from_millis(200)) {
+                Ok(true) => match crossterm::event::read() {
+                    Ok(ev) => {
+                        if tx.blocking_send(ev).is_err() {
+                            return;
+                        }
+                    }
+                    Err(_) => return,
+                },
+                Ok(false) => {
+                    if tx.is_closed() {
+                        return;
+                    }
+                }
+                Err(_) => return,
+            }
+        }
+    });
+    rx
+}
+
+/// Applies what a key asked for that the app cannot do itself (saving).
+fn apply_save(app: &mut App, effect: &Effect) {
+    if let Effect::Save(path, text) = effect {
+        // Write beside and rename, so the file is never half written.
+        let tmp = path.with_extension("toml.partial");
+        let result = std::fs::write(&tmp, text).and_then(|()| std::fs::rename(&tmp, path));
+        app.message = Some(match result {
+            Ok(()) => format!("saved to {}", path.display()),
+            Err(e) => format!("cannot save {}: {e}", path.display()),
+        });
+    }
+}
+
+fn draw(guard: &mut Guard, app: &mut App) -> std::io::Result<()> {
+    if app.dirty {
+        guard.term.draw(|f| render::draw(f, app))?;
+        app.dirty = false;
+    }
+    if std::mem::take(&mut app.bell) {
+        let out = guard.term.backend_mut();
+        let _ = out.write_all(b"\x07");
+        let _ = Write::flush(out);
+    }
+    Ok(())
+}
+
+/// Runs the live dashboard until the operator quits or a signal arrives.
+pub async fn live(
+    mut app: App,
+    mut rx: mpsc::Receiver<SourceEvent>,
+    mut recorder: Option<Recorder>,
+) -> Result<(), String> {
+    let mut sigterm = signal(SignalKind::terminate()).map_err(|e| e.to_string())?;
+    let mut sighup = signal(SignalKind::hangup()).map_err(|e| e.to_string())?;
+    let mut guard = Guard::enter().map_err(|e| format!("cannot set up the terminal: {e}"))?;
+    let mut keys_rx = input();
+    let mut tick = tokio::time::interval(FRAME);
+    tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Skip);
+    let mut clock = DataClock::default();
+    let mut last_flush = Instant::now();
+    let mut sources_open = true;
+    loop {
+        tokio::select! {
+            biased;
+            _ = sigterm.recv() => break,
+            _ = sighup.recv() => break,
+            Some(ev) = keys_rx.recv() => {
+                match ev {
+                    TermEvent::Key(k) if k.kind == KeyEventKind::Press => {
+                        let effect = keys::handle(&mut app, k);
+                        if effect == Effect::Quit {
+                            break;
+                        }
+                        apply_save(&mut app, &effect);
+                    }
+                    TermEvent::Resize(..) => app.dirty = true,
+                    _ => {}
+                }
+            }
+            ev = rx.recv(), if sources_open => {
+                let Some(ev) = ev else {
+                    sources_open = false;
+                    app.message = Some("all sources ended".into());
+                    app.dirty = true;
+                    continue;
+                };
+                // Take what is queued, up to a bound, before drawing again.
+                let mut batch = vec![ev];
+                while batch.len() < 2000 {
+                    match rx.try_recv() {
+                        Ok(ev) => batch.push(ev),
+                        Err(_) => break,
+                    }
+                }
+                for ev in &batch {
+                    if let SourceEvent::Samples(s) = ev {
+                        if let Some(t) = s.iter().map(|s| s.time).max() {
+                            clock.saw(t);
+                        }
+                        if let Some(r) = recorder.as_mut() && r.push_row(s) {
+                            r.flush();
+                        }
+                    }
+                    app.ingest(ev);
+                }
+                app.counters.behind = rx.len();
+            }
+            _ = tick.tick() => {
+                if let Some(now) = clock.now() {
+                    app.tick(now);
+                }
+                if let Some(r) = recorder.as_mut() && last_flush.elapsed() >= Duration::from_secs(1) {
+                    r.flush();
+                    last_flush = Instant::now();
+                    if r.is_failing() {
+                        app.message = Some(format!("RECORDING FAILS: {} rows kept in memory", r.buffered()));
+                        app.dirty = true;
+                    }
+                }
+                draw(&mut guard, &mut app).map_err(|e| e.to_string())?;
+            }
+        }
+    }
+    if let Some(r) = recorder.as_mut() {
+        r.close();
+    }
+    drop(guard);
+    Ok(())
+}
+
+/// What a replay needs to start over.
+pub struct ReplaySetup {
+    /// The log.
+    pub file: PathBuf,
+    /// A `[log]` spec for foreign logs.
+    pub foreign: Option<crate::log::ForeignLogSpec>,
+    /// The monitor's setup.
+    pub monitor: MonitorSetup,
+}
+
+/// Reads the whole log once: start, end, gaps and the alarm events, for the
+/// timeline and for jumping between alarms.
+pub fn index(setup: &ReplaySetup) -> Result<Replay, String> {
+    let mut log = open_log(&setup.file, setup.foreign.as_ref()).map_err(|e| e.to_string())?;
+    let mut monitor = Monitor::new(setup.monitor.clone());
+    let mut start = None;
+    let mut end: Option<DateTime<Utc>> = None;
+    let mut marks = Vec::new();
+    let mut gaps = Vec::new();
+    let mut intervals: Vec<i64> = Vec::new();
+    let mut bad_rows = 0;
+    for row in log.by_ref() {
+        let row = match row {
+            Ok(r) => r,
+            Err(e) => {
+                bad_rows += 1;
+                match e.row {
+                    Some(r) => *r,
+                    None => continue,
+                }
+            }
+        };
+        start.get_or_insert(row.time);
+        if let Some(prev) = end {
+            let dt = (row.time - prev).num_milliseconds();
+            if intervals.len() < 64 {
+                intervals.push(dt.max(1));
+            }
+            let mut sorted = intervals.clone();
+            sorted.sort_unstable();
+            let typical = sorted[sorted.len() / 2];
+            if dt > typical * 5 && dt > 5000 {
+                gaps.push((prev, row.time));
+            }
+        }
+        end = Some(end.map_or(row.time, |e| e.max(row.time)));
+        for e in monitor.push(&row.samples) {
+            marks.push((e.time, e.id, e.to));
+        }
+    }
+    let (Some(start), Some(end)) = (start, end) else {
+        return Err(format!("{}: the log has no rows", setup.file.display()));
+    };
+    Ok(Replay {
+        file: setup.file.clone(),
+        paused: false,
+        speed: Speed::Times(60.0),
+        start,
+        end,
+        marks,
+        gaps,
+        bad_rows,
+        at_end: false,
+    })
+}
+
+/// A replay in progress: the reader and the next row.
+pub struct Player {
+    log: Box<dyn LogSource>,
+    next: Option<crate::log::Row>,
+}
+
+impl Player {
+    /// Opens the log at its start.
+    pub fn open(setup: &ReplaySetup) -> Result<Player, String> {
+        let log = open_log(&setup.file, setup.foreign.as_ref()).map_err(|e| e.to_string())?;
+        let mut p = Player { log, next: None };
+        p.advance();
+        Ok(p)
+    }
+
+    fn advance(&mut self) {
+        self.next = None;
+        for row in self.log.by_ref() {
+            match row {
+                Ok(r) => {
+                    self.next = Some(r);
+                    return;
+                }
+                Err(e) => {
+                    if let Some(r) = e.row {
+                        self.next = Some(*r);
+                        return;
+                    }
+                }
+            }
+        }
+    }
+
+    /// Time of the next row.
+    pub fn next_time(&self) -> Option<DateTime<Utc>> {
+        self.next.as_ref().map(|r| r.time)
+    }
+
+    /// Feeds the app every row up to `until` (at most `max` rows).
+    pub fn feed(&mut self, app: &mut App, until: Option<DateTime<Utc>>, max: usize) -> usize {
+        let mut n = 0;
+        while n < max {
+            let Some(row) = self.next.take() else { break };
+            if until.is_some_and(|u| row.time > u) {
+                self.next = Some(row);
+                break;
+            }
+            app.ingest(&SourceEvent::Samples(row.samples));
+            n += 1;
+            self.advance();
+        }
+        n
+    }
+}
+
+/// Starts the app over at the beginning of the log (for seeking back).
+pub fn rewind(app: &mut App, setup: &ReplaySetup) -> Result<Player, String> {
+    app.monitor = Monitor::new(setup.monitor.clone());
+    app.history = super::history::History::default();
+    app.origin = None;
+    app.events.clear();
+    app.counters = Default::default();
+    app.frozen = None;
+    Player::open(setup)
+}
+
+/// Moves the replay to data time `t`.
+pub fn seek(
+    app: &mut App,
+    player: &mut Player,
+    setup: &ReplaySetup,
+    t: DateTime<Utc>,
+) -> Result<(), String> {
+    if app.monitor.now().is_some_and(|now| t < now) {
+        *player = rewind(app, setup)?;
+    }
+    player.feed(app, Some(t), usize::MAX);
+    // The displayed time is the seek target even between rows.
+    app.tick(t);
+    if let Some(r) = &mut app.replay {
+        r.at_end = player.next_time().is_none();
+    }
+    app.dirty = true;
+    Ok(())
+}
+
+/// Runs the replay dashboard.
+pub async fn replay(
+    mut app: App,
+    setup: ReplaySetup,
+    from: Option<DateTime<Utc>>,
+) -> Result<(), String> {
+    let mut player = Player::open(&setup)?;
+    if let Some(t) = from {
+        seek(&mut app, &mut player, &setup, t)?;
+    }
+    let mut sigterm = signal(SignalKind::terminate()).map_err(|e| e.to_string())?;
+    let mut sighup = signal(SignalKind::hangup()).map_err(|e| e.to_string())?;
+    let mut guard = Guard::enter().map_err(|e| format!("cannot set up the terminal: {e}"))?;
+    let mut keys_rx = input();
+    let mut tick = tokio::time::interval(FRAME);
+    tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Skip);
+    let mut last = Instant::now();
+    // Data time of the playhead.
+    let mut head = app.monitor.now().or(player.next_time());
+    loop {
+        tokio::select! {
+            biased;
+            _ = sigterm.recv() => break,
+            _ = sighup.recv() => break,
+            Some(ev) = keys_rx.recv() => {
+                match ev {
+                    TermEvent::Key(k) if k.kind == KeyEventKind::Press => {
+                        let effect = keys::handle(&mut app, k);
+                        match &effect {
+                            Effect::Quit => break,
+                            Effect::Seek(t) => {
+                                seek(&mut app, &mut player, &setup, *t)?;
+                                head = Some(*t);
+                            }
+                            Effect::Step => {
+                                if let Some(r) = &mut app.replay {
+                                    r.paused = true;
+                                }
+                                player.feed(&mut app, None, 1);
+                                head = app.monitor.now();
+                            }
+                            _ => apply_save(&mut app, &effect),
+                        }
+                    }
+                    TermEvent::Resize(..) => app.dirty = true,
+                    _ => {}
+                }
+            }
+            _ = tick.tick() => {
+                let elapsed = last.elapsed().as_secs_f64();
+                last = Instant::now();
+                let (paused, speed) = app.replay.as_ref().map_or((true, Speed::Max), |r| (r.paused, r.speed));
+                if !paused {
+                    match speed {
+                        Speed::Max => {
+                            player.feed(&mut app, None, 20_000);
+                            head = app.monitor.now();
+                        }
+                        Speed::Times(x) => {
+                            let h = head.or(player.next_time());
+                            if let Some(h) = h {
+                                let t = h + chrono::Duration::milliseconds((elapsed * x * 1000.0) as i64);
+                                player.feed(&mut app, Some(t), usize::MAX);
+                                app.tick(t.min(app.replay.as_ref().map_or(t, |r| r.end)));
+                                head = Some(t);
+                            }
+                        }
+                    }
+                    let ended = player.next_time().is_none();
+                    if let Some(r) = &mut app.replay && ended && !r.at_end {
+                        r.at_end = true;
+                        r.paused = true;
+                        app.dirty = true;
+                    }
+                }
+                draw(&mut guard, &mut app).map_err(|e| e.to_string())?;
+            }
+        }
+    }
+    drop(guard);
+    Ok(())
+}
+
+/// Whether colour should be used: not with NO_COLOR set (any value).
+pub fn use_color() -> bool {
+    std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty())
+}
+
+/// Whether the terminal probably cannot show braille: `TERM=linux` (the
+/// console) or `dumb`, or a non-UTF-8 locale.
+pub fn ascii_fallback() -> bool {
+    let term = std::env::var("TERM").unwrap_or_default();
+    let lang = ["LC_ALL", "LC_CTYPE", "LANG"]
+        .iter()
+        .find_map(|k| std::env::var(k).ok().filter(|v| !v.is_empty()))
+        .unwrap_or_default();
+    term == "linux"
+        || term == "dumb"
+        || !(lang.to_uppercase().contains("UTF-8") || lang.to_uppercase().contains("UTF8"))
+}
+
+/// The log file being recorded, for the status line.
+pub fn recording_path(r: &Recorder) -> Option<&Path> {
+    r.current_path()
+}
