@@ -93,7 +93,7 @@ impl Series {
         let width = LEVELS[chosen];
         let buckets = self.levels[chosen]
             .iter()
-            .filter(|b| b.start(width) + width >= from && b.start(width) <= to)
+            .filter(|b| b.start(width) + width > from && b.start(width) <= to)
             .copied()
             .collect();
         (width, buckets)
