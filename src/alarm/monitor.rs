@@ -268,9 +268,19 @@ impl Monitor {
                 rule: &r.rule,
                 state: r.state(),
                 since: r.since(),
-                value_text: r
-                    .last_value()
-                    .and_then(|v| self.input_text(&r.rule.quantity, v)),
+                value_text: if r.rule.is_input() {
+                    self.tracks.get(&r.rule.gauge).map(|t| {
+                        let stale = self.now.is_some_and(|n| self.stale(t, n));
+                        if stale {
+                            "stale".into()
+                        } else {
+                            t.status.as_str().to_string()
+                        }
+                    })
+                } else {
+                    r.last_value()
+                        .and_then(|v| self.input_text(&r.rule.quantity, v))
+                },
                 threshold_text: self.test_text(&r.rule),
                 shelved_until: r.shelved_until(),
             })
@@ -445,9 +455,7 @@ impl Monitor {
                 .show(x, self.setup.pressure_unit, self.setup.temperature_unit)
         };
         match &r.test {
-            _ if r.id.ends_with(".input") && r.label.ends_with("no valid reading") => {
-                "valid readings".into()
-            }
+            _ if r.is_input() => "valid readings".into(),
             Test::Above(t) => format!("{} above {}", r.quantity, show(*t)),
             Test::Below(t) => format!("{} below {}", r.quantity, show(*t)),
             Test::Enters(c) => format!("{} enters {}", r.quantity, c.as_str()),
@@ -632,6 +640,13 @@ impl Monitor {
             spec.hold_s = hold_s;
         }
         Ok(())
+    }
+
+    /// Starts every gauge's exposure again from zero (a fresh substrate).
+    pub fn reset_exposure(&mut self) {
+        for t in self.tracks.values_mut() {
+            t.exposure = Exposure::new(60.0);
+        }
     }
 
     /// Acknowledges one alarm at data time `now`, recording `who`.

@@ -199,6 +199,13 @@ pub struct Rule {
     pub latching: bool,
 }
 
+impl Rule {
+    /// Whether this is a gauge's automatic no-valid-reading alarm.
+    pub fn is_input(&self) -> bool {
+        self.id.ends_with(".input")
+    }
+}
+
 /// One input to a rule at a data time.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Input {

@@ -131,7 +131,7 @@ pub struct Counters {
     pub unparsed: u64,
     /// Readings waiting in the queue when last looked (display behind).
     pub behind: usize,
-    /// Rows per second of data time, recently.
+    /// Rows per second of wall time, recently (live).
     pub rate: f64,
 }
 
@@ -191,7 +191,6 @@ pub struct App {
     pub config_path: Option<PathBuf>,
     /// Whether something changed since the last draw.
     pub dirty: bool,
-    rate_window: VecDeque<DateTime<Utc>>,
 }
 
 /// What a key asks the loop around the app to do.
@@ -240,7 +239,6 @@ impl App {
             color: true,
             config_path: None,
             dirty: true,
-            rate_window: VecDeque::new(),
         }
     }
 
@@ -303,25 +301,6 @@ impl App {
                     if let Some(v) = v {
                         self.history.push(&s.channel, t, v);
                     }
-                }
-                if let Some(t) = samples.first().map(|s| s.time) {
-                    self.rate_window.push_back(t);
-                    while self
-                        .rate_window
-                        .front()
-                        .is_some_and(|f| (t - *f).num_seconds() > 10)
-                    {
-                        self.rate_window.pop_front();
-                    }
-                    let span = self
-                        .rate_window
-                        .front()
-                        .map_or(0.0, |f| (t - *f).num_milliseconds() as f64 / 1000.0);
-                    self.counters.rate = if span > 0.0 {
-                        (self.rate_window.len() - 1) as f64 / span
-                    } else {
-                        0.0
-                    };
                 }
                 self.note_events(events);
             }

@@ -17,7 +17,7 @@ pub const FOOTER_REPLAY: &str =
     "?:help  space:pause  </>:speed  ←/→:10s  [/]:1min  {/}:10min  n/p:alarm  t:time  q:quit";
 
 /// Every key, for the help overlay: (keys, what).
-pub const HELP: [(&str, &str); 22] = [
+pub const HELP: [(&str, &str); 23] = [
     ("? h F1", "this help (Esc closes)"),
     ("q", "quit (recording stops cleanly)"),
     ("↑ ↓ j k", "select an alarm or gate"),
@@ -32,6 +32,7 @@ pub const HELP: [(&str, &str); 22] = [
     ("u", "next pressure unit"),
     ("w W", "longer / shorter trend window"),
     ("f", "freeze the display (data keeps recording)"),
+    ("x", "start the exposure again from zero"),
     ("space", "replay: pause / resume"),
     (".", "replay: one row forward while paused"),
     ("< >", "replay: slower / faster (1x … 1000x, max)"),
@@ -177,6 +178,10 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
             }
         }
         KeyCode::Char('e') => start_edit(app),
+        KeyCode::Char('x') => {
+            app.monitor.reset_exposure();
+            app.message = Some("exposure reset to zero".into());
+        }
         KeyCode::Char(' ') if replay => {
             if let Some(r) = &mut app.replay {
                 r.paused = !r.paused;

@@ -91,6 +91,7 @@ pub async fn live(
     let mut clock = DataClock::default();
     let mut last_flush = Instant::now();
     let mut sources_open = true;
+    let mut rate_mark = (Instant::now(), 0u64);
     loop {
         tokio::select! {
             biased;
@@ -140,6 +141,16 @@ pub async fn live(
             _ = tick.tick() => {
                 if let Some(now) = clock.now() {
                     app.tick(now);
+                }
+                // Rows per wall second, over the last second or so.
+                let dt = rate_mark.0.elapsed().as_secs_f64();
+                if dt >= 1.0 {
+                    let rate = (app.counters.rows - rate_mark.1) as f64 / dt;
+                    if (rate - app.counters.rate).abs() > 1e-9 {
+                        app.counters.rate = rate;
+                        app.dirty = true;
+                    }
+                    rate_mark = (Instant::now(), app.counters.rows);
                 }
                 if let Some(r) = recorder.as_mut() && last_flush.elapsed() >= Duration::from_secs(1) {
                     r.flush();

@@ -154,6 +154,44 @@ fn plan(area: Rect) -> Plan {
     }
 }
 
+/// A panel, for drawing one alone (tests, benchmarks).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Panel {
+    /// Title bar.
+    Title,
+    /// Replay timeline.
+    Timeline,
+    /// Readings per gauge.
+    Readings,
+    /// Gas kinetics.
+    Kinetics,
+    /// Knudsen number and regime per length.
+    Lengths,
+    /// Log-pressure trend.
+    Trend,
+    /// Alarms and gates.
+    Alarms,
+    /// Status line.
+    Status,
+    /// Key footer.
+    Footer,
+}
+
+/// Draws one panel into `area`.
+pub fn draw_panel(panel: Panel, app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    match panel {
+        Panel::Title => title_bar(app, look, area, buf),
+        Panel::Timeline => timeline_bar(app, look, area, buf),
+        Panel::Readings => readings(app, look, area, buf),
+        Panel::Kinetics => kinetics(app, look, area, buf),
+        Panel::Lengths => lengths(app, look, area, buf),
+        Panel::Trend => trend_panel(app, look, area, buf),
+        Panel::Alarms => alarms(app, look, area, buf),
+        Panel::Status => status_line(app, look, area, buf),
+        Panel::Footer => footer(app, look, area, buf),
+    }
+}
+
 /// Draws the whole screen.
 pub fn draw(frame: &mut Frame, app: &App) {
     let area = frame.area();
@@ -217,13 +255,26 @@ pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         trend_panel(app, look, right[0], buf);
         alarms(app, look, right[1], buf);
     } else {
-        let top_h = (gauges + 3).max(if p.kinetics { 10 } else { 0 });
-        let mut parts = vec![Constraint::Length(top_h)];
-        let mid_h = (app.monitor.setup().lengths.len() as u16 + 3).max(alarm_rows(app).min(6) + 2);
-        parts.push(Constraint::Length(mid_h));
-        if p.trend {
-            parts.push(Constraint::Min(6));
-        }
+        // Stacked: numbers on top, lengths and alarms, then the trend with
+        // whatever height is left; the trend is dropped first.
+        let tall = body.height >= 30;
+        let kin_h: u16 = if p.kinetics {
+            if tall { 11 } else { 7 }
+        } else {
+            0
+        };
+        let top_h = (gauges + 2).max(kin_h);
+        let lengths_n = app.monitor.setup().lengths.len() as u16;
+        let mid_h = if tall {
+            (lengths_n + 2).max(alarm_rows(app) + 2).min(14)
+        } else {
+            (lengths_n + 2)
+                .max(7)
+                .min(body.height.saturating_sub(top_h + 5).max(4))
+        };
+        let mut parts = vec![Constraint::Length(top_h), Constraint::Length(mid_h)];
+        let trend_fits = p.trend && body.height >= top_h + mid_h + 5;
+        parts.push(Constraint::Min(if trend_fits { 5 } else { 0 }));
         let v2 = Layout::default()
             .direction(Direction::Vertical)
             .constraints(parts)
@@ -248,7 +299,7 @@ pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         } else {
             alarms(app, look, v2[1], buf);
         }
-        if p.trend && v2.len() > 2 {
+        if trend_fits {
             trend_panel(app, look, v2[2], buf);
         }
     }
@@ -271,8 +322,25 @@ fn title_bar(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let time = now.map_or("--".to_string(), |t| {
         t.format("%Y-%m-%d %H:%M:%S UTC").to_string()
     });
+    // The chamber name gives way first when the line is short.
+    let fixed = mode.chars().count() + frozen.len() + time.chars().count() + 16;
+    let room = (area.width as usize).saturating_sub(fixed);
+    let name: String = if app.title.chars().count() > room {
+        app.title
+            .chars()
+            .take(room.saturating_sub(1))
+            .chain(['…'])
+            .collect()
+    } else {
+        app.title.clone()
+    };
+    let name = if look.ascii {
+        name.replace('…', "~")
+    } else {
+        name
+    };
     let line = Line::from(vec![
-        Span::styled(format!(" rarefy · {} ", app.title), look.title),
+        Span::styled(format!(" rarefy · {name} "), look.title),
         Span::styled(
             format!(" {mode}{frozen} "),
             Style::default().add_modifier(Modifier::REVERSED),
@@ -419,7 +487,19 @@ fn primary(app: &App) -> Option<String> {
 fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let (monitor, _, _) = app.shown();
     let id = primary(app);
-    let title = format!("gas kinetics · {}", id.as_deref().unwrap_or("-"));
+    let stale = id
+        .as_deref()
+        .and_then(|g| monitor.track(g))
+        .is_some_and(|t| {
+            t.last_time.zip(monitor.now()).is_some_and(|(l, n)| {
+                (n - l).num_milliseconds() as f64 / 1000.0 > monitor.setup().stale_after_s
+            }) || !t.status.is_ok()
+        });
+    let title = format!(
+        "gas kinetics · {}{}",
+        id.as_deref().unwrap_or("-"),
+        if stale { " · last valid" } else { "" }
+    );
     let title = if look.ascii {
         title.replace('·', "-")
     } else {
@@ -451,16 +531,55 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         ])
     };
     let exposure = track.exposure.pa_s();
+    let t_text = format!(
+        "{} {}",
+        units::format_temperature(t_k, app.temperature_unit),
+        if measured { "measured" } else { "assumed" }
+    );
+    let exposure_text = format!(
+        "{} Pa·s {} L",
+        format_sig(exposure, 3),
+        format_sig(exposure / units::LANGMUIR_PA_S, 3)
+    )
+    .replace('·', look.sym("·", "*"));
+    if inner.height < 9 {
+        // Compact: two quantities a line.
+        let pair = |a: &str, av: String, b: &str, bv: String| {
+            Line::from(vec![
+                Span::styled(format!("{a} "), look.dim),
+                Span::raw(format!("{av:<14} ")),
+                Span::styled(format!("{b} "), look.dim),
+                Span::raw(bv),
+            ])
+        };
+        let lines = vec![
+            pair("gas", gas.clone(), "T", t_text),
+            pair(
+                look.sym("n", "n"),
+                format!("{} m^-3", format_sig(d.number_density_per_m3, 3)),
+                look.sym("v̄", "v"),
+                format!("{} m/s", format_sig(d.mean_speed_m_per_s, 3)),
+            ),
+            pair(
+                look.sym("λ", "mfp"),
+                length(d.mean_free_path_m),
+                "range",
+                d.vacuum_range.to_string(),
+            ),
+            pair(
+                look.sym("Φ", "imp"),
+                format!("{} /m2/s", format_sig(d.impingement_per_m2_s, 3)),
+                look.sym("τ", "tau"),
+                duration(d.monolayer_time_s),
+            ),
+            row("exposure", exposure_text),
+        ];
+        Paragraph::new(lines).render_into(inner, buf);
+        return;
+    }
     let lines = vec![
         row("gas", gas),
-        row(
-            "temperature",
-            format!(
-                "{} {}",
-                units::format_temperature(t_k, app.temperature_unit),
-                if measured { "measured" } else { "assumed" }
-            ),
-        ),
+        row("temperature", t_text),
         row(
             look.sym("n", "n"),
             format!("{} m^-3", format_sig(d.number_density_per_m3, 3)),
@@ -478,15 +597,7 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             look.sym("τ monolayer", "monolayer"),
             duration(d.monolayer_time_s),
         ),
-        row(
-            "exposure",
-            format!(
-                "{} Pa·s {} L",
-                format_sig(exposure, 3),
-                format_sig(exposure / units::LANGMUIR_PA_S, 3)
-            )
-            .replace('·', look.sym("·", "*")),
-        ),
+        row("exposure", exposure_text),
         row(
             "range",
             format!(
@@ -538,11 +649,18 @@ fn lengths(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             .map_or(("-".to_string(), "-".to_string()), |x| {
                 (format_sig(x.knudsen, 3), x.regime.to_string())
             });
-        let name: String = l.name.chars().take(20).collect();
+        let narrow = inner.width < 48;
+        let name_w = if narrow { 13 } else { 20 };
+        let name: String = l.name.chars().take(name_w).collect();
+        let regime = if narrow {
+            regime.chars().take(5).collect::<String>()
+        } else {
+            regime
+        };
         lines.push(Line::from(vec![
-            Span::raw(format!("{name:<20} ")),
+            Span::raw(format!("{name:<name_w$} ")),
             Span::styled(format!("{:>8} ", length(l.length_m)), look.dim),
-            Span::raw(format!("Kn {kn:>7} ")),
+            Span::raw(format!("{}{kn:>6} ", if narrow { "" } else { "Kn " })),
             Span::styled(regime, Style::default().add_modifier(Modifier::BOLD)),
         ]));
     }
@@ -671,10 +789,12 @@ fn status_line(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             ));
         }
     }
-    parts.push(Span::raw(format!(
-        "{} rows/s  ",
-        format_sig(app.counters.rate, 3)
-    )));
+    if app.replay.is_none() {
+        parts.push(Span::raw(format!(
+            "{} rows/s  ",
+            format_sig(app.counters.rate, 3)
+        )));
+    }
     parts.push(Span::raw(format!("unparsed {}  ", app.counters.unparsed)));
     parts.push(Span::raw(format!(
         "decimated {}  ",

@@ -93,7 +93,7 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let thresholds: Vec<f64> = monitor
         .alarms()
         .iter()
-        .filter(|a| a.rule.quantity == Quantity::Pressure)
+        .filter(|a| a.rule.quantity == Quantity::Pressure && !a.rule.is_input())
         .filter_map(|a| match a.rule.test {
             Test::Above(t) | Test::Below(t) => Some(to_y(t)),
             _ => None,
@@ -185,12 +185,21 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     } else {
         let mut dots = Dots::new(plot.width as usize, plot.height as usize);
         for (i, (_, buckets, w)) in series.iter().enumerate() {
+            let mut prev: Option<&crate::ui::history::Bucket> = None;
             for b in buckets {
                 let x = x_of(b.start(*w) + w / 2.0, 2.0);
-                let (ya, yb) = (y_of(to_y(b.max), 4.0), y_of(to_y(b.min), 4.0));
+                // Adjacent buckets are joined, so a fast pump-down reads as a
+                // line; a missing bucket leaves the gap open.
+                let (mut hi_v, mut lo_v) = (b.max, b.min);
+                if let Some(p) = prev.filter(|p| p.index + 1 == b.index) {
+                    hi_v = hi_v.max(p.min);
+                    lo_v = lo_v.min(p.max);
+                }
+                let (ya, yb) = (y_of(to_y(hi_v), 4.0), y_of(to_y(lo_v), 4.0));
                 for y in ya..=yb {
                     dots.set(x, y, i);
                 }
+                prev = Some(b);
             }
         }
         for (k, (bits, s)) in dots.cells.iter().enumerate() {

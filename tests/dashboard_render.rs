@@ -1,0 +1,212 @@
+//! The dashboard drawn into ratatui's TestBackend, at 80×24, 120×40 and
+//! 200×60, for each panel and the whole screen, in the states an operator
+//! meets: no data yet, a stale gauge, over-range, an alarm unacknowledged,
+//! acknowledged and shelved, a gate not ready and ready, replay paused.
+//! Snapshots live in tests/snapshots/ and are reviewed by hand.
+
+use std::path::Path;
+
+use chrono::{DateTime, Utc};
+use ratatui::Terminal;
+use ratatui::backend::TestBackend;
+use ratatui::buffer::Buffer;
+use ratatui::layout::Rect;
+
+use rarefy::alarm::Monitor;
+use rarefy::config;
+use rarefy::log::open_log;
+use rarefy::sample::SourceEvent;
+use rarefy::ui::app::{App, GaugeInfo};
+use rarefy::ui::render::{self, Look, Panel};
+use rarefy::ui::run::{ReplaySetup, index};
+
+fn root() -> &'static Path {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+}
+
+fn time(s: &str) -> DateTime<Utc> {
+    DateTime::parse_from_rfc3339(&format!("2026-11-09T{s}Z"))
+        .expect("time")
+        .with_timezone(&Utc)
+}
+
+/// The demo config's dashboard fed `sample-logs/demo.csv` up to `until`.
+fn app_at(until: Option<&str>) -> App {
+    let cfg = config::load(&root().join("config/demo.toml")).expect("demo config");
+    let monitor = Monitor::new(cfg.monitor_setup(Vec::new()));
+    let gauges = cfg
+        .gauges
+        .iter()
+        .map(|g| GaugeInfo {
+            id: g.id.clone(),
+            label: g.label.clone(),
+            kind: Some(g.kind),
+            unit: rarefy::sample::ChannelUnit::Pressure(cfg.display.pressure_unit),
+        })
+        .collect();
+    let mut app = App::new(cfg.chamber.name.clone(), monitor, gauges);
+    app.color = false;
+    app.window_s = 900.0;
+    if let Some(until) = until {
+        let until = time(until);
+        let log = open_log(&root().join("sample-logs/demo.csv"), None).expect("log");
+        for row in log {
+            let row = row.expect("row");
+            if row.time > until {
+                break;
+            }
+            app.ingest(&SourceEvent::Samples(row.samples));
+        }
+    }
+    app
+}
+
+fn screen(app: &App, w: u16, h: u16) -> String {
+    let mut t = Terminal::new(TestBackend::new(w, h)).expect("terminal");
+    t.draw(|f| render::draw(f, app)).expect("draw");
+    format!("{}", t.backend())
+}
+
+fn panel(app: &App, p: Panel, w: u16, h: u16) -> String {
+    let area = Rect::new(0, 0, w, h);
+    let mut buf = Buffer::empty(area);
+    render::draw_panel(p, app, &Look::of(app), area, &mut buf);
+    let mut out = String::new();
+    for y in 0..h {
+        for x in 0..w {
+            out.push_str(buf[(x, y)].symbol());
+        }
+        out.push('\n');
+    }
+    out
+}
+
+const SIZES: [(u16, u16); 3] = [(80, 24), (120, 40), (200, 60)];
+
+#[test]
+fn whole_screen_no_data_yet() {
+    let app = app_at(None);
+    for (w, h) in SIZES {
+        insta::assert_snapshot!(format!("no_data_{w}x{h}"), screen(&app, w, h));
+    }
+}
+
+#[test]
+fn whole_screen_during_pumpdown_with_over_range_and_gate_not_ready() {
+    // 09:00:30: the capacitance gauge is still over-range, the ion gauge
+    // protects itself (suppressed by design), the gate is not ready.
+    let app = app_at(Some("09:00:30"));
+    for (w, h) in SIZES {
+        insta::assert_snapshot!(format!("pumpdown_{w}x{h}"), screen(&app, w, h));
+    }
+    let s = screen(&app, 120, 40);
+    assert!(s.contains("over-range"), "{s}");
+    assert!(s.contains("NOT READY"), "{s}");
+    assert!(s.contains("suppressed"), "{s}");
+}
+
+#[test]
+fn gate_ready_at_high_vacuum() {
+    let app = app_at(Some("09:10:00"));
+    let s = screen(&app, 120, 40);
+    assert!(s.contains("READY") && !s.contains("NOT READY"), "{s}");
+    insta::assert_snapshot!("gate_ready_120x40", s);
+}
+
+#[test]
+fn stale_gauge() {
+    let mut app = app_at(Some("09:10:00"));
+    // No readings for 30 s of data time: every gauge goes stale.
+    app.tick(time("09:10:30"));
+    let s = screen(&app, 80, 24);
+    assert!(s.contains("stale"), "{s}");
+    insta::assert_snapshot!("stale_80x24", s);
+}
+
+#[test]
+fn alarm_unacknowledged_acknowledged_and_shelved() {
+    let mut app = app_at(Some("09:31:30"));
+    // Select ion-high, the first rule.
+    app.selected = 0;
+    let s = screen(&app, 120, 40);
+    assert!(s.contains("ALARM"), "{s}");
+    insta::assert_snapshot!("alarm_unack_120x40", s);
+    let now = app.monitor.now().expect("time");
+    app.monitor
+        .acknowledge("ion-high", "ana", now)
+        .expect("ack");
+    let s = screen(&app, 120, 40);
+    assert!(s.contains("acked"), "{s}");
+    insta::assert_snapshot!("alarm_ack_120x40", s);
+    app.monitor
+        .shelve("fast-rise", 1800.0, "ana", now)
+        .expect("shelve");
+    let s = screen(&app, 80, 24);
+    assert!(s.contains("shelved"), "{s}");
+    insta::assert_snapshot!("alarm_shelved_80x24", s);
+}
+
+#[test]
+fn replay_paused_with_timeline() {
+    let cfg = config::load(&root().join("config/demo.toml")).expect("config");
+    let setup = ReplaySetup {
+        file: root().join("sample-logs/demo.csv"),
+        foreign: None,
+        monitor: cfg.monitor_setup(Vec::new()),
+    };
+    let mut replay = index(&setup).expect("index");
+    replay.paused = true;
+    let mut app = app_at(Some("09:31:30"));
+    app.replay = Some(replay);
+    for (w, h) in SIZES {
+        let s = screen(&app, w, h);
+        assert!(s.contains("REPLAY PAUSED"), "{s}");
+        insta::assert_snapshot!(format!("replay_paused_{w}x{h}"), s);
+    }
+}
+
+#[test]
+fn each_panel_alone() {
+    let app = app_at(Some("09:31:30"));
+    for (p, name, w, h) in [
+        (Panel::Title, "title", 80, 1),
+        (Panel::Readings, "readings", 40, 6),
+        (Panel::Kinetics, "kinetics_compact", 40, 7),
+        (Panel::Kinetics, "kinetics_full", 50, 11),
+        (Panel::Lengths, "lengths", 36, 5),
+        (Panel::Alarms, "alarms", 80, 10),
+        (Panel::Trend, "trend", 80, 12),
+        (Panel::Status, "status", 80, 1),
+        (Panel::Footer, "footer", 80, 1),
+    ] {
+        insta::assert_snapshot!(format!("panel_{name}"), panel(&app, p, w, h));
+    }
+}
+
+#[test]
+fn ascii_mode_uses_only_ascii() {
+    let mut app = app_at(Some("09:31:30"));
+    app.ascii = true;
+    for (w, h) in SIZES {
+        let s = screen(&app, w, h);
+        assert!(s.chars().all(|c| c.is_ascii()), "non-ASCII in:\n{s}");
+    }
+    insta::assert_snapshot!("ascii_80x24", screen(&app, 80, 24));
+}
+
+#[test]
+fn help_overlay_shows_the_caution() {
+    let mut app = app_at(Some("09:05:00"));
+    app.overlay = rarefy::ui::app::Overlay::Help;
+    let s = screen(&app, 80, 24);
+    assert!(s.contains("not a safety interlock"), "{s}");
+    insta::assert_snapshot!("help_80x24", s);
+}
+
+#[test]
+fn tiny_terminals_do_not_panic() {
+    let app = app_at(Some("09:31:30"));
+    for (w, h) in [(1, 1), (10, 3), (20, 6), (40, 10), (60, 16), (79, 23)] {
+        let _ = screen(&app, w, h);
+    }
+}
