@@ -189,7 +189,7 @@ fn ascii_mode_uses_only_ascii() {
     app.ascii = true;
     for (w, h) in SIZES {
         let s = screen(&app, w, h);
-        assert!(s.chars().all(|c| c.is_ascii()), "non-ASCII in:\n{s}");
+        assert!(s.is_ascii(), "non-ASCII in:\n{s}");
     }
     insta::assert_snapshot!("ascii_80x24", screen(&app, 80, 24));
 }
