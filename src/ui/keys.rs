@@ -83,15 +83,17 @@ fn jump_to_mark(app: &App, forward: bool) -> Effect {
         return Effect::None;
     };
     let here = now(app);
+    // Alarm events: an alarm going off (the marks on the timeline).
+    let mut times = r
+        .marks
+        .iter()
+        .filter(|m| m.2 == "unacknowledged")
+        .map(|m| m.0);
     let target = if forward {
-        r.marks.iter().map(|m| m.0).find(|t| *t > here)
+        times.find(|t| *t > here)
     } else {
         // Strictly before the current position, skipping the event at it.
-        r.marks
-            .iter()
-            .map(|m| m.0)
-            .rev()
-            .find(|t| *t < here - chrono::Duration::milliseconds(500))
+        times.rfind(|t| *t < here - chrono::Duration::milliseconds(500))
     };
     match target {
         Some(t) => Effect::Seek(t),
