@@ -280,22 +280,16 @@ pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             .constraints(parts)
             .split(body);
         if p.kinetics {
-            let h = Layout::default()
-                .direction(Direction::Horizontal)
-                .constraints([Constraint::Percentage(50), Constraint::Percentage(50)])
-                .split(v2[0]);
-            readings(app, look, h[0], buf);
-            kinetics(app, look, h[1], buf);
+            let (l, r) = split(v2[0], 50);
+            readings(app, look, l, buf);
+            kinetics(app, look, r, buf);
         } else {
             readings(app, look, v2[0], buf);
         }
         if p.lengths {
-            let h = Layout::default()
-                .direction(Direction::Horizontal)
-                .constraints([Constraint::Percentage(45), Constraint::Percentage(55)])
-                .split(v2[1]);
-            lengths(app, look, h[0], buf);
-            alarms(app, look, h[1], buf);
+            let (l, r) = split(v2[1], 45);
+            lengths(app, look, l, buf);
+            alarms(app, look, r, buf);
         } else {
             alarms(app, look, v2[1], buf);
         }
@@ -304,6 +298,18 @@ pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         }
     }
     overlay(app, look, area, buf);
+}
+
+/// Splits an area side by side, `left_pct` percent on the left.
+fn split(area: Rect, left_pct: u16) -> (Rect, Rect) {
+    let h = Layout::default()
+        .direction(Direction::Horizontal)
+        .constraints([
+            Constraint::Percentage(left_pct),
+            Constraint::Percentage(100 - left_pct),
+        ])
+        .split(area);
+    (h[0], h[1])
 }
 
 fn alarm_rows(app: &App) -> u16 {
