@@ -61,10 +61,11 @@ pub struct ReplayArgs {
 }
 
 fn speed(s: &str) -> Result<Speed, String> {
-    let t = s.trim().trim_end_matches('x');
-    if t == "max" {
+    // "max" before trimming a trailing x ("60x"), which would eat its x.
+    if s.trim() == "max" {
         return Ok(Speed::Max);
     }
+    let t = s.trim().trim_end_matches('x');
     match t.parse::<f64>() {
         Ok(v) if (0.1..=1000.0).contains(&v) => Ok(Speed::Times(v)),
         _ => Err(format!(
@@ -188,7 +189,8 @@ pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
             config.mixture = m;
         }
         if let Some(c) = &meta.chamber {
-            config.chamber.name = c.clone();
+            // Text from a file is escaped before it is drawn.
+            config.chamber.name = crate::sample::escape_bytes(c.as_bytes());
         }
     }
     let setup = ReplaySetup {
@@ -220,4 +222,19 @@ pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
     let result = rt.block_on(run::replay(app, setup, from));
     rt.shutdown_background();
     result.map_err(CliError::Runtime).map(|()| 0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn speeds_parse() {
+        assert_eq!(speed("max"), Ok(Speed::Max));
+        assert_eq!(speed(" max "), Ok(Speed::Max));
+        assert_eq!(speed("60"), Ok(Speed::Times(60.0)));
+        assert_eq!(speed("60x"), Ok(Speed::Times(60.0)));
+        assert!(speed("maxx").is_err());
+        assert!(speed("2000").is_err());
+    }
 }

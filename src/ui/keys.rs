@@ -47,7 +47,10 @@ pub const HELP: [(&str, &str); 23] = [
 ];
 
 fn now(app: &App) -> DateTime<Utc> {
-    app.monitor.now().unwrap_or(DateTime::<Utc>::UNIX_EPOCH)
+    app.monitor
+        .now()
+        .or(app.replay.as_ref().map(|r| r.start))
+        .unwrap_or(DateTime::<Utc>::UNIX_EPOCH)
 }
 
 /// Number of selectable rows (alarms, then gates).

@@ -84,6 +84,9 @@ pub async fn live(
 ) -> Result<(), String> {
     let mut sigterm = signal(SignalKind::terminate()).map_err(|e| e.to_string())?;
     let mut sighup = signal(SignalKind::hangup()).map_err(|e| e.to_string())?;
+    // Raw mode turns Ctrl-C into a key, but a SIGINT sent from elsewhere
+    // must also leave through the guard rather than kill the process.
+    let mut sigint = signal(SignalKind::interrupt()).map_err(|e| e.to_string())?;
     let mut guard = Guard::enter().map_err(|e| format!("cannot set up the terminal: {e}"))?;
     let mut keys_rx = input();
     let mut tick = tokio::time::interval(FRAME);
@@ -97,6 +100,7 @@ pub async fn live(
             biased;
             _ = sigterm.recv() => break,
             _ = sighup.recv() => break,
+            _ = sigint.recv() => break,
             Some(ev) = keys_rx.recv() => {
                 match ev {
                     TermEvent::Key(k) if k.kind == KeyEventKind::Press => {
@@ -335,6 +339,9 @@ pub async fn replay(
     }
     let mut sigterm = signal(SignalKind::terminate()).map_err(|e| e.to_string())?;
     let mut sighup = signal(SignalKind::hangup()).map_err(|e| e.to_string())?;
+    // Raw mode turns Ctrl-C into a key, but a SIGINT sent from elsewhere
+    // must also leave through the guard rather than kill the process.
+    let mut sigint = signal(SignalKind::interrupt()).map_err(|e| e.to_string())?;
     let mut guard = Guard::enter().map_err(|e| format!("cannot set up the terminal: {e}"))?;
     let mut keys_rx = input();
     let mut tick = tokio::time::interval(FRAME);
@@ -347,6 +354,7 @@ pub async fn replay(
             biased;
             _ = sigterm.recv() => break,
             _ = sighup.recv() => break,
+            _ = sigint.recv() => break,
             Some(ev) = keys_rx.recv() => {
                 match ev {
                     TermEvent::Key(k) if k.kind == KeyEventKind::Press => {

@@ -328,31 +328,15 @@ fn title_bar(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let time = now.map_or("--".to_string(), |t| {
         t.format("%Y-%m-%d %H:%M:%S UTC").to_string()
     });
-    // The chamber name gives way first when the line is short.
-    let fixed = mode.chars().count() + frozen.len() + time.chars().count() + 16;
-    let room = (area.width as usize).saturating_sub(fixed);
-    let name: String = if app.title.chars().count() > room {
-        app.title
-            .chars()
-            .take(room.saturating_sub(1))
-            .chain(['…'])
-            .collect()
-    } else {
-        app.title.clone()
-    };
-    let name = if look.ascii {
-        name.replace('…', "~")
-    } else {
-        name
-    };
-    let line = Line::from(vec![
-        Span::styled(format!(" rarefy · {name} "), look.title),
-        Span::styled(
-            format!(" {mode}{frozen} "),
-            Style::default().add_modifier(Modifier::REVERSED),
-        ),
-        Span::raw(format!("  {time}")),
-    ]);
+    let mode = Span::styled(
+        format!(" {mode}{frozen} "),
+        Style::default().add_modifier(Modifier::REVERSED),
+    );
+    let time = Span::raw(format!("  {time}"));
+    // A long chamber name gives way, so the mode and the time stay in view.
+    let room = usize::from(area.width).saturating_sub(mode.width() + time.width());
+    let name = fit(&format!(" rarefy · {} ", app.title), room, look);
+    let line = Line::from(vec![Span::styled(name, look.title), mode, time]);
     let line = if look.ascii {
         Line::from(
             line.spans
@@ -364,6 +348,25 @@ fn title_bar(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         line
     };
     Paragraph::new(line).render_into(area, buf);
+}
+
+/// `text` cut to `room` columns, marked as cut.
+fn fit(text: &str, room: usize, look: &Look) -> String {
+    if Span::raw(text).width() <= room {
+        return text.to_string();
+    }
+    let mark = look.sym("…", "~");
+    let mut out = String::new();
+    for c in text.chars() {
+        if Span::raw(format!("{out}{c}{mark} ")).width() > room {
+            break;
+        }
+        out.push(c);
+    }
+    if out.is_empty() {
+        return String::new();
+    }
+    format!("{out}{mark} ")
 }
 
 /// A small helper to render a widget into a buffer area.

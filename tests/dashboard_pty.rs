@@ -1,0 +1,578 @@
+//! The dashboard binary in a pseudo-terminal: what an operator sees (parsed
+//! by a terminal emulator), what the keys do, resizing, signals, and the
+//! terminal left as it was found on every way out.
+//!
+//! Assertions are on content (words, units, alarm ids and states), not on
+//! layout, and every wait is a poll with a generous deadline; no timing is
+//! asserted.
+
+use std::io::{Read, Write};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Mutex};
+use std::time::{Duration, Instant};
+
+use portable_pty::{Child, CommandBuilder, MasterPty, PtySize, native_pty_system};
+use regex::Regex;
+
+const WAIT: Duration = Duration::from_secs(20);
+const POLL: Duration = Duration::from_millis(50);
+
+/// Records what the program asks of the terminal beyond the screen itself.
+#[derive(Default)]
+struct Asked {
+    titles: Vec<String>,
+    bells: usize,
+}
+
+impl vt100::Callbacks for Asked {
+    fn audible_bell(&mut self, _: &mut vt100::Screen) {
+        self.bells += 1;
+    }
+    fn set_window_title(&mut self, _: &mut vt100::Screen, title: &[u8]) {
+        self.titles
+            .push(String::from_utf8_lossy(title).into_owned());
+    }
+    fn set_window_icon_name(&mut self, _: &mut vt100::Screen, name: &[u8]) {
+        self.titles.push(String::from_utf8_lossy(name).into_owned());
+    }
+}
+
+type Parser = vt100::Parser<Asked>;
+
+/// The binary running in a pty, its output parsed continuously.
+struct Dash {
+    parser: Arc<Mutex<Parser>>,
+    raw: Arc<Mutex<Vec<u8>>>,
+    reader_done: Arc<AtomicBool>,
+    writer: Box<dyn Write + Send>,
+    master: Box<dyn MasterPty + Send>,
+    child: Box<dyn Child + Send + Sync>,
+    exited: bool,
+}
+
+fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+    m.lock().unwrap_or_else(std::sync::PoisonError::into_inner)
+}
+
+fn nz(n: u16) -> std::num::NonZeroU16 {
+    std::num::NonZeroU16::new(n).expect("non-zero size")
+}
+
+impl Dash {
+    fn spawn(args: &[&str], rows: u16, cols: u16) -> Dash {
+        let pty = native_pty_system();
+        let pair = pty
+            .openpty(PtySize {
+                rows,
+                cols,
+                pixel_width: 0,
+                pixel_height: 0,
+            })
+            .expect("openpty");
+        let mut cmd = CommandBuilder::new(env!("CARGO_BIN_EXE_rarefy"));
+        cmd.args(args);
+        cmd.cwd(env!("CARGO_MANIFEST_DIR"));
+        cmd.env("LANG", "C.UTF-8");
+        cmd.env("TERM", "xterm-256color");
+        cmd.env_remove("LC_ALL");
+        cmd.env_remove("LC_CTYPE");
+        cmd.env_remove("NO_COLOR");
+        let child = pair.slave.spawn_command(cmd).expect("spawn rarefy");
+        // Only the child holds the slave now, so reads end when it exits.
+        drop(pair.slave);
+        let parser = Arc::new(Mutex::new(vt100::Parser::new_with_callbacks(
+            nz(rows),
+            nz(cols),
+            0,
+            Asked::default(),
+        )));
+        let raw = Arc::new(Mutex::new(Vec::new()));
+        let reader_done = Arc::new(AtomicBool::new(false));
+        let mut reader = pair.master.try_clone_reader().expect("pty reader");
+        {
+            let (parser, raw, done) = (parser.clone(), raw.clone(), reader_done.clone());
+            std::thread::spawn(move || {
+                let mut buf = [0u8; 8192];
+                loop {
+                    match reader.read(&mut buf) {
+                        Ok(0) | Err(_) => break,
+                        Ok(n) => {
+                            lock(&raw).extend_from_slice(&buf[..n]);
+                            lock(&parser).process(&buf[..n]);
+                        }
+                    }
+                }
+                done.store(true, Ordering::SeqCst);
+            });
+        }
+        let writer = pair.master.take_writer().expect("pty writer");
+        Dash {
+            parser,
+            raw,
+            reader_done,
+            writer,
+            master: pair.master,
+            child,
+            exited: false,
+        }
+    }
+
+    fn screen(&self) -> String {
+        lock(&self.parser).screen().contents()
+    }
+
+    fn raw_text(&self) -> String {
+        String::from_utf8_lossy(&lock(&self.raw)).into_owned()
+    }
+
+    /// Polls the parsed screen until `done` holds; panics after [`WAIT`]
+    /// (or if the program exits first) with the screen as it was.
+    fn wait_for(&mut self, what: &str, done: impl Fn(&str) -> bool) -> String {
+        let deadline = Instant::now() + WAIT;
+        loop {
+            let text = self.screen();
+            if done(&text) {
+                return text;
+            }
+            if let Ok(Some(status)) = self.child.try_wait() {
+                self.exited = true;
+                // Let the last output arrive before showing it.
+                self.drain();
+                panic!(
+                    "rarefy exited ({status:?}) while waiting for {what}; screen:\n{}\nraw tail:\n{}",
+                    self.screen(),
+                    tail(&self.raw_text())
+                );
+            }
+            if Instant::now() > deadline {
+                panic!("timed out waiting for {what}; screen:\n{text}");
+            }
+            std::thread::sleep(POLL);
+        }
+    }
+
+    fn wait_text(&mut self, needle: &str) -> String {
+        self.wait_for(&format!("{needle:?}"), |s| s.contains(needle))
+    }
+
+    fn send(&mut self, bytes: &[u8]) {
+        self.writer.write_all(bytes).expect("write to pty");
+        self.writer.flush().expect("flush pty");
+    }
+
+    fn resize(&mut self, rows: u16, cols: u16) {
+        // The emulator first, so the redraw after SIGWINCH lands on a screen
+        // of the new size.
+        lock(&self.parser).screen_mut().set_size(nz(rows), nz(cols));
+        self.master
+            .resize(PtySize {
+                rows,
+                cols,
+                pixel_width: 0,
+                pixel_height: 0,
+            })
+            .expect("resize pty");
+    }
+
+    fn pid(&self) -> i32 {
+        self.child.process_id().expect("child pid") as i32
+    }
+
+    /// Waits for the output to end (the child gone and the pty closed).
+    fn drain(&self) {
+        let deadline = Instant::now() + WAIT;
+        while !self.reader_done.load(Ordering::SeqCst) && Instant::now() < deadline {
+            std::thread::sleep(POLL);
+        }
+    }
+
+    /// Waits for the program to exit, then for the rest of its output.
+    fn wait_exit(&mut self) -> portable_pty::ExitStatus {
+        let deadline = Instant::now() + WAIT;
+        loop {
+            match self.child.try_wait().expect("try_wait") {
+                Some(status) => {
+                    self.exited = true;
+                    self.drain();
+                    return status;
+                }
+                None if Instant::now() > deadline => {
+                    panic!("rarefy did not exit; screen:\n{}", self.screen())
+                }
+                None => std::thread::sleep(POLL),
+            }
+        }
+    }
+
+    /// Asserts a clean exit (code 0, no signal) and a restored terminal.
+    fn assert_clean_exit(&mut self) {
+        let status = self.wait_exit();
+        let raw = self.raw_text();
+        assert!(
+            status.success() && status.signal().is_none(),
+            "exit status {status:?}; output tail:\n{}",
+            tail(&raw)
+        );
+        assert!(!raw.contains("panicked"), "a panic:\n{}", tail(&raw));
+        let p = lock(&self.parser);
+        assert!(
+            !p.screen().alternate_screen(),
+            "still on the alternate screen"
+        );
+        assert!(!p.screen().hide_cursor(), "cursor left hidden");
+    }
+}
+
+impl Drop for Dash {
+    fn drop(&mut self) {
+        if !self.exited {
+            let _ = self.child.kill();
+            let _ = self.child.wait();
+        }
+    }
+}
+
+fn tail(s: &str) -> String {
+    let chars: Vec<char> = s.chars().collect();
+    let from = chars.len().saturating_sub(2000);
+    chars[from..]
+        .iter()
+        .collect::<String>()
+        .replace('\x1b', "\\e")
+}
+
+/// Pressure readings of the demo's gauges as shown: (gauge, value, unit).
+fn readings(screen: &str) -> Vec<(String, String, String)> {
+    let re = Regex::new(r"\b(cdg|chamber|ion)\s+(-?\d\.\d\de[-+]?\d+) (mbar|Pa|Torr|mTorr|hPa)\b")
+        .expect("regex");
+    re.captures_iter(screen)
+        .map(|c| (c[1].to_string(), c[2].to_string(), c[3].to_string()))
+        .collect()
+}
+
+/// The chamber gauge's reading as shown (value and unit), if on screen.
+fn chamber_reading(screen: &str) -> Option<(String, String)> {
+    readings(screen)
+        .into_iter()
+        .find(|r| r.0 == "chamber")
+        .map(|r| (r.1, r.2))
+}
+
+/// The line of the screen mentioning `id`, if any.
+fn line_of<'a>(screen: &'a str, id: &str) -> Option<&'a str> {
+    screen.lines().find(|l| l.contains(id))
+}
+
+fn alarm_is(screen: &str, id: &str, states: &[&str]) -> bool {
+    line_of(screen, id).is_some_and(|l| {
+        l.split_whitespace()
+            .any(|w| states.iter().any(|s| w.trim_matches('│') == *s))
+    })
+}
+
+fn tempdir(tag: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("rarefy-pty-{tag}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).expect("temp dir");
+    d
+}
+
+#[test]
+fn watch_demo_live_keys_and_clean_quit() {
+    let mut d = Dash::spawn(&["watch", "--demo"], 24, 80);
+    d.wait_text("LIVE");
+
+    // Numbers change: the chamber reading at two moments differs.
+    let first = chamber_reading(&d.wait_for("a chamber reading", |s| chamber_reading(s).is_some()))
+        .expect("reading");
+    assert_eq!(first.1, "mbar", "demo config shows mbar");
+    d.wait_for("the chamber reading to change", |s| {
+        chamber_reading(s).is_some_and(|r| r.0 != first.0)
+    });
+
+    // Help with the caution, closed by any key.
+    d.send(b"?");
+    let help = d.wait_text("CAUTION");
+    assert!(help.contains("not a safety interlock"), "{help}");
+    d.send(b"x");
+    d.wait_for("help to close", |s| !s.contains("CAUTION"));
+
+    // The unit key: mbar -> Pa.
+    d.send(b"u");
+    d.wait_for("the reading in Pa", |s| {
+        chamber_reading(s).is_some_and(|r| r.1 == "Pa")
+    });
+    let s = d.screen();
+    assert!(
+        readings(&s).iter().all(|r| r.2 == "Pa"),
+        "a reading not in Pa:\n{s}"
+    );
+
+    // An alarm raised by the demo, then acknowledged with A.
+    d.wait_for("line-regime to alarm", |s| {
+        alarm_is(s, "line-regime", &["ALARM", "rtn-unack"])
+    });
+    // A new alarm rings the bell (written just after its frame).
+    let deadline = Instant::now() + WAIT;
+    while lock(&d.parser).callbacks().bells == 0 {
+        assert!(Instant::now() < deadline, "no bell for a new alarm");
+        std::thread::sleep(POLL);
+    }
+    d.send(b"A");
+    d.wait_for("line-regime acknowledged", |s| {
+        alarm_is(s, "line-regime", &["acked", "normal"])
+    });
+
+    d.send(b"q");
+    d.assert_clean_exit();
+}
+
+#[test]
+fn resize_redraws_without_crashing() {
+    let mut d = Dash::spawn(&["watch", "--demo"], 24, 80);
+    d.wait_text("LIVE");
+    for (rows, cols) in [(40, 120), (12, 50), (5, 18), (30, 100), (24, 80)] {
+        d.resize(rows, cols);
+        if rows < 6 || cols < 20 {
+            d.wait_text("rarefy: terminal");
+        } else {
+            d.wait_for(&format!("LIVE at {cols}x{rows}"), |s| {
+                s.contains("LIVE") && !s.contains("too small")
+            });
+        }
+    }
+    d.wait_for("a reading after resizing", |s| chamber_reading(s).is_some());
+    d.send(b"q");
+    d.assert_clean_exit();
+}
+
+#[test]
+fn replay_goto_time_shows_the_trip_alarm() {
+    let mut d = Dash::spawn(
+        &[
+            "replay",
+            "sample-logs/demo.csv",
+            "--config",
+            "config/demo.toml",
+            "--speed",
+            "1",
+        ],
+        24,
+        80,
+    );
+    d.wait_text("REPLAY");
+    d.wait_text("2026-11-09 09:00");
+    d.send(b"t");
+    d.wait_text("go to time");
+    d.send(b"09:31:15\r");
+    let s = d.wait_for("ion-high in ALARM", |s| alarm_is(s, "ion-high", &["ALARM"]));
+    assert!(s.contains("2026-11-09 09:31:1"), "title time:\n{s}");
+
+    // Back to the start, then the alarm events one by one: the trip is
+    // among them and shows as ALARM on the way.
+    d.send(b"g");
+    d.wait_for("back at the start", |s| {
+        !alarm_is(s, "ion-high", &["ALARM"])
+    });
+    d.send(b" ");
+    d.wait_text("PAUSED");
+    let mut seen = false;
+    for _ in 0..40 {
+        let before = d.screen();
+        d.send(b"n");
+        // Wait until the screen changes (the jump drawn) or the events end.
+        let deadline = Instant::now() + Duration::from_secs(2);
+        while d.screen() == before && Instant::now() < deadline {
+            std::thread::sleep(POLL);
+        }
+        if alarm_is(&d.screen(), "ion-high", &["ALARM"]) {
+            seen = true;
+            break;
+        }
+    }
+    assert!(seen, "n never reached ion-high in ALARM:\n{}", d.screen());
+    d.send(b"q");
+    d.assert_clean_exit();
+}
+
+#[test]
+fn sigterm_exits_zero_and_restores_the_terminal() {
+    let mut d = Dash::spawn(&["watch", "--demo"], 24, 80);
+    d.wait_text("LIVE");
+    d.wait_for("a reading", |s| chamber_reading(s).is_some());
+    nix::sys::signal::kill(
+        nix::unistd::Pid::from_raw(d.pid()),
+        nix::sys::signal::Signal::SIGTERM,
+    )
+    .expect("kill");
+    d.assert_clean_exit();
+}
+
+#[test]
+fn sigint_exits_zero_and_restores_the_terminal() {
+    // Ctrl-C in raw mode is a key; a SIGINT from elsewhere (kill -INT, a
+    // supervisor) must leave the same way.
+    let mut d = Dash::spawn(&["watch", "--demo"], 24, 80);
+    d.wait_text("LIVE");
+    nix::sys::signal::kill(
+        nix::unistd::Pid::from_raw(d.pid()),
+        nix::sys::signal::Signal::SIGINT,
+    )
+    .expect("kill");
+    d.assert_clean_exit();
+}
+
+/// The settled screen at the end of the log after `G`.
+fn replay_end_screen() -> String {
+    let mut d = Dash::spawn(
+        &[
+            "replay",
+            "sample-logs/demo.csv",
+            "--config",
+            "config/demo.toml",
+            "--speed",
+            "max",
+        ],
+        24,
+        80,
+    );
+    d.wait_text("REPLAY");
+    d.send(b"G");
+    d.wait_text("end of log");
+    // Settle: the same screen on two polls a little apart.
+    let mut last = d.screen();
+    let deadline = Instant::now() + WAIT;
+    loop {
+        std::thread::sleep(Duration::from_millis(400));
+        let now = d.screen();
+        if now == last || Instant::now() > deadline {
+            last = now;
+            break;
+        }
+        last = now;
+    }
+    d.send(b"q");
+    d.assert_clean_exit();
+    last
+}
+
+#[test]
+fn replay_is_deterministic() {
+    let a = replay_end_screen();
+    let b = replay_end_screen();
+    assert!(a.contains("ion-high"), "{a}");
+    assert_eq!(a, b, "two replays of the same log differ");
+}
+
+#[test]
+fn device_escape_sequences_are_shown_escaped() {
+    let dir = tempdir("esc");
+    let f = dir.join("f.log");
+    std::fs::write(&f, b"1e-6\n\x1b[2J\x1b]0;pwned\x07junk\n2e-6\n").expect("write");
+    let uri = format!("file://{}?follow=true", f.display());
+    let mut d = Dash::spawn(&["watch", "--source", &uri], 40, 120);
+    d.wait_text("LIVE");
+    let s = d.wait_text("last unparsed:");
+    assert!(s.contains(r"\x1b[2J\x1b]0;pwned\x07junk"), "{s}");
+    // The reading after the bad line arrived, and nothing was cleared.
+    d.wait_text("2.00e-6 mbar");
+    assert!(d.screen().contains("LIVE"));
+    {
+        let p = lock(&d.parser);
+        assert!(
+            !p.callbacks().titles.iter().any(|t| t.contains("pwned")),
+            "window title set by device text: {:?}",
+            p.callbacks().titles
+        );
+    }
+    assert!(
+        !d.raw_text().contains("\x1b]0;pwned"),
+        "the device's sequence reached the terminal"
+    );
+    d.send(b"q");
+    d.assert_clean_exit();
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+fn write_rough_log(path: &Path) {
+    // The chamber name comes from the file too, with a sequence in it.
+    let mut s = String::from(
+        "# rarefy log v1\n# chamber: rough \x1b]0;pwned\x07\x1b[2J test\ntime,p [mbar],q [mbar]\n",
+    );
+    let row = |s: &mut String, t: &str, p: &str, q: &str| {
+        s.push_str(&format!("{t},{p},{q}\n"));
+    };
+    for i in 0..30 {
+        let p = if i % 7 == 3 {
+            "over-range".to_string()
+        } else {
+            format!("{}e-5", 1 + i % 9)
+        };
+        let q = if i % 5 == 0 {
+            String::new()
+        } else {
+            "2e-3".into()
+        };
+        row(&mut s, &format!("2026-05-01T10:00:{i:02}.000Z"), &p, &q);
+    }
+    // Ten minutes without a row.
+    row(
+        &mut s,
+        "2026-05-01T10:10:30.000Z",
+        "over-range",
+        "under-range",
+    );
+    row(&mut s, "2026-05-01T10:10:31.000Z", "3e-5", "sensor-off");
+    // The clock jumps back.
+    row(&mut s, "2026-05-01T10:05:00.000Z", "4e-5", "2e-3");
+    row(&mut s, "2026-05-01T10:10:33.500Z", "5e-5", "stale");
+    row(
+        &mut s,
+        "2026-05-01T10:10:34.000Z",
+        "over-range",
+        "over-range",
+    );
+    std::fs::write(path, s).expect("write log");
+}
+
+#[test]
+fn a_rough_log_replays_without_panic() {
+    let dir = tempdir("rough");
+    let log = dir.join("rough.csv");
+    write_rough_log(&log);
+    let path = log.display().to_string();
+    let mut d = Dash::spawn(&["replay", &path, "--speed", "max"], 24, 80);
+    d.wait_text("end of log");
+    // Move about the log with the keys: start, end, back, forward, alarms.
+    for k in [
+        &b"g"[..],
+        b"G",
+        b"{",
+        b"[",
+        b"\x1b[D",
+        b"]",
+        b"n",
+        b"p",
+        b"<",
+        b">",
+    ] {
+        d.send(k);
+        std::thread::sleep(Duration::from_millis(100));
+    }
+    d.send(b"G");
+    d.wait_text("end of log");
+    d.wait_text("rough");
+    d.send(b"q");
+    d.assert_clean_exit();
+    assert!(
+        !lock(&d.parser)
+            .callbacks()
+            .titles
+            .iter()
+            .any(|t| t.contains("pwned")),
+        "window title set by the log's chamber name"
+    );
+    assert!(!d.raw_text().contains("\x1b]0;pwned"));
+    let _ = std::fs::remove_dir_all(&dir);
+}
