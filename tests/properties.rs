@@ -137,3 +137,67 @@ proptest! {
         let _ = Mixture::parse(&s, &GasTable::builtin());
     }
 }
+
+mod decoders {
+    use proptest::prelude::*;
+    use rarefy::parse::logline::AutoDecoder;
+    use rarefy::parse::plain::PlainDecoder;
+    use rarefy::parse::template::{Template, TemplateDecoder, TemplateSpec};
+    use rarefy::parse::{Decoder, Framed, LineSplitter, decode_framed};
+    use rarefy::sample::{ChannelUnit, SourceEvent};
+    use rarefy::units::PressureUnit;
+
+    const MBAR: ChannelUnit = ChannelUnit::Pressure(PressureUnit::Mbar);
+
+    fn decoders() -> Vec<Box<dyn Decoder>> {
+        let spec = TemplateSpec {
+            pattern: r"^(?P<a_status>\d),(?P<a>[^,]*),(?P<time>[^,]*)$".into(),
+            unit: Some(MBAR),
+            time_format: Some(rarefy::parse::template::TimeFormat::Rfc3339),
+            ..TemplateSpec::default()
+        };
+        vec![
+            Box::new(PlainDecoder::new("p", MBAR)),
+            Box::new(AutoDecoder::new(PlainDecoder::new("p", MBAR))),
+            Box::new(TemplateDecoder::new(vec![
+                Template::new(&spec).expect("template"),
+            ])),
+        ]
+    }
+
+    proptest! {
+        /// Whatever bytes arrive, in whatever pieces: no panic, every line
+        /// accounted for (samples or an unparsed event), and no control
+        /// character in any text that could reach a terminal.
+        #[test]
+        fn any_bytes_in_any_pieces(bytes in proptest::collection::vec(any::<u8>(), 0..600), cut in 1usize..64) {
+            for mut d in decoders() {
+                let mut s = LineSplitter::new();
+                let mut framed: Vec<Framed> = Vec::new();
+                for chunk in bytes.chunks(cut) {
+                    framed.extend(s.push(chunk));
+                }
+                framed.extend(s.finish());
+                for f in framed {
+                    for e in decode_framed(d.as_mut(), f, chrono::DateTime::<chrono::Utc>::UNIX_EPOCH, "p") {
+                        if let SourceEvent::Unparsed { text, .. } = e {
+                            prop_assert!(!text.chars().any(|c| c.is_control()), "{text:?}");
+                        }
+                    }
+                }
+            }
+        }
+
+        /// Splitting never depends on where the reads end.
+        #[test]
+        fn framing_is_independent_of_read_sizes(bytes in proptest::collection::vec(any::<u8>(), 0..400), a in 1usize..50, b in 1usize..50) {
+            let run = |n: usize| {
+                let mut s = LineSplitter::new();
+                let mut out: Vec<Framed> = bytes.chunks(n).flat_map(|c| s.push(c)).collect();
+                out.extend(s.finish());
+                out
+            };
+            prop_assert_eq!(run(a), run(b));
+        }
+    }
+}

@@ -86,7 +86,11 @@ impl Decoder for AutoDecoder {
                 }
                 Err(e) => {
                     self.v1 = None;
-                    Self::unparsed(source, received, format!("bad log header: {e}"))
+                    Self::unparsed(
+                        source,
+                        received,
+                        escape_bytes(format!("bad log header: {e}").as_bytes()),
+                    )
                 }
             };
         }
@@ -103,7 +107,7 @@ impl Decoder for AutoDecoder {
                 if let Some(row) = e.row.clone() {
                     out.push(SourceEvent::Samples(row.samples));
                 }
-                let msg = e.message.clone();
+                let msg = escape_bytes(e.message.as_bytes());
                 out.extend(Self::unparsed(
                     source,
                     received,
@@ -112,7 +116,15 @@ impl Decoder for AutoDecoder {
                 out
             }
             Ok(None) => Vec::new(),
-            Err(e) => Self::unparsed(source, received, format!("{}  ({e})", escape_bytes(line))),
+            Err(e) => Self::unparsed(
+                source,
+                received,
+                format!(
+                    "{}  ({})",
+                    escape_bytes(line),
+                    escape_bytes(e.to_string().as_bytes())
+                ),
+            ),
         }
     }
 

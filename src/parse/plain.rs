@@ -134,7 +134,8 @@ impl Decoder for PlainDecoder {
             Err(why) => vec![SourceEvent::Unparsed {
                 source: source.to_string(),
                 time: received,
-                text: format!("{}  ({why})", escape_bytes(line)),
+                // The reason quotes the line's text: escape it too.
+                text: format!("{}  ({})", escape_bytes(line), escape_bytes(why.as_bytes())),
             }],
         }
     }

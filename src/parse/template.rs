@@ -242,7 +242,7 @@ impl Decoder for TemplateDecoder {
                     return vec![SourceEvent::Unparsed {
                         source: source.to_string(),
                         time: received,
-                        text: format!("{}  ({e})", escape_bytes(line)),
+                        text: format!("{}  ({})", escape_bytes(line), escape_bytes(e.as_bytes())),
                     }];
                 }
             }
