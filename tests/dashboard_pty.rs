@@ -576,3 +576,61 @@ fn a_rough_log_replays_without_panic() {
     assert!(!d.raw_text().contains("\x1b]0;pwned"));
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// A log recorded with `--config` and `--alarm` names them in its header, so
+/// a replay without `--config` rebuilds the same alarms.
+#[test]
+fn replay_without_config_uses_the_one_named_in_the_log() {
+    let dir = tempdir("named-config");
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_rarefy"))
+        .args([
+            "record",
+            "--config",
+            "config/demo.toml",
+            "--alarm",
+            "cdg pressure below 1 mbar named rough-done",
+            "--source",
+        ])
+        .arg(format!(
+            "file://{}/sample-logs/demo.csv",
+            env!("CARGO_MANIFEST_DIR")
+        ))
+        .arg("--out")
+        .arg(&dir)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .expect("record");
+    assert_eq!(
+        out.status.code(),
+        Some(3),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let log = std::fs::read_dir(&dir)
+        .expect("dir")
+        .map(|e| e.expect("entry").path())
+        .find(|p| p.extension().is_some_and(|e| e == "csv"))
+        .expect("log");
+    let text = std::fs::read_to_string(&log).expect("read");
+    assert!(
+        text.contains("# alarm.1: cdg pressure below 1 mbar named rough-done"),
+        "{}",
+        &text[..400]
+    );
+    assert!(
+        text.lines()
+            .any(|l| l.starts_with("# config: /") && l.ends_with("config/demo.toml"))
+    );
+    let mut d = Dash::spawn(
+        &["replay", log.to_str().expect("utf-8"), "--speed", "max"],
+        40,
+        120,
+    );
+    d.wait_text("config named in the log");
+    d.wait_text("end of log");
+    let s = d.screen();
+    assert!(line_of(&s, "ion-high").is_some(), "{s}");
+    assert!(line_of(&s, "rough-done").is_some(), "{s}");
+    d.send(b"q");
+    d.assert_clean_exit();
+}

@@ -188,3 +188,17 @@ pub fn event_json(e: &Event) -> Value {
     }
     v
 }
+
+/// Metadata lines that let a replay of the log rebuild the same alarms: the
+/// config file (absolute path) and each one-off `--alarm`.
+pub fn alarm_meta(config: Option<&std::path::Path>, alarms: &[String]) -> Vec<(String, String)> {
+    let mut out = Vec::new();
+    if let Some(p) = config {
+        let abs = std::fs::canonicalize(p).unwrap_or_else(|_| p.to_path_buf());
+        out.push(("config".to_string(), abs.display().to_string()));
+    }
+    for (i, a) in alarms.iter().enumerate() {
+        out.push((format!("alarm.{}", i + 1), a.clone()));
+    }
+    out
+}

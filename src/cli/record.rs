@@ -170,6 +170,7 @@ async fn record(
         surface_area_m2: config.chamber.surface_area_m2,
         gas: Some(config.mixture.label()),
         source: Some(names.join(" ")),
+        extra: ingest::alarm_meta(args.config.as_deref(), &args.alarm),
         ..LogMeta::default()
     };
     // Recording the simulated chamber: its own name and size, unless the

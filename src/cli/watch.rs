@@ -144,6 +144,7 @@ pub fn watch(args: &WatchArgs) -> Result<u8, CliError> {
                 chamber: Some(app.title.clone()),
                 gas: Some(config.mixture.label()),
                 source: Some(started.names.join(" ")),
+                extra: ingest::alarm_meta(args.config.as_deref(), &args.alarm),
                 ..Default::default()
             };
             let r = Recorder::new(settings, meta, &started.channels);
@@ -177,12 +178,44 @@ fn from_time(text: &str, start: DateTime<Utc>) -> Result<DateTime<Utc>, CliError
 /// Runs `rarefy replay`.
 pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
     let mut config = load_config(args.config.as_ref())?;
-    // Without a config, take the gas and chamber from the log itself.
     let meta = open_log(&args.log, config.log.as_ref())
         .map_err(|e| CliError::Runtime(e.to_string()))?
         .meta()
         .clone();
-    if args.config.is_none() {
+    let recorded = |key: &str| {
+        meta.extra
+            .iter()
+            .find(|(k, _)| k == key)
+            .map(|(_, v)| v.clone())
+    };
+    // Without --config: the config the log was recorded with, when it is
+    // still there, so the replay gives the same alarms and gates.
+    let mut note = None;
+    let mut config_path = args.config.clone();
+    if args.config.is_none()
+        && let Some(p) = recorded("config").map(PathBuf::from)
+    {
+        match config::load(&p) {
+            Ok(c) => {
+                note = Some(format!("config named in the log: {}", p.display()));
+                config = c;
+                config_path = Some(p);
+            }
+            Err(_) => {
+                note = Some(format!(
+                    "the log names {}, which cannot be read; no alarms",
+                    p.display()
+                ))
+            }
+        }
+    }
+    let one_offs: Vec<String> = meta
+        .extra
+        .iter()
+        .filter(|(k, _)| k.starts_with("alarm."))
+        .map(|(_, v)| v.clone())
+        .collect();
+    if config_path.is_none() {
         if let Some(g) = &meta.gas
             && let Ok(m) = crate::engine::mixture::Mixture::parse(g, &config.gases)
         {
@@ -193,10 +226,14 @@ pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
             config.chamber.name = crate::sample::escape_bytes(c.as_bytes());
         }
     }
+    let channels: Vec<crate::sample::ChannelInfo> = open_log(&args.log, config.log.as_ref())
+        .map(|l| l.channels())
+        .unwrap_or_default();
+    let rules = ingest::cli_rules(&one_offs, &config, &channels)?;
     let setup = ReplaySetup {
         file: args.log.clone(),
         foreign: config.log.clone(),
-        monitor: config.monitor_setup(Vec::new()),
+        monitor: config.monitor_setup(rules),
     };
     let mut replay = run::index(&setup).map_err(CliError::Runtime)?;
     replay.speed = args.speed;
@@ -216,7 +253,8 @@ pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
         gauges(&config),
     );
     styled(&mut app, args.ascii, &config);
-    app.config_path = args.config.clone();
+    app.config_path = config_path;
+    app.message = note;
     app.replay = Some(replay);
     let rt = runtime()?;
     let result = rt.block_on(run::replay(app, setup, from));
