@@ -105,6 +105,20 @@ impl Look {
         }
     }
 
+    /// Draws a panel's frame with its title (`·` becomes `-` in ASCII mode)
+    /// and returns the area inside it.
+    fn frame(&self, title: &str, area: Rect, buf: &mut Buffer) -> Rect {
+        let title = if self.ascii {
+            title.replace('·', "-")
+        } else {
+            title.to_string()
+        };
+        let block = self.block(&title);
+        let inner = block.inner(area);
+        block.render_into(area, buf);
+        inner
+    }
+
     /// Short glyph-free words for quantities in ASCII mode.
     fn sym(&self, unicode: &'static str, ascii: &'static str) -> &'static str {
         if self.ascii { ascii } else { unicode }
@@ -425,9 +439,7 @@ fn timeline_bar(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
 
 fn readings(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let (monitor, _, now) = app.shown();
-    let block = look.block("readings");
-    let inner = block.inner(area);
-    block.render_into(area, buf);
+    let inner = look.frame("readings", area, buf);
     let mut lines = Vec::new();
     if app.gauges.is_empty() {
         lines.push(Line::styled("waiting for the first reading…", look.dim));
@@ -509,14 +521,7 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         id.as_deref().unwrap_or("-"),
         if stale { " · last valid" } else { "" }
     );
-    let title = if look.ascii {
-        title.replace('·', "-")
-    } else {
-        title
-    };
-    let block = look.block(&title);
-    let inner = block.inner(area);
-    block.render_into(area, buf);
+    let inner = look.frame(&title, area, buf);
     let track = id.as_deref().and_then(|g| monitor.track(g));
     let Some((d, track)) = track.and_then(|t| t.derived.as_ref().map(|d| (d, t))) else {
         Paragraph::new(Line::styled("no valid pressure yet", look.dim)).render_into(inner, buf);
@@ -640,9 +645,7 @@ fn duration(s: f64) -> String {
 
 fn lengths(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let (monitor, _, _) = app.shown();
-    let block = look.block("flow regime");
-    let inner = block.inner(area);
-    block.render_into(area, buf);
+    let inner = look.frame("flow regime", area, buf);
     let id = primary(app);
     let d = id
         .as_deref()
@@ -681,14 +684,7 @@ fn alarms(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let views = monitor.alarms();
     let active = views.iter().filter(|a| a.state.is_active()).count();
     let title = format!("alarms & gates · {active} active");
-    let title = if look.ascii {
-        title.replace('·', "-")
-    } else {
-        title
-    };
-    let block = look.block(&title);
-    let inner = block.inner(area);
-    block.render_into(area, buf);
+    let inner = look.frame(&title, area, buf);
     let mut lines: Vec<Line> = Vec::new();
     let n = views.len();
     for (i, a) in views.iter().enumerate() {
@@ -763,14 +759,7 @@ fn alarms(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
 
 fn trend_panel(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let title = format!("log pressure · last {}", trend::span_text(app.window_s));
-    let title = if look.ascii {
-        title.replace('·', "-")
-    } else {
-        title
-    };
-    let block = look.block(&title);
-    let inner = block.inner(area);
-    block.render_into(area, buf);
+    let inner = look.frame(&title, area, buf);
     trend::draw(app, look, inner, buf);
 }
 
