@@ -634,3 +634,13 @@ fn replay_without_config_uses_the_one_named_in_the_log() {
     d.send(b"q");
     d.assert_clean_exit();
 }
+
+/// `watch` with no source and a terminal on stdin says what to give, rather
+/// than reading the keyboard as a gauge.
+#[test]
+fn watch_without_a_source_on_a_terminal_says_what_to_give() {
+    let mut d = Dash::spawn(&["watch"], 24, 80);
+    let status = d.wait_exit();
+    assert_eq!(status.exit_code(), 2);
+    assert!(d.raw_text().contains("no source"), "{}", d.raw_text());
+}

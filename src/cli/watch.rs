@@ -119,6 +119,16 @@ pub fn watch(args: &WatchArgs) -> Result<u8, CliError> {
     if args.demo && sources_cli.is_empty() {
         sources_cli.push(DEMO_SOURCE.into());
     }
+    // With no source named, watch reads a pipe on stdin; a terminal there is
+    // the keyboard, not a gauge.
+    if sources_cli.is_empty()
+        && config.sources.is_empty()
+        && std::io::IsTerminal::is_terminal(&std::io::stdin())
+    {
+        return Err(CliError::Usage(
+            "no source: give --source URI, a --config with [[source]], or --demo (or pipe readings into stdin)".into(),
+        ));
+    }
     let sources = ingest::sources(&sources_cli, &config)?;
     let rt = runtime()?;
     let result = rt.block_on(async {
