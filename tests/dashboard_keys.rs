@@ -199,4 +199,10 @@ fn replay_is_deterministic_and_seeks_to_alarms() {
     // End of the log.
     let s = play(&[key('G')]);
     assert!(s.contains("09:40:00"), "{s}");
+    // A typed time after the log's end goes to the end.
+    let mut seq = vec![key('t')];
+    seq.extend("23:59".chars().map(key));
+    seq.push(code(KeyCode::Enter));
+    let s = play(&seq);
+    assert!(s.contains("2026-11-09 09:40:00"), "{s}");
 }

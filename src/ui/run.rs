@@ -314,6 +314,11 @@ pub fn seek(
     setup: &ReplaySetup,
     t: DateTime<Utc>,
 ) -> Result<(), String> {
+    // A time outside the log goes to its nearest end.
+    let t = match &app.replay {
+        Some(r) => t.clamp(r.start, r.end),
+        None => t,
+    };
     if app.monitor.now().is_some_and(|now| t < now) {
         *player = rewind(app, setup)?;
     }
