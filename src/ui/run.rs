@@ -50,6 +50,59 @@ fn input() -> mpsc::Receiver<TermEvent> {
     rx
 }
 
+/// SIGTERM, SIGHUP and SIGINT: each ends the dashboard through the
+/// terminal guard. (Raw mode turns Ctrl-C into a key, but a SIGINT sent from
+/// elsewhere must also leave cleanly rather than kill the process.)
+struct Stop {
+    term: tokio::signal::unix::Signal,
+    hup: tokio::signal::unix::Signal,
+    int: tokio::signal::unix::Signal,
+}
+
+impl Stop {
+    fn new() -> Result<Stop, String> {
+        let on = |k: SignalKind| signal(k).map_err(|e| e.to_string());
+        Ok(Stop {
+            term: on(SignalKind::terminate())?,
+            hup: on(SignalKind::hangup())?,
+            int: on(SignalKind::interrupt())?,
+        })
+    }
+
+    /// Waits for any of them.
+    async fn recv(&mut self) {
+        tokio::select! {
+            _ = self.term.recv() => {}
+            _ = self.hup.recv() => {}
+            _ = self.int.recv() => {}
+        }
+    }
+}
+
+/// What both loops select over besides their data: signals, keys, the frame
+/// tick, and the terminal they draw on.
+struct Screen {
+    stop: Stop,
+    guard: Guard,
+    keys: mpsc::Receiver<TermEvent>,
+    tick: tokio::time::Interval,
+}
+
+impl Screen {
+    fn open() -> Result<Screen, String> {
+        let stop = Stop::new()?;
+        let guard = Guard::enter().map_err(|e| format!("cannot set up the terminal: {e}"))?;
+        let mut tick = tokio::time::interval(FRAME);
+        tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Skip);
+        Ok(Screen {
+            stop,
+            guard,
+            keys: input(),
+            tick,
+        })
+    }
+}
+
 /// Applies what a key asked for that the app cannot do itself (saving).
 fn apply_save(app: &mut App, effect: &Effect) {
     if let Effect::Save(path, text) = effect {
@@ -82,15 +135,7 @@ pub async fn live(
     mut rx: mpsc::Receiver<SourceEvent>,
     mut recorder: Option<Recorder>,
 ) -> Result<(), String> {
-    let mut sigterm = signal(SignalKind::terminate()).map_err(|e| e.to_string())?;
-    let mut sighup = signal(SignalKind::hangup()).map_err(|e| e.to_string())?;
-    // Raw mode turns Ctrl-C into a key, but a SIGINT sent from elsewhere
-    // must also leave through the guard rather than kill the process.
-    let mut sigint = signal(SignalKind::interrupt()).map_err(|e| e.to_string())?;
-    let mut guard = Guard::enter().map_err(|e| format!("cannot set up the terminal: {e}"))?;
-    let mut keys_rx = input();
-    let mut tick = tokio::time::interval(FRAME);
-    tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Skip);
+    let mut sh = Screen::open()?;
     let mut clock = DataClock::default();
     let mut last_flush = Instant::now();
     let mut sources_open = true;
@@ -98,10 +143,8 @@ pub async fn live(
     loop {
         tokio::select! {
             biased;
-            _ = sigterm.recv() => break,
-            _ = sighup.recv() => break,
-            _ = sigint.recv() => break,
-            Some(ev) = keys_rx.recv() => {
+            () = sh.stop.recv() => break,
+            Some(ev) = sh.keys.recv() => {
                 match ev {
                     TermEvent::Key(k) if k.kind == KeyEventKind::Press => {
                         let effect = keys::handle(&mut app, k);
@@ -142,7 +185,7 @@ pub async fn live(
                 }
                 app.counters.behind = rx.len();
             }
-            _ = tick.tick() => {
+            _ = sh.tick.tick() => {
                 if let Some(now) = clock.now() {
                     app.tick(now);
                 }
@@ -164,14 +207,14 @@ pub async fn live(
                         app.dirty = true;
                     }
                 }
-                draw(&mut guard, &mut app).map_err(|e| e.to_string())?;
+                draw(&mut sh.guard, &mut app).map_err(|e| e.to_string())?;
             }
         }
     }
     if let Some(r) = recorder.as_mut() {
         r.close();
     }
-    drop(guard);
+    drop(sh);
     Ok(())
 }
 
@@ -342,25 +385,15 @@ pub async fn replay(
     if let Some(t) = from {
         seek(&mut app, &mut player, &setup, t)?;
     }
-    let mut sigterm = signal(SignalKind::terminate()).map_err(|e| e.to_string())?;
-    let mut sighup = signal(SignalKind::hangup()).map_err(|e| e.to_string())?;
-    // Raw mode turns Ctrl-C into a key, but a SIGINT sent from elsewhere
-    // must also leave through the guard rather than kill the process.
-    let mut sigint = signal(SignalKind::interrupt()).map_err(|e| e.to_string())?;
-    let mut guard = Guard::enter().map_err(|e| format!("cannot set up the terminal: {e}"))?;
-    let mut keys_rx = input();
-    let mut tick = tokio::time::interval(FRAME);
-    tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Skip);
+    let mut sh = Screen::open()?;
     let mut last = Instant::now();
     // Data time of the playhead.
     let mut head = app.monitor.now().or(player.next_time());
     loop {
         tokio::select! {
             biased;
-            _ = sigterm.recv() => break,
-            _ = sighup.recv() => break,
-            _ = sigint.recv() => break,
-            Some(ev) = keys_rx.recv() => {
+            () = sh.stop.recv() => break,
+            Some(ev) = sh.keys.recv() => {
                 match ev {
                     TermEvent::Key(k) if k.kind == KeyEventKind::Press => {
                         let effect = keys::handle(&mut app, k);
@@ -384,7 +417,7 @@ pub async fn replay(
                     _ => {}
                 }
             }
-            _ = tick.tick() => {
+            _ = sh.tick.tick() => {
                 let elapsed = last.elapsed().as_secs_f64();
                 last = Instant::now();
                 let (paused, speed) = app.replay.as_ref().map_or((true, Speed::Max), |r| (r.paused, r.speed));
@@ -411,11 +444,11 @@ pub async fn replay(
                         app.dirty = true;
                     }
                 }
-                draw(&mut guard, &mut app).map_err(|e| e.to_string())?;
+                draw(&mut sh.guard, &mut app).map_err(|e| e.to_string())?;
             }
         }
     }
-    drop(guard);
+    drop(sh);
     Ok(())
 }
 
