@@ -35,9 +35,17 @@ impl<R: BufRead> Lines<R> {
         }
     }
 
-    /// Number of the last line returned.
-    pub fn number(&self) -> u64 {
-        self.number
+    /// The next line, or a located error naming the log `name` when reading
+    /// fails (which ends the reading).
+    pub fn next_located(&mut self, name: &str) -> Option<Result<RawLine, super::LogError>> {
+        Some(self.next_line()?.map_err(|e| {
+            super::LogError::at(
+                name,
+                self.number + 1,
+                None,
+                format!("cannot read the log: {e}"),
+            )
+        }))
     }
 
     /// The next line; `None` at the end; an I/O error ends the reading.

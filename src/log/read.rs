@@ -422,16 +422,9 @@ impl<R: BufRead> Iterator for LogReader<R> {
 
     fn next(&mut self) -> Option<Self::Item> {
         loop {
-            let raw = match self.lines.next_line()? {
+            let raw = match self.lines.next_located(&self.name)? {
                 Ok(raw) => raw,
-                Err(e) => {
-                    return Some(Err(LogError::at(
-                        &self.name,
-                        self.lines.number() + 1,
-                        None,
-                        format!("cannot read the log: {e}"),
-                    )));
-                }
+                Err(e) => return Some(Err(e)),
             };
             if let Some(item) = self.row(&raw) {
                 return Some(item);
