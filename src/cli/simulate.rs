@@ -83,7 +83,8 @@ pub fn run(args: &SimulateArgs) -> Result<u8, CliError> {
 
     // Write beside the target and rename, so a failed run leaves no half file.
     let tmp = args.out.with_extension("csv.partial");
-    let fail = |e: std::io::Error| CliError::Runtime(format!("{}: {e}", tmp.display()));
+    let fail =
+        |e: std::io::Error| CliError::Runtime(format!("cannot write {}: {e}", args.out.display()));
     let file = std::fs::File::create(&tmp).map_err(fail)?;
     let mut w = BufWriter::new(file);
     w.write_all(v1::header(&meta, &columns).as_bytes())
