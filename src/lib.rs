@@ -1,16 +1,18 @@
 //! rarefy turns vacuum-gauge readings into gas kinetics: number density, mean
 //! free path, Knudsen number and flow regime per named length, wall
-//! impingement rate, time to a monolayer and exposure.
+//! impingement rate, time to a monolayer and exposure; raises alarms, gates
+//! process steps, records, and replays logs.
 //!
-//! The crate is layered so that the physics stays pure:
+//! The workspace is layered so that the physics stays pure:
 //!
-//! * [`units`] parses and prints quantities with their units;
-//! * [`gas`] is the gas table, every value with its source;
-//! * [`engine`] derives everything from pressure, temperature and gas, and
-//!   corrects gas-dependent gauge readings; it knows nothing of terminals,
-//!   ports or clocks;
-//! * [`config`] reads and checks the TOML configuration, with located errors;
-//! * [`cli`] is the command line.
+//! * `rarefy-core` (re-exported here as [`units`], [`gas`], [`engine`],
+//!   [`sample`], [`parse`], [`log`], [`alarm`], [`sim`]): no I/O, no async
+//!   runtime, no clock;
+//! * `rarefy-app` ([`config`], [`source`], [`record`], [`action`],
+//!   [`ingest`], [`pipeline`]): files, ports, sockets, tasks and the one
+//!   ingest pipeline;
+//! * `rarefy-dash` ([`ui`]): the terminal dashboard;
+//! * [`cli`]: the command line, the only thing the binary calls.
 //!
 //! ```
 //! use rarefy::units::{parse, PressureUnit};
@@ -19,18 +21,8 @@
 //! ```
 #![deny(missing_docs)]
 
-pub mod action;
-pub mod alarm;
 pub mod cli;
-pub mod config;
-pub mod engine;
-pub mod gas;
-pub mod log;
-pub mod parse;
-pub mod record;
-pub mod sample;
-pub mod sim;
-pub mod source;
-pub mod suggest;
-pub mod ui;
-pub mod units;
+
+pub use rarefy_app::{action, config, ingest, logfile, operator, record, source};
+pub use rarefy_core::{alarm, engine, gas, log, parse, sample, sim, suggest, units};
+pub use rarefy_dash as ui;

@@ -14,7 +14,7 @@ use ratatui::layout::Rect;
 
 use rarefy::alarm::Monitor;
 use rarefy::config;
-use rarefy::log::open_log;
+use rarefy::logfile::open_log;
 use rarefy::sample::SourceEvent;
 use rarefy::ui::app::{App, GaugeInfo};
 use rarefy::ui::render::{self, Look, Panel};

@@ -4,7 +4,8 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-use rarefy::log::{LogFormat, open_log};
+use rarefy::log::LogFormat;
+use rarefy::logfile::open_log;
 
 fn root() -> &'static Path {
     Path::new(env!("CARGO_MANIFEST_DIR"))

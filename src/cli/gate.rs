@@ -6,9 +6,9 @@ use std::time::{Duration, Instant};
 
 use clap::Subcommand;
 
-use super::ingest::{self, DataClock, say};
 use super::{CliError, load_config};
 use crate::alarm::{GateState, Monitor};
+use crate::ingest::{self, DataClock, say};
 use crate::sample::{SourceEvent, SourceState};
 use crate::units::{self, TimeUnit};
 
@@ -65,7 +65,7 @@ pub fn run(command: &GateCommand) -> Result<u8, CliError> {
             }
         )));
     }
-    let sources = ingest::sources(source, &config)?;
+    let sources = ingest::sources(source, &config).map_err(CliError::Usage)?;
     let rt = tokio::runtime::Builder::new_multi_thread()
         .worker_threads(2)
         .enable_all()

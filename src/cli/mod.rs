@@ -6,7 +6,6 @@ mod calc;
 mod config_cmd;
 mod gases;
 mod gate;
-pub(crate) mod ingest;
 mod record;
 mod simulate;
 mod watch;
@@ -19,13 +18,7 @@ use clap::{Parser, Subcommand};
 
 use crate::config::{self, Config, ConfigErrors};
 
-/// The caution shown by `--help` and the dashboard's help screen.
-pub const CAUTION: &str = "\
-rarefy is advisory software, not a safety interlock or a safety-rated system. \
-Vacuum vessels can implode; vents and pump exhausts may carry toxic, flammable \
-or pyrophoric process gases; ionization gauges use high voltage. Follow your \
-site's procedures, local codes and the equipment manuals, and defer to \
-qualified staff.";
+pub use rarefy_core::CAUTION;
 
 #[derive(Debug, Parser)]
 #[command(

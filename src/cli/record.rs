@@ -10,11 +10,11 @@ use clap::Args;
 use serde_json::json;
 use tokio::signal::unix::{SignalKind, signal};
 
-use super::ingest::{self, DataClock, emit, event_json, say};
 use super::{CliError, load_config};
 use crate::action::ActionRunner;
 use crate::alarm::{Event, Monitor};
 use crate::config::{Config, SourceConfig};
+use crate::ingest::{self, DataClock, emit, event_json, say};
 use crate::log::v1::{LogMeta, format_time};
 use crate::record::{Deriver, RecordEvent, Recorder};
 use crate::sample::{SourceEvent, SourceState};
@@ -107,7 +107,7 @@ fn report(events: Vec<RecordEvent>) {
 /// Runs `rarefy record`.
 pub fn run(args: &RecordArgs) -> Result<u8, CliError> {
     let config = load_config(args.config.as_ref())?;
-    let sources = ingest::sources(&args.source, &config)?;
+    let sources = ingest::sources(&args.source, &config).map_err(CliError::Usage)?;
     let dir = args
         .out
         .clone()
@@ -151,7 +151,8 @@ async fn record(
     let flush_s = args.flush.unwrap_or(config.record.flush_s);
 
     let started = ingest::start(sources, 4096);
-    let rules = ingest::cli_rules(&args.alarm, config, &started.channels)?;
+    let rules =
+        ingest::cli_rules(&args.alarm, config, &started.channels).map_err(CliError::Usage)?;
     let mut monitor = Monitor::new(config.monitor_setup(rules));
     let (mut actions, mut outcomes) = ActionRunner::new(config.alarms.actions.clone());
     let ingest::Started {

@@ -5,10 +5,10 @@ use std::path::PathBuf;
 use chrono::{DateTime, Utc};
 use clap::Args;
 
-use super::ingest;
 use super::{CliError, load_config};
 use crate::config::{self, Config};
-use crate::log::open_log;
+use crate::ingest;
+use crate::logfile::open_log;
 use crate::record::{Deriver, Recorder};
 use crate::ui::app::{App, GaugeInfo, Speed};
 use crate::ui::run::{self, ReplaySetup};
@@ -129,11 +129,12 @@ pub fn watch(args: &WatchArgs) -> Result<u8, CliError> {
             "no source: give --source URI, a --config with [[source]], or --demo (or pipe readings into stdin)".into(),
         ));
     }
-    let sources = ingest::sources(&sources_cli, &config)?;
+    let sources = ingest::sources(&sources_cli, &config).map_err(CliError::Usage)?;
     let rt = runtime()?;
     let result = rt.block_on(async {
         let started = ingest::start(sources, 8192);
-        let rules = ingest::cli_rules(&args.alarm, &config, &started.channels)?;
+        let rules =
+            ingest::cli_rules(&args.alarm, &config, &started.channels).map_err(CliError::Usage)?;
         let monitor = crate::alarm::Monitor::new(config.monitor_setup(rules));
         let title = match (&started.sim, config.chamber.name.is_empty()) {
             (_, false) => config.chamber.name.clone(),
@@ -239,7 +240,7 @@ pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
     let channels: Vec<crate::sample::ChannelInfo> = open_log(&args.log, config.log.as_ref())
         .map(|l| l.channels())
         .unwrap_or_default();
-    let rules = ingest::cli_rules(&one_offs, &config, &channels)?;
+    let rules = ingest::cli_rules(&one_offs, &config, &channels).map_err(CliError::Usage)?;
     let setup = ReplaySetup {
         file: args.log.clone(),
         foreign: config.log.clone(),

@@ -556,16 +556,3 @@ fn read_errors_end_the_iteration() {
         "{e}"
     );
 }
-
-#[test]
-fn open_reports_a_missing_file() {
-    let e = match LogReader::open(Path::new("/nonexistent/run.csv")) {
-        Ok(_) => panic!("opened"),
-        Err(e) => e,
-    };
-    assert!(
-        e.to_string()
-            .starts_with("/nonexistent/run.csv: cannot open the log"),
-        "{e}"
-    );
-}

@@ -703,13 +703,6 @@ impl Monitor {
     }
 }
 
-/// The local user's name, for acknowledgements and shelving.
-pub fn local_user() -> String {
-    std::env::var("USER")
-        .or_else(|_| std::env::var("LOGNAME"))
-        .unwrap_or_else(|_| "unknown".into())
-}
-
 fn m_test(t: &Test, threshold: f64) -> Test {
     match t {
         Test::Above(_) => Test::Above(threshold),

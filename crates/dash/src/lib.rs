@@ -16,3 +16,7 @@ pub mod run;
 pub mod term;
 
 pub use app::App;
+
+// The core's and the app crate's modules, reachable as `crate::…` here.
+use rarefy_app::{config, record};
+use rarefy_core::{alarm, engine, log, sample, units};

@@ -9,7 +9,7 @@ use ratatui::style::{Color, Modifier, Style};
 use super::Look;
 use crate::alarm::quantity::Quantity;
 use crate::alarm::rule::Test;
-use crate::ui::app::App;
+use crate::app::App;
 use crate::units::UnitKind;
 
 const SERIES_COLORS: [Color; 4] = [Color::Cyan, Color::Magenta, Color::Green, Color::Blue];
@@ -69,7 +69,7 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let t1 = app.secs(now);
     let t0 = t1 - app.window_s;
     let unit = app.pressure_unit;
-    let series: Vec<(&str, Vec<crate::ui::history::Bucket>, f64)> = app
+    let series: Vec<(&str, Vec<crate::history::Bucket>, f64)> = app
         .gauges
         .iter()
         .filter(|g| g.unit.is_pressure())
@@ -185,7 +185,7 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     } else {
         let mut dots = Dots::new(plot.width as usize, plot.height as usize);
         for (i, (_, buckets, w)) in series.iter().enumerate() {
-            let mut prev: Option<&crate::ui::history::Bucket> = None;
+            let mut prev: Option<&crate::history::Bucket> = None;
             for b in buckets {
                 let x = x_of(b.start(*w) + w / 2.0, 2.0);
                 // Adjacent buckets are joined, so a fast pump-down reads as a

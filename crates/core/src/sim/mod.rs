@@ -9,7 +9,7 @@
 //! itself is noise-free (see [`Simulator::truth`]).
 //!
 //! ```
-//! use rarefy::sim::{Scenario, SimOptions, Simulator};
+//! use rarefy_core::sim::{Scenario, SimOptions, Simulator};
 //! let mut sim = Simulator::new(SimOptions { scenario: Scenario::Demo, ..SimOptions::default() });
 //! let first = sim.next_samples();
 //! assert_eq!(first.len(), sim.channels().len());

@@ -26,16 +26,14 @@
 //! * A quoted cell (header names with commas) ends on its own line.
 //!
 //! [`read`] reads v1 back; [`foreign`] reads other loggers' CSV exports
-//! through a `[log]` configuration section; [`open_log`] opens either.
+//! through a `[log]` configuration section; `open_log_from` opens either.
 
 pub mod foreign;
 mod lines;
 pub mod read;
 pub mod v1;
 
-use std::fs::File;
-use std::io::{BufRead, BufReader};
-use std::path::Path;
+use std::io::BufRead;
 
 pub use foreign::{ForeignLogSpec, ForeignReader, LogSection};
 pub use lines::{Encoding, MAX_LINE_BYTES};
@@ -115,21 +113,10 @@ impl<R: BufRead + Send> LogSource for ForeignReader<R> {
     }
 }
 
-/// Opens a log file: a file starting with the v1 magic line is read as v1
-/// (even when `foreign` is given); any other file needs `foreign`, the
-/// checked `[log]` section of a configuration.
-pub fn open_log(
-    path: &Path,
-    foreign: Option<&ForeignLogSpec>,
-) -> Result<Box<dyn LogSource>, LogError> {
-    let name = path.display().to_string();
-    let file =
-        File::open(path).map_err(|e| LogError::file(&name, format!("cannot open the log: {e}")))?;
-    open_log_from(BufReader::new(file), &name, foreign)
-}
-
-/// [`open_log`] for any buffered reader (stdin, a test buffer); `name` is
-/// used in messages.
+/// Opens a log from any buffered reader (a file, stdin, a test buffer):
+/// input starting with the v1 magic line is read as v1 (even when `foreign`
+/// is given); any other input needs `foreign`, the checked `[log]` section of
+/// a configuration. `name` is used in messages.
 pub fn open_log_from<R: BufRead + Send + 'static>(
     mut reader: R,
     name: &str,

@@ -5,9 +5,9 @@ use chrono::{DateTime, NaiveTime, TimeZone, Utc};
 use crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 
 use super::app::{App, Edit, Effect, Overlay, Speed, WINDOWS};
-use crate::alarm::monitor::local_user;
 use crate::alarm::rule::Test;
 use crate::units::{self, TimeUnit};
+use rarefy_app::operator::local_user;
 
 /// The footer's key list, live.
 pub const FOOTER_LIVE: &str =

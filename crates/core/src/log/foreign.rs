@@ -38,10 +38,8 @@ use chrono_tz::Tz;
 use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::fmt::{self, Write as _};
-use std::fs::File;
-use std::io::{BufRead, BufReader};
+use std::io::BufRead;
 use std::ops::Range;
-use std::path::Path;
 use toml::Spanned;
 
 use super::lines::{self, Encoding, Lines};
@@ -780,16 +778,6 @@ pub struct ForeignReader<R> {
     ambiguous: u64,
 }
 
-impl ForeignReader<BufReader<File>> {
-    /// Opens a file and reads up to its column-name row.
-    pub fn open(path: &Path, spec: &ForeignLogSpec) -> Result<Self, LogError> {
-        let name = path.display().to_string();
-        let file = File::open(path)
-            .map_err(|e| LogError::file(&name, format!("cannot open the log: {e}")))?;
-        ForeignReader::new(BufReader::new(file), &name, spec)
-    }
-}
-
 impl<R: BufRead> ForeignReader<R> {
     /// Reads the preamble and the column-name row from `reader`; `name` is
     /// the file name used in messages.
@@ -1205,6 +1193,3 @@ impl<R: BufRead> Iterator for ForeignReader<R> {
         }
     }
 }
-
-#[cfg(test)]
-mod tests;

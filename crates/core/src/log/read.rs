@@ -8,9 +8,7 @@
 
 use chrono::{DateTime, Utc};
 use std::fmt;
-use std::fs::File;
-use std::io::{BufRead, BufReader};
-use std::path::Path;
+use std::io::BufRead;
 
 use super::lines::{self, Encoding, Lines, RawLine};
 use super::v1::{Column, ColumnKind, LogMeta, MAGIC};
@@ -117,16 +115,6 @@ pub struct LogReader<R> {
     warnings: Vec<LogError>,
     last_time: Option<DateTime<Utc>>,
     went_back: u64,
-}
-
-impl LogReader<BufReader<File>> {
-    /// Opens a log file and reads its header block.
-    pub fn open(path: &Path) -> Result<Self, LogError> {
-        let name = path.display().to_string();
-        let file = File::open(path)
-            .map_err(|e| LogError::file(&name, format!("cannot open the log: {e}")))?;
-        LogReader::new(BufReader::new(file), &name)
-    }
 }
 
 impl<R: BufRead> LogReader<R> {

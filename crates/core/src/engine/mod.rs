@@ -2,9 +2,9 @@
 //! quantities an operator decides with. Pure: no I/O, no clock, SI inside.
 //!
 //! ```
-//! use rarefy::engine::{derive, Conditions, NamedLength, Physics};
-//! use rarefy::engine::mixture::Mixture;
-//! use rarefy::gas::GasTable;
+//! use rarefy_core::engine::{derive, Conditions, NamedLength, Physics};
+//! use rarefy_core::engine::mixture::Mixture;
+//! use rarefy_core::gas::GasTable;
 //!
 //! let table = GasTable::builtin();
 //! let n2 = Mixture::pure(table.get("N2").unwrap().clone());

@@ -16,10 +16,11 @@ use super::keys;
 use super::render;
 use super::term::Guard;
 use crate::alarm::{Monitor, MonitorSetup};
-use crate::cli::ingest::DataClock;
-use crate::log::{LogSource, open_log};
+use crate::log::LogSource;
 use crate::record::Recorder;
 use crate::sample::SourceEvent;
+use rarefy_app::ingest::DataClock;
+use rarefy_app::logfile::open_log;
 
 /// Frame interval: at most ten redraws a second.
 pub const FRAME: Duration = Duration::from_millis(100);

@@ -15,7 +15,7 @@ fn one_error(text: &str) -> ConfigError {
 
 #[test]
 fn the_sample_config_is_valid() {
-    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("config/rarefy.toml");
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("../../config/rarefy.toml");
     let c = load(&path).unwrap_or_else(|e| panic!("{e}"));
     assert_eq!(c.gauges.len(), 3);
     assert_eq!(c.lengths.len(), 3);

@@ -10,7 +10,6 @@ use serde_json::{Value, json};
 use tokio::sync::mpsc;
 use tokio::task::JoinHandle;
 
-use super::CliError;
 use crate::alarm::{Event, Rule};
 use crate::config::{Config, SourceConfig};
 use crate::log::v1::format_time;
@@ -20,18 +19,17 @@ use crate::source::{self, SourceKind, SourceSpec, SourceUri};
 
 /// The sources to run: `--source` URIs (with the config's templates when a
 /// config source has the same URI), else the config's, else `stdin:`.
-pub fn sources(cli: &[String], config: &Config) -> Result<Vec<SourceConfig>, CliError> {
+pub fn sources(cli: &[String], config: &Config) -> Result<Vec<SourceConfig>, String> {
     if cli.is_empty() {
         if config.sources.is_empty() {
-            let uri = SourceUri::parse("stdin:").map_err(CliError::Usage)?;
+            let uri = SourceUri::parse("stdin:")?;
             return Ok(vec![SourceConfig::from_uri(uri)]);
         }
         return Ok(config.sources.clone());
     }
     cli.iter()
         .map(|text| {
-            let uri =
-                SourceUri::parse(text).map_err(|e| CliError::Usage(format!("--source: {e}")))?;
+            let uri = SourceUri::parse(text).map_err(|e| format!("--source: {e}"))?;
             Ok(config
                 .sources
                 .iter()
@@ -111,7 +109,7 @@ pub fn cli_rules(
     texts: &[String],
     config: &Config,
     channels: &[ChannelInfo],
-) -> Result<Vec<Rule>, CliError> {
+) -> Result<Vec<Rule>, String> {
     let pressure: Vec<&ChannelInfo> = channels.iter().filter(|c| c.unit.is_pressure()).collect();
     let default = config
         .alarms
@@ -134,7 +132,7 @@ pub fn cli_rules(
         .enumerate()
         .map(|(i, t)| {
             crate::alarm::syntax::alarm(t, default.as_deref(), i + 1, &lengths)
-                .map_err(|e| CliError::Usage(format!("--alarm \"{t}\": {e}")))
+                .map_err(|e| format!("--alarm \"{t}\": {e}"))
         })
         .collect()
 }

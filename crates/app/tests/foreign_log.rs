@@ -1,7 +1,17 @@
-use super::*;
-use crate::config::{ConfigError, ConfigErrors};
-use crate::log::{LogFormat, open_log, open_log_from};
+//! Reading other loggers' CSV through a `[log]` section: the example
+//! export, every config problem located, zones, daylight saving, headers,
+//! bad cells and encodings.
+
+use std::path::Path;
+
+use chrono::{DateTime, Utc};
 use proptest::prelude::*;
+use rarefy_app::config::{ConfigError, ConfigErrors};
+use rarefy_app::logfile::open_log;
+use rarefy_core::log::foreign::*;
+use rarefy_core::log::{LogError, LogFormat, Row, open_log_from};
+use rarefy_core::sample::{ChannelUnit, Status};
+use rarefy_core::units::PressureUnit;
 
 const MBAR: ChannelUnit = ChannelUnit::Pressure(PressureUnit::Mbar);
 
@@ -12,14 +22,14 @@ fn utc(text: &str) -> DateTime<Utc> {
 }
 
 fn spec(toml: &str) -> ForeignLogSpec {
-    crate::config::parse(toml, Path::new("t.toml"))
+    rarefy_app::config::parse(toml, Path::new("t.toml"))
         .unwrap_or_else(|e| panic!("{e}"))
         .log
         .expect("a [log] section")
 }
 
 fn config_errors(toml: &str) -> Vec<ConfigError> {
-    match crate::config::parse(toml, Path::new("t.toml")) {
+    match rarefy_app::config::parse(toml, Path::new("t.toml")) {
         Ok(_) => panic!("expected an error for:\n{toml}"),
         Err(ConfigErrors(v)) => v,
     }
@@ -65,14 +75,14 @@ fn one_error(spec: &ForeignLogSpec, text: &[u8]) -> LogError {
 }
 
 fn example_dir() -> std::path::PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-logs/foreign")
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("../../sample-logs/foreign")
 }
 
 #[test]
 fn the_example_export_reads_completely() {
     let dir = example_dir();
-    let config =
-        crate::config::load(&dir.join("marrowgate-ml3.toml")).unwrap_or_else(|e| panic!("{e}"));
+    let config = rarefy_app::config::load(&dir.join("marrowgate-ml3.toml"))
+        .unwrap_or_else(|e| panic!("{e}"));
     let spec = config.log.expect("[log]");
     assert_eq!(spec.delimiter, ';');
     assert!(spec.decimal_comma);
@@ -160,7 +170,7 @@ fn the_example_export_reads_completely() {
 
 #[test]
 fn the_example_config_checks_with_the_binary_config_loader() {
-    let c = crate::config::load(&example_dir().join("marrowgate-ml3.toml"))
+    let c = rarefy_app::config::load(&example_dir().join("marrowgate-ml3.toml"))
         .unwrap_or_else(|e| panic!("{e}"));
     let spec = c.log.expect("[log]");
     assert_eq!(spec.columns.len(), 3);
@@ -178,7 +188,7 @@ fn the_example_config_checks_with_the_binary_config_loader() {
 #[test]
 fn config_problems_are_located_and_specific() {
     let base = section("", "");
-    assert!(crate::config::parse(&base, Path::new("t.toml")).is_ok());
+    assert!(rarefy_app::config::parse(&base, Path::new("t.toml")).is_ok());
     // (TOML, line, message part)
     let cases: Vec<(String, usize, &str)> = vec![
         (

@@ -864,7 +864,7 @@ fn overlay(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             block.render_into(r, buf);
             let mut lines: Vec<Line> = vec![
                 Line::styled("CAUTION", look.alarm),
-                Line::raw(crate::cli::CAUTION),
+                Line::raw(rarefy_core::CAUTION),
                 Line::raw(""),
             ];
             for (k, what) in HELP {
