@@ -96,7 +96,7 @@ fn app_with(rows: usize, step: Duration, noise: &mut Noise) -> (App, DateTime<Ut
     let mut app = empty_app();
     let mut t = t0();
     for i in 0..rows {
-        app.ingest(&row(i, t, noise));
+        app.ingest(&row(i, t, noise), None);
         t += step;
     }
     (app, t)
@@ -172,7 +172,7 @@ fn bytes_written(frames: usize, repaint: bool) -> (u64, u64) {
     term.draw(|f| render::draw(f, &app)).expect("first frame");
     let first = bytes.swap(0, Ordering::Relaxed);
     for i in 0..frames {
-        app.ingest(&row(36_000 + i, t, &mut noise));
+        app.ingest(&row(36_000 + i, t, &mut noise), None);
         t += step;
         if repaint {
             term = counting_term(sink.clone());

@@ -23,6 +23,6 @@
 
 pub mod cli;
 
-pub use rarefy_app::{action, config, ingest, logfile, operator, record, source};
+pub use rarefy_app::{action, config, logfile, operator, pipeline, record, source};
 pub use rarefy_core::{alarm, engine, gas, log, parse, sample, sim, suggest, units};
 pub use rarefy_dash as ui;

@@ -116,7 +116,7 @@ fn editing_a_threshold_saves_it_with_comments_kept() {
     assert_eq!(text, expected);
     config::parse(&text, &path).expect("the saved config is valid");
     // And it applies at once.
-    let a = app.monitor.alarms();
+    let a = app.monitor().alarms();
     assert!(
         a[0].threshold_text.contains("2.00e-5 mbar"),
         "{}",
@@ -133,7 +133,7 @@ fn editing_a_threshold_saves_it_with_comments_kept() {
 #[test]
 fn gate_hold_is_editable_too() {
     let (mut app, _) = demo_app(None);
-    let n = app.monitor.alarms().len();
+    let n = app.monitor().alarms().len();
     app.selected = n; // the first gate
     keys::handle(&mut app, key('e'));
     let Overlay::Edit(e) = &app.overlay else {
@@ -149,7 +149,7 @@ fn gate_hold_is_editable_too() {
     keys::handle(&mut app, code(KeyCode::Enter));
     // No config file (built-in): applied in memory, nothing to save.
     assert_eq!(keys::handle(&mut app, key('y')), Effect::None);
-    assert_eq!(app.monitor.gates()[0].gate.hold_s, 60.0);
+    assert_eq!(app.monitor().gates()[0].gate.hold_s, 60.0);
 }
 
 /// Plays a key sequence the way the replay loop does (seeks and steps).

@@ -15,6 +15,7 @@ use ratatui::layout::Rect;
 use rarefy::alarm::Monitor;
 use rarefy::config;
 use rarefy::logfile::open_log;
+use rarefy::pipeline::Operation;
 use rarefy::sample::SourceEvent;
 use rarefy::ui::app::{App, GaugeInfo};
 use rarefy::ui::render::{self, Look, Panel};
@@ -55,7 +56,7 @@ fn app_at(until: Option<&str>) -> App {
             if row.time > until {
                 break;
             }
-            app.ingest(&SourceEvent::Samples(row.samples));
+            app.ingest(&SourceEvent::Samples(row.samples), None);
         }
     }
     app
@@ -131,15 +132,13 @@ fn alarm_unacknowledged_acknowledged_and_shelved() {
     let s = screen(&app, 120, 40);
     assert!(s.contains("ALARM"), "{s}");
     insta::assert_snapshot!("alarm_unack_120x40", s);
-    let now = app.monitor.now().expect("time");
-    app.monitor
-        .acknowledge("ion-high", "ana", now)
+    let now = app.monitor().now().expect("time");
+    app.operate(&Operation::Acknowledge("ion-high".into()), now, None)
         .expect("ack");
     let s = screen(&app, 120, 40);
     assert!(s.contains("acked"), "{s}");
     insta::assert_snapshot!("alarm_ack_120x40", s);
-    app.monitor
-        .shelve("fast-rise", 1800.0, "ana", now)
+    app.operate(&Operation::Shelve("fast-rise".into(), 1800.0), now, None)
         .expect("shelve");
     let s = screen(&app, 80, 24);
     assert!(s.contains("shelved"), "{s}");

@@ -5,7 +5,7 @@ use std::path::PathBuf;
 use clap::{Args, ValueEnum};
 use serde::Serialize;
 
-use super::{CliError, load_config, print_out};
+use super::{CliError, ExitCode, load_config, print_out};
 use crate::engine::gauge::GaugeKind;
 use crate::engine::mixture::Mixture;
 use crate::engine::{
@@ -183,8 +183,8 @@ struct Output {
 }
 
 /// Runs `rarefy calc`.
-pub fn run(args: &CalcArgs) -> Result<u8, CliError> {
-    let config = load_config(args.config.as_ref())?;
+pub fn run(args: &CalcArgs) -> Result<ExitCode, CliError> {
+    let config = load_config(args.config.as_ref())?.config;
     let usage = |e: &dyn std::fmt::Display, arg: &str| CliError::Usage(format!("{arg}: {e}"));
 
     let mut mixture = match (&args.gas, &args.mix) {
@@ -305,7 +305,7 @@ pub fn run(args: &CalcArgs) -> Result<u8, CliError> {
             .map_or(config.display.temperature_unit, |t| t.unit);
         print_out(&table(&out, unit, temp_unit))?;
     }
-    Ok(0)
+    Ok(ExitCode::Ok)
 }
 
 fn table(out: &Output, unit: PressureUnit, temp_unit: TemperatureUnit) -> String {

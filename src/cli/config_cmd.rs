@@ -4,7 +4,7 @@ use std::path::PathBuf;
 
 use clap::Subcommand;
 
-use super::{CliError, print_out};
+use super::{CliError, ExitCode, print_out};
 use crate::config;
 
 /// `rarefy config` subcommands.
@@ -19,12 +19,12 @@ pub enum ConfigCommand {
 }
 
 /// Runs `rarefy config …`.
-pub fn run(command: &ConfigCommand) -> Result<u8, CliError> {
+pub fn run(command: &ConfigCommand) -> Result<ExitCode, CliError> {
     match command {
         ConfigCommand::Check { file } => {
             let c = config::load(file)?;
             print_out(&format!("{}: ok\n{}", file.display(), c.summary()))?;
-            Ok(0)
+            Ok(ExitCode::Ok)
         }
     }
 }

@@ -4,7 +4,7 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use super::{CliError, load_config, print_out};
+use super::{CliError, ExitCode, load_config, print_out};
 use crate::units::format_sig;
 
 /// `rarefy gases` arguments.
@@ -19,14 +19,14 @@ pub struct GasesArgs {
 }
 
 /// Runs `rarefy gases`.
-pub fn run(args: &GasesArgs) -> Result<u8, CliError> {
-    let config = load_config(args.config.as_ref())?;
+pub fn run(args: &GasesArgs) -> Result<ExitCode, CliError> {
+    let config = load_config(args.config.as_ref())?.config;
     let gases: Vec<_> = config.gases.iter().collect();
     if args.json {
         let mut text = serde_json::to_string_pretty(&gases)
             .map_err(|e| CliError::Runtime(format!("cannot write JSON: {e}")))?;
         text.push('\n');
-        return print_out(&text).map(|()| 0);
+        return print_out(&text).map(|()| ExitCode::Ok);
     }
     let opt = |v: Option<f64>, sig: usize| v.map_or("-".to_string(), |v| format_sig(v, sig));
     let mut s = format!(
@@ -69,5 +69,5 @@ pub fn run(args: &GasesArgs) -> Result<u8, CliError> {
         "\nS is a gauge's sensitivity relative to N2 (reading / true pressure); \
          the CRC table warns that individual ionization gauges differ by up to 15 %.\n",
     );
-    print_out(&s).map(|()| 0)
+    print_out(&s).map(|()| ExitCode::Ok)
 }

@@ -6,9 +6,11 @@ use std::time::{Duration, Instant};
 
 use clap::Subcommand;
 
-use super::{CliError, load_config};
-use crate::alarm::{GateState, Monitor};
-use crate::ingest::{self, DataClock, say};
+use super::record::live_pipeline;
+use super::{CliError, ExitCode, load_config};
+use crate::alarm::GateState;
+use crate::pipeline::sinks::say;
+use crate::pipeline::{DataClock, Nowhere, Pipeline, start};
 use crate::sample::{SourceEvent, SourceState};
 use crate::units::{self, TimeUnit};
 
@@ -43,14 +45,15 @@ fn duration(s: &str) -> Result<f64, String> {
 }
 
 /// Runs `rarefy gate …`.
-pub fn run(command: &GateCommand) -> Result<u8, CliError> {
+pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
     let GateCommand::Wait {
         name,
         config,
         source,
         timeout,
     } = command;
-    let config = load_config(config.as_ref())?;
+    let loaded = load_config(config.as_ref())?;
+    let config = &loaded.config;
     if !config.alarms.gates.iter().any(|g| &g.id == name) {
         let ids: Vec<&str> = config.alarms.gates.iter().map(|g| g.id.as_str()).collect();
         let hint = crate::suggest::nearest(name, ids.iter().copied())
@@ -65,56 +68,63 @@ pub fn run(command: &GateCommand) -> Result<u8, CliError> {
             }
         )));
     }
-    let sources = ingest::sources(source, &config).map_err(CliError::Usage)?;
-    let rt = tokio::runtime::Builder::new_multi_thread()
-        .worker_threads(2)
-        .enable_all()
-        .build()
-        .map_err(|e| CliError::Runtime(format!("cannot start the runtime: {e}")))?;
+    let sources = start::sources(source, config).map_err(CliError::Usage)?;
+    let rt = super::runtime()?;
     let result = rt.block_on(async {
-        let mut started = ingest::start(sources, 1024);
-        let mut monitor = Monitor::new(config.monitor_setup(Vec::new()));
+        let mut started = start::start(sources, 1024);
+        let mut pipeline = live_pipeline(&loaded, &[], &started)?;
         let wall_start = Instant::now();
         let mut first_data = None;
-        let mut clock = DataClock::default();
+        let mut clock = DataClock::start();
+        if !started.finite {
+            pipeline.start(clock.now(), &mut Nowhere);
+        }
+        let live = |clock: &DataClock| (!started.finite).then(|| clock.now());
         let mut ended = 0;
         let total = started.names.len();
         let mut last_said = String::new();
         let mut tick = tokio::time::interval(Duration::from_millis(500));
-        let gate_state = |m: &Monitor| {
-            m.gates().iter().find(|g| &g.gate.id == name).map(|g| (g.state(), g.reason().map(str::to_string)))
+        let gate_state = |p: &Pipeline| {
+            p.monitor()
+                .gates()
+                .iter()
+                .find(|g| &g.gate.id == name)
+                .map(|g| (g.state(), g.reason().map(str::to_string)))
         };
         let code = loop {
             tokio::select! {
-                ev = started.rx.recv() => match ev {
-                    None => break 1,
-                    Some(SourceEvent::Samples(s)) => {
-                        let Some(t) = s.iter().map(|s| s.time).max() else { continue };
-                        first_data.get_or_insert(t);
-                        clock.saw(t);
-                        monitor.push(&s);
-                    }
-                    Some(SourceEvent::Status { source, state: SourceState::Ended }) => {
-                        ended += 1;
-                        say(&format!("{source}: ended"));
-                        if ended == total {
-                            break 1;
+                ev = started.rx.recv() => {
+                    let Some(ev) = ev else { break ExitCode::Runtime };
+                    match &ev {
+                        SourceEvent::Samples(s) => {
+                            if let Some(t) = s.iter().map(|s| s.time).max() {
+                                first_data.get_or_insert(t);
+                                clock.saw(t);
+                            }
                         }
+                        SourceEvent::Status { source, state: SourceState::Ended } => {
+                            ended += 1;
+                            say(&format!("{source}: ended"));
+                        }
+                        SourceEvent::Status { source, state } => say(&format!("{source}: {state}")),
+                        SourceEvent::Error { source, message } => say(&format!("{source}: {message}")),
+                        SourceEvent::Unparsed { .. } => {}
                     }
-                    Some(SourceEvent::Status { source, state }) => say(&format!("{source}: {state}")),
-                    Some(SourceEvent::Error { source, message }) => say(&format!("{source}: {message}")),
-                    Some(SourceEvent::Unparsed { .. }) => {}
+                    pipeline.feed(&ev, live(&clock), &mut Nowhere);
+                    if ended == total && gate_state(&pipeline).is_none_or(|g| g.0 != GateState::Ready) {
+                        break ExitCode::Runtime;
+                    }
                 },
                 _ = tick.tick() => {
-                    if let Some(now) = clock.now() {
-                        monitor.tick(now);
+                    if let Some(now) = live(&clock) {
+                        pipeline.advance_to(now, &mut Nowhere);
                     }
                 }
             }
-            if let Some((state, reason)) = gate_state(&monitor) {
+            if let Some((state, reason)) = gate_state(&pipeline) {
                 if state == GateState::Ready {
                     say(&format!("gate {name}: ready"));
-                    break 0;
+                    break ExitCode::Ok;
                 }
                 let text = reason.unwrap_or_default();
                 if text != last_said {
@@ -123,21 +133,26 @@ pub fn run(command: &GateCommand) -> Result<u8, CliError> {
                 }
             }
             if let Some(limit) = timeout {
-                let data_elapsed = match (first_data, monitor.now()) {
+                let data_elapsed = match (first_data, pipeline.monitor().now()) {
                     (Some(a), Some(b)) => (b - a).num_milliseconds() as f64 / 1000.0,
                     _ => 0.0,
                 };
                 if data_elapsed >= *limit || wall_start.elapsed().as_secs_f64() >= *limit {
                     say(&format!("gate {name}: not ready after {limit} s: giving up"));
-                    break if first_data.is_some() { 3 } else { 1 };
+                    break if first_data.is_some() {
+                        ExitCode::Trip
+                    } else {
+                        ExitCode::Runtime
+                    };
                 }
             }
         };
         started.stop();
-        code
+        Ok::<ExitCode, CliError>(code)
     });
     rt.shutdown_background();
-    if result == 1 {
+    let result = result?;
+    if result == ExitCode::Runtime {
         say(&format!(
             "gate {name}: the sources failed before the gate was ready"
         ));

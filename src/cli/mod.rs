@@ -1,6 +1,6 @@
 //! The `rarefy` command line: argument definitions and dispatch. Each command
-//! lives in its own module and returns a [`CliError`] that maps to the exit
-//! codes of the product: 0 ok, 1 runtime failure, 2 usage or config error.
+//! lives in its own module and ends in an [`ExitCode`], or a [`CliError`]
+//! that maps to one.
 
 mod calc;
 mod config_cmd;
@@ -12,7 +12,6 @@ mod watch;
 
 use std::io::Write;
 use std::path::PathBuf;
-use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
@@ -73,11 +72,31 @@ pub enum CliError {
     Runtime(String),
 }
 
+/// The product's exit codes, in one place.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ExitCode {
+    /// 0: done.
+    Ok = 0,
+    /// 1: something failed at run time (a source, a file, lost data).
+    Runtime = 1,
+    /// 2: bad arguments or a bad configuration.
+    Usage = 2,
+    /// 3: an alarm of severity trip was active (`record`, `report`), or a
+    /// gate was not ready in time (`gate wait`).
+    Trip = 3,
+}
+
+impl From<ExitCode> for std::process::ExitCode {
+    fn from(c: ExitCode) -> Self {
+        std::process::ExitCode::from(c as u8)
+    }
+}
+
 impl CliError {
-    fn exit_code(&self) -> u8 {
+    fn exit_code(&self) -> ExitCode {
         match self {
-            CliError::Usage(_) | CliError::Config(_) => 2,
-            CliError::Runtime(_) => 1,
+            CliError::Usage(_) | CliError::Config(_) => ExitCode::Usage,
+            CliError::Runtime(_) => ExitCode::Runtime,
         }
     }
 }
@@ -88,12 +107,45 @@ impl From<std::io::Error> for CliError {
     }
 }
 
-/// Loads `--config F`, or the built-in defaults without one.
-fn load_config(path: Option<&PathBuf>) -> Result<Config, CliError> {
+/// A resolved configuration and, when it came from a file, the file's path
+/// and text (which a recording keeps in its header).
+pub(crate) struct LoadedConfig {
+    /// The resolved configuration.
+    pub config: Config,
+    /// Where it came from, and its text as read.
+    pub file: Option<(PathBuf, String)>,
+}
+
+/// Loads `--config F`, or the built-in defaults without one. The file is
+/// read once: what is resolved is exactly the text a recording keeps.
+fn load_config(path: Option<&PathBuf>) -> Result<LoadedConfig, CliError> {
     match path {
-        Some(p) => Ok(config::load(p)?),
-        None => Ok(Config::default()),
+        Some(p) => {
+            let text = std::fs::read_to_string(p).map_err(|e| {
+                CliError::Config(ConfigErrors(vec![config::ConfigError::file(
+                    p,
+                    format!("cannot read the file: {e}"),
+                )]))
+            })?;
+            Ok(LoadedConfig {
+                config: config::parse(&text, p)?,
+                file: Some((p.clone(), text)),
+            })
+        }
+        None => Ok(LoadedConfig {
+            config: Config::default(),
+            file: None,
+        }),
     }
+}
+
+/// The runtime every live command runs on.
+fn runtime() -> Result<tokio::runtime::Runtime, CliError> {
+    tokio::runtime::Builder::new_multi_thread()
+        .worker_threads(2)
+        .enable_all()
+        .build()
+        .map_err(|e| CliError::Runtime(format!("cannot start the runtime: {e}")))
 }
 
 /// Writes to stdout; a closed pipe (`rarefy gases | head`) is not an error.
@@ -106,13 +158,18 @@ fn print_out(text: &str) -> Result<(), CliError> {
 }
 
 /// Runs the command line and returns the process exit code.
-pub fn main() -> ExitCode {
+pub fn main() -> std::process::ExitCode {
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
         Err(e) => {
             // Prints help/version to stdout (exit 0) or the error (exit 2).
             let _ = e.print();
-            return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
+            return if e.use_stderr() {
+                ExitCode::Usage
+            } else {
+                ExitCode::Ok
+            }
+            .into();
         }
     };
     let result = match cli.command {
@@ -126,10 +183,10 @@ pub fn main() -> ExitCode {
         Command::Gate { command } => gate::run(&command),
     };
     match result {
-        Ok(code) => ExitCode::from(code),
+        Ok(code) => code.into(),
         Err(e) => {
             eprintln!("error: {e}");
-            ExitCode::from(e.exit_code())
+            e.exit_code().into()
         }
     }
 }

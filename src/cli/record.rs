@@ -2,7 +2,6 @@
 //! Human status lines go to stderr; machine-readable events to stdout as
 //! JSON lines.
 
-use std::io::Write;
 use std::path::PathBuf;
 use std::time::Duration;
 
@@ -10,14 +9,14 @@ use clap::Args;
 use serde_json::json;
 use tokio::signal::unix::{SignalKind, signal};
 
-use super::{CliError, load_config};
+use super::{CliError, ExitCode, LoadedConfig, load_config};
 use crate::action::ActionRunner;
-use crate::alarm::{Event, Monitor};
-use crate::config::{Config, SourceConfig};
-use crate::ingest::{self, DataClock, emit, event_json, say};
-use crate::log::v1::{LogMeta, format_time};
+use crate::alarm::Monitor;
+use crate::config::SourceConfig;
+use crate::pipeline::sinks::{Actions, JsonLines, Recording, RecordingNote, emit, say};
+use crate::pipeline::start::{self, ConfigFile};
+use crate::pipeline::{DataClock, Nowhere, Pipeline};
 use crate::record::{Deriver, RecordEvent, Recorder};
-use crate::sample::{SourceEvent, SourceState};
 use crate::units::{self, SizeUnit, TimeUnit};
 
 /// `rarefy record` arguments.
@@ -67,71 +66,138 @@ fn duration(s: &str) -> Result<f64, String> {
     }
 }
 
-fn report(events: Vec<RecordEvent>) {
-    for e in events {
-        match e {
-            RecordEvent::Opened { path, reason } => {
-                say(&format!("recording to {} ({reason})", path.display()));
-                emit(json!({"event": "file-opened", "path": path, "reason": reason}));
-            }
-            RecordEvent::Closed { path, rows } => {
-                emit(json!({"event": "file-closed", "path": path, "rows": rows}));
-            }
-            RecordEvent::WriteFailed {
-                path,
-                error,
-                buffered,
-            } => {
-                say(&format!(
-                    "WRITE FAILED: {}: {error}; {buffered} rows kept in memory, retrying",
-                    path.display()
-                ));
-                emit(
-                    json!({"event": "write-failed", "path": path, "error": error, "buffered": buffered}),
-                );
-            }
-            RecordEvent::Recovered { path } => {
-                say(&format!("writing again, to {}", path.display()));
-                emit(json!({"event": "write-recovered", "path": path}));
-            }
-            RecordEvent::Lost { rows, total } => {
-                say(&format!(
-                    "DATA LOST: memory buffer full, {rows} rows dropped ({total} in all)"
-                ));
-                emit(json!({"event": "rows-lost", "rows": rows, "total": total}));
-            }
+/// Tells the user what the recording did: stderr for people, stdout JSON.
+pub(crate) fn report(note: RecordingNote) {
+    match note {
+        RecordingNote::Recorder(RecordEvent::Opened { path, reason }) => {
+            say(&format!("recording to {} ({reason})", path.display()));
+            emit(json!({"event": "file-opened", "path": path, "reason": reason}));
+        }
+        RecordingNote::Recorder(RecordEvent::Closed { path, rows }) => {
+            emit(json!({"event": "file-closed", "path": path, "rows": rows}));
+        }
+        RecordingNote::Recorder(RecordEvent::WriteFailed {
+            path,
+            error,
+            buffered,
+        }) => {
+            say(&format!(
+                "WRITE FAILED: {}: {error}; {buffered} rows kept in memory, retrying",
+                path.display()
+            ));
+            emit(
+                json!({"event": "write-failed", "path": path, "error": error, "buffered": buffered}),
+            );
+        }
+        RecordingNote::Recorder(RecordEvent::Recovered { path }) => {
+            say(&format!("writing again, to {}", path.display()));
+            emit(json!({"event": "write-recovered", "path": path}));
+        }
+        RecordingNote::Recorder(RecordEvent::Lost { rows, total }) => {
+            say(&format!(
+                "DATA LOST: memory buffer full, {rows} rows dropped ({total} in all)"
+            ));
+            emit(json!({"event": "rows-lost", "rows": rows, "total": total}));
+        }
+        RecordingNote::EventLog(message) => {
+            say(&message);
+            emit(json!({"event": "event-log-failed", "message": message}));
         }
     }
 }
 
+fn report_outcome(o: &crate::action::Outcome) {
+    if o.status != "ok" {
+        say(&format!("action for {}: {}: {}", o.id, o.status, o.message));
+    }
+    emit(json!({"event": "action", "id": o.id, "status": o.status, "message": o.message}));
+}
+
 /// Runs `rarefy record`.
-pub fn run(args: &RecordArgs) -> Result<u8, CliError> {
-    let config = load_config(args.config.as_ref())?;
-    let sources = ingest::sources(&args.source, &config).map_err(CliError::Usage)?;
+pub fn run(args: &RecordArgs) -> Result<ExitCode, CliError> {
+    let loaded = load_config(args.config.as_ref())?;
+    let sources = start::sources(&args.source, &loaded.config).map_err(CliError::Usage)?;
     let dir = args
         .out
         .clone()
-        .or(config.record.dir.clone())
+        .or(loaded.config.record.dir.clone())
         .ok_or_else(|| {
             CliError::Usage("--out DIR is required (or [record] dir in the config)".into())
         })?;
-    let rt = tokio::runtime::Builder::new_multi_thread()
-        .worker_threads(2)
-        .enable_all()
-        .build()
-        .map_err(|e| CliError::Runtime(format!("cannot start the runtime: {e}")))?;
-    let result = rt.block_on(record(args, &config, sources, dir));
+    let rt = super::runtime()?;
+    let result = rt.block_on(record(args, &loaded, sources, dir));
     // A blocking read of an open stdin would hold a normal shutdown forever.
     rt.shutdown_background();
     result
 }
 
+/// What a recording run is made of, for `record` and `watch --record`
+/// alike: the same header, the same sinks.
+pub(crate) struct RecordPlan<'a> {
+    pub loaded: &'a LoadedConfig,
+    pub alarms: &'a [String],
+    pub dir: PathBuf,
+    pub derived: bool,
+    pub max_size: Option<u64>,
+    pub buffer_rows: Option<usize>,
+}
+
+impl RecordPlan<'_> {
+    /// The recorder for these sources.
+    pub fn recorder(&self, started: &start::Started) -> Recorder {
+        let config = &self.loaded.config;
+        let mut settings = config.record.settings.clone();
+        settings.dir = self.dir.clone();
+        if let Some(m) = self.max_size {
+            settings.max_bytes = Some(m);
+        }
+        if let Some(b) = self.buffer_rows {
+            settings.buffer_rows = b.max(1);
+        }
+        let file = self
+            .loaded
+            .file
+            .as_ref()
+            .map(|(path, text)| ConfigFile { path, text });
+        let meta = start::log_meta(config, file, self.alarms, started);
+        let recorder = Recorder::new(settings, meta, &started.channels);
+        if self.derived || config.record.derived {
+            recorder.with_derived(Deriver::from_config(config))
+        } else {
+            recorder
+        }
+    }
+}
+
+/// The pipeline every live driver starts with: the config's rules and the
+/// one-off alarms, every announced channel watched for silence, every live
+/// source's connection watched.
+pub(crate) fn live_pipeline(
+    loaded: &LoadedConfig,
+    alarms: &[String],
+    started: &start::Started,
+) -> Result<Pipeline, CliError> {
+    let rules =
+        start::cli_rules(alarms, &loaded.config, &started.channels).map_err(CliError::Usage)?;
+    let mut monitor = Monitor::new(loaded.config.monitor_setup(rules));
+    for c in &started.channels {
+        monitor.expect_channel(&c.id);
+    }
+    let mut pipeline = Pipeline::new(monitor);
+    if !started.finite {
+        for name in &started.names {
+            pipeline.watch_link(name);
+        }
+    }
+    Ok(pipeline)
+}
+
 async fn record(
     args: &RecordArgs,
-    config: &Config,
+    loaded: &LoadedConfig,
     sources: Vec<SourceConfig>,
     dir: PathBuf,
-) -> Result<u8, CliError> {
+) -> Result<ExitCode, CliError> {
     // A file-size limit must give EFBIG, not kill the process.
     let _xfsz = signal(SignalKind::from_raw(nix_sigxfsz()))
         .map_err(|e| CliError::Runtime(format!("cannot handle SIGXFSZ: {e}")))?;
@@ -139,113 +205,75 @@ async fn record(
         .map_err(|e| CliError::Runtime(format!("cannot handle SIGTERM: {e}")))?;
     let mut sigint = signal(SignalKind::interrupt())
         .map_err(|e| CliError::Runtime(format!("cannot handle SIGINT: {e}")))?;
-
-    let mut settings = config.record.settings.clone();
-    settings.dir = dir;
-    if let Some(m) = args.max_size {
-        settings.max_bytes = Some(m);
-    }
-    if let Some(b) = args.buffer_rows {
-        settings.buffer_rows = b.max(1);
-    }
+    let config = &loaded.config;
     let flush_s = args.flush.unwrap_or(config.record.flush_s);
 
-    let started = ingest::start(sources, 4096);
-    let rules =
-        ingest::cli_rules(&args.alarm, config, &started.channels).map_err(CliError::Usage)?;
-    let mut monitor = Monitor::new(config.monitor_setup(rules));
-    let (mut actions, mut outcomes) = ActionRunner::new(config.alarms.actions.clone());
-    let ingest::Started {
-        mut rx,
-        tasks,
-        channels,
-        names,
-        sim: sim_meta,
-    } = started;
-    let mut events_file: Option<(PathBuf, std::fs::File)> = None;
-    let mut clock = DataClock::default();
-
-    let mut meta = LogMeta {
-        chamber: (!config.chamber.name.is_empty()).then(|| config.chamber.name.clone()),
-        volume_m3: config.chamber.volume_m3,
-        surface_area_m2: config.chamber.surface_area_m2,
-        gas: Some(config.mixture.label()),
-        source: Some(names.join(" ")),
-        extra: ingest::alarm_meta(args.config.as_deref(), &args.alarm),
-        ..LogMeta::default()
+    let mut started = start::start(sources, 4096);
+    let plan = RecordPlan {
+        loaded,
+        alarms: &args.alarm,
+        dir,
+        derived: args.derived,
+        max_size: args.max_size,
+        buffer_rows: args.buffer_rows,
     };
-    // Recording the simulated chamber: its own name and size, unless the
-    // config describes the chamber.
-    if let Some(sim) = sim_meta.as_ref().filter(|_| meta.chamber.is_none()) {
-        meta.chamber = Some(sim.chamber_name().to_string());
-        meta.volume_m3 = Some(sim.volume_m3());
-        meta.surface_area_m2 = Some(sim.surface_area_m2());
-    }
-    let mut recorder = Recorder::new(settings, meta, &channels);
-    if args.derived || config.record.derived {
-        recorder = recorder.with_derived(Deriver::from_config(config));
-    }
+    let mut pipeline = live_pipeline(loaded, &args.alarm, &started)?;
+    let (recording, mut notes) = Recording::start(plan.recorder(&started));
+    let recording_state = recording.state();
+    let (actions, mut outcomes) = ActionRunner::new(config.alarms.actions.clone());
+    pipeline.add_sink(Box::new(recording));
+    pipeline.add_sink(Box::new(JsonLines));
+    pipeline.add_sink(Box::new(Actions(actions)));
 
-    let mut tick = tokio::time::interval(Duration::from_secs_f64(flush_s));
+    let mut clock = DataClock::start();
+    if !started.finite {
+        pipeline.start(clock.now(), &mut Nowhere);
+    }
+    let mut tick = tokio::time::interval(Duration::from_secs_f64(flush_s.min(1.0)));
     tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
-    let mut samples: u64 = 0;
-    let mut unparsed: u64 = 0;
+    let mut last_flush = std::time::Instant::now();
     let mut last_reminder = std::time::Instant::now();
     let mut stopped_by = None;
-    let events_dir = recorder_dir(&recorder);
-    let mut on_events = |events: Vec<Event>, actions: &mut ActionRunner| {
-        for e in events {
-            say(&format!(
-                "{} {}: {}",
-                e.time.format("%H:%M:%S"),
-                e.id,
-                e.text
-            ));
-            emit(event_json(&e));
-            write_event(&mut events_file, &events_dir, &e);
-            actions.fire(&e);
-        }
-    };
+    let live = |clock: &DataClock, finite: bool| (!finite).then(|| clock.now());
     loop {
         tokio::select! {
             biased;
             _ = sigterm.recv() => { stopped_by = Some("SIGTERM"); break; }
             _ = sigint.recv() => { stopped_by = Some("SIGINT"); break; }
-            ev = rx.recv() => {
+            ev = started.rx.recv() => {
                 let Some(ev) = ev else { break };
-                if let SourceEvent::Samples(s) = &ev {
-                    if let Some(t) = s.iter().map(|s| s.time).max() {
-                        clock.saw(t);
-                    }
-                    on_events(monitor.push(s), &mut actions);
+                if let crate::sample::SourceEvent::Samples(s) = &ev
+                    && let Some(t) = s.iter().map(|s| s.time).max()
+                {
+                    clock.saw(t);
                 }
-                handle(ev, &mut recorder, &mut samples, &mut unparsed);
-                if args.exit_on_trip && monitor.trip_active() {
+                pipeline.feed(&ev, live(&clock, started.finite), &mut Nowhere);
+                if args.exit_on_trip && pipeline.monitor().trip_active() {
                     stopped_by = Some("a trip alarm");
                     break;
                 }
             }
-            Some(o) = outcomes.recv() => {
-                if o.status != "ok" {
-                    say(&format!("action for {}: {}: {}", o.id, o.status, o.message));
-                }
-                emit(json!({"event": "action", "id": o.id, "status": o.status, "message": o.message}));
-            }
+            Some(o) = outcomes.recv() => report_outcome(&o),
+            Some(n) = notes.recv() => report(n),
             _ = tick.tick() => {
-                if let Some(now) = clock.now() {
-                    on_events(monitor.tick(now), &mut actions);
+                // Live only: no data by now is news too.
+                if !started.finite {
+                    pipeline.advance_to(clock.now(), &mut Nowhere);
+                    if args.exit_on_trip && pipeline.monitor().trip_active() {
+                        stopped_by = Some("a trip alarm");
+                        break;
+                    }
                 }
-                recorder.flush();
-                report(recorder.take_events());
-                if recorder.is_failing() && last_reminder.elapsed() > Duration::from_secs(10) {
+                if last_flush.elapsed().as_secs_f64() >= flush_s {
+                    pipeline.flush();
+                    last_flush = std::time::Instant::now();
+                }
+                let failing = recording_state.lock().map(|s| (s.failing, s.buffered)).unwrap_or_default();
+                if failing.0 && last_reminder.elapsed() > Duration::from_secs(10) {
                     last_reminder = std::time::Instant::now();
-                    say(&format!("still cannot write; {} rows in memory", recorder.buffered()));
+                    say(&format!("still cannot write; {} rows in memory", failing.1));
                 }
             }
-        }
-        if recorder.buffered() >= 4096 {
-            recorder.flush();
-            report(recorder.take_events());
         }
     }
     // On a signal, first take in what the sources already have in hand (a
@@ -255,125 +283,64 @@ async fn record(
         let deadline = tokio::time::Instant::now() + Duration::from_secs(2);
         while let Ok(Some(ev)) = tokio::time::timeout_at(
             deadline.min(tokio::time::Instant::now() + Duration::from_millis(200)),
-            rx.recv(),
+            started.rx.recv(),
         )
         .await
         {
-            handle(ev, &mut recorder, &mut samples, &mut unparsed);
+            pipeline.feed(&ev, live(&clock, started.finite), &mut Nowhere);
         }
     }
-    for t in &tasks {
-        t.abort();
-    }
-    while let Ok(ev) = rx.try_recv() {
-        handle(ev, &mut recorder, &mut samples, &mut unparsed);
-    }
-    let left = recorder.close();
-    report(recorder.take_events());
-    actions.finish().await;
-    while let Ok(o) = outcomes.try_recv() {
-        if o.status != "ok" {
-            say(&format!("action for {}: {}: {}", o.id, o.status, o.message));
+    started.stop();
+    // Stopped by a trip: the run ends at the trip, so rows read after it
+    // are not part of it. Otherwise keep whatever is queued.
+    if stopped_by != Some("a trip alarm") {
+        while let Ok(ev) = started.rx.try_recv() {
+            pipeline.feed(&ev, live(&clock, started.finite), &mut Nowhere);
         }
-        emit(json!({"event": "action", "id": o.id, "status": o.status, "message": o.message}));
+    }
+    // Every sink closes: the recording's thread writes what is left.
+    let problems = pipeline.finish();
+    while let Ok(n) = notes.try_recv() {
+        report(n);
+    }
+    // The action runner went with its sink; wait for the commands still
+    // running (each bounded by its timeout) so their outcomes are reported.
+    while let Some(o) = outcomes.recv().await {
+        report_outcome(&o);
     }
     if let Some(sig) = stopped_by {
         say(&format!("{sig}: stopped"));
     }
+    let counts = pipeline.counts();
+    let summary = recording_state
+        .lock()
+        .ok()
+        .and_then(|s| s.summary.clone())
+        .unwrap_or_default();
     emit(json!({
         "event": "summary",
-        "samples": samples,
-        "rows": recorder.rows_written(),
-        "unparsed": unparsed,
-        "rows_lost": recorder.rows_lost(),
-        "rows_unwritten": left,
+        "samples": counts.samples,
+        "rows": summary.rows_written,
+        "unparsed": counts.unparsed,
+        "rows_lost": summary.rows_lost,
+        "rows_unwritten": summary.rows_unwritten,
+        "events": summary.events_written,
     }));
     say(&format!(
-        "{samples} samples in {} rows written; {unparsed} unparsed lines",
-        recorder.rows_written()
+        "{} samples in {} rows written; {} unparsed lines",
+        counts.samples, summary.rows_written, counts.unparsed
     ));
-    if left > 0 || recorder.rows_lost() > 0 {
-        say(&format!(
-            "DATA LOST: {} rows dropped, {left} rows could not be written",
-            recorder.rows_lost()
-        ));
-        return Ok(1);
+    for p in &problems {
+        say(p);
     }
-    if monitor.trip_seen() {
+    if !problems.is_empty() {
+        return Ok(ExitCode::Runtime);
+    }
+    if pipeline.monitor().trip_seen() {
         say("a trip alarm was active: exit code 3");
-        return Ok(3);
+        return Ok(ExitCode::Trip);
     }
-    Ok(0)
-}
-
-fn recorder_dir(r: &Recorder) -> PathBuf {
-    r.dir().to_path_buf()
-}
-
-/// Appends an event to the run's event log beside the recording,
-/// `events-<time of the first event>.jsonl`.
-fn write_event(file: &mut Option<(PathBuf, std::fs::File)>, dir: &std::path::Path, e: &Event) {
-    if file.is_none() {
-        let path = dir.join(format!("events-{}.jsonl", e.time.format("%Y%m%dT%H%M%SZ")));
-        match std::fs::create_dir_all(dir).and_then(|()| {
-            std::fs::OpenOptions::new()
-                .create(true)
-                .append(true)
-                .open(&path)
-        }) {
-            Ok(f) => *file = Some((path, f)),
-            Err(err) => {
-                say(&format!(
-                    "cannot write the event log {}: {err}",
-                    path.display()
-                ));
-                return;
-            }
-        }
-    }
-    if let Some((path, f)) = file.as_mut()
-        && let Err(err) = writeln!(f, "{}", e.to_json())
-    {
-        say(&format!(
-            "cannot write the event log {}: {err}",
-            path.display()
-        ));
-    }
-}
-
-fn handle(ev: SourceEvent, recorder: &mut Recorder, samples: &mut u64, unparsed: &mut u64) {
-    match ev {
-        SourceEvent::Samples(s) => {
-            *samples += s.len() as u64;
-            if recorder.push_row(&s) {
-                recorder.flush();
-                report(recorder.take_events());
-            }
-        }
-        SourceEvent::Status { source, state } => {
-            say(&format!("{source}: {state}"));
-            let mut v = json!({"event": "source", "source": source, "state": match state {
-                SourceState::Connected => "connected",
-                SourceState::Retrying { .. } => "retrying",
-                SourceState::Ended => "ended",
-            }});
-            if let SourceState::Retrying { in_s } = state {
-                v["retry_in_s"] = json!(in_s);
-            }
-            emit(v);
-        }
-        SourceEvent::Unparsed { source, time, text } => {
-            *unparsed += 1;
-            say(&format!("{source}: unparsed line: {text}"));
-            emit(
-                json!({"event": "unparsed", "source": source, "time": format_time(time), "text": text}),
-            );
-        }
-        SourceEvent::Error { source, message } => {
-            say(&format!("{source}: {message}"));
-            emit(json!({"event": "source-error", "source": source, "message": message}));
-        }
-    }
+    Ok(ExitCode::Ok)
 }
 
 /// SIGXFSZ's number (25 on Linux for every architecture rarefy builds on).

@@ -7,7 +7,7 @@ use std::path::PathBuf;
 use chrono::{DateTime, Utc};
 use clap::Args;
 
-use super::{CliError, print_out};
+use super::{CliError, ExitCode, print_out};
 use crate::log::v1::{self, Cell, Column, LogMeta};
 use crate::sim::{Scenario, SimOptions, Simulator};
 use crate::units::{self, TimeUnit};
@@ -50,7 +50,7 @@ fn start_time(s: &str) -> Result<DateTime<Utc>, String> {
 }
 
 /// Runs `rarefy simulate`.
-pub fn run(args: &SimulateArgs) -> Result<u8, CliError> {
+pub fn run(args: &SimulateArgs) -> Result<ExitCode, CliError> {
     let scenario: Scenario = args
         .scenario
         .parse()
@@ -117,5 +117,5 @@ pub fn run(args: &SimulateArgs) -> Result<u8, CliError> {
         args.out.display(),
         crate::units::format_sig(end_s / 60.0, 3) + " min"
     ))?;
-    Ok(0)
+    Ok(ExitCode::Ok)
 }

@@ -5,11 +5,14 @@ use std::path::PathBuf;
 use chrono::{DateTime, Utc};
 use clap::Args;
 
-use super::{CliError, load_config};
+use super::record::{RecordPlan, live_pipeline};
+use super::{CliError, ExitCode, LoadedConfig, load_config};
+use crate::action::ActionRunner;
 use crate::config::{self, Config};
-use crate::ingest;
 use crate::logfile::open_log;
-use crate::record::{Deriver, Recorder};
+use crate::operator::local_user;
+use crate::pipeline::sinks::{Actions, Recording};
+use crate::pipeline::start;
 use crate::ui::app::{App, GaugeInfo, Speed};
 use crate::ui::run::{self, ReplaySetup};
 
@@ -87,14 +90,6 @@ fn gauges(config: &Config) -> Vec<GaugeInfo> {
         .collect()
 }
 
-fn runtime() -> Result<tokio::runtime::Runtime, CliError> {
-    tokio::runtime::Builder::new_multi_thread()
-        .worker_threads(2)
-        .enable_all()
-        .build()
-        .map_err(|e| CliError::Runtime(format!("cannot start the runtime: {e}")))
-}
-
 fn styled(app: &mut App, ascii: bool, config: &Config) {
     app.ascii = ascii || run::ascii_fallback();
     app.color = run::use_color();
@@ -103,18 +98,19 @@ fn styled(app: &mut App, ascii: bool, config: &Config) {
 }
 
 /// Runs `rarefy watch`.
-pub fn watch(args: &WatchArgs) -> Result<u8, CliError> {
-    let (config, config_path) = match (&args.config, args.demo) {
-        (Some(p), _) => (load_config(Some(p))?, Some(p.clone())),
-        (None, true) => (
-            config::parse(
-                DEMO_CONFIG,
-                std::path::Path::new("config/demo.toml (built in)"),
-            )?,
-            None,
-        ),
-        (None, false) => (Config::default(), None),
+pub fn watch(args: &WatchArgs) -> Result<ExitCode, CliError> {
+    let loaded = match (&args.config, args.demo) {
+        (Some(p), _) => load_config(Some(p))?,
+        (None, true) => {
+            let path = PathBuf::from("config/demo.toml (built in)");
+            LoadedConfig {
+                config: config::parse(DEMO_CONFIG, &path)?,
+                file: Some((path, DEMO_CONFIG.to_string())),
+            }
+        }
+        (None, false) => load_config(None)?,
     };
+    let config = &loaded.config;
     let mut sources_cli = args.source.clone();
     if args.demo && sources_cli.is_empty() {
         sources_cli.push(DEMO_SOURCE.into());
@@ -129,56 +125,71 @@ pub fn watch(args: &WatchArgs) -> Result<u8, CliError> {
             "no source: give --source URI, a --config with [[source]], or --demo (or pipe readings into stdin)".into(),
         ));
     }
-    let sources = ingest::sources(&sources_cli, &config).map_err(CliError::Usage)?;
-    let rt = runtime()?;
+    let sources = start::sources(&sources_cli, config).map_err(CliError::Usage)?;
+    let rt = super::runtime()?;
     let result = rt.block_on(async {
-        let started = ingest::start(sources, 8192);
-        let rules =
-            ingest::cli_rules(&args.alarm, &config, &started.channels).map_err(CliError::Usage)?;
-        let monitor = crate::alarm::Monitor::new(config.monitor_setup(rules));
+        let mut started = start::start(sources, 8192);
+        let mut pipeline = live_pipeline(&loaded, &args.alarm, &started)?;
         let title = match (&started.sim, config.chamber.name.is_empty()) {
             (_, false) => config.chamber.name.clone(),
             (Some(sim), true) => sim.chamber_name().to_string(),
             (None, true) => "chamber".to_string(),
         };
-        let mut app = App::new(title, monitor, gauges(&config));
-        styled(&mut app, args.ascii, &config);
-        app.config_path = config_path.clone();
+        // Recording while watching: the same header and the same sinks as
+        // `rarefy record` (log, event log, actions), on their own thread.
         let record_dir =
             args.record
                 .clone()
                 .or(config.record.dir.clone().filter(|_| args.config.is_some()));
-        let recorder = record_dir.map(|dir| {
-            let mut settings = config.record.settings.clone();
-            settings.dir = dir;
-            let meta = crate::log::LogMeta {
-                chamber: Some(app.title.clone()),
-                gas: Some(config.mixture.label()),
-                source: Some(started.names.join(" ")),
-                extra: ingest::alarm_meta(args.config.as_deref(), &args.alarm),
-                ..Default::default()
+        let (mut notes, mut recording, mut outcomes) = (None, None, None);
+        if let Some(dir) = record_dir.clone() {
+            let plan = RecordPlan {
+                loaded: &loaded,
+                alarms: &args.alarm,
+                dir,
+                derived: false,
+                max_size: None,
+                buffer_rows: None,
             };
-            let r = Recorder::new(settings, meta, &started.channels);
-            if config.record.derived {
-                r.with_derived(Deriver::from_config(&config))
-            } else {
-                r
-            }
-        });
-        if let Some(r) = &recorder {
-            app.log_file = Some(r.dir().to_path_buf());
+            let (rec, n) = Recording::start(plan.recorder(&started));
+            recording = Some(rec.state());
+            notes = Some(n);
+            pipeline.add_sink(Box::new(rec));
+            let (actions, o) = ActionRunner::new(config.alarms.actions.clone());
+            outcomes = Some(o);
+            pipeline.add_sink(Box::new(Actions(actions)));
         }
-        let ingest::Started { rx, tasks, .. } = started;
-        let out = run::live(app, rx, recorder)
-            .await
-            .map_err(CliError::Runtime);
-        for t in tasks {
-            t.abort();
-        }
+        let mut app = App::with_pipeline(title, pipeline, gauges(config));
+        app.user = local_user();
+        styled(&mut app, args.ascii, config);
+        app.config_path = args.config.clone();
+        app.log_file = record_dir;
+        let rx = std::mem::replace(&mut started.rx, tokio::sync::mpsc::channel(1).1);
+        let out = run::live(
+            app,
+            run::LiveInput {
+                rx,
+                finite: started.finite,
+                notes,
+                recording,
+                outcomes,
+            },
+        )
+        .await
+        .map_err(CliError::Runtime);
+        started.stop();
         out
     });
     rt.shutdown_background();
-    result.map(|()| 0)
+    let problems = result?;
+    for p in &problems {
+        eprintln!("rarefy: {p}");
+    }
+    Ok(if problems.is_empty() {
+        ExitCode::Ok
+    } else {
+        ExitCode::Runtime
+    })
 }
 
 /// Reads `--from`: RFC 3339, or HH:MM[:SS] on the log's first day.
@@ -187,8 +198,8 @@ fn from_time(text: &str, start: DateTime<Utc>) -> Result<DateTime<Utc>, CliError
 }
 
 /// Runs `rarefy replay`.
-pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
-    let mut config = load_config(args.config.as_ref())?;
+pub fn replay(args: &ReplayArgs) -> Result<ExitCode, CliError> {
+    let mut config = load_config(args.config.as_ref())?.config;
     let meta = open_log(&args.log, config.log.as_ref())
         .map_err(|e| CliError::Runtime(e.to_string()))?
         .meta()
@@ -199,11 +210,26 @@ pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
             .find(|(k, _)| k == key)
             .map(|(_, v)| v.clone())
     };
-    // Without --config: the config the log was recorded with, when it is
-    // still there, so the replay gives the same alarms and gates.
+    // Without --config: the config the log was recorded with. Its text is
+    // in the header, so editing the file since cannot change what the replay
+    // rebuilds; older logs only name the file.
     let mut note = None;
     let mut config_path = args.config.clone();
+    let kept = start::recorded_config(&meta);
     if args.config.is_none()
+        && let Some(text) = kept
+    {
+        let name = PathBuf::from(format!(
+            "{} (config recorded in the log)",
+            args.log.display()
+        ));
+        config = config::parse(&text, &name)?;
+        let named = recorded("config").unwrap_or_default();
+        note = Some(format!(
+            "config named in the log, as recorded in it: {named}"
+        ));
+        config_path = Some(PathBuf::from(named)).filter(|p| p.is_file());
+    } else if args.config.is_none()
         && let Some(p) = recorded("config").map(PathBuf::from)
     {
         match config::load(&p) {
@@ -240,7 +266,7 @@ pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
     let channels: Vec<crate::sample::ChannelInfo> = open_log(&args.log, config.log.as_ref())
         .map(|l| l.channels())
         .unwrap_or_default();
-    let rules = ingest::cli_rules(&one_offs, &config, &channels).map_err(CliError::Usage)?;
+    let rules = start::cli_rules(&one_offs, &config, &channels).map_err(CliError::Usage)?;
     let setup = ReplaySetup {
         file: args.log.clone(),
         foreign: config.log.clone(),
@@ -267,10 +293,10 @@ pub fn replay(args: &ReplayArgs) -> Result<u8, CliError> {
     app.config_path = config_path;
     app.message = note;
     app.replay = Some(replay);
-    let rt = runtime()?;
+    let rt = super::runtime()?;
     let result = rt.block_on(run::replay(app, setup, from));
     rt.shutdown_background();
-    result.map_err(CliError::Runtime).map(|()| 0)
+    result.map_err(CliError::Runtime).map(|()| ExitCode::Ok)
 }
 
 #[cfg(test)]

@@ -63,7 +63,9 @@ impl ActionRunner {
                 status: "skipped",
                 message: format!(
                     "not run for {} -> {}: ran less than {} s ago",
-                    event.from, event.to, spec.repeat_after_s
+                    event.from_text(),
+                    event.to_text(),
+                    spec.repeat_after_s
                 ),
             });
             return;
@@ -100,18 +102,11 @@ async fn run(spec: &ActionSpec, event: &Event, json: String) -> Outcome {
         .stdout(Stdio::null())
         .stderr(Stdio::piped())
         .kill_on_drop(true)
-        .env(
-            "RAREFY_EVENT_KIND",
-            if event.kind == crate::alarm::EventKind::Alarm {
-                "alarm"
-            } else {
-                "gate"
-            },
-        )
+        .env("RAREFY_EVENT_KIND", event.kind().as_str())
         .env("RAREFY_EVENT_ID", &event.id)
         .env("RAREFY_EVENT_LABEL", &event.label)
-        .env("RAREFY_EVENT_FROM", &event.from)
-        .env("RAREFY_EVENT_TO", &event.to)
+        .env("RAREFY_EVENT_FROM", event.from_text())
+        .env("RAREFY_EVENT_TO", event.to_text())
         .env("RAREFY_EVENT_TIME", crate::log::v1::format_time(event.time))
         .env("RAREFY_EVENT_TEXT", &event.text)
         .env(

@@ -6,9 +6,9 @@
 
 pub mod action;
 pub mod config;
-pub mod ingest;
 pub mod logfile;
 pub mod operator;
+pub mod pipeline;
 pub mod record;
 pub mod source;
 

@@ -7,10 +7,11 @@ use std::path::PathBuf;
 use chrono::{DateTime, Utc};
 
 use super::history::History;
-use crate::alarm::{AlarmState, Event, Monitor};
+use crate::alarm::{Actor, AlarmState, Event, Monitor};
 use crate::engine::gauge::GaugeKind;
 use crate::sample::{ChannelUnit, SourceEvent, SourceState, Status};
 use crate::units::{PressureUnit, TemperatureUnit, UnitKind};
+use rarefy_app::pipeline::{Item, Operation, Pipeline, Sink};
 
 /// Trend windows offered by the window key, s.
 pub const WINDOWS: [f64; 7] = [
@@ -139,14 +140,16 @@ pub struct Counters {
 pub type Frozen = Box<(Monitor, History, Option<DateTime<Utc>>)>;
 
 /// The dashboard state.
-#[derive(Debug, Clone)]
 pub struct App {
+    /// Who operates the dashboard (for the audit trail).
+    pub user: String,
     /// Chamber name.
     pub title: String,
     /// `None` live; replay state otherwise.
     pub replay: Option<Replay>,
-    /// Alarms, gates, per-gauge kinetics.
-    pub monitor: Monitor,
+    /// The pipeline: the monitor (alarms, gates, per-gauge kinetics) and,
+    /// live, the recording and action sinks.
+    pub pipeline: Pipeline,
     /// Trend history.
     pub history: History,
     /// Origin of the history's seconds.
@@ -209,14 +212,24 @@ pub enum Effect {
 }
 
 impl App {
-    /// A dashboard over `monitor`.
+    /// A dashboard over `monitor`, with no sinks.
     pub fn new(title: impl Into<String>, monitor: Monitor, gauges: Vec<GaugeInfo>) -> Self {
-        let setup = monitor.setup();
+        App::with_pipeline(title, Pipeline::new(monitor), gauges)
+    }
+
+    /// A dashboard over a pipeline (live, with its recording and actions).
+    pub fn with_pipeline(
+        title: impl Into<String>,
+        pipeline: Pipeline,
+        gauges: Vec<GaugeInfo>,
+    ) -> Self {
+        let setup = pipeline.monitor().setup();
         let (pressure_unit, temperature_unit) = (setup.pressure_unit, setup.temperature_unit);
         App {
+            user: "unknown".into(),
             title: title.into(),
             replay: None,
-            monitor,
+            pipeline,
             history: History::default(),
             origin: None,
             gauges,
@@ -246,8 +259,52 @@ impl App {
     pub fn shown(&self) -> (&Monitor, &History, Option<DateTime<Utc>>) {
         match &self.frozen {
             Some(f) => (&f.0, &f.1, f.2),
-            None => (&self.monitor, &self.history, self.monitor.now()),
+            None => (self.monitor(), &self.history, self.monitor().now()),
         }
+    }
+
+    /// The live monitor.
+    pub fn monitor(&self) -> &Monitor {
+        self.pipeline.monitor()
+    }
+
+    /// Carries out an operator's request at the monitor's data time; the
+    /// events carry the user's name and `wall_time` and reach every sink
+    /// (the event log among them).
+    pub fn operate(
+        &mut self,
+        op: &Operation,
+        now: DateTime<Utc>,
+        wall_time: Option<DateTime<Utc>>,
+    ) -> Result<Vec<Event>, String> {
+        let who = Actor {
+            user: self.user.clone(),
+            wall_time,
+        };
+        let (pipeline, mut view) = self.split();
+        let events = pipeline.operate(op, &who, now, &mut view)?;
+        self.dirty = true;
+        Ok(events)
+    }
+
+    /// The pipeline, and the rest of the app as the pipeline's extra sink.
+    fn split(&mut self) -> (&mut Pipeline, View<'_>) {
+        (
+            &mut self.pipeline,
+            View {
+                history: &mut self.history,
+                origin: &mut self.origin,
+                gauges: &mut self.gauges,
+                sources: &mut self.sources,
+                source_error: &mut self.source_error,
+                counters: &mut self.counters,
+                last_unparsed: &mut self.last_unparsed,
+                events: &mut self.events,
+                bell: &mut self.bell,
+                bell_enabled: self.bell_enabled,
+                dirty: &mut self.dirty,
+            },
+        )
     }
 
     /// Seconds of `t` on the history's origin.
@@ -256,80 +313,29 @@ impl App {
             .map_or(0.0, |o| (t - o).num_milliseconds() as f64 / 1000.0)
     }
 
-    fn note_events(&mut self, events: Vec<Event>) {
-        for e in events {
-            if e.to == AlarmState::Unacknowledged.as_str() {
-                self.bell = self.bell_enabled;
-            }
-            if self.events.len() >= 200 {
-                self.events.pop_front();
-            }
-            self.events.push_back(e);
-        }
+    /// Takes one source event. `now` is the live data clock (`None` in
+    /// replay).
+    pub fn ingest(&mut self, ev: &SourceEvent, now: Option<DateTime<Utc>>) {
+        let (pipeline, mut view) = self.split();
+        pipeline.feed(ev, now, &mut view);
+        *view.dirty = true;
     }
 
-    /// Takes one source event.
-    pub fn ingest(&mut self, ev: &SourceEvent) {
-        self.dirty = true;
-        match ev {
-            SourceEvent::Samples(samples) => {
-                self.counters.rows += 1;
-                self.counters.samples += samples.len() as u64;
-                for s in samples {
-                    if !self.gauges.iter().any(|g| g.id == s.channel) {
-                        self.gauges.push(GaugeInfo {
-                            id: s.channel.clone(),
-                            label: s.channel.clone(),
-                            kind: None,
-                            unit: s.unit,
-                        });
-                    }
-                }
-                let events = self.monitor.push(samples);
-                let origin = *self.origin.get_or_insert_with(|| {
-                    samples
-                        .first()
-                        .map_or(DateTime::<Utc>::UNIX_EPOCH, |s| s.time)
-                });
-                for s in samples {
-                    let t = (s.time - origin).num_milliseconds() as f64 / 1000.0;
-                    let v = match (s.status, self.monitor.track(&s.channel)) {
-                        (Status::Ok, Some(track)) if s.unit.is_pressure() => track.pressure_pa,
-                        (Status::Ok, Some(track)) => track.temperature_k,
-                        _ => None,
-                    };
-                    if let Some(v) = v {
-                        self.history.push(&s.channel, t, v);
-                    }
-                }
-                self.note_events(events);
-            }
-            SourceEvent::Status { source, state } => {
-                self.sources.insert(source.clone(), *state);
-            }
-            SourceEvent::Unparsed { text, .. } => {
-                self.counters.unparsed += 1;
-                // Device text is escaped by the decoder; keep it short.
-                self.last_unparsed = Some(text.chars().take(200).collect());
-            }
-            SourceEvent::Error { message, .. } => {
-                self.source_error = Some(crate::sample::escape_bytes(message.as_bytes()));
-            }
-        }
+    /// Starts the live data clock at `t` (nothing has arrived yet).
+    pub fn start(&mut self, t: DateTime<Utc>) {
+        let (pipeline, mut view) = self.split();
+        pipeline.start(t, &mut view);
     }
 
-    /// Advances data time without readings (stale detection).
+    /// Advances data time without readings: every deadline up to `now`.
     pub fn tick(&mut self, now: DateTime<Utc>) {
-        let events = self.monitor.tick(now);
-        if !events.is_empty() {
-            self.dirty = true;
-        }
-        self.note_events(events);
+        let (pipeline, mut view) = self.split();
+        pipeline.advance_to(now, &mut view);
     }
 
     /// Ids of the alarms, in display order.
     pub fn alarm_ids(&self) -> Vec<String> {
-        self.monitor
+        self.monitor()
             .alarms()
             .iter()
             .map(|a| a.rule.id.clone())
@@ -351,5 +357,80 @@ impl App {
             .map_or(0, |i| i + 1);
         self.pressure_unit = CYCLE[i % CYCLE.len()];
         self.message = Some(format!("pressure in {}", self.pressure_unit.symbol()));
+    }
+}
+
+/// The dashboard as the pipeline's sink: the parts of [`App`] that rows,
+/// events and source changes update.
+struct View<'a> {
+    history: &'a mut History,
+    origin: &'a mut Option<DateTime<Utc>>,
+    gauges: &'a mut Vec<GaugeInfo>,
+    sources: &'a mut BTreeMap<String, SourceState>,
+    source_error: &'a mut Option<String>,
+    counters: &'a mut Counters,
+    last_unparsed: &'a mut Option<String>,
+    events: &'a mut VecDeque<Event>,
+    bell: &'a mut bool,
+    bell_enabled: bool,
+    dirty: &'a mut bool,
+}
+
+impl Sink for View<'_> {
+    fn accept(&mut self, item: Item<'_>, monitor: &Monitor) {
+        *self.dirty = true;
+        match item {
+            Item::Row(samples) => {
+                self.counters.rows += 1;
+                self.counters.samples += samples.len() as u64;
+                for s in samples {
+                    if !self.gauges.iter().any(|g| g.id == s.channel) {
+                        self.gauges.push(GaugeInfo {
+                            id: s.channel.clone(),
+                            label: s.channel.clone(),
+                            kind: None,
+                            unit: s.unit,
+                        });
+                    }
+                }
+                let origin = *self.origin.get_or_insert_with(|| {
+                    samples
+                        .first()
+                        .map_or(DateTime::<Utc>::UNIX_EPOCH, |s| s.time)
+                });
+                for s in samples {
+                    let t = (s.time - origin).num_milliseconds() as f64 / 1000.0;
+                    let v = match (s.status, monitor.track(&s.channel)) {
+                        (Status::Ok, Some(track)) if s.unit.is_pressure() => track.pressure_pa,
+                        (Status::Ok, Some(track)) => track.temperature_k,
+                        _ => None,
+                    };
+                    if let Some(v) = v {
+                        self.history.push(&s.channel, t, v);
+                    }
+                }
+            }
+            Item::Event(e) => {
+                if e.change.alarm_to() == Some(AlarmState::Unacknowledged) {
+                    *self.bell = self.bell_enabled;
+                }
+                if self.events.len() >= 200 {
+                    self.events.pop_front();
+                }
+                self.events.push_back(e.clone());
+            }
+            Item::Source(SourceEvent::Status { source, state }) => {
+                self.sources.insert(source.clone(), *state);
+            }
+            Item::Source(SourceEvent::Unparsed { text, .. }) => {
+                self.counters.unparsed += 1;
+                // Device text is escaped by the decoder; keep it short.
+                *self.last_unparsed = Some(text.chars().take(200).collect());
+            }
+            Item::Source(SourceEvent::Error { message, .. }) => {
+                *self.source_error = Some(crate::sample::escape_bytes(message.as_bytes()));
+            }
+            Item::Source(SourceEvent::Samples(_)) => {}
+        }
     }
 }

@@ -7,7 +7,7 @@ use crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 use super::app::{App, Edit, Effect, Overlay, Speed, WINDOWS};
 use crate::alarm::rule::Test;
 use crate::units::{self, TimeUnit};
-use rarefy_app::operator::local_user;
+use rarefy_app::pipeline::Operation;
 
 /// The footer's key list, live.
 pub const FOOTER_LIVE: &str =
@@ -47,15 +47,22 @@ pub const HELP: [(&str, &str); 23] = [
 ];
 
 fn now(app: &App) -> DateTime<Utc> {
-    app.monitor
+    app.monitor()
         .now()
         .or(app.replay.as_ref().map(|r| r.start))
         .unwrap_or(DateTime::<Utc>::UNIX_EPOCH)
 }
 
+/// Carries out an operator's request now: at the monitor's data time, with
+/// the wall-clock time for the audit trail.
+fn operate(app: &mut App, op: Operation) -> Result<Vec<crate::alarm::Event>, String> {
+    let t = now(app);
+    app.operate(&op, t, Some(Utc::now()))
+}
+
 /// Number of selectable rows (alarms, then gates).
 fn selectable(app: &App) -> usize {
-    app.monitor.alarms().len() + app.monitor.gates().len()
+    app.monitor().alarms().len() + app.monitor().gates().len()
 }
 
 /// Reads a typed time: `HH:MM[:SS]` on the day of the replay position, or
@@ -144,9 +151,9 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
             let was = app.frozen.take();
             if was.is_none() {
                 app.frozen = Some(Box::new((
-                    app.monitor.clone(),
+                    app.monitor().clone(),
                     app.history.clone(),
-                    app.monitor.now(),
+                    app.monitor().now(),
                 )));
                 app.message = Some("display frozen; data keeps recording (f to resume)".into());
             }
@@ -157,35 +164,32 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
         }
         KeyCode::Char('a') => {
             if let Some(id) = app.alarm_ids().get(app.selected).cloned() {
-                match app.monitor.acknowledge(&id, &local_user(), now(app)) {
-                    Ok(ev) => {
-                        app.message = Some(format!("{id} acknowledged"));
-                        app.events.extend(ev);
-                    }
+                match operate(app, Operation::Acknowledge(id.clone())) {
+                    Ok(_) => app.message = Some(format!("{id} acknowledged")),
                     Err(e) => app.message = Some(e),
                 }
             }
         }
         KeyCode::Char('A') => {
-            let ev = app.monitor.acknowledge_all(&local_user(), now(app));
-            app.message = Some(format!("{} acknowledged", ev.len()));
-            app.events.extend(ev);
+            let n = operate(app, Operation::AcknowledgeAll).map_or(0, |ev| ev.len());
+            app.message = Some(format!("{n} acknowledged"));
         }
         KeyCode::Char('s') if app.selected < app.alarm_ids().len() => {
             app.overlay = Overlay::Shelve("30 min".into());
         }
         KeyCode::Char('S') => {
-            if let Some(id) = app.alarm_ids().get(app.selected).cloned() {
-                match app.monitor.unshelve(&id, &local_user(), now(app)) {
-                    Ok(ev) => app.events.extend(ev),
-                    Err(e) => app.message = Some(e),
-                }
+            if let Some(id) = app.alarm_ids().get(app.selected).cloned()
+                && let Err(e) = operate(app, Operation::Unshelve(id))
+            {
+                app.message = Some(e);
             }
         }
         KeyCode::Char('e') => start_edit(app),
         KeyCode::Char('x') => {
-            app.monitor.reset_exposure();
-            app.message = Some("exposure reset to zero".into());
+            app.message = Some(match operate(app, Operation::ResetExposure) {
+                Ok(_) => "exposure reset to zero".into(),
+                Err(e) => e,
+            });
         }
         KeyCode::Char(' ') if replay => {
             if let Some(r) = &mut app.replay {
@@ -250,10 +254,9 @@ fn prompt(app: &mut App, key: KeyEvent, text: &mut String, goto: bool) -> Effect
                 };
                 match units::parse::<TimeUnit>(text) {
                     Ok(d) if d.si > 0.0 => {
-                        match app.monitor.shelve(&id, d.si, &local_user(), now(app)) {
-                            Ok(ev) => {
+                        match operate(app, Operation::Shelve(id.clone(), d.si)) {
+                            Ok(_) => {
                                 app.message = Some(format!("{id} shelved for {}", text.trim()));
-                                app.events.extend(ev);
                             }
                             Err(e) => app.message = Some(e),
                         }
@@ -275,7 +278,7 @@ fn prompt(app: &mut App, key: KeyEvent, text: &mut String, goto: bool) -> Effect
 }
 
 fn start_edit(app: &mut App) {
-    let alarms = app.monitor.alarms();
+    let alarms = app.monitor().alarms();
     let n = alarms.len();
     if app.selected < n {
         let a = &alarms[app.selected];
@@ -299,7 +302,7 @@ fn start_edit(app: &mut App) {
             input: old.clone(),
             old,
         });
-    } else if let Some(g) = app.monitor.gates().get(app.selected - n) {
+    } else if let Some(g) = app.monitor().gates().get(app.selected - n) {
         let old = format!("{} s", g.gate.hold_s);
         app.overlay = Overlay::Edit(Edit {
             kind: "gate",
@@ -357,7 +360,7 @@ fn edit_key(app: &mut App, key: KeyEvent, e: &mut Edit) -> Effect {
                     .map_err(|x| x.to_string())
             } else {
                 let q = app
-                    .monitor
+                    .monitor()
                     .alarms()
                     .iter()
                     .find(|a| a.rule.id == e.id)
@@ -390,17 +393,17 @@ fn confirm_key(app: &mut App, key: KeyEvent, e: Edit) -> Effect {
             let applied = if e.kind == "gate" {
                 units::parse::<TimeUnit>(&e.input)
                     .map_err(|x| x.to_string())
-                    .and_then(|d| app.monitor.set_hold(&e.id, d.si))
+                    .and_then(|d| operate(app, Operation::SetHold(e.id.clone(), d.si)).map(drop))
             } else {
                 let q = app
-                    .monitor
+                    .monitor()
                     .alarms()
                     .iter()
                     .find(|a| a.rule.id == e.id)
                     .map(|a| a.rule.quantity.clone());
                 q.ok_or_else(|| "the alarm is gone".to_string())
                     .and_then(|q| q.threshold(&e.input))
-                    .and_then(|v| app.monitor.set_threshold(&e.id, v))
+                    .and_then(|v| operate(app, Operation::SetThreshold(e.id.clone(), v)).map(drop))
             };
             if let Err(err) = applied {
                 app.message = Some(err);

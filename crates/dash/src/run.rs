@@ -15,12 +15,15 @@ use super::app::{App, Effect, Replay, Speed};
 use super::keys;
 use super::render;
 use super::term::Guard;
-use crate::alarm::{Monitor, MonitorSetup};
+use crate::alarm::{Event, Monitor, MonitorSetup};
 use crate::log::LogSource;
-use crate::record::Recorder;
+use crate::record::{RecordEvent, Recorder};
 use crate::sample::SourceEvent;
-use rarefy_app::ingest::DataClock;
+use rarefy_app::action::Outcome;
 use rarefy_app::logfile::open_log;
+use rarefy_app::pipeline::sinks::{Collect, RecordingNote, RecordingState};
+use rarefy_app::pipeline::{DataClock, Pipeline};
+use std::sync::{Arc, Mutex};
 
 /// Frame interval: at most ten redraws a second.
 pub const FRAME: Duration = Duration::from_millis(100);
@@ -130,14 +133,30 @@ fn draw(guard: &mut Guard, app: &mut App) -> std::io::Result<()> {
     Ok(())
 }
 
+/// What the live dashboard reads besides the keyboard.
+pub struct LiveInput {
+    /// The sources' events.
+    pub rx: mpsc::Receiver<SourceEvent>,
+    /// Whether every source is a finished file (then wall time never moves
+    /// data time).
+    pub finite: bool,
+    /// What the recording says, when recording.
+    pub notes: Option<mpsc::UnboundedReceiver<RecordingNote>>,
+    /// The recording's state, when recording.
+    pub recording: Option<Arc<Mutex<RecordingState>>>,
+    /// Outcomes of actions.
+    pub outcomes: Option<mpsc::UnboundedReceiver<Outcome>>,
+}
+
 /// Runs the live dashboard until the operator quits or a signal arrives.
-pub async fn live(
-    mut app: App,
-    mut rx: mpsc::Receiver<SourceEvent>,
-    mut recorder: Option<Recorder>,
-) -> Result<(), String> {
+/// Returns what the pipeline's sinks had to say at the end (rows that could
+/// not be written …), for the caller to print once the terminal is back.
+pub async fn live(mut app: App, mut input: LiveInput) -> Result<Vec<String>, String> {
     let mut sh = Screen::open()?;
-    let mut clock = DataClock::default();
+    let mut clock = DataClock::start();
+    if !input.finite {
+        app.start(clock.now());
+    }
     let mut last_flush = Instant::now();
     let mut sources_open = true;
     let mut rate_mark = (Instant::now(), 0u64);
@@ -158,7 +177,7 @@ pub async fn live(
                     _ => {}
                 }
             }
-            ev = rx.recv(), if sources_open => {
+            ev = input.rx.recv(), if sources_open => {
                 let Some(ev) = ev else {
                     sources_open = false;
                     app.message = Some("all sources ended".into());
@@ -168,27 +187,42 @@ pub async fn live(
                 // Take what is queued, up to a bound, before drawing again.
                 let mut batch = vec![ev];
                 while batch.len() < 2000 {
-                    match rx.try_recv() {
+                    match input.rx.try_recv() {
                         Ok(ev) => batch.push(ev),
                         Err(_) => break,
                     }
                 }
                 for ev in &batch {
-                    if let SourceEvent::Samples(s) = ev {
-                        if let Some(t) = s.iter().map(|s| s.time).max() {
-                            clock.saw(t);
-                        }
-                        if let Some(r) = recorder.as_mut() && r.push_row(s) {
-                            r.flush();
-                        }
+                    if let SourceEvent::Samples(s) = ev
+                        && let Some(t) = s.iter().map(|s| s.time).max()
+                    {
+                        clock.saw(t);
                     }
-                    app.ingest(ev);
+                    let now = (!input.finite).then(|| clock.now());
+                    app.ingest(ev, now);
                 }
-                app.counters.behind = rx.len();
+                app.counters.behind = input.rx.len();
+            }
+            Some(n) = recv_opt(&mut input.notes) => {
+                app.message = Some(match n {
+                    RecordingNote::Recorder(RecordEvent::Opened { path, .. }) => {
+                        app.log_file = Some(path.clone());
+                        format!("recording to {}", path.display())
+                    }
+                    RecordingNote::Recorder(e) => format!("recording: {e:?}"),
+                    RecordingNote::EventLog(m) => m,
+                });
+                app.dirty = true;
+            }
+            Some(o) = recv_opt(&mut input.outcomes) => {
+                if o.status != "ok" {
+                    app.message = Some(format!("action for {}: {}: {}", o.id, o.status, o.message));
+                    app.dirty = true;
+                }
             }
             _ = sh.tick.tick() => {
-                if let Some(now) = clock.now() {
-                    app.tick(now);
+                if !input.finite {
+                    app.tick(clock.now());
                 }
                 // Rows per wall second, over the last second or so.
                 let dt = rate_mark.0.elapsed().as_secs_f64();
@@ -200,11 +234,14 @@ pub async fn live(
                     }
                     rate_mark = (Instant::now(), app.counters.rows);
                 }
-                if let Some(r) = recorder.as_mut() && last_flush.elapsed() >= Duration::from_secs(1) {
-                    r.flush();
+                if last_flush.elapsed() >= Duration::from_secs(1) {
+                    app.pipeline.flush();
                     last_flush = Instant::now();
-                    if r.is_failing() {
-                        app.message = Some(format!("RECORDING FAILS: {} rows kept in memory", r.buffered()));
+                    if let Some(state) = &input.recording
+                        && let Ok(s) = state.lock()
+                        && s.failing
+                    {
+                        app.message = Some(format!("RECORDING FAILS: {} rows kept in memory", s.buffered));
                         app.dirty = true;
                     }
                 }
@@ -212,11 +249,17 @@ pub async fn live(
             }
         }
     }
-    if let Some(r) = recorder.as_mut() {
-        r.close();
-    }
+    let problems = app.pipeline.finish();
     drop(sh);
-    Ok(())
+    Ok(problems)
+}
+
+/// Receives from an optional channel; pends for ever without one.
+async fn recv_opt<T>(rx: &mut Option<mpsc::UnboundedReceiver<T>>) -> Option<T> {
+    match rx {
+        Some(rx) => rx.recv().await,
+        None => std::future::pending().await,
+    }
 }
 
 /// What a replay needs to start over.
@@ -229,14 +272,21 @@ pub struct ReplaySetup {
     pub monitor: MonitorSetup,
 }
 
-/// Reads the whole log once: start, end, gaps and the alarm events, for the
-/// timeline and for jumping between alarms.
+/// Reads the whole log once through the pipeline: start, end, gaps and the
+/// alarm events, for the timeline and for jumping between alarms. The
+/// events are exactly those playback gives at any speed.
 pub fn index(setup: &ReplaySetup) -> Result<Replay, String> {
+    let (replay, _) = index_events(setup)?;
+    Ok(replay)
+}
+
+/// [`index`], and every event of the log.
+pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String> {
     let mut log = open_log(&setup.file, setup.foreign.as_ref()).map_err(|e| e.to_string())?;
-    let mut monitor = Monitor::new(setup.monitor.clone());
+    let mut pipeline = Pipeline::new(Monitor::new(setup.monitor.clone()));
+    let mut events = Collect::default();
     let mut start = None;
     let mut end: Option<DateTime<Utc>> = None;
-    let mut marks = Vec::new();
     let mut gaps = Vec::new();
     let mut intervals: Vec<i64> = Vec::new();
     let mut bad_rows = 0;
@@ -265,24 +315,30 @@ pub fn index(setup: &ReplaySetup) -> Result<Replay, String> {
             }
         }
         end = Some(end.map_or(row.time, |e| e.max(row.time)));
-        for e in monitor.push(&row.samples) {
-            marks.push((e.time, e.id, e.to));
-        }
+        pipeline.feed(&SourceEvent::Samples(row.samples), None, &mut events);
     }
     let (Some(start), Some(end)) = (start, end) else {
         return Err(format!("{}: the log has no rows", setup.file.display()));
     };
-    Ok(Replay {
-        file: setup.file.clone(),
-        paused: false,
-        speed: Speed::Times(60.0),
-        start,
-        end,
-        marks,
-        gaps,
-        bad_rows,
-        at_end: false,
-    })
+    let marks = events
+        .0
+        .iter()
+        .map(|e| (e.time, e.id.clone(), e.to_text().to_string()))
+        .collect();
+    Ok((
+        Replay {
+            file: setup.file.clone(),
+            paused: false,
+            speed: Speed::Times(60.0),
+            start,
+            end,
+            marks,
+            gaps,
+            bad_rows,
+            at_end: false,
+        },
+        events.0,
+    ))
 }
 
 /// A replay in progress: the reader and the next row.
@@ -332,7 +388,7 @@ impl Player {
                 self.next = Some(row);
                 break;
             }
-            app.ingest(&SourceEvent::Samples(row.samples));
+            app.ingest(&SourceEvent::Samples(row.samples), None);
             n += 1;
             self.advance();
         }
@@ -342,7 +398,7 @@ impl Player {
 
 /// Starts the app over at the beginning of the log (for seeking back).
 pub fn rewind(app: &mut App, setup: &ReplaySetup) -> Result<Player, String> {
-    app.monitor = Monitor::new(setup.monitor.clone());
+    app.pipeline.reset(Monitor::new(setup.monitor.clone()));
     app.history = super::history::History::default();
     app.origin = None;
     app.events.clear();
@@ -363,7 +419,7 @@ pub fn seek(
         Some(r) => t.clamp(r.start, r.end),
         None => t,
     };
-    if app.monitor.now().is_some_and(|now| t < now) {
+    if app.monitor().now().is_some_and(|now| t < now) {
         *player = rewind(app, setup)?;
     }
     player.feed(app, Some(t), usize::MAX);
@@ -389,7 +445,7 @@ pub async fn replay(
     let mut sh = Screen::open()?;
     let mut last = Instant::now();
     // Data time of the playhead.
-    let mut head = app.monitor.now().or(player.next_time());
+    let mut head = app.monitor().now().or(player.next_time());
     loop {
         tokio::select! {
             biased;
@@ -409,7 +465,7 @@ pub async fn replay(
                                     r.paused = true;
                                 }
                                 player.feed(&mut app, None, 1);
-                                head = app.monitor.now();
+                                head = app.monitor().now();
                             }
                             _ => apply_save(&mut app, &effect),
                         }
@@ -426,7 +482,7 @@ pub async fn replay(
                     match speed {
                         Speed::Max => {
                             player.feed(&mut app, None, 20_000);
-                            head = app.monitor.now();
+                            head = app.monitor().now();
                         }
                         Speed::Times(x) => {
                             let h = head.or(player.next_time());

@@ -2,7 +2,7 @@
 //! duration before a process step may start.
 
 use chrono::{DateTime, Utc};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::fmt;
 
 use super::syntax::Condition;
@@ -21,7 +21,7 @@ pub struct Gate {
 }
 
 /// Gate states.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum GateState {
     /// A condition fails, or they have not held long enough yet.
@@ -111,6 +111,25 @@ impl GateMachine {
         }
         let (since, now) = (self.held_since?, self.last_time?);
         Some((self.gate.hold_s - (now - since).num_milliseconds() as f64 / 1000.0).max(0.0))
+    }
+
+    /// Seconds left until ready at data time `now` (which may lie after the
+    /// last evaluation), when every condition holds.
+    pub fn time_left_at(&self, now: DateTime<Utc>) -> Option<f64> {
+        if self.state == GateState::Ready {
+            return Some(0.0);
+        }
+        let since = self.held_since?;
+        Some((self.gate.hold_s - (now - since).num_milliseconds() as f64 / 1000.0).max(0.0))
+    }
+
+    /// The next data time at which the gate becomes ready without a new
+    /// reading: its conditions have held since `held_since`.
+    pub fn deadline(&self) -> Option<DateTime<Utc>> {
+        match (self.state, self.held_since) {
+            (GateState::NotReady, Some(since)) => Some(super::rule::after(since, self.gate.hold_s)),
+            _ => None,
+        }
     }
 
     /// Feeds the checks of every condition (in order) at data time `time`.

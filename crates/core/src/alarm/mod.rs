@@ -21,7 +21,7 @@ pub mod syntax;
 #[cfg(test)]
 mod tests;
 
-pub use event::{Event, EventKind};
+pub use event::{Actor, Change, EVENT_VERSION, Event, EventKind, Operation};
 pub use gate::{Gate, GateMachine, GateState};
 pub use monitor::{Monitor, MonitorSetup, RuleSpec};
 pub use rule::{AlarmState, Rule, RuleMachine, Severity};

@@ -6,10 +6,12 @@ use std::collections::{BTreeMap, VecDeque};
 
 use chrono::{DateTime, Utc};
 
-use super::event::{Event, EventKind};
+use super::event::{Actor, Change, EVENT_VERSION, Event, Operation};
 use super::gate::{Check, Gate, GateMachine, GateState};
 use super::quantity::{Class, Quantity};
-use super::rule::{AlarmState, Deadband, Input, Rule, RuleMachine, Severity, Test, Transition};
+use super::rule::{
+    AlarmState, Deadband, Input, Rule, RuleMachine, Severity, Test, Transition, after,
+};
 use super::syntax::{CondTest, Condition};
 use crate::engine::exposure::Exposure;
 use crate::engine::mixture::Mixture;
@@ -173,8 +175,44 @@ pub struct Monitor {
     rules: Vec<(RuleMachine, Option<Condition>)>,
     inputs: Vec<RuleMachine>,
     gates: Vec<GateMachine>,
+    links: Vec<Link>,
+    /// Data time of the first evaluation: a watched gauge that has sent
+    /// nothing since then goes stale after `stale_after`.
+    origin: Option<DateTime<Utc>>,
+    /// Data time of the last evaluation.
+    evaluated: Option<DateTime<Utc>>,
     now: Option<DateTime<Utc>>,
     trip_seen: bool,
+}
+
+/// A source's connection, watched by a `<id>.link` alarm.
+#[derive(Debug, Clone)]
+struct Link {
+    machine: RuleMachine,
+    up: bool,
+}
+
+/// Rules for the automatic alarms: a gauge without valid readings
+/// (`<gauge>.input`) and a source that is not connected (`<source>.link`).
+fn automatic_rule(
+    id: String,
+    label: String,
+    gauge: String,
+    severity: Severity,
+    on_delay_s: f64,
+) -> Rule {
+    Rule {
+        id,
+        label,
+        gauge,
+        quantity: Quantity::Pressure,
+        test: Test::Above(0.5),
+        deadband: Deadband::None,
+        on_delay_s,
+        off_delay_s: 0.0,
+        severity,
+        latching: false,
+    }
 }
 
 impl Monitor {
@@ -185,8 +223,14 @@ impl Monitor {
             .iter()
             .map(|r| (RuleMachine::new(r.rule.clone()), r.enable.clone()))
             .collect();
-        // A bad-input alarm for every gauge a rule or gate looks at.
-        let mut watched: Vec<String> = setup.rules.iter().map(|r| r.rule.gauge.clone()).collect();
+        // A bad-input alarm for every configured gauge and every gauge a
+        // rule or gate looks at.
+        let mut watched: Vec<String> = setup
+            .gauges
+            .iter()
+            .map(|g| g.id.clone())
+            .chain(setup.rules.iter().map(|r| r.rule.gauge.clone()))
+            .collect();
         for g in &setup.gates {
             for c in &g.conditions {
                 if let Some(id) = c.gauge.clone().or(setup.default_gauge.clone()) {
@@ -198,20 +242,7 @@ impl Monitor {
         watched.dedup();
         let inputs = watched
             .into_iter()
-            .map(|g| {
-                RuleMachine::new(Rule {
-                    id: format!("{g}.input"),
-                    label: format!("{g}: no valid reading"),
-                    gauge: g,
-                    quantity: Quantity::Pressure,
-                    test: Test::Above(0.5),
-                    deadband: Deadband::None,
-                    on_delay_s: 0.0,
-                    off_delay_s: 0.0,
-                    severity: setup.input_severity,
-                    latching: false,
-                })
-            })
+            .map(|g| RuleMachine::new(input_rule(&g, setup.input_severity)))
             .collect();
         let gates = setup.gates.iter().cloned().map(GateMachine::new).collect();
         Monitor {
@@ -221,9 +252,65 @@ impl Monitor {
             rules,
             inputs,
             gates,
+            links: Vec::new(),
+            origin: None,
+            evaluated: None,
             now: None,
             trip_seen: false,
         }
+    }
+
+    /// Watches a channel a source announced before sending anything: from
+    /// now on it has a `<id>.input` alarm, so silence is an alarm too.
+    pub fn expect_channel(&mut self, id: &str) {
+        if !self.inputs.iter().any(|r| r.rule.gauge == id) {
+            self.inputs
+                .push(RuleMachine::new(input_rule(id, self.setup.input_severity)));
+        }
+    }
+
+    /// Watches a source's connection with a `<id>.link` alarm, active once
+    /// the source has not been connected for `stale_after` of data time.
+    pub fn add_link(&mut self, id: &str, label: &str) {
+        if self.links.iter().any(|l| l.machine.rule.gauge == id) {
+            return;
+        }
+        self.links.push(Link {
+            machine: RuleMachine::new(automatic_rule(
+                format!("{id}.link"),
+                format!("{label}: not connected"),
+                id.to_string(),
+                self.setup.input_severity,
+                self.setup.stale_after_s,
+            )),
+            up: false,
+        });
+    }
+
+    /// A source connected or disconnected at data time `now` (the live data
+    /// clock). The alarm follows on the next evaluation.
+    pub fn set_link(&mut self, id: &str, up: bool, now: DateTime<Utc>) -> Vec<Event> {
+        let mut events = self.advance_to(now);
+        if let Some(l) = self.links.iter_mut().find(|l| l.machine.rule.gauge == id)
+            && l.up != up
+        {
+            l.up = up;
+            let now = self.now.unwrap_or(now);
+            events.extend(self.evaluate(now));
+        }
+        events
+    }
+
+    /// Starts the data clock at `t` without a reading (live mode: the time
+    /// the sources were started), so that gauges and sources that never send
+    /// anything go stale from then.
+    pub fn start(&mut self, t: DateTime<Utc>) -> Vec<Event> {
+        if self.origin.is_some() {
+            return Vec::new();
+        }
+        self.origin = Some(t);
+        self.now = Some(self.now.map_or(t, |n| n.max(t)));
+        self.evaluate(t)
     }
 
     /// The setup it runs with.
@@ -258,25 +345,35 @@ impl Monitor {
     }
 
     fn all_rules(&self) -> impl Iterator<Item = &RuleMachine> {
-        self.rules.iter().map(|(r, _)| r).chain(self.inputs.iter())
+        self.rules
+            .iter()
+            .map(|(r, _)| r)
+            .chain(self.inputs.iter())
+            .chain(self.links.iter().map(|l| &l.machine))
     }
 
-    /// Every alarm (configured rules, then bad-input alarms).
+    /// Every alarm (configured rules, then bad-input alarms, then source
+    /// links).
     pub fn alarms(&self) -> Vec<AlarmView<'_>> {
         self.all_rules()
             .map(|r| AlarmView {
                 rule: &r.rule,
                 state: r.state(),
                 since: r.since(),
-                value_text: if r.rule.is_input() {
-                    self.tracks.get(&r.rule.gauge).map(|t| {
-                        let stale = self.now.is_some_and(|n| self.stale(t, n));
-                        if stale {
-                            "stale".into()
-                        } else {
-                            t.status.as_str().to_string()
+                value_text: if r.rule.is_link() {
+                    self.links
+                        .iter()
+                        .find(|l| l.machine.rule.id == r.rule.id)
+                        .map(|l| if l.up { "connected" } else { "not connected" }.to_string())
+                } else if r.rule.is_input() {
+                    match self.tracks.get(&r.rule.gauge) {
+                        Some(t) if self.now.is_some_and(|n| self.stale(t, n)) => {
+                            Some("stale".into())
                         }
-                    })
+                        Some(t) => Some(t.status.as_str().to_string()),
+                        None if self.never_seen_stale() => Some("no data".into()),
+                        None => None,
+                    }
                 } else {
                     r.last_value()
                         .and_then(|v| self.input_text(&r.rule.quantity, v))
@@ -292,20 +389,87 @@ impl Monitor {
         &self.gates
     }
 
-    /// Records a row of readings (one line or record) and evaluates.
+    /// Records a row of readings (one line or record) and evaluates: first
+    /// every deadline up to the row's time is run (so a delay or a staleness
+    /// that ran out between rows has its event at its own time), then the
+    /// row is taken and the rules evaluated at its time.
     pub fn push(&mut self, samples: &[Sample]) -> Vec<Event> {
         let Some(time) = samples.iter().map(|s| s.time).max() else {
             return Vec::new();
         };
+        let mut events = self.advance_to(time);
         for s in samples {
             self.take(s);
         }
-        self.advance(time)
+        let now = self.now.map_or(time, |n| n.max(time));
+        events.extend(self.evaluate(now));
+        events
     }
 
-    /// Advances data time without new readings (stale detection).
+    /// Advances data time to `t` without new readings: evaluates at each
+    /// deadline up to `t`, in order, and nowhere else. How often this is
+    /// called does not change the events (replay at any speed, record and
+    /// the report give the same list for the same log).
+    pub fn advance_to(&mut self, t: DateTime<Utc>) -> Vec<Event> {
+        let mut events = Vec::new();
+        if self.origin.is_none() {
+            self.origin = Some(t);
+        }
+        while let Some(d) = self.next_deadline()
+            && d <= t
+        {
+            events.extend(self.evaluate(d));
+        }
+        self.now = Some(self.now.map_or(t, |n| n.max(t)));
+        events
+    }
+
+    /// Same as [`Monitor::advance_to`].
     pub fn tick(&mut self, now: DateTime<Utc>) -> Vec<Event> {
-        self.advance(now)
+        self.advance_to(now)
+    }
+
+    /// The next data time after the last evaluation at which something
+    /// changes without a new reading: a gauge goes stale, an on- or
+    /// off-delay runs out, a shelving expires, a gate's hold is complete.
+    pub fn next_deadline(&self) -> Option<DateTime<Utc>> {
+        let stale_ms = (self.setup.stale_after_s * 1000.0 + 1e-6).floor();
+        let stale_ms = if stale_ms.is_finite() && stale_ms < 1e15 {
+            stale_ms as i64
+        } else {
+            1_000_000_000_000_000
+        };
+        // Stale is "more than stale_after since", so one millisecond past.
+        let stale_at =
+            |t: DateTime<Utc>| t.checked_add_signed(chrono::Duration::milliseconds(stale_ms + 1));
+        let tracks = self
+            .tracks
+            .values()
+            .filter_map(|t| t.last_time.and_then(stale_at));
+        let never_seen = self
+            .inputs
+            .iter()
+            .any(|r| !self.tracks.contains_key(&r.rule.gauge))
+            .then(|| self.origin.and_then(stale_at))
+            .flatten();
+        let machines = self
+            .all_rules()
+            .filter_map(RuleMachine::deadline)
+            .chain(self.gates.iter().filter_map(GateMachine::deadline));
+        tracks
+            .chain(never_seen)
+            .chain(machines)
+            .filter(|d| self.evaluated.is_none_or(|e| *d > e))
+            .min()
+    }
+
+    fn never_seen_stale(&self) -> bool {
+        match (self.origin, self.now) {
+            (Some(o), Some(n)) => {
+                (n - o).num_milliseconds() as f64 / 1000.0 > self.setup.stale_after_s
+            }
+            _ => false,
+        }
     }
 
     fn take(&mut self, s: &Sample) {
@@ -456,6 +620,7 @@ impl Monitor {
         };
         match &r.test {
             _ if r.is_input() => "valid readings".into(),
+            _ if r.is_link() => "connected".into(),
             Test::Above(t) => format!("{} above {}", r.quantity, show(*t)),
             Test::Below(t) => format!("{} below {}", r.quantity, show(*t)),
             Test::Enters(c) => format!("{} enters {}", r.quantity, c.as_str()),
@@ -473,13 +638,16 @@ impl Monitor {
             (None, None) => format!("{}: {}", rule.label, t.to),
         };
         Event {
+            v: EVENT_VERSION,
             time: t.time,
-            kind: EventKind::Alarm,
+            wall_time: None,
+            change: Change::Alarm {
+                from: t.from,
+                to: t.to,
+            },
             id: rule.id.clone(),
             label: rule.label.clone(),
             severity: Some(rule.severity),
-            from: t.from.as_str().into(),
-            to: t.to.as_str().into(),
             gauge: Some(rule.gauge.clone()),
             quantity: Some(rule.quantity.to_string()),
             value: match t.value {
@@ -488,18 +656,19 @@ impl Monitor {
             },
             value_text,
             threshold: Some(threshold),
-            user: t
-                .note
-                .as_ref()
-                .and_then(|n| n.split(" by ").nth(1))
-                .map(|s| s.split(' ').next().unwrap_or(s).to_string()),
+            operation: None,
+            user: None,
             text,
         }
     }
 
-    fn advance(&mut self, now: DateTime<Utc>) -> Vec<Event> {
+    /// Evaluates every rule, bad-input alarm, link and gate at data time
+    /// `now`. Called only at row times and at deadlines.
+    fn evaluate(&mut self, now: DateTime<Utc>) -> Vec<Event> {
         self.now = Some(self.now.map_or(now, |n| n.max(now)));
         let now = self.now.unwrap_or(now);
+        self.origin.get_or_insert(now);
+        self.evaluated = Some(now);
         let mut events = Vec::new();
         // Rules.
         for i in 0..self.rules.len() {
@@ -518,28 +687,54 @@ impl Monitor {
         // Bad-input alarms.
         for i in 0..self.inputs.len() {
             let gauge = self.inputs[i].rule.gauge.clone();
-            let bad = match self.tracks.get(&gauge) {
-                None => None, // never seen: nothing to judge yet
-                Some(t) if self.stale(t, now) => Some(Status::Stale),
+            let seen = self.tracks.get(&gauge);
+            let bad = match seen {
+                // Never sent anything: bad once the data clock has run for
+                // longer than stale_after.
+                None => self
+                    .origin
+                    .is_some_and(|o| {
+                        (now - o).num_milliseconds() as f64 / 1000.0 > self.setup.stale_after_s
+                    })
+                    .then_some("no data"),
+                Some(t) if self.stale(t, now) => Some("stale"),
                 Some(t) => match t.status {
-                    Status::SensorError | Status::Stale | Status::Unparsed => Some(t.status),
+                    Status::SensorError | Status::Stale | Status::Unparsed => {
+                        Some(t.status.as_str())
+                    }
                     _ => None,
                 },
             };
-            let input = match (bad, self.tracks.contains_key(&gauge)) {
-                (_, false) => Input::Unusable,
-                (Some(_), true) => Input::Value(1.0),
+            let input = match (bad, seen.is_some()) {
+                (Some(_), _) => Input::Value(1.0),
                 (None, true) => Input::Value(0.0),
+                (None, false) => Input::Unusable,
             };
             let ts = self.inputs[i].update(now, input);
             for t in ts {
                 let mut e = self.alarm_event(&self.inputs[i].rule, &t);
                 e.value = None;
-                e.value_text = bad.map(|s| s.as_str().to_string());
+                e.value_text = bad.map(str::to_string);
                 e.text = match bad {
                     Some(s) => format!("{}: {} ({s})", self.inputs[i].rule.label, t.to),
                     None => format!("{gauge}: readings valid again: {}", t.to),
                 };
+                events.push(e);
+            }
+        }
+        // Source links.
+        for i in 0..self.links.len() {
+            let up = self.links[i].up;
+            let ts = self.links[i]
+                .machine
+                .update(now, Input::Value(if up { 0.0 } else { 1.0 }));
+            for t in ts {
+                let mut e = self.alarm_event(&self.links[i].machine.rule, &t);
+                e.value = None;
+                e.gauge = None;
+                e.quantity = None;
+                e.value_text = Some(if up { "connected" } else { "not connected" }.into());
+                e.threshold = Some("connected".into());
                 events.push(e);
             }
         }
@@ -561,13 +756,16 @@ impl Monitor {
                     (None, _) => format!("{}: not ready", g.label),
                 };
                 events.push(Event {
+                    v: EVENT_VERSION,
                     time: t.time,
-                    kind: EventKind::Gate,
+                    wall_time: None,
+                    change: Change::Gate {
+                        from: t.from,
+                        to: t.to,
+                    },
                     id: g.id.clone(),
                     label: g.label.clone(),
                     severity: None,
-                    from: t.from.as_str().into(),
-                    to: t.to.as_str().into(),
                     gauge: None,
                     quantity: None,
                     value: None,
@@ -580,6 +778,7 @@ impl Monitor {
                             .join(" and ")
                             + &format!(" for {:.0} s", g.hold_s),
                     ),
+                    operation: None,
                     user: None,
                     text,
                 });
@@ -597,6 +796,7 @@ impl Monitor {
             .iter_mut()
             .map(|(r, _)| r)
             .chain(self.inputs.iter_mut())
+            .chain(self.links.iter_mut().map(|l| &mut l.machine))
             .find(|r| r.rule.id == id)
             .ok_or_else(|| {
                 let hint = crate::suggest::nearest(id, known.iter().map(String::as_str))
@@ -606,62 +806,156 @@ impl Monitor {
             })
     }
 
-    fn operated(&self, id: &str, ts: Vec<Transition>) -> Vec<Event> {
+    /// Events for transitions an operator caused.
+    fn operated(&self, id: &str, ts: Vec<Transition>, op: Operation, who: &Actor) -> Vec<Event> {
         let Some(r) = self.all_rules().find(|r| r.rule.id == id) else {
             return Vec::new();
         };
-        ts.iter().map(|t| self.alarm_event(&r.rule, t)).collect()
+        ts.iter()
+            .map(|t| {
+                let mut e = self.alarm_event(&r.rule, t);
+                e.operation = Some(op);
+                e.user = Some(who.user.clone());
+                e.wall_time = who.wall_time;
+                e
+            })
+            .collect()
+    }
+
+    /// A setting an operator changed, as an event.
+    fn setting_event(
+        &self,
+        (id, label): (&str, &str),
+        (from, to): (String, String),
+        op: Operation,
+        who: &Actor,
+        now: DateTime<Utc>,
+    ) -> Event {
+        Event {
+            v: EVENT_VERSION,
+            time: now,
+            wall_time: who.wall_time,
+            text: format!("{label}: {} {from} -> {to} by {}", op.as_str(), who.user),
+            change: Change::Setting { from, to },
+            id: id.to_string(),
+            label: label.to_string(),
+            severity: None,
+            gauge: None,
+            quantity: None,
+            value: None,
+            value_text: None,
+            threshold: None,
+            operation: Some(op),
+            user: Some(who.user.clone()),
+        }
+    }
+
+    /// Data time for an operator action: the monitor's, else `fallback`.
+    fn op_time(&self, fallback: DateTime<Utc>) -> DateTime<Utc> {
+        self.now.map_or(fallback, |n| n.max(fallback))
     }
 
     /// Changes a rule's threshold (the value of its above/below test) in
-    /// place; its state is kept.
-    pub fn set_threshold(&mut self, id: &str, threshold: f64) -> Result<(), String> {
+    /// place; its state is kept. Returns the audit event.
+    pub fn set_threshold(
+        &mut self,
+        id: &str,
+        threshold: f64,
+        who: &Actor,
+        now: DateTime<Utc>,
+    ) -> Result<Event, String> {
+        let (pu, tu) = (self.setup.pressure_unit, self.setup.temperature_unit);
         let m = self.rule_mut(id)?;
-        m.rule.test = match m.rule.test {
-            Test::Above(_) => Test::Above(threshold),
-            Test::Below(_) => Test::Below(threshold),
+        let old = match m.rule.test {
+            Test::Above(t) | Test::Below(t) => t,
             _ => return Err(format!("{id} has no numeric threshold")),
         };
+        m.rule.test = m_test(&m.rule.test, threshold);
+        let (label, q) = (m.rule.label.clone(), m.rule.quantity.clone());
         if let Some(spec) = self.setup.rules.iter_mut().find(|r| r.rule.id == id) {
             spec.rule.test = m_test(&spec.rule.test, threshold);
         }
-        Ok(())
+        let mut e = self.setting_event(
+            (id, &label),
+            (q.show(old, pu, tu), q.show(threshold, pu, tu)),
+            Operation::SetThreshold,
+            who,
+            self.op_time(now),
+        );
+        e.quantity = Some(q.to_string());
+        Ok(e)
     }
 
-    /// Changes a gate's hold time.
-    pub fn set_hold(&mut self, id: &str, hold_s: f64) -> Result<(), String> {
+    /// Changes a gate's hold time. Returns the audit event.
+    pub fn set_hold(
+        &mut self,
+        id: &str,
+        hold_s: f64,
+        who: &Actor,
+        now: DateTime<Utc>,
+    ) -> Result<Event, String> {
         let g = self
             .gates
             .iter_mut()
             .find(|g| g.gate.id == id)
             .ok_or_else(|| format!("no gate `{id}`"))?;
-        g.gate.hold_s = hold_s;
+        let old = std::mem::replace(&mut g.gate.hold_s, hold_s);
+        let label = g.gate.label.clone();
         if let Some(spec) = self.setup.gates.iter_mut().find(|g| g.id == id) {
             spec.hold_s = hold_s;
         }
-        Ok(())
+        let show = |s: f64| format!("{} s", crate::units::format_sig(s, 6));
+        Ok(self.setting_event(
+            (id, &label),
+            (show(old), show(hold_s)),
+            Operation::SetHold,
+            who,
+            self.op_time(now),
+        ))
     }
 
     /// Starts every gauge's exposure again from zero (a fresh substrate).
-    pub fn reset_exposure(&mut self) {
-        for t in self.tracks.values_mut() {
+    /// Returns an audit event per gauge that had counted any.
+    pub fn reset_exposure(&mut self, who: &Actor, now: DateTime<Utc>) -> Vec<Event> {
+        let now = self.op_time(now);
+        let mut old = Vec::new();
+        for (id, t) in self.tracks.iter_mut() {
+            if t.is_pressure && t.exposure.pa_s() > 0.0 {
+                old.push((id.clone(), t.exposure.langmuir()));
+            }
             t.exposure = Exposure::new(60.0);
         }
+        old.into_iter()
+            .map(|(id, langmuir)| {
+                let show = |x: f64| format!("{} L", crate::units::format_sig(x, 4));
+                let mut e = self.setting_event(
+                    (&format!("{id}.exposure"), &format!("{id} exposure")),
+                    (show(langmuir), show(0.0)),
+                    Operation::ResetExposure,
+                    who,
+                    now,
+                );
+                e.gauge = Some(id);
+                e.quantity = Some("exposure".into());
+                e
+            })
+            .collect()
     }
 
-    /// Acknowledges one alarm at data time `now`, recording `who`.
+    /// Acknowledges one alarm at data time `now`.
     pub fn acknowledge(
         &mut self,
         id: &str,
-        who: &str,
+        who: &Actor,
         now: DateTime<Utc>,
     ) -> Result<Vec<Event>, String> {
-        let ts = self.rule_mut(id)?.acknowledge(now, who)?;
-        Ok(self.operated(id, ts))
+        let now = self.op_time(now);
+        let ts = self.rule_mut(id)?.acknowledge(now, &who.user)?;
+        Ok(self.operated(id, ts, Operation::Acknowledge, who))
     }
 
     /// Acknowledges every alarm waiting for it.
-    pub fn acknowledge_all(&mut self, who: &str, now: DateTime<Utc>) -> Vec<Event> {
+    pub fn acknowledge_all(&mut self, who: &Actor, now: DateTime<Utc>) -> Vec<Event> {
         let ids: Vec<String> = self
             .all_rules()
             .filter(|r| {
@@ -683,24 +977,37 @@ impl Monitor {
         &mut self,
         id: &str,
         seconds: f64,
-        who: &str,
+        who: &Actor,
         now: DateTime<Utc>,
     ) -> Result<Vec<Event>, String> {
-        let until = now + chrono::Duration::milliseconds((seconds * 1000.0) as i64);
-        let ts = self.rule_mut(id)?.shelve(now, until, who)?;
-        Ok(self.operated(id, ts))
+        let now = self.op_time(now);
+        let until = after(now, seconds);
+        let ts = self.rule_mut(id)?.shelve(now, until, &who.user)?;
+        Ok(self.operated(id, ts, Operation::Shelve, who))
     }
 
     /// Returns a shelved alarm to service.
     pub fn unshelve(
         &mut self,
         id: &str,
-        who: &str,
+        who: &Actor,
         now: DateTime<Utc>,
     ) -> Result<Vec<Event>, String> {
-        let ts = self.rule_mut(id)?.unshelve(now, who)?;
-        Ok(self.operated(id, ts))
+        let now = self.op_time(now);
+        let ts = self.rule_mut(id)?.unshelve(now, &who.user)?;
+        Ok(self.operated(id, ts, Operation::Unshelve, who))
     }
+}
+
+/// The automatic bad-input alarm of a gauge.
+fn input_rule(gauge: &str, severity: Severity) -> Rule {
+    automatic_rule(
+        format!("{gauge}.input"),
+        format!("{gauge}: no valid reading"),
+        gauge.to_string(),
+        severity,
+        0.0,
+    )
 }
 
 fn m_test(t: &Test, threshold: f64) -> Test {

@@ -53,7 +53,7 @@ impl fmt::Display for Severity {
 }
 
 /// Alarm states (ISA-18.2).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum AlarmState {
     /// Not in alarm.
@@ -204,6 +204,11 @@ impl Rule {
     pub fn is_input(&self) -> bool {
         self.id.ends_with(".input")
     }
+
+    /// Whether this is a source's automatic not-connected alarm.
+    pub fn is_link(&self) -> bool {
+        self.id.ends_with(".link")
+    }
 }
 
 /// One input to a rule at a data time.
@@ -253,6 +258,20 @@ fn seconds(a: DateTime<Utc>, b: DateTime<Utc>) -> f64 {
     (b - a).num_milliseconds() as f64 / 1000.0
 }
 
+/// The first millisecond of data time at which `seconds(t, ·) >= secs`:
+/// where a delay that started at `t` has run out.
+pub fn after(t: DateTime<Utc>, secs: f64) -> DateTime<Utc> {
+    let ms = (secs * 1000.0 - 1e-6).ceil().max(0.0);
+    // Saturate rather than overflow on absurd delays.
+    let ms = if ms.is_finite() && ms < 1e15 {
+        ms as i64
+    } else {
+        1_000_000_000_000_000
+    };
+    t.checked_add_signed(chrono::Duration::milliseconds(ms))
+        .unwrap_or(DateTime::<Utc>::MAX_UTC)
+}
+
 impl RuleMachine {
     /// A rule in the normal state.
     pub fn new(rule: Rule) -> Self {
@@ -291,6 +310,24 @@ impl RuleMachine {
     /// When a shelved alarm returns to service.
     pub fn shelved_until(&self) -> Option<DateTime<Utc>> {
         self.shelved_until
+    }
+
+    /// The next data time at which this machine changes without a new
+    /// reading: a running on- or off-delay runs out, or a shelving expires.
+    pub fn deadline(&self) -> Option<DateTime<Utc>> {
+        let delay = if self.condition {
+            self.rule.off_delay_s
+        } else {
+            self.rule.on_delay_s
+        };
+        let pending = self.pending_since.map(|since| after(since, delay));
+        let shelf = self
+            .shelved_until
+            .filter(|_| self.state == AlarmState::Shelved);
+        match (pending, shelf) {
+            (Some(a), Some(b)) => Some(a.min(b)),
+            (a, b) => a.or(b),
+        }
     }
 
     /// The raw condition for an input, with hysteresis: `None` when the

@@ -4,6 +4,7 @@
 
 use chrono::{DateTime, Duration, TimeZone, Utc};
 
+use super::event::Actor;
 use super::gate::{Check, Gate, GateMachine, GateState};
 use super::monitor::{GaugeSetup, Monitor, MonitorSetup, RuleSpec};
 use super::quantity::{Class, Quantity};
@@ -331,17 +332,17 @@ fn monitor_reads_statuses_sensibly() {
     assert!(ev.is_empty(), "{ev:?}");
     // Over the top of the gauge's range answers an "above" rule.
     let ev = m.push(&[Sample::bad(t(1.0), "g", MBAR, Status::OverRange)]);
-    assert_eq!(ev[0].to, "unacknowledged");
+    assert_eq!(ev[0].to_text(), "unacknowledged");
     assert_eq!(ev[0].value_text.as_deref(), Some("over-range"));
     // Switched off: suppressed by design.
     let ev = m.push(&[Sample::bad(t(2.0), "g", MBAR, Status::SensorOff)]);
-    assert_eq!(ev[0].to, "suppressed-by-design");
+    assert_eq!(ev[0].to_text(), "suppressed-by-design");
     // A sensor error raises the bad-input alarm; the rule holds.
     m.push(&[Sample::ok(t(3.0), "g", 1e-4, MBAR)]);
     let ev = m.push(&[Sample::bad(t(4.0), "g", MBAR, Status::SensorError)]);
     assert_eq!(ev.len(), 1, "{ev:?}");
     assert_eq!(
-        (ev[0].id.as_str(), ev[0].to.as_str()),
+        (ev[0].id.as_str(), ev[0].to_text()),
         ("g.input", "unacknowledged")
     );
     assert!(ev[0].text.contains("sensor-error"), "{}", ev[0].text);
@@ -357,7 +358,7 @@ fn monitor_notices_a_stale_gauge_on_data_time() {
     assert_eq!(ev[0].id, "g.input");
     assert_eq!(ev[0].value_text.as_deref(), Some("stale"));
     let ev = m.push(&[Sample::ok(t(11.0), "g", 1e-4, MBAR)]);
-    assert_eq!(ev[0].to, "returned-unacknowledged");
+    assert_eq!(ev[0].to_text(), "returned-unacknowledged");
 }
 
 #[test]
@@ -410,7 +411,7 @@ fn monitor_rate_of_change_and_exposure() {
             break;
         }
     }
-    assert_eq!(last[0].to, "unacknowledged");
+    assert_eq!(last[0].to_text(), "unacknowledged");
     let rate = m.track("g").and_then(|g| g.decades_per_min).expect("rate");
     assert!((rate - 6.0).abs() < 1e-6, "{rate}");
     let mut m = Monitor::new(setup(vec![], vec![]));
@@ -424,11 +425,13 @@ fn monitor_rate_of_change_and_exposure() {
 #[test]
 fn monitor_operations_name_unknown_alarms() {
     let mut m = Monitor::new(setup(vec![rule(Test::Above(1.0))], vec![]));
-    let e = m.acknowledge("q", "x", t(0.0)).expect_err("unknown");
+    let e = m
+        .acknowledge("q", &Actor::named("x"), t(0.0))
+        .expect_err("unknown");
     assert!(e.contains("no alarm `q`"), "{e}");
     m.push(&[Sample::ok(t(0.0), "g", 100.0, MBAR)]);
-    let ev = m.acknowledge_all("dee", t(1.0));
-    assert_eq!(ev[0].to, "acknowledged");
+    let ev = m.acknowledge_all(&Actor::named("dee"), t(1.0));
+    assert_eq!(ev[0].to_text(), "acknowledged");
     assert_eq!(ev[0].user.as_deref(), Some("dee"));
 }
 
@@ -471,7 +474,7 @@ fn crossings_on_a_simulated_pumpdown_and_vent_match_the_engine() {
     while !sim.is_finished() {
         let samples = sim.next_samples();
         for e in m.push(&samples) {
-            if e.to == "unacknowledged" {
+            if e.to_text() == "unacknowledged" {
                 got.push((e.id.clone(), e.time));
             }
         }
@@ -496,7 +499,7 @@ fn crossings_on_a_simulated_pumpdown_and_vent_match_the_engine() {
         }
         // Acknowledge so every crossing is a fresh alarm.
         let now = cdg.time;
-        m.acknowledge_all("test", now);
+        m.acknowledge_all(&Actor::named("test"), now);
     }
     got.sort();
     expected.sort();
@@ -505,4 +508,212 @@ fn crossings_on_a_simulated_pumpdown_and_vent_match_the_engine() {
         "pump-down and vent cross both boundaries: {expected:?}"
     );
     assert_eq!(got, expected);
+}
+
+// --- Data time: deadlines, silence, links and the audit trail ---
+
+fn delayed_setup() -> MonitorSetup {
+    // Thresholds are SI: 1e-1 Pa = 1e-3 mbar, 1e-4 Pa = 1e-6 mbar.
+    let mut on = rule(Test::Above(1e-1));
+    on.id = "high".into();
+    on.on_delay_s = 5.0;
+    on.off_delay_s = 7.5;
+    let mut latch = rule(Test::Below(1e-4));
+    latch.id = "low".into();
+    latch.latching = true;
+    latch.on_delay_s = 0.25;
+    let gate = Gate {
+        id: "ready".into(),
+        label: "Ready".into(),
+        conditions: vec![
+            syntax::condition("g pressure below 1e-4 mbar", &|_| None).expect("valid"),
+        ],
+        hold_s: 8.0,
+    };
+    setup(vec![on, latch], vec![gate])
+}
+
+/// Events with what identifies them: id, new state, data time.
+fn keys(ev: &[crate::alarm::Event]) -> Vec<(String, String, DateTime<Utc>)> {
+    ev.iter()
+        .map(|e| (e.id.clone(), e.to_text().to_string(), e.time))
+        .collect()
+}
+
+#[test]
+fn a_delay_runs_out_at_its_own_time_not_at_the_next_row() {
+    let mut m = Monitor::new(delayed_setup());
+    m.push(&[Sample::ok(t(0.0), "g", 1e-5, MBAR)]);
+    m.push(&[Sample::ok(t(1.0), "g", 1e-2, MBAR)]);
+    // The next row comes 8 s later; the 5 s on-delay ran out at 6 s.
+    let ev = m.push(&[Sample::ok(t(9.0), "g", 1e-2, MBAR)]);
+    let high: Vec<_> = ev.iter().filter(|e| e.id == "high").collect();
+    assert_eq!(high.len(), 1, "{ev:?}");
+    assert_eq!(high[0].time, t(6.0));
+    assert_eq!(
+        m.next_deadline(),
+        Some(t(19.001)),
+        "stale 10 s after the last row"
+    );
+}
+
+#[test]
+fn events_do_not_depend_on_how_often_time_is_advanced() {
+    // Rows with gaps longer than stale_after, a dropout, crossings shorter
+    // than the on-delay and returns inside the off-delay.
+    let rows: Vec<(f64, Option<f64>)> = vec![
+        (0.0, Some(1e-5)),
+        (1.0, Some(2e-3)),
+        (3.0, Some(2e-3)),
+        (4.0, Some(1e-5)),
+        (5.0, Some(2e-3)),
+        (8.0, Some(2e-3)),
+        (12.0, Some(1e-5)),
+        (30.0, Some(1e-5)),
+        (31.0, None),
+        (33.0, Some(5e-7)),
+        (33.2, Some(1e-5)),
+        (33.4, Some(5e-7)),
+        (34.0, Some(5e-7)),
+        (60.0, Some(1e-5)),
+        (75.5, Some(1e-5)),
+    ];
+    let sample = |(s, v): (f64, Option<f64>)| match v {
+        Some(v) => Sample::ok(t(s), "g", v, MBAR),
+        None => Sample::bad(t(s), "g", MBAR, Status::SensorError),
+    };
+    let run = |ticks: &dyn Fn(f64, f64) -> Vec<f64>| {
+        let mut m = Monitor::new(delayed_setup());
+        let mut out = Vec::new();
+        let mut prev = None;
+        for &row in &rows {
+            if let Some(p) = prev {
+                for x in ticks(p, row.0) {
+                    out.extend(m.tick(t(x)));
+                }
+            }
+            out.extend(m.push(&[sample(row)]));
+            prev = Some(row.0);
+        }
+        keys(&out)
+    };
+    let rows_only = run(&|_, _| Vec::new());
+    let every_100ms = run(&|a, b| {
+        let n = ((b - a) * 10.0) as usize;
+        (1..n).map(|i| a + i as f64 * 0.1).collect()
+    });
+    let odd = run(&|a, b| vec![a, a + (b - a) * 0.37, a + (b - a) * 0.999, b]);
+    assert_eq!(rows_only, every_100ms);
+    assert_eq!(rows_only, odd);
+    // The run has every kind of deadline in it.
+    let ids: Vec<&str> = rows_only.iter().map(|k| k.0.as_str()).collect();
+    for id in ["high", "low", "g.input", "ready"] {
+        assert!(ids.contains(&id), "{id} missing from {rows_only:?}");
+    }
+}
+
+#[test]
+fn a_configured_gauge_that_never_sends_goes_stale() {
+    let mut s = setup(vec![], vec![]);
+    s.gauges = vec![GaugeSetup {
+        id: "quiet".into(),
+        model: GaugeModel::new(GaugeKind::Capacitance, &n2(), &GaugeOverrides::default())
+            .expect("model"),
+        mixture: n2(),
+    }];
+    let mut m = Monitor::new(s);
+    assert!(
+        m.push(&[Sample::ok(t(0.0), "other", 1e-5, MBAR)])
+            .is_empty()
+    );
+    assert!(
+        m.push(&[Sample::ok(t(10.0), "other", 1e-5, MBAR)])
+            .is_empty()
+    );
+    let ev = m.push(&[Sample::ok(t(11.0), "other", 1e-5, MBAR)]);
+    assert_eq!(ev.len(), 1, "{ev:?}");
+    assert_eq!(
+        (ev[0].id.as_str(), ev[0].to_text(), ev[0].time),
+        ("quiet.input", "unacknowledged", t(10.001))
+    );
+    assert_eq!(ev[0].value_text.as_deref(), Some("no data"));
+    // A channel a source announced is watched the same way.
+    let mut m = Monitor::new(setup(vec![], vec![]));
+    m.expect_channel("pirani");
+    assert!(m.start(t(0.0)).is_empty());
+    let ev = m.tick(t(60.0));
+    assert_eq!(
+        keys(&ev),
+        vec![("pirani.input".into(), "unacknowledged".into(), t(10.001))]
+    );
+}
+
+#[test]
+fn a_source_that_never_connects_raises_its_link_alarm() {
+    let mut m = Monitor::new(setup(vec![], vec![]));
+    m.add_link("source-1", "tcp://127.0.0.1:9");
+    m.start(t(0.0));
+    assert!(m.tick(t(9.9)).is_empty());
+    let ev = m.tick(t(10.2));
+    assert_eq!(
+        keys(&ev),
+        vec![("source-1.link".into(), "unacknowledged".into(), t(10.0))]
+    );
+    assert!(ev[0].text.contains("not connected"), "{}", ev[0].text);
+    let view = m.alarms();
+    let link = view
+        .iter()
+        .find(|a| a.rule.id == "source-1.link")
+        .expect("shown");
+    assert_eq!(link.value_text.as_deref(), Some("not connected"));
+    let ev = m.set_link("source-1", true, t(12.0));
+    assert_eq!(
+        keys(&ev),
+        vec![(
+            "source-1.link".into(),
+            "returned-unacknowledged".into(),
+            t(12.0)
+        )]
+    );
+}
+
+#[test]
+fn operator_actions_are_events_with_who_and_when() {
+    let wall = Utc.timestamp_opt(1_900_000_000, 0).single().expect("time");
+    let ana = Actor {
+        user: "ana".into(),
+        wall_time: Some(wall),
+    };
+    let mut m = Monitor::new(setup(vec![rule(Test::Above(1e-3))], vec![]));
+    m.push(&[Sample::ok(t(0.0), "g", 1e-2, MBAR)]);
+    m.push(&[Sample::ok(t(0.5), "g", 1e-2, MBAR)]);
+    let ev = m.acknowledge("r", &ana, t(1.0)).expect("ack");
+    assert_eq!(ev.len(), 1);
+    assert_eq!(ev[0].operation, Some(crate::alarm::Operation::Acknowledge));
+    assert_eq!(ev[0].user.as_deref(), Some("ana"));
+    assert_eq!(ev[0].wall_time, Some(wall));
+    assert_eq!(
+        (ev[0].from_text(), ev[0].to_text()),
+        ("unacknowledged", "acknowledged")
+    );
+    let e = m.set_threshold("r", 2e-1, &ana, t(2.0)).expect("edit");
+    assert_eq!(e.kind(), crate::alarm::EventKind::Setting);
+    assert_eq!(
+        (e.from_text(), e.to_text()),
+        ("1.00e-5 mbar", "2.00e-3 mbar")
+    );
+    let back = crate::alarm::Event::from_json(&e.to_json()).expect("reads back");
+    assert_eq!(back, e);
+    assert_eq!(back.v, crate::alarm::EVENT_VERSION);
+    let ev = m.reset_exposure(&ana, t(3.0));
+    assert_eq!(ev.len(), 1);
+    assert_eq!(ev[0].id, "g.exposure");
+    assert_eq!(ev[0].to_text(), "0 L");
+    // Shelving expires on data time, at its own deadline.
+    let ev = m.shelve("r", 30.0, &ana, t(3.0)).expect("shelve");
+    assert_eq!(ev[0].operation, Some(crate::alarm::Operation::Shelve));
+    assert_eq!(m.next_deadline(), Some(t(10.501)), "stale first");
+    let ev = m.push(&[Sample::ok(t(40.0), "g", 1e-2, MBAR)]);
+    let shelf: Vec<_> = ev.iter().filter(|e| e.id == "r").collect();
+    assert_eq!(shelf[0].time, t(33.0), "{ev:?}");
 }

@@ -278,7 +278,7 @@ pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             0
         };
         let top_h = (gauges + 2).max(kin_h);
-        let lengths_n = app.monitor.setup().lengths.len() as u16;
+        let lengths_n = app.monitor().setup().lengths.len() as u16;
         let mid_h = if tall {
             (lengths_n + 2).max(alarm_rows(app) + 2).min(14)
         } else {
@@ -327,7 +327,7 @@ fn split(area: Rect, left_pct: u16) -> (Rect, Rect) {
 }
 
 fn alarm_rows(app: &App) -> u16 {
-    (app.monitor.alarms().len() + app.monitor.gates().len()).max(1) as u16
+    (app.monitor().alarms().len() + app.monitor().gates().len()).max(1) as u16
 }
 
 fn title_bar(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
@@ -735,7 +735,11 @@ fn alarms(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
                 },
             ),
         };
-        let why = match (g.state(), g.time_left_s(), g.reason()) {
+        let left = monitor
+            .now()
+            .and_then(|n| g.time_left_at(n))
+            .or(g.time_left_s());
+        let why = match (g.state(), left, g.reason()) {
             (GateState::Ready, _, _) => format!("held {} s", g.gate.hold_s),
             (_, Some(left), _) if left > 0.0 => format!("{left:.0} s left"),
             (_, _, Some(r)) => r.to_string(),

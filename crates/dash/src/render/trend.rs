@@ -93,7 +93,9 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let thresholds: Vec<f64> = monitor
         .alarms()
         .iter()
-        .filter(|a| a.rule.quantity == Quantity::Pressure && !a.rule.is_input())
+        .filter(|a| {
+            a.rule.quantity == Quantity::Pressure && !a.rule.is_input() && !a.rule.is_link()
+        })
         .filter_map(|a| match a.rule.test {
             Test::Above(t) | Test::Below(t) => Some(to_y(t)),
             _ => None,
@@ -214,7 +216,11 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         }
     }
     // Alarm events in the window, marked on the top row.
-    for e in app.events.iter().filter(|e| e.to == "unacknowledged") {
+    for e in app
+        .events
+        .iter()
+        .filter(|e| e.to_text() == "unacknowledged")
+    {
         let t = app.secs(e.time);
         if (t0..=t1).contains(&t) {
             let x = x_of(t, 1.0) as u16;

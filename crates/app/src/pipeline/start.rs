@@ -1,18 +1,11 @@
-//! What `record`, `gate wait` and the dashboard share: choosing and starting
-//! sources, one-off alarms from the command line, the data clock, and
-//! printing events.
+//! Choosing and starting sources, and one-off alarms from the command line:
+//! what every live driver of the pipeline does first.
 
-use std::io::Write;
-use std::time::Instant;
-
-use chrono::{DateTime, Utc};
-use serde_json::{Value, json};
 use tokio::sync::mpsc;
 use tokio::task::JoinHandle;
 
-use crate::alarm::{Event, Rule};
+use crate::alarm::Rule;
 use crate::config::{Config, SourceConfig};
-use crate::log::v1::format_time;
 use crate::sample::{ChannelInfo, SourceEvent};
 use crate::sim::Simulator;
 use crate::source::{self, SourceKind, SourceSpec, SourceUri};
@@ -52,6 +45,9 @@ pub struct Started {
     pub names: Vec<String>,
     /// The simulated chamber, when one is a source (for its name and size).
     pub sim: Option<Simulator>,
+    /// Whether every source is a finished file read once: then rows alone
+    /// move data time, and wall time never enters.
+    pub finite: bool,
 }
 
 impl Started {
@@ -69,6 +65,9 @@ pub fn start(sources: Vec<SourceConfig>, queue: usize) -> Started {
     let mut channels: Vec<ChannelInfo> = Vec::new();
     let mut tasks = Vec::new();
     let names = sources.iter().map(|s| s.uri.text.clone()).collect();
+    let finite = sources
+        .iter()
+        .all(|s| matches!(s.uri.kind, SourceKind::File { follow: false, .. }));
     let sim = sources.iter().find_map(|s| match &s.uri.kind {
         SourceKind::Sim(settings) => source::sim::simulator(settings).ok(),
         _ => None,
@@ -99,6 +98,7 @@ pub fn start(sources: Vec<SourceConfig>, queue: usize) -> Started {
         channels,
         names,
         sim,
+        finite,
     }
 }
 
@@ -137,66 +137,64 @@ pub fn cli_rules(
         .collect()
 }
 
-/// Data time as it goes on between readings: the last reading's time plus
-/// the wall time since it arrived, so a silent gauge goes stale in live use
-/// while a replayed file keeps its own clock.
-#[derive(Debug, Default)]
-pub struct DataClock {
-    last: Option<(DateTime<Utc>, Instant)>,
+/// The configuration a run was started with, as the log header keeps it.
+#[derive(Debug, Clone, Copy)]
+pub struct ConfigFile<'a> {
+    /// Where it was read from.
+    pub path: &'a std::path::Path,
+    /// Its text, exactly as read.
+    pub text: &'a str,
 }
 
-impl DataClock {
-    /// A reading with data time `t` arrived now.
-    pub fn saw(&mut self, t: DateTime<Utc>) {
-        if self.last.is_none_or(|(l, _)| t >= l) {
-            self.last = Some((t, Instant::now()));
-        }
-    }
-
-    /// Data time now, once anything has arrived.
-    pub fn now(&self) -> Option<DateTime<Utc>> {
-        self.last.map(|(t, at)| {
-            t + chrono::Duration::from_std(at.elapsed())
-                .unwrap_or_else(|_| chrono::Duration::zero())
-        })
-    }
-}
-
-/// Prints one JSON event line to stdout (wall time added).
-pub fn emit(mut v: Value) {
-    if let Value::Object(m) = &mut v {
-        m.insert("wall_time".into(), Value::String(format_time(Utc::now())));
-    }
-    let mut out = std::io::stdout().lock();
-    let _ = writeln!(out, "{v}");
-    let _ = out.flush();
-}
-
-/// A human status line on stderr.
-pub fn say(text: &str) {
-    eprintln!("rarefy: {text}");
-}
-
-/// An alarm or gate event as a stdout JSON line: `{"event": "alarm", …}`.
-pub fn event_json(e: &Event) -> Value {
-    let mut v = serde_json::to_value(e).unwrap_or_else(|_| json!({}));
-    if let Value::Object(m) = &mut v {
-        let kind = m.remove("kind").unwrap_or(Value::Null);
-        m.insert("event".into(), kind);
-    }
-    v
-}
-
-/// Metadata lines that let a replay of the log rebuild the same alarms: the
-/// config file (absolute path) and each one-off `--alarm`.
-pub fn alarm_meta(config: Option<&std::path::Path>, alarms: &[String]) -> Vec<(String, String)> {
-    let mut out = Vec::new();
-    if let Some(p) = config {
-        let abs = std::fs::canonicalize(p).unwrap_or_else(|_| p.to_path_buf());
-        out.push(("config".to_string(), abs.display().to_string()));
+/// The log header of a recording: the chamber (from the config, else the
+/// simulated chamber's), the gas, the sources, and what a replay needs to
+/// rebuild the same alarms even after the config file has changed: the
+/// config's path and its whole text (`config-toml`, one JSON string), and
+/// each one-off `--alarm`.
+pub fn log_meta(
+    config: &Config,
+    file: Option<ConfigFile<'_>>,
+    alarms: &[String],
+    started: &Started,
+) -> crate::log::LogMeta {
+    let mut extra = Vec::new();
+    if let Some(f) = file {
+        let abs = std::fs::canonicalize(f.path).unwrap_or_else(|_| f.path.to_path_buf());
+        extra.push(("config".to_string(), abs.display().to_string()));
+        extra.push((
+            CONFIG_TEXT_KEY.to_string(),
+            serde_json::to_string(f.text).unwrap_or_default(),
+        ));
     }
     for (i, a) in alarms.iter().enumerate() {
-        out.push((format!("alarm.{}", i + 1), a.clone()));
+        extra.push((format!("alarm.{}", i + 1), a.clone()));
     }
-    out
+    let mut meta = crate::log::LogMeta {
+        chamber: (!config.chamber.name.is_empty()).then(|| config.chamber.name.clone()),
+        volume_m3: config.chamber.volume_m3,
+        surface_area_m2: config.chamber.surface_area_m2,
+        gas: Some(config.mixture.label()),
+        source: Some(started.names.join(" ")),
+        extra,
+        ..Default::default()
+    };
+    // Recording the simulated chamber: its own name and size, unless the
+    // config describes the chamber.
+    if let Some(sim) = started.sim.as_ref().filter(|_| meta.chamber.is_none()) {
+        meta.chamber = Some(sim.chamber_name().to_string());
+        meta.volume_m3 = Some(sim.volume_m3());
+        meta.surface_area_m2 = Some(sim.surface_area_m2());
+    }
+    meta
+}
+
+/// The header key under which a log keeps its config's text.
+pub const CONFIG_TEXT_KEY: &str = "config-toml";
+
+/// The config text a log's header keeps, when it keeps one.
+pub fn recorded_config(meta: &crate::log::LogMeta) -> Option<String> {
+    meta.extra
+        .iter()
+        .find(|(k, _)| k == CONFIG_TEXT_KEY)
+        .and_then(|(_, v)| serde_json::from_str::<String>(v).ok())
 }
