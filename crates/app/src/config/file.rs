@@ -153,8 +153,12 @@ pub struct TemplateSection {
     /// Device words mapped to statuses.
     #[serde(default)]
     pub status: std::collections::BTreeMap<String, crate::sample::Status>,
-    /// Format of the `time` group.
-    pub time_format: Option<String>,
+    /// Format of the `time` group: `"rfc3339"`, `"epoch-s"`, `"epoch-ms"`
+    /// or a strftime pattern (checked as `[log]`'s time format is).
+    pub time_format: Option<Spanned<String>>,
+    /// Zone of a pattern without an offset: an IANA name or `"+01:00"`
+    /// (default UTC).
+    pub timezone: Option<Spanned<String>>,
 }
 
 /// `[record]`

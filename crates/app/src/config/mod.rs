@@ -18,10 +18,11 @@ use crate::engine::mixture::Mixture;
 use crate::engine::regime::{IsoEdition, RegimeBounds};
 use crate::engine::{GaugeModel, GaugeOverrides, Model, NamedLength, Physics};
 use crate::gas::{Gas, GasSources, GasTable, T_REF_K};
-use crate::parse::template::{Template, TemplateSpec, TimeFormat};
+use crate::parse::template::{Template, TemplateSpec};
 use crate::record::RecordSettings;
 use crate::sample::ChannelUnit;
 use crate::source::{Poll, SourceUri};
+use crate::timefmt::{TimeFormat, Zone};
 use crate::units::{PressureUnit, TemperatureUnit, UnitKind, format_sig};
 
 /// The chamber being watched.
@@ -437,6 +438,7 @@ impl Resolver<'_> {
                 units: Default::default(),
                 status: t.status.clone(),
                 time_format: None,
+                time_zone: None,
             };
             let mut ok = true;
             if let Some(u) = &t.unit {
@@ -452,12 +454,27 @@ impl Resolver<'_> {
                 }
             }
             if let Some(f) = &t.time_format {
-                match TimeFormat::parse(f) {
+                match TimeFormat::parse(f.get_ref()) {
                     Ok(f) => spec.time_format = Some(f),
                     Err(e) => {
-                        self.err(span.clone(), e);
+                        self.err(f.span(), e);
                         ok = false;
                     }
+                }
+            }
+            if let Some(z) = &t.timezone {
+                match Zone::parse(z.get_ref()) {
+                    Ok(zone) => spec.time_zone = Some(zone),
+                    Err(e) => {
+                        self.err(z.span(), e);
+                        ok = false;
+                    }
+                }
+                if let Some(f) = &spec.time_format
+                    && let Err(e) = crate::timefmt::check_zone(f, true)
+                {
+                    self.err(z.span(), e);
+                    ok = false;
                 }
             }
             if !ok {
