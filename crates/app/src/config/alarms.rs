@@ -1,8 +1,19 @@
 //! `[alarms]`, `[[alarm]]` and `[[gate]]`: shared settings, rules, gates
 //! and the commands they run.
 
+use toml::Spanned;
+
 use super::{Errors, GaugeConfig, file};
+use crate::alarm::rule::{Deadband, Rule, Severity};
+use crate::alarm::{Gate, RuleSpec, quantity::Quantity, syntax};
 use crate::engine::NamedLength;
+
+/// Whether a gauge id names a configured gauge (any id does while none is
+/// configured); reports the problem at the id's span when not.
+type KnownGauge<'k> = dyn Fn(&mut Errors<'_>, &Spanned<String>) -> bool + 'k;
+
+/// A named length's value, m.
+type LengthOf<'k> = dyn Fn(&str) -> Option<f64> + 'k;
 
 /// A command run on an alarm's or gate's events (never through a shell).
 #[derive(Debug, Clone, PartialEq)]
@@ -63,8 +74,6 @@ pub(super) fn resolve(
     alarms: Vec<file::AlarmSection>,
     gates: Vec<file::GateSection>,
 ) -> AlarmConfig {
-    use crate::alarm::rule::{Deadband, Rule, Severity, Test};
-    use crate::alarm::{Gate, RuleSpec, quantity::Class, quantity::Quantity, syntax};
     let mut out = AlarmConfig::default();
     let gauge_ids: Vec<String> = gauges.iter().map(|g| g.id.clone()).collect();
     let all_lengths = lengths;
@@ -156,118 +165,11 @@ pub(super) fn resolve(
             continue;
         }
         ids.push(id.clone());
-        let gauge = match (&a.gauge, &out.default_gauge) {
-            // Temperature channels are not gauges of the config.
-            (Some(g), _) if a.quantity.get_ref() == "temperature" => g.get_ref().clone(),
-            (Some(g), _) => {
-                if !known_gauge(errs, g) {
-                    continue;
-                }
-                g.get_ref().clone()
-            }
-            (None, Some(d)) => d.clone(),
-            (None, None) => {
-                errs.err(
-                    a.id.span(),
-                    format!("alarm `{id}` names no gauge; give `gauge` or [alarms] default_gauge"),
-                );
-                continue;
-            }
+        let rule = match &a.condition {
+            Some(text) => from_text(errs, &a, &id, text, &out, &length_of, &known_gauge),
+            None => from_keys(errs, &a, &id, &out, all_lengths, &length_of, &known_gauge),
         };
-        let quantity = match Quantity::parse(
-            a.quantity.get_ref(),
-            a.length.as_ref().map(|l| l.get_ref().as_str()),
-        ) {
-            Ok(q) => q,
-            Err(e) => {
-                errs.err(a.quantity.span(), e);
-                continue;
-            }
-        };
-        if let Some(l) = quantity.length()
-            && length_of(l).is_none()
-        {
-            let span = a.length.as_ref().map_or(a.quantity.span(), |s| s.span());
-            let names: Vec<String> = all_lengths.iter().map(|l| l.name.clone()).collect();
-            let hint = crate::suggest::nearest(l, names.iter().map(String::as_str))
-                .map(|s| format!(" (did you mean `{s}`?)"))
-                .unwrap_or_default();
-            errs.err(
-                span,
-                format!("no length named `{l}` is configured{hint} ([[length]])"),
-            );
-            continue;
-        }
-        let tests: Vec<(&str, &toml::Spanned<String>)> = [
-            ("above", &a.above),
-            ("below", &a.below),
-            ("enters", &a.enters),
-            ("leaves", &a.leaves),
-            ("crosses", &a.crosses),
-        ]
-        .into_iter()
-        .filter_map(|(k, v)| v.as_ref().map(|v| (k, v)))
-        .collect();
-        let [(op, value)] = tests.as_slice() else {
-            errs.err(
-                a.id.span(),
-                format!("alarm `{id}` needs exactly one of above, below, enters, leaves, crosses"),
-            );
-            continue;
-        };
-        let mut quantity = quantity;
-        if quantity == Quantity::RateOfChange
-            && crate::alarm::quantity::rate(value.get_ref()).is_ok_and(|(_, decades)| decades)
-        {
-            quantity = Quantity::DecadesPerMinute;
-        }
-        let class = |w: &str| Class::parse(&quantity, w);
-        let test = match *op {
-            "above" | "below" => match quantity.threshold(value.get_ref()) {
-                Ok(t) if *op == "above" => Ok(Test::Above(t)),
-                Ok(t) => Ok(Test::Below(t)),
-                Err(e) => Err(e),
-            },
-            "enters" => class(value.get_ref()).map(Test::Enters),
-            "leaves" => class(value.get_ref()).map(Test::Leaves),
-            _ => match value.get_ref().split_once('/') {
-                Some((x, y)) => match (class(x), class(y)) {
-                    (Ok(x), Ok(y)) if x.rank().abs_diff(y.rank()) == 1 => Ok(Test::Crosses(x, y)),
-                    (Ok(x), Ok(y)) => {
-                        Err(format!("{}/{} are not neighbours", x.as_str(), y.as_str()))
-                    }
-                    (Err(e), _) | (_, Err(e)) => Err(e),
-                },
-                None => Err(
-                    "crosses needs two neighbouring classes, e.g. \"transitional/molecular\""
-                        .into(),
-                ),
-            },
-        };
-        let test = match test {
-            Ok(t) => t,
-            Err(e) => {
-                errs.err(value.span(), e);
-                continue;
-            }
-        };
-        let deadband = match &a.deadband {
-            None => Deadband::None,
-            Some(d) if quantity.is_class() => {
-                errs.err(
-                    d.span(),
-                    format!("{quantity} has no deadband; use on_delay/off_delay"),
-                );
-                continue;
-            }
-            Some(d) => match Deadband::parse(d.get_ref(), |s| quantity.threshold(s)) {
-                Ok(db) => db,
-                Err(e) => {
-                    errs.err(d.span(), e);
-                    continue;
-                }
-            },
-        };
+        let Some(rule) = rule else { continue };
         let enable = match &a.enable {
             Some(c) => match syntax::condition(c.get_ref(), &length_of) {
                 Ok(c) => Some(c),
@@ -281,21 +183,7 @@ pub(super) fn resolve(
         if let Some(act) = action(errs, &id, &a.command, &a.command_timeout, &a.repeat_after) {
             out.actions.push(act);
         }
-        out.rules.push(RuleSpec {
-            rule: Rule {
-                label: a.label.clone().unwrap_or_else(|| id.clone()),
-                id,
-                gauge,
-                quantity,
-                test,
-                deadband,
-                on_delay_s: a.on_delay.as_ref().map_or(0.0, |d| d.get_ref().si),
-                off_delay_s: a.off_delay.as_ref().map_or(0.0, |d| d.get_ref().si),
-                severity: a.severity.unwrap_or(Severity::Warning),
-                latching: a.latching.unwrap_or(false),
-            },
-            enable,
-        });
+        out.rules.push(RuleSpec { rule, enable });
     }
     let mut gate_ids: Vec<String> = Vec::new();
     for g in gates {
@@ -351,4 +239,213 @@ pub(super) fn resolve(
         });
     }
     out
+}
+
+/// The keys a `condition` text says itself, so they may not be given too.
+fn keys_the_text_says(a: &file::AlarmSection) -> Vec<(&'static str, std::ops::Range<usize>)> {
+    let strings = [
+        ("gauge", &a.gauge),
+        ("quantity", &a.quantity),
+        ("length", &a.length),
+        ("above", &a.above),
+        ("below", &a.below),
+        ("enters", &a.enters),
+        ("leaves", &a.leaves),
+        ("crosses", &a.crosses),
+        ("deadband", &a.deadband),
+    ];
+    let durations = [("on_delay", &a.on_delay), ("off_delay", &a.off_delay)];
+    strings
+        .into_iter()
+        .filter_map(|(k, v)| v.as_ref().map(|v| (k, v.span())))
+        .chain(
+            durations
+                .into_iter()
+                .filter_map(|(k, v)| v.as_ref().map(|v| (k, v.span()))),
+        )
+        .chain(a.severity.as_ref().map(|v| ("severity", v.span())))
+        .chain(a.latching.as_ref().map(|v| ("latching", v.span())))
+        .collect()
+}
+
+/// An `[[alarm]]` written as one text, `condition = "…"`: the same alarm
+/// text as `--alarm`, read by the same parser.
+fn from_text(
+    errs: &mut Errors<'_>,
+    a: &file::AlarmSection,
+    id: &str,
+    text: &Spanned<String>,
+    settings: &AlarmConfig,
+    length_of: &LengthOf<'_>,
+    known_gauge: &KnownGauge<'_>,
+) -> Option<Rule> {
+    let extra = keys_the_text_says(a);
+    for (key, span) in &extra {
+        errs.err(
+            span.clone(),
+            format!(
+                "alarm `{id}`: `{key}` is said by its `condition` text; write it there \
+                 (e.g. \"chamber pressure above 2e-5 mbar deadband 10 % for 10 s clear after 30 s as trip latching\") \
+                 or drop `condition` and use the keys"
+            ),
+        );
+    }
+    if !extra.is_empty() {
+        return None;
+    }
+    let parsed = match syntax::alarm_text(text.get_ref(), length_of) {
+        Ok(p) => p,
+        Err(e) => {
+            errs.err(text.span(), e);
+            return None;
+        }
+    };
+    let mut rule = parsed.rule;
+    if let Some(named) = parsed.named
+        && named != id
+    {
+        errs.err(
+            text.span(),
+            format!(
+                "the condition says `named {named}` but the alarm's id is `{id}`; drop `named` (the id is `id`)"
+            ),
+        );
+        return None;
+    }
+    rule.gauge = match (parsed.gauge, &settings.default_gauge) {
+        (Some(g), _) => {
+            // Temperature channels are not gauges of the config.
+            let spanned = Spanned::new(text.span(), g);
+            if !rule.quantity.is_temperature() && !known_gauge(errs, &spanned) {
+                return None;
+            }
+            spanned.into_inner()
+        }
+        (None, Some(d)) => d.clone(),
+        (None, None) => {
+            errs.err(
+                text.span(),
+                format!(
+                    "alarm `{id}` names no gauge; begin its condition with one (\"chamber pressure above …\") or set [alarms] default_gauge"
+                ),
+            );
+            return None;
+        }
+    };
+    rule.id = id.to_string();
+    rule.label = a.label.clone().unwrap_or_else(|| id.to_string());
+    Some(rule)
+}
+
+/// An `[[alarm]]` written with keys (`quantity`, `above`, `deadband`, …);
+/// values go through the alarm text's readers.
+fn from_keys(
+    errs: &mut Errors<'_>,
+    a: &file::AlarmSection,
+    id: &str,
+    settings: &AlarmConfig,
+    lengths: &[NamedLength],
+    length_of: &LengthOf<'_>,
+    known_gauge: &KnownGauge<'_>,
+) -> Option<Rule> {
+    let Some(quantity_key) = &a.quantity else {
+        errs.err(
+            a.id.span(),
+            format!(
+                "alarm `{id}` says nothing to watch; give `condition` (e.g. \"chamber pressure above 2e-5 mbar for 10 s\") \
+                 or `quantity` with one of above, below, enters, leaves, crosses"
+            ),
+        );
+        return None;
+    };
+    let gauge = match (&a.gauge, &settings.default_gauge) {
+        // Temperature channels are not gauges of the config.
+        (Some(g), _) if quantity_key.get_ref() == "temperature" => g.get_ref().clone(),
+        (Some(g), _) => {
+            if !known_gauge(errs, g) {
+                return None;
+            }
+            g.get_ref().clone()
+        }
+        (None, Some(d)) => d.clone(),
+        (None, None) => {
+            errs.err(
+                a.id.span(),
+                format!("alarm `{id}` names no gauge; give `gauge` or [alarms] default_gauge"),
+            );
+            return None;
+        }
+    };
+    let quantity = match Quantity::parse(
+        quantity_key.get_ref(),
+        a.length.as_ref().map(|l| l.get_ref().as_str()),
+    ) {
+        Ok(q) => q,
+        Err(e) => {
+            errs.err(quantity_key.span(), e);
+            return None;
+        }
+    };
+    if let Some(l) = quantity.length()
+        && length_of(l).is_none()
+    {
+        let span = a.length.as_ref().map_or(quantity_key.span(), |s| s.span());
+        let hint = crate::suggest::nearest(l, lengths.iter().map(|l| l.name.as_str()))
+            .map(|s| format!(" (did you mean `{s}`?)"))
+            .unwrap_or_default();
+        errs.err(
+            span,
+            format!("no length named `{l}` is configured{hint} ([[length]])"),
+        );
+        return None;
+    }
+    let tests: Vec<(&str, &Spanned<String>)> = [
+        ("above", &a.above),
+        ("below", &a.below),
+        ("enters", &a.enters),
+        ("leaves", &a.leaves),
+        ("crosses", &a.crosses),
+    ]
+    .into_iter()
+    .filter_map(|(k, v)| v.as_ref().map(|v| (k, v)))
+    .collect();
+    let [(op, value)] = tests.as_slice() else {
+        errs.err(
+            a.id.span(),
+            format!("alarm `{id}` needs exactly one of above, below, enters, leaves, crosses"),
+        );
+        return None;
+    };
+    let (quantity, test) = match syntax::test(&quantity, op, value.get_ref(), length_of) {
+        Ok(t) => t,
+        Err(e) => {
+            errs.err(value.span(), e);
+            return None;
+        }
+    };
+    let deadband = match &a.deadband {
+        None => Deadband::None,
+        Some(d) => match syntax::deadband(&quantity, d.get_ref(), length_of) {
+            Ok(db) => db,
+            Err(e) => {
+                errs.err(d.span(), e);
+                return None;
+            }
+        },
+    };
+    Some(Rule {
+        label: a.label.clone().unwrap_or_else(|| id.to_string()),
+        id: id.to_string(),
+        gauge,
+        quantity,
+        test,
+        deadband,
+        on_delay_s: a.on_delay.as_ref().map_or(0.0, |d| d.get_ref().si),
+        off_delay_s: a.off_delay.as_ref().map_or(0.0, |d| d.get_ref().si),
+        severity: a
+            .severity
+            .as_ref()
+            .map_or(Severity::Warning, |s| *s.get_ref()),
+        latching: a.latching.as_ref().is_some_and(|l| *l.get_ref()),
+    })
 }
