@@ -264,7 +264,8 @@ fn a_bad_alarm_value_reads_the_same_in_every_form() {
             Path::new("t.toml"),
         )
         .unwrap_or_else(|e| panic!("{e}"));
-        let cli = crate::ingest::cli_rules(std::slice::from_ref(&text), &base, &[]).expect_err("bad value");
+        let cli = crate::ingest::cli_rules(std::slice::from_ref(&text), &base, &[])
+            .expect_err("bad value");
         assert_eq!(cli, format!("--alarm \"{text}\": {}", e.message));
     }
 }

@@ -19,7 +19,7 @@
 //!
 //! The config's `[[alarm]]` `condition` key takes the same alarm text, and
 //! its structured keys (`above = "…"`, `deadband = "…"`) go through the same
-//! [`value`], [`test`] and [`deadband`] readers, so every form accepts the
+//! [`value`], [`test()`] and [`deadband`] readers, so every form accepts the
 //! same values with the same messages.
 //!
 //! Examples: `chamber pressure below 5e-6 mbar`,
