@@ -317,6 +317,16 @@ fn invalid_configs_are_located() {
             ":16:11:",
             "not neighbours",
         ),
+        (
+            "alarm_condition_and_keys.toml",
+            ":4:12:",
+            "`on_delay` is said by its `condition` text",
+        ),
+        (
+            "alarm_condition_bad_value.toml",
+            ":7:13:",
+            "no length named `thorw` is configured",
+        ),
     ];
     let dir = Path::new("tests/invalid_configs");
     let mut seen = 0;

@@ -717,3 +717,63 @@ proptest! {
         }
     }
 }
+
+/// Templates' `time_format` and `[log]`'s time `format` go through one
+/// parser: the same texts are accepted, and the same are refused with the
+/// same message, each located at its own value.
+#[test]
+fn templates_and_log_sections_read_time_formats_alike() {
+    let template = |format: &str| {
+        format!(
+            "[[source]]\nuri = \"stdin:\"\n[[source.template]]\n\
+             pattern = '(?P<time>.+);(?P<p>\\S+)'\nunit = \"mbar\"\n\
+             time_format = \"{format}\"\ntimezone = \"UTC\"\n"
+        )
+    };
+    let log = |format: &str| section("", "").replace("%Y-%m-%d %H:%M:%S", format);
+    let absolute = ["rfc3339", "epoch-s", "epoch-ms", "%Y-%m-%dT%H:%M:%S%z"];
+    let local = ["%Y-%m-%d %H:%M:%S", "%d.%m.%Y %H:%M", "%Y%m%d %H%M%S%.3f"];
+    let bad = [
+        "dd.mm.yyyy",
+        "epoch-sec",
+        "%Y-%m-%d %H:%Q",
+        "%s",
+        "%d.%m.%Y",
+        "%H:%M:%S",
+        "",
+    ];
+    let parse = |toml: &str| rarefy_app::config::parse(toml, Path::new("t.toml"));
+    for f in local {
+        assert!(parse(&template(f)).is_ok(), "template {f}");
+        assert!(parse(&log(f)).is_ok(), "[log] {f}");
+    }
+    for f in absolute {
+        // Times with their own offset take no zone, in either place.
+        let t = config_error(&template(f));
+        let l = config_error(&log(f));
+        assert_eq!(t.message, l.message, "{f}");
+        assert!(t.message.contains("`timezone` has no effect"), "{t}");
+        assert_eq!((t.line, l.line), (Some(7), Some(4)), "{f}");
+        let without = |s: String| s.replace("\ntimezone = \"UTC\"", "");
+        assert!(parse(&without(template(f))).is_ok(), "template {f}");
+        assert!(
+            parse(&log(f).replace(", timezone = \"UTC\"", "")).is_ok(),
+            "[log] {f}"
+        );
+    }
+    for f in bad {
+        let t = config_error(&template(f));
+        let l = config_error(&log(f));
+        assert_eq!(t.message, l.message, "{f}");
+        assert_eq!(
+            Some(t.message.clone()),
+            rarefy_core::timefmt::TimeFormat::parse(f).err()
+        );
+        assert_eq!((t.line, l.line), (Some(6), Some(4)), "{f}");
+    }
+    // Zones are read alike too.
+    let t = config_error(&template("%Y-%m-%d %H:%M:%S").replace("\"UTC\"", "\"Europe/Viena\""));
+    let l = config_error(&log("%Y-%m-%d %H:%M:%S").replace("\"UTC\"", "\"Europe/Viena\""));
+    assert_eq!(t.message, l.message);
+    assert!(t.message.contains("did you mean \"Europe/Vienna\"?"), "{t}");
+}

@@ -11,6 +11,8 @@
 //! * [`sample`] is the data model (readings, statuses, source events);
 //! * [`parse`] frames byte streams into lines and decodes them (templates,
 //!   the plain format, log rows);
+//! * [`timefmt`] reads time formats and timestamps (templates and foreign
+//!   logs share it);
 //! * [`log`] reads and writes log format v1 (and reads foreign CSV logs) on
 //!   any `Read`/`Write`;
 //! * [`alarm`] holds the ISA-18.2 rule state machines, readiness gates, the
@@ -41,4 +43,5 @@ pub mod parse;
 pub mod sample;
 pub mod sim;
 pub mod suggest;
+pub mod timefmt;
 pub mod units;

@@ -53,16 +53,22 @@ pub struct AlarmSection {
     pub id: Spanned<String>,
     /// Human label.
     pub label: Option<String>,
+    /// The whole rule as one text, read as `--alarm` texts are:
+    /// `"chamber mean free path above 10 x source-to-substrate for 5 s as
+    /// warning"`. Instead of the keys from `gauge` to `latching`.
+    pub condition: Option<Spanned<String>>,
     /// Gauge watched (default: `[alarms] default_gauge`).
     pub gauge: Option<Spanned<String>>,
     /// `pressure`, `temperature`, `mean_free_path`, `knudsen`, `impingement`,
     /// `monolayer_time`, `exposure`, `rate_of_change`, `regime`, `vacuum_range`.
-    pub quantity: Spanned<String>,
+    pub quantity: Option<Spanned<String>>,
     /// Named length, for `knudsen` and `regime`.
     pub length: Option<Spanned<String>>,
-    /// In alarm above this value (with unit).
+    /// In alarm above this value (with unit, or `"10 x LENGTH"` for a mean
+    /// free path).
     pub above: Option<Spanned<String>>,
-    /// In alarm below this value (with unit).
+    /// In alarm below this value (with unit, or `"10 x LENGTH"` for a mean
+    /// free path).
     pub below: Option<Spanned<String>>,
     /// In alarm while the regime or range is this one.
     pub enters: Option<Spanned<String>>,
@@ -77,9 +83,9 @@ pub struct AlarmSection {
     /// The condition must be clear this long before the return.
     pub off_delay: Option<Spanned<Duration>>,
     /// `notice`, `warning` (default) or `trip`.
-    pub severity: Option<crate::alarm::Severity>,
+    pub severity: Option<Spanned<crate::alarm::Severity>>,
     /// Stays in alarm until acknowledged.
-    pub latching: Option<bool>,
+    pub latching: Option<Spanned<bool>>,
     /// The rule is suppressed by design while this condition is false.
     pub enable: Option<Spanned<String>>,
     /// A command run on each of this alarm's events: program and arguments.
@@ -153,8 +159,12 @@ pub struct TemplateSection {
     /// Device words mapped to statuses.
     #[serde(default)]
     pub status: std::collections::BTreeMap<String, crate::sample::Status>,
-    /// Format of the `time` group.
-    pub time_format: Option<String>,
+    /// Format of the `time` group: `"rfc3339"`, `"epoch-s"`, `"epoch-ms"`
+    /// or a strftime pattern (checked as `[log]`'s time format is).
+    pub time_format: Option<Spanned<String>>,
+    /// Zone of a pattern without an offset: an IANA name or `"+01:00"`
+    /// (default UTC).
+    pub timezone: Option<Spanned<String>>,
 }
 
 /// `[record]`

@@ -170,3 +170,147 @@ fn toml_syntax_errors_are_located() {
     let e = one_error("[chamber\nname = 1\n");
     assert_eq!(e.line, Some(1));
 }
+
+/// Gauges and lengths for the alarm-form tests, then `alarm`.
+fn with_alarm(alarm: &str) -> String {
+    format!(
+        "[[gauge]]\nid = \"chamber\"\nkind = \"capacitance\"\n\
+         [[length]]\nname = \"source-to-substrate\"\nlength = \"0.12 m\"\n\
+         [[length]]\nname = \"pumping line\"\nlength = \"0.04 m\"\n\
+         [[alarm]]\nid = \"a\"\n{alarm}\n"
+    )
+}
+
+/// The one rule of a config, and the same rule from `--alarm`.
+fn config_and_cli_rule(alarm: &str, cli: &str) -> (crate::alarm::Rule, crate::alarm::Rule) {
+    let c = parse(&with_alarm(alarm), Path::new("t.toml")).unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(c.alarms.rules.len(), 1);
+    let from_config = c.alarms.rules[0].rule.clone();
+    let mut from_cli = crate::pipeline::start::cli_rules(&[cli.to_string()], &c, &[])
+        .unwrap_or_else(|e| panic!("{e}"))
+        .remove(0);
+    // Ids and labels aside.
+    from_cli.id = from_config.id.clone();
+    from_cli.label = from_config.label.clone();
+    (from_config, from_cli)
+}
+
+#[test]
+fn alarm_text_keys_and_cli_build_the_same_rule() {
+    let cases = [
+        (
+            "chamber mean free path above 10 x source-to-substrate for 5 s as warning",
+            "gauge = \"chamber\"\nquantity = \"mean_free_path\"\nabove = \"10 x source-to-substrate\"\non_delay = \"5 s\"\nseverity = \"warning\"",
+        ),
+        (
+            "chamber pressure above 2e-5 mbar deadband 20 % for 10 s clear after 30 s as trip latching",
+            "gauge = \"chamber\"\nquantity = \"pressure\"\nabove = \"2e-5 mbar\"\ndeadband = \"20 %\"\non_delay = \"10 s\"\noff_delay = \"30 s\"\nseverity = \"trip\"\nlatching = true",
+        ),
+        (
+            "chamber rate_of_change above 1 decade/min for 5 s clear after 20 s",
+            "gauge = \"chamber\"\nquantity = \"rate_of_change\"\nabove = \"1 decade/min\"\non_delay = \"5 s\"\noff_delay = \"20 s\"",
+        ),
+        (
+            "chamber regime(pumping line) crosses transitional/molecular as notice",
+            "gauge = \"chamber\"\nquantity = \"regime\"\nlength = \"pumping line\"\ncrosses = \"transitional/molecular\"\nseverity = \"notice\"",
+        ),
+        (
+            "chamber mean_free_path below 0.5 x pumping line deadband 0.1 decade",
+            "gauge = \"chamber\"\nquantity = \"mean_free_path\"\nbelow = \"0.5 x pumping line\"\ndeadband = \"0.1 decade\"",
+        ),
+    ];
+    for (text, keys) in cases {
+        let (from_text, cli) = config_and_cli_rule(&format!("condition = \"{text}\""), text);
+        let (from_keys, _) = config_and_cli_rule(keys, text);
+        assert_eq!(from_text, cli, "{text}");
+        assert_eq!(from_keys, cli, "{text}");
+        assert_eq!(from_text.id, "a");
+    }
+    // `10 x <length>` is 10 times the length in all three.
+    let (from_text, _) = config_and_cli_rule(
+        "condition = \"chamber mean free path above 10 x source-to-substrate\"",
+        "chamber mean free path above 10 x source-to-substrate",
+    );
+    assert!(
+        matches!(from_text.test, crate::alarm::rule::Test::Above(t) if (t - 1.2).abs() < 1e-12),
+        "{:?}",
+        from_text.test
+    );
+}
+
+#[test]
+fn a_bad_alarm_value_reads_the_same_in_every_form() {
+    let bad = [
+        ("pressure", "above", "5 m"),
+        ("mean_free_path", "above", "10 x throw"),
+        ("mean_free_path", "below", "ten x pumping line"),
+        ("regime(pumping line)", "crosses", "viscous/molecular"),
+        ("vacuum_range", "enters", "very-high"),
+    ];
+    for (quantity, op, value) in bad {
+        let text = format!("chamber {quantity} {op} {value}");
+        let e = one_error(&with_alarm(&format!("condition = \"{text}\"")));
+        assert_eq!((e.line, e.column), (Some(12), Some(13)), "{e}");
+        let (name, length) = match quantity.split_once('(') {
+            Some((n, l)) => (n, format!("\nlength = \"{}\"", l.trim_end_matches(')'))),
+            None => (quantity, String::new()),
+        };
+        let keys =
+            format!("gauge = \"chamber\"\nquantity = \"{name}\"{length}\n{op} = \"{value}\"");
+        let k = one_error(&with_alarm(&keys));
+        assert_eq!(e.message, k.message, "{text}");
+        let base = parse(
+            &with_alarm("condition = \"chamber pressure above 1 mbar\""),
+            Path::new("t.toml"),
+        )
+        .unwrap_or_else(|e| panic!("{e}"));
+        let cli = crate::pipeline::start::cli_rules(std::slice::from_ref(&text), &base, &[])
+            .expect_err("bad value");
+        assert_eq!(cli, format!("--alarm \"{text}\": {}", e.message));
+    }
+}
+
+#[test]
+fn alarm_text_form_problems_are_located() {
+    // A key the text already says.
+    let e = one_error(&with_alarm(
+        "condition = \"chamber pressure above 1 mbar\"\nseverity = \"trip\"",
+    ));
+    assert_eq!(e.line, Some(13));
+    assert!(
+        e.message
+            .contains("`severity` is said by its `condition` text"),
+        "{e}"
+    );
+    // `named` must agree with the id.
+    let e = one_error(&with_alarm(
+        "condition = \"chamber pressure above 1 mbar named b\"",
+    ));
+    assert!(e.message.contains("the alarm's id is `a`"), "{e}");
+    // An unknown gauge gets a suggestion, as with `gauge = …`.
+    let e = one_error(&with_alarm("condition = \"chamer pressure above 1 mbar\""));
+    assert!(e.message.contains("did you mean `chamber`?"), "{e}");
+    // Neither a text nor a quantity.
+    let e = one_error(&with_alarm("above = \"1 mbar\""));
+    assert_eq!(e.line, Some(11));
+    assert!(e.message.contains("give `condition`"), "{e}");
+}
+
+#[test]
+fn the_sample_configs_commented_text_alarm_is_valid() {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("../../config/rarefy.toml");
+    let text = std::fs::read_to_string(&path).expect("sample config");
+    let example = "# [[alarm]]\n# id = \"throw-short\"";
+    let start = text.find(example).expect("the commented example");
+    let end = start + text[start..].find("\n\n").expect("its end");
+    let uncommented = text[start..end].replace("# ", "");
+    let text = format!("{}{uncommented}{}", &text[..start], &text[end..]);
+    let c = parse(&text, &path).unwrap_or_else(|e| panic!("{e}"));
+    let rule = c
+        .alarms
+        .rules
+        .iter()
+        .find(|r| r.rule.id == "throw-short")
+        .expect("the text alarm");
+    assert_eq!(rule.rule.on_delay_s, 5.0);
+}

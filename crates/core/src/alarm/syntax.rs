@@ -5,6 +5,7 @@
 //! condition := [GAUGE] QUANTITY[(LENGTH)] TEST
 //! TEST      := above VALUE | below VALUE | is CLASS | is not CLASS
 //! VALUE     := NUMBER [UNIT] | NUMBER x LENGTH        (a multiple of a named length)
+//! QUANTITY  := pressure | mean_free_path | mean free path | …   (spaces for '_' allowed)
 //!
 //! alarm     := [GAUGE] QUANTITY[(LENGTH)] ATEST OPTION*
 //! ATEST     := above VALUE | below VALUE | enters CLASS | leaves CLASS | crosses CLASS/CLASS
@@ -16,17 +17,19 @@
 //!            | named ID
 //! ```
 //!
+//! The config's `[[alarm]]` `condition` key takes the same alarm text, and
+//! its structured keys (`above = "…"`, `deadband = "…"`) go through the same
+//! [`value`], [`test()`] and [`deadband`] readers, so every form accepts the
+//! same values with the same messages.
+//!
 //! Examples: `chamber pressure below 5e-6 mbar`,
 //! `mean_free_path above 10 x source-to-substrate`,
 //! `regime(pumping line) is molecular`,
 //! `pressure above 2e-5 mbar for 10 s as trip`,
+//! `chamber mean free path above 10 x source-to-substrate for 5 s as warning`,
 //! `ion rate_of_change above 0.5 decade/min clear after 1 min latching`.
 
-use std::sync::LazyLock;
-
-use regex::Regex;
-
-use super::quantity::{Class, Quantity};
+use super::quantity::{Class, NAMES, Quantity};
 use super::rule::{Deadband, Rule, Severity, Test};
 use crate::units::{self, TimeUnit};
 
@@ -56,14 +59,10 @@ pub enum CondTest {
     IsNot(Class),
 }
 
-static HEAD: LazyLock<Regex> = LazyLock::new(|| {
-    Regex::new(
-        r"^\s*(?:(?P<gauge>[A-Za-z0-9_.-]+)\s+)??(?P<q>[a-z_]+)(?:\((?P<len>[^)]*)\))?\s+(?P<op>above|below|is\s+not|is|enters|leaves|crosses)\s+(?P<rest>.+?)\s*$",
-    )
-    .expect("valid pattern")
-});
-
 const KEYWORDS: [&str; 6] = ["for", "clear", "deadband", "as", "latching", "named"];
+
+/// The comparison words, in the order they are looked for.
+const OPS: [&str; 6] = ["above", "below", "is", "enters", "leaves", "crosses"];
 
 struct Head<'a> {
     gauge: Option<String>,
@@ -72,47 +71,173 @@ struct Head<'a> {
     rest: &'a str,
 }
 
+/// The words of `text` outside parentheses, with their byte ranges.
+fn words(text: &str) -> Vec<(usize, usize)> {
+    let mut out = Vec::new();
+    let mut depth = 0usize;
+    let mut start = None;
+    for (i, c) in text.char_indices() {
+        match c {
+            '(' => depth += 1,
+            ')' => depth = depth.saturating_sub(1),
+            _ => {}
+        }
+        if c.is_whitespace() && depth == 0 {
+            if let Some(s) = start.take() {
+                out.push((s, i));
+            }
+        } else if start.is_none() {
+            start = Some(i);
+        }
+    }
+    if let Some(s) = start {
+        out.push((s, text.len()));
+    }
+    out
+}
+
+/// Reads `[GAUGE] QUANTITY[(LENGTH)] OP REST`. A quantity may be written
+/// with spaces for its underscores (`mean free path`).
 fn head<'a>(text: &'a str, lengths: &dyn Fn(&str) -> Option<f64>) -> Result<Head<'a>, String> {
-    let caps = HEAD.captures(text).ok_or_else(|| {
+    let t = text.trim();
+    let not_form = || {
         format!(
-            "\"{}\" is not of the form [gauge] quantity above|below|is VALUE, e.g. \"chamber pressure below 5e-6 mbar\"",
-            text.trim()
+            "\"{t}\" is not of the form [gauge] quantity above|below|is VALUE, e.g. \"chamber pressure below 5e-6 mbar\""
         )
-    })?;
-    let get = |n: &str| caps.name(n).map(|m| m.as_str());
-    let quantity = Quantity::parse(get("q").unwrap_or_default(), get("len"))?;
+    };
+    let ws = words(t);
+    let at = ws
+        .iter()
+        .position(|&(a, b)| OPS.contains(&&t[a..b]))
+        .ok_or_else(not_form)?;
+    let (op_start, mut op_end) = ws[at];
+    let mut op = t[op_start..op_end].to_string();
+    if op == "is"
+        && let Some(&(a, b)) = ws.get(at + 1)
+        && &t[a..b] == "not"
+    {
+        op = "is not".into();
+        op_end = b;
+    }
+    let subject = t[..op_start].trim();
+    let rest = t[op_end..].trim();
+    if subject.is_empty() || rest.is_empty() {
+        return Err(not_form());
+    }
+    let (names, length) = match subject.strip_suffix(')') {
+        Some(open) => {
+            let (names, length) = open.split_once('(').ok_or_else(not_form)?;
+            (names.trim(), Some(length))
+        }
+        None => (subject, None),
+    };
+    let name_words: Vec<&str> = names.split_whitespace().collect();
+    let known = |w: &[&str]| !w.is_empty() && NAMES.contains(&w.join("_").as_str());
+    let (gauge, quantity) = match name_words.as_slice() {
+        [] => return Err(not_form()),
+        all if known(all) => (None, all.join("_")),
+        [one] => (None, (*one).to_string()),
+        [gauge, quantity @ ..] => (Some(*gauge), quantity.join("_")),
+    };
+    if let Some(g) = gauge
+        && !g
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || "_.-".contains(c))
+    {
+        return Err(not_form());
+    }
+    let quantity = Quantity::parse(&quantity, length)?;
     if let Some(l) = quantity.length()
         && lengths(l).is_none()
     {
         return Err(format!("no length named `{l}` is configured ([[length]])"));
     }
-    let rest = caps.name("rest").map_or("", |m| m.as_str());
     Ok(Head {
-        gauge: get("gauge").map(str::to_string),
+        gauge: gauge.map(str::to_string),
         quantity,
-        op: get("op")
-            .unwrap_or_default()
-            .split_whitespace()
-            .collect::<Vec<_>>()
-            .join(" "),
+        op,
         rest,
     })
 }
 
-/// Reads a threshold for `q`: a value with its unit, or `N x LENGTH`.
-fn value(q: &Quantity, text: &str, lengths: &dyn Fn(&str) -> Option<f64>) -> Result<f64, String> {
-    if let Some((n, name)) = text.split_once(" x ")
-        && matches!(q, Quantity::MeanFreePath)
+/// Reads a threshold for `q`: a value with its unit, or, for a mean free
+/// path, `N x LENGTH` (a multiple of a named length; `×` works too). The one
+/// value parser of gate conditions, `--alarm` texts and the config's
+/// `[[alarm]]` keys.
+pub fn value(
+    q: &Quantity,
+    text: &str,
+    lengths: &dyn Fn(&str) -> Option<f64>,
+) -> Result<f64, String> {
+    let text = text.trim();
+    if matches!(q, Quantity::MeanFreePath)
+        && let Some((n, name)) = text.split_once(" x ").or_else(|| text.split_once(" × "))
     {
         let k: f64 = n
             .trim()
             .parse()
-            .map_err(|_| format!("\"{n}\" is not a number"))?;
+            .map_err(|_| format!("\"{}\" is not a number", n.trim()))?;
         let l = lengths(name.trim())
             .ok_or_else(|| format!("no length named `{}` is configured", name.trim()))?;
         return Ok(k * l);
     }
     q.threshold(text)
+}
+
+/// An alarm's test from its comparison (`above`, `below`, `enters`,
+/// `leaves`, `crosses`) and value text, as written after the quantity in an
+/// alarm text or as a config `[[alarm]]` key. A rate in decades turns
+/// `rate_of_change` into decades per minute, so the quantity is returned too.
+pub fn test(
+    quantity: &Quantity,
+    op: &str,
+    value_text: &str,
+    lengths: &dyn Fn(&str) -> Option<f64>,
+) -> Result<(Quantity, Test), String> {
+    let quantity = rate_kind(quantity.clone(), value_text);
+    let class = |w: &str| Class::parse(&quantity, w);
+    let test = match (op, quantity.is_class()) {
+        ("above", false) => Test::Above(value(&quantity, value_text, lengths)?),
+        ("below", false) => Test::Below(value(&quantity, value_text, lengths)?),
+        ("enters", true) => Test::Enters(class(value_text)?),
+        ("leaves", true) => Test::Leaves(class(value_text)?),
+        ("crosses", true) => {
+            let (a, b) = value_text.split_once('/').ok_or_else(|| {
+                "crosses needs two neighbouring classes, e.g. transitional/molecular".to_string()
+            })?;
+            let (a, b) = (class(a)?, class(b)?);
+            if a.rank().abs_diff(b.rank()) != 1 {
+                return Err(format!("{}/{} are not neighbours", a.as_str(), b.as_str()));
+            }
+            Test::Crosses(a, b)
+        }
+        (op, true) => {
+            return Err(format!(
+                "{quantity} is a class; use enters, leaves or crosses, not {op}"
+            ));
+        }
+        (op, false) => {
+            return Err(format!(
+                "{quantity} is a number; use above or below, not {op}"
+            ));
+        }
+    };
+    Ok((quantity, test))
+}
+
+/// An alarm's deadband for `quantity`: `"10 %"`, `"0.1 decade"` or a value
+/// (read as thresholds are). A class has none.
+pub fn deadband(
+    quantity: &Quantity,
+    text: &str,
+    lengths: &dyn Fn(&str) -> Option<f64>,
+) -> Result<Deadband, String> {
+    if quantity.is_class() {
+        return Err(format!(
+            "{quantity} has no deadband; delay it instead (on_delay/off_delay, or `for`/`clear after`)"
+        ));
+    }
+    Deadband::parse(text, |s| value(quantity, s, lengths))
 }
 
 /// Parses a gate or enabling condition.
@@ -161,15 +286,22 @@ fn duration(text: &str, what: &str) -> Result<f64, String> {
         .map_err(|e| format!("{what}: {e}"))
 }
 
-/// Parses a one-off alarm such as `pressure above 2e-5 mbar for 10 s as trip`.
-/// `default_gauge` is used when the text names none; `index` numbers
-/// unnamed rules.
-pub fn alarm(
-    text: &str,
-    default_gauge: Option<&str>,
-    index: usize,
-    lengths: &dyn Fn(&str) -> Option<f64>,
-) -> Result<Rule, String> {
+/// An alarm text read, before its gauge and id are settled.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AlarmText {
+    /// The gauge the text names, if any.
+    pub gauge: Option<String>,
+    /// The id given with `named`, if any.
+    pub named: Option<String>,
+    /// The rule; its `gauge` and `id` are empty until the caller sets them,
+    /// its label is the text.
+    pub rule: Rule,
+}
+
+/// Reads an alarm text (`[GAUGE] QUANTITY TEST OPTION*`, see the module
+/// docs) without settling its gauge or id: what `--alarm` and a config
+/// `[[alarm]]`'s `condition` share.
+pub fn alarm_text(text: &str, lengths: &dyn Fn(&str) -> Option<f64>) -> Result<AlarmText, String> {
     let h = head(text, lengths)?;
     let words: Vec<&str> = h.rest.split_whitespace().collect();
     let is_kw = |w: &str| KEYWORDS.contains(&w);
@@ -178,43 +310,11 @@ pub fn alarm(
     if value_text.is_empty() {
         return Err(format!("\"{}\": no value after `{}`", text.trim(), h.op));
     }
-    let quantity = rate_kind(h.quantity.clone(), &value_text);
-    let class = |w: &str| Class::parse(&quantity, w);
-    let test = match (h.op.as_str(), quantity.is_class()) {
-        ("above", false) => Test::Above(value(&quantity, &value_text, lengths)?),
-        ("below", false) => Test::Below(value(&quantity, &value_text, lengths)?),
-        ("enters", true) => Test::Enters(class(&value_text)?),
-        ("leaves", true) => Test::Leaves(class(&value_text)?),
-        ("crosses", true) => {
-            let (a, b) = value_text.split_once('/').ok_or_else(|| {
-                "crosses needs two neighbouring classes, e.g. transitional/molecular".to_string()
-            })?;
-            let (a, b) = (class(a)?, class(b)?);
-            if a.rank().abs_diff(b.rank()) != 1 {
-                return Err(format!("{}/{} are not neighbours", a.as_str(), b.as_str()));
-            }
-            Test::Crosses(a, b)
-        }
-        (op, true) => {
-            return Err(format!(
-                "{quantity} is a class; use enters, leaves or crosses, not {op}"
-            ));
-        }
-        (op, false) => {
-            return Err(format!(
-                "{quantity} is a number; use above or below, not {op}"
-            ));
-        }
-    };
-    let gauge = match (h.gauge, default_gauge) {
-        (Some(g), _) => g,
-        (None, Some(g)) => g.to_string(),
-        (None, None) => return Err("name the gauge: \"GAUGE pressure above …\"".into()),
-    };
+    let (quantity, test) = test(&h.quantity, &h.op, &value_text, lengths)?;
     let mut rule = Rule {
-        id: format!("cli-{index}"),
+        id: String::new(),
         label: text.trim().to_string(),
-        gauge,
+        gauge: String::new(),
         quantity,
         test,
         deadband: Deadband::None,
@@ -223,6 +323,7 @@ pub fn alarm(
         severity: Severity::Warning,
         latching: false,
     };
+    let mut named = None;
     let mut i = value_end;
     let take_until_kw = |i: &mut usize| -> String {
         let start = *i;
@@ -244,9 +345,7 @@ pub fn alarm(
                 rule.off_delay_s = duration(&take_until_kw(&mut i), "clear after")?;
             }
             "deadband" => {
-                let t = take_until_kw(&mut i);
-                let q = rule.quantity.clone();
-                rule.deadband = Deadband::parse(&t, |s| q.threshold(s))?;
+                rule.deadband = deadband(&rule.quantity, &take_until_kw(&mut i), lengths)?;
             }
             "as" => rule.severity = Severity::parse(&take_until_kw(&mut i))?,
             "latching" => rule.latching = true,
@@ -255,11 +354,38 @@ pub fn alarm(
                 if id.is_empty() || id.contains(char::is_whitespace) {
                     return Err(format!("`named` needs one word, got \"{id}\""));
                 }
-                rule.id = id;
+                named = Some(id);
             }
             _ => return Err(format!("unexpected \"{kw}\"")),
         }
     }
+    Ok(AlarmText {
+        gauge: h.gauge,
+        named,
+        rule,
+    })
+}
+
+/// Parses a one-off alarm such as `pressure above 2e-5 mbar for 10 s as trip`.
+/// `default_gauge` is used when the text names none; `index` numbers
+/// unnamed rules.
+pub fn alarm(
+    text: &str,
+    default_gauge: Option<&str>,
+    index: usize,
+    lengths: &dyn Fn(&str) -> Option<f64>,
+) -> Result<Rule, String> {
+    let AlarmText {
+        gauge,
+        named,
+        mut rule,
+    } = alarm_text(text, lengths)?;
+    rule.gauge = match (gauge, default_gauge) {
+        (Some(g), _) => g,
+        (None, Some(g)) => g.to_string(),
+        (None, None) => return Err("name the gauge: \"GAUGE pressure above …\"".into()),
+    };
+    rule.id = named.unwrap_or_else(|| format!("cli-{index}"));
     Ok(rule)
 }
 
@@ -365,5 +491,76 @@ mod tests {
         assert!(e("regime(pumping line) crosses viscous/molecular").contains("not neighbours"));
         assert!(e("vacuum_range above 3").contains("class"));
         assert!(alarm("pressure above 1 mbar", None, 1, &lengths).is_err());
+    }
+
+    #[test]
+    fn quantities_may_be_written_with_spaces() {
+        let spaced = alarm(
+            "chamber mean free path above 10 x source-to-substrate for 5 s as warning",
+            None,
+            1,
+            &lengths,
+        )
+        .expect("valid");
+        let joined = alarm(
+            "chamber mean_free_path above 10 × source-to-substrate for 5 s as warning",
+            None,
+            1,
+            &lengths,
+        )
+        .expect("valid");
+        assert_eq!(spaced.gauge, "chamber");
+        assert_eq!(spaced.quantity, Quantity::MeanFreePath);
+        assert!(matches!(spaced.test, Test::Above(t) if (t - 1.2).abs() < 1e-12));
+        assert_eq!(spaced.on_delay_s, 5.0);
+        assert_eq!(
+            (spaced.test, spaced.on_delay_s),
+            (joined.test, joined.on_delay_s)
+        );
+        let c = condition("rate of change above 1 decade/min", &lengths).expect("valid");
+        assert_eq!((c.gauge, c.quantity), (None, Quantity::DecadesPerMinute));
+        let c = condition("g vacuum range is high", &lengths).expect("valid");
+        assert_eq!(c.gauge.as_deref(), Some("g"));
+        assert!(condition("mean free pth above 1 m", &lengths).is_err());
+    }
+
+    #[test]
+    fn texts_and_parts_share_one_reader() {
+        let t = alarm_text(
+            "g pressure above 1e-3 mbar deadband 10 % named hi",
+            &lengths,
+        )
+        .expect("valid");
+        assert_eq!(
+            (t.gauge.as_deref(), t.named.as_deref()),
+            (Some("g"), Some("hi"))
+        );
+        assert_eq!(t.rule.deadband, Deadband::Fraction(0.1));
+        let (q, tst) = test(
+            &Quantity::MeanFreePath,
+            "above",
+            "10 x pumping line",
+            &lengths,
+        )
+        .expect("valid");
+        assert_eq!(q, Quantity::MeanFreePath);
+        assert!(matches!(tst, Test::Above(v) if (v - 0.4).abs() < 1e-12));
+        let e = test(&Quantity::Pressure, "above", "5 m", &lengths).expect_err("bad unit");
+        let from_text = alarm("g pressure above 5 m", None, 1, &lengths).expect_err("bad unit");
+        assert_eq!(e, from_text);
+        let regime = Quantity::Regime("pumping line".into());
+        assert!(
+            deadband(&regime, "10 %", &lengths)
+                .expect_err("class")
+                .contains("no deadband")
+        );
+        let e = alarm(
+            "regime(pumping line) enters viscous deadband 10 %",
+            Some("g"),
+            1,
+            &lengths,
+        )
+        .expect_err("class");
+        assert!(e.contains("no deadband"), "{e}");
     }
 }

@@ -32,12 +32,10 @@
 //! Cells that are empty give no sample (a gap). Columns not named in the
 //! configuration are ignored.
 
-use chrono::format::{Fixed, Item, Numeric, StrftimeItems};
-use chrono::{DateTime, FixedOffset, LocalResult, NaiveDate, NaiveDateTime, Offset, TimeZone, Utc};
-use chrono_tz::Tz;
+use chrono::{DateTime, Utc};
 use serde::Deserialize;
 use std::collections::BTreeMap;
-use std::fmt::{self, Write as _};
+use std::fmt;
 use std::io::BufRead;
 use std::ops::Range;
 use toml::Spanned;
@@ -46,6 +44,8 @@ use super::lines::{self, Encoding, Lines};
 use super::read::{LogError, Row, show, text_in};
 use super::v1::{Column, ColumnKind, LogMeta};
 use crate::sample::{ChannelInfo, ChannelUnit, Sample, Status};
+use crate::timefmt::check_zone;
+pub use crate::timefmt::{TimeFormat, Zone};
 use crate::units::{PressureUnit, TemperatureUnit, UnitKind};
 
 /// `[log]`: how to read another logger's CSV export.
@@ -124,43 +124,6 @@ impl fmt::Display for ColumnRef {
     }
 }
 
-/// How row times are written.
-#[derive(Debug, Clone, PartialEq, Eq)]
-pub enum TimeFormat {
-    /// RFC 3339 with an offset (`2026-10-25T01:20:00+02:00`).
-    Rfc3339,
-    /// Seconds since 1970-01-01 UTC, optionally with a fraction.
-    EpochSeconds,
-    /// Milliseconds since 1970-01-01 UTC.
-    EpochMillis,
-    /// A strftime pattern.
-    Pattern {
-        /// The pattern.
-        pattern: String,
-        /// Whether the text carries its own offset (`%z`, `%s` …); else it is
-        /// local time in the spec's zone.
-        absolute: bool,
-    },
-}
-
-/// A time zone for local times.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Zone {
-    /// An IANA time zone, with its daylight-saving rules.
-    Named(Tz),
-    /// A fixed offset from UTC.
-    Fixed(FixedOffset),
-}
-
-impl fmt::Display for Zone {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            Zone::Named(tz) => f.write_str(tz.name()),
-            Zone::Fixed(o) => write!(f, "{o}"),
-        }
-    }
-}
-
 /// The time column, resolved.
 #[derive(Debug, Clone, PartialEq)]
 pub struct TimeColumn {
@@ -212,12 +175,7 @@ impl ForeignLogSpec {
             ' ' => "space".to_string(),
             c => format!("\"{c}\""),
         };
-        let format = match &self.time.format {
-            TimeFormat::Rfc3339 => "rfc3339".to_string(),
-            TimeFormat::EpochSeconds => "epoch-s".to_string(),
-            TimeFormat::EpochMillis => "epoch-ms".to_string(),
-            TimeFormat::Pattern { pattern, .. } => format!("\"{pattern}\""),
-        };
+        let format = &self.time.format;
         let zone = self
             .time
             .zone
@@ -394,38 +352,16 @@ impl LogSection {
             &mut err,
         );
         let format_text = t.format.get_ref().trim();
-        let format = match format_text {
-            "rfc3339" | "RFC3339" | "rfc-3339" => Some(TimeFormat::Rfc3339),
-            "epoch-s" => Some(TimeFormat::EpochSeconds),
-            "epoch-ms" => Some(TimeFormat::EpochMillis),
-            p if p.contains('%') => match check_pattern(p) {
-                Ok(absolute) => Some(TimeFormat::Pattern {
-                    pattern: p.to_string(),
-                    absolute,
-                }),
-                Err(msg) => {
-                    err(t.format.span(), msg);
-                    None
-                }
-            },
-            other => {
-                let hint = crate::suggest::nearest(other, ["rfc3339", "epoch-s", "epoch-ms"])
-                    .map(|s| format!("did you mean \"{s}\"? "))
-                    .unwrap_or_default();
-                err(
-                    t.format.span(),
-                    format!(
-                        "unknown time format \"{}\"; {hint}expected \"rfc3339\", \"epoch-s\", \"epoch-ms\" \
-                         or a strftime pattern such as \"%d.%m.%Y %H:%M:%S\"",
-                        other.escape_debug()
-                    ),
-                );
+        let format = match TimeFormat::parse(format_text) {
+            Ok(f) => Some(f),
+            Err(msg) => {
+                err(t.format.span(), msg);
                 None
             }
         };
         let zone = match &t.timezone {
             None => None,
-            Some(z) => match parse_zone(z.get_ref()) {
+            Some(z) => match Zone::parse(z.get_ref()) {
                 Ok(zone) => Some(zone),
                 Err(msg) => {
                     err(z.span(), msg);
@@ -433,13 +369,7 @@ impl LogSection {
                 }
             },
         };
-        let local = matches!(
-            format,
-            Some(TimeFormat::Pattern {
-                absolute: false,
-                ..
-            })
-        );
+        let local = format.as_ref().is_some_and(TimeFormat::is_local);
         match (&t.timezone, local, &format) {
             (None, true, _) => err(
                 t.format.span(),
@@ -449,10 +379,11 @@ impl LogSection {
                     format_text.escape_debug()
                 ),
             ),
-            (Some(z), false, Some(_)) => err(
-                z.span(),
-                "`timezone` has no effect: these times carry their own offset; remove it".into(),
-            ),
+            (Some(z), _, Some(f)) => {
+                if let Err(msg) = check_zone(f, true) {
+                    err(z.span(), msg);
+                }
+            }
             _ => {}
         }
 
@@ -589,177 +520,6 @@ fn unknown_unit(text: &str) -> String {
         text.escape_debug(),
         symbols.join(", ")
     )
-}
-
-/// Checks a strftime pattern: every `%` item known, and a formatted time
-/// reads back. Returns whether the text carries its own offset.
-fn check_pattern(pattern: &str) -> Result<bool, String> {
-    let items: Vec<Item> = StrftimeItems::new(pattern).collect();
-    if items.iter().any(|i| matches!(i, Item::Error)) {
-        return Err(format!(
-            "bad strftime pattern \"{}\": an unknown or incomplete `%` specifier \
-             (e.g. %Y year, %m month, %d day, %H hour, %M minute, %S second, %.3f milliseconds, %z offset)",
-            pattern.escape_debug()
-        ));
-    }
-    if items
-        .iter()
-        .any(|i| matches!(i, Item::Numeric(Numeric::Timestamp, _)))
-    {
-        return Err(format!(
-            "strftime pattern \"{}\" uses %s; for seconds since 1970 use format = \"epoch-s\"",
-            pattern.escape_debug()
-        ));
-    }
-    let absolute = items.iter().any(|i| {
-        matches!(
-            i,
-            Item::Fixed(
-                Fixed::TimezoneOffset
-                    | Fixed::TimezoneOffsetColon
-                    | Fixed::TimezoneOffsetDoubleColon
-                    | Fixed::TimezoneOffsetTripleColon
-                    | Fixed::TimezoneOffsetColonZ
-                    | Fixed::TimezoneOffsetZ
-                    | Fixed::RFC2822
-                    | Fixed::RFC3339
-            )
-        )
-    });
-    let reference = NaiveDate::from_ymd_opt(2001, 2, 3)
-        .and_then(|d| d.and_hms_milli_opt(14, 5, 6, 789))
-        .ok_or("internal: reference time")?;
-    let offset = FixedOffset::east_opt(3600).ok_or("internal: reference offset")?;
-    let zoned = offset
-        .from_local_datetime(&reference)
-        .single()
-        .ok_or("internal: reference time")?;
-    let mut text = String::new();
-    if write!(text, "{}", zoned.format_with_items(items.iter())).is_err() {
-        return Err(format!(
-            "bad strftime pattern \"{}\": it cannot format a time",
-            pattern.escape_debug()
-        ));
-    }
-    let back = if absolute {
-        DateTime::parse_from_str(&text, pattern).map(|_| ())
-    } else {
-        NaiveDateTime::parse_from_str(&text, pattern).map(|_| ())
-    };
-    back.map_err(|e| {
-        format!(
-            "strftime pattern \"{}\" does not give a full date and time ({e}); \
-             it needs at least the year, month, day, hour and minute",
-            pattern.escape_debug()
-        )
-    })?;
-    Ok(absolute)
-}
-
-/// Reads a time zone: an IANA name or a fixed offset `+01:00`.
-fn parse_zone(text: &str) -> Result<Zone, String> {
-    let t = text.trim();
-    if let Ok(tz) = t.parse::<Tz>() {
-        return Ok(Zone::Named(tz));
-    }
-    if t.starts_with(['+', '-']) {
-        let bad = || {
-            format!(
-                "bad UTC offset \"{}\"; expected e.g. \"+01:00\" or \"-05:30\"",
-                t.escape_debug()
-            )
-        };
-        let sign = if t.starts_with('-') { -1 } else { 1 };
-        let body = &t[1..];
-        let (h, m) = body.split_once(':').unwrap_or((body, "0"));
-        let (Ok(h), Ok(m)) = (h.parse::<i32>(), m.parse::<i32>()) else {
-            return Err(bad());
-        };
-        if !(0..=23).contains(&h) || !(0..=59).contains(&m) {
-            return Err(bad());
-        }
-        return FixedOffset::east_opt(sign * (h * 3600 + m * 60))
-            .map(Zone::Fixed)
-            .ok_or_else(bad);
-    }
-    let names = chrono_tz::TZ_VARIANTS.iter().map(|z| z.name());
-    let lower = t.to_ascii_lowercase();
-    let hint = names
-        .clone()
-        .find(|n| n.to_ascii_lowercase() == lower)
-        .or_else(|| {
-            let suffix = format!("/{lower}");
-            names
-                .clone()
-                .find(|n| n.to_ascii_lowercase().ends_with(&suffix))
-        })
-        .or_else(|| crate::suggest::nearest(t, names));
-    let hint = hint
-        .map(|s| format!("; did you mean \"{s}\"?"))
-        .unwrap_or_default();
-    Err(format!(
-        "unknown time zone \"{}\"{hint} (expected an IANA name such as \"Europe/Vienna\" or \"UTC\", or an offset such as \"+01:00\")",
-        t.escape_debug()
-    ))
-}
-
-/// Picks the instant for a local time (see the module docs).
-fn localize(
-    naive: NaiveDateTime,
-    zone: Zone,
-    previous: Option<DateTime<Utc>>,
-) -> Result<(DateTime<Utc>, bool), String> {
-    let result = match zone {
-        Zone::Fixed(o) => o.from_local_datetime(&naive).map(|t| t.with_timezone(&Utc)),
-        Zone::Named(tz) => tz
-            .from_local_datetime(&naive)
-            .map(|t| t.with_timezone(&Utc)),
-    };
-    match result {
-        LocalResult::Single(t) => Ok((t, false)),
-        LocalResult::Ambiguous(early, late) => {
-            let chosen = match previous {
-                Some(p) if early < p && late >= p => late,
-                _ => early,
-            };
-            Ok((chosen, true))
-        }
-        LocalResult::None => Err(format!(
-            "local time {naive} does not exist in {zone} (the clocks skip it when they go forward); \
-             the logger's clock was wrong"
-        )),
-    }
-}
-
-/// Parses `[-]digits[.digits]` units since the epoch; `scale` is nanoseconds
-/// per unit (1e9 for seconds, 1e6 for milliseconds).
-fn parse_epoch(text: &str, scale: i128) -> Option<DateTime<Utc>> {
-    let (negative, body) = match text.strip_prefix('-') {
-        Some(b) => (true, b),
-        None => (false, text.strip_prefix('+').unwrap_or(text)),
-    };
-    let (int, frac) = body.split_once('.').unwrap_or((body, ""));
-    if int.is_empty() || !int.bytes().all(|b| b.is_ascii_digit()) || int.len() > 15 {
-        return None;
-    }
-    if !frac.bytes().all(|b| b.is_ascii_digit()) {
-        return None;
-    }
-    let mut nanos: i128 = int.parse::<i128>().ok()? * scale;
-    let mut place = scale / 10;
-    for d in frac.bytes() {
-        if place == 0 {
-            break;
-        }
-        nanos += i128::from(d - b'0') * place;
-        place /= 10;
-    }
-    if negative {
-        nanos = -nanos;
-    }
-    let secs = i64::try_from(nanos.div_euclid(1_000_000_000)).ok()?;
-    let sub = u32::try_from(nanos.rem_euclid(1_000_000_000)).ok()?;
-    DateTime::from_timestamp(secs, sub)
 }
 
 /// Reads a foreign log as described by a [`ForeignLogSpec`].
@@ -998,38 +758,15 @@ impl<R: BufRead> ForeignReader<R> {
         } else {
             text
         };
-        match &self.spec.time.format {
-            TimeFormat::Rfc3339 => DateTime::parse_from_rfc3339(text)
-                .map(|t| t.with_timezone(&Utc))
-                .map_err(|e| {
-                    bad(format!(
-                        "is not RFC 3339, e.g. 2026-10-25T01:20:00+02:00 ({e})"
-                    ))
-                }),
-            TimeFormat::EpochSeconds => parse_epoch(text_num, 1_000_000_000)
-                .ok_or_else(|| bad("is not a number of seconds since 1970-01-01 UTC".into())),
-            TimeFormat::EpochMillis => parse_epoch(text_num, 1_000_000)
-                .ok_or_else(|| bad("is not a number of milliseconds since 1970-01-01 UTC".into())),
-            TimeFormat::Pattern {
-                pattern,
-                absolute: true,
-            } => DateTime::parse_from_str(text, pattern)
-                .map(|t| t.with_timezone(&Utc))
-                .map_err(|e| bad(format!("does not match format \"{pattern}\" ({e})"))),
-            TimeFormat::Pattern {
-                pattern,
-                absolute: false,
-            } => {
-                let naive = NaiveDateTime::parse_from_str(text, pattern)
-                    .map_err(|e| bad(format!("does not match format \"{pattern}\" ({e})")))?;
-                let zone = self.spec.time.zone.unwrap_or(Zone::Fixed(Utc.fix()));
-                let (t, ambiguous) = localize(naive, zone, self.last_time).map_err(bad)?;
-                if ambiguous {
-                    self.ambiguous += 1;
-                }
-                Ok(t)
-            }
+        let format = &self.spec.time.format;
+        let text = if format.is_epoch() { text_num } else { text };
+        let read = format
+            .read(text, self.spec.time.zone, self.last_time)
+            .map_err(bad)?;
+        if read.ambiguous {
+            self.ambiguous += 1;
         }
+        Ok(read.time)
     }
 
     fn cell(&self, k: usize, text: &str) -> Result<Option<Result<f64, Status>>, String> {

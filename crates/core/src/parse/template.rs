@@ -7,84 +7,22 @@
 //! * `(?P<chamber_status>\w+)` captures a status word for that channel, looked
 //!   up in the template's `status` map;
 //! * `(?P<time>…)` captures the device's timestamp, read with `time_format`
-//!   (a strftime pattern, or `rfc3339`, `epoch-s`, `epoch-ms`).
+//!   (a strftime pattern, or `rfc3339`, `epoch-s`, `epoch-ms`: the same
+//!   formats, checked the same way, as a foreign log's time column; see
+//!   [`crate::timefmt`]). A pattern without an offset is read in
+//!   `time_zone`, UTC when none is given.
 //!
 //! A value that is not a number but is a word of the `status` map becomes that
 //! status; any other non-number becomes an `unparsed` reading of that channel.
 //! A line that no template matches becomes an `unparsed` event with its text.
 
-use chrono::{DateTime, NaiveDateTime, TimeZone, Utc};
+use chrono::{DateTime, Utc};
 use regex::bytes::Regex;
 use std::collections::BTreeMap;
 
 use super::Decoder;
 use crate::sample::{ChannelInfo, ChannelUnit, Sample, SourceEvent, Status, escape_bytes};
-
-/// How a device writes its timestamps.
-#[derive(Debug, Clone, PartialEq)]
-pub enum TimeFormat {
-    /// RFC 3339 / ISO 8601 with offset.
-    Rfc3339,
-    /// Seconds since 1970-01-01 UTC (may be fractional).
-    EpochSeconds,
-    /// Milliseconds since 1970-01-01 UTC.
-    EpochMillis,
-    /// A strftime pattern read as UTC (`%Y-%m-%d %H:%M:%S%.f`).
-    Pattern(String),
-}
-
-impl TimeFormat {
-    /// `rfc3339`, `epoch-s`, `epoch-ms`, or a strftime pattern.
-    pub fn parse(text: &str) -> Result<Self, String> {
-        Ok(match text {
-            "rfc3339" => TimeFormat::Rfc3339,
-            "epoch-s" => TimeFormat::EpochSeconds,
-            "epoch-ms" => TimeFormat::EpochMillis,
-            p if p.contains('%') => {
-                // Reject patterns chrono cannot format (and so cannot parse).
-                let items = chrono::format::StrftimeItems::new(p);
-                if items
-                    .clone()
-                    .any(|i| matches!(i, chrono::format::Item::Error))
-                {
-                    return Err(format!("\"{p}\" is not a valid strftime pattern"));
-                }
-                TimeFormat::Pattern(p.to_string())
-            }
-            other => {
-                return Err(format!(
-                    "unknown time format \"{other}\"; expected rfc3339, epoch-s, epoch-ms or a strftime pattern such as \"%Y-%m-%d %H:%M:%S\""
-                ));
-            }
-        })
-    }
-
-    /// Reads a timestamp.
-    pub fn read(&self, text: &str) -> Result<DateTime<Utc>, String> {
-        let t = text.trim();
-        let bad = || format!("timestamp \"{t}\" does not match {self:?}");
-        match self {
-            TimeFormat::Rfc3339 => DateTime::parse_from_rfc3339(t)
-                .map(|d| d.with_timezone(&Utc))
-                .map_err(|_| bad()),
-            TimeFormat::EpochSeconds => {
-                let s: f64 = t.parse().map_err(|_| bad())?;
-                if !s.is_finite() {
-                    return Err(bad());
-                }
-                let ms = (s * 1000.0).round();
-                Utc.timestamp_millis_opt(ms as i64).single().ok_or_else(bad)
-            }
-            TimeFormat::EpochMillis => {
-                let ms: i64 = t.parse().map_err(|_| bad())?;
-                Utc.timestamp_millis_opt(ms).single().ok_or_else(bad)
-            }
-            TimeFormat::Pattern(p) => NaiveDateTime::parse_from_str(t, p)
-                .map(|n| n.and_utc())
-                .map_err(|e| format!("timestamp \"{t}\" does not match \"{p}\": {e}")),
-        }
-    }
-}
+pub use crate::timefmt::{TimeFormat, Zone};
 
 /// One template, checked and compiled.
 #[derive(Debug, Clone)]
@@ -95,6 +33,10 @@ pub struct Template {
     /// (group index, channel) for status groups.
     statuses: Vec<(usize, String)>,
     time: Option<(usize, TimeFormat)>,
+    /// Zone of local device times (UTC when `None`).
+    zone: Option<Zone>,
+    /// The last device time read, to place a repeated local hour.
+    last_time: Option<DateTime<Utc>>,
     words: BTreeMap<String, Status>,
 }
 
@@ -111,6 +53,8 @@ pub struct TemplateSpec {
     pub status: BTreeMap<String, Status>,
     /// Format of the `time` group.
     pub time_format: Option<TimeFormat>,
+    /// Zone of local times in the `time` group (UTC when `None`).
+    pub time_zone: Option<Zone>,
 }
 
 impl Template {
@@ -170,6 +114,8 @@ impl Template {
             values,
             statuses,
             time,
+            zone: spec.time_zone,
+            last_time: None,
             words: spec.status.clone(),
         })
     }
@@ -180,13 +126,22 @@ impl Template {
     }
 
     /// Samples from a line, or `None` when the pattern does not match.
-    fn apply(&self, line: &[u8], received: DateTime<Utc>) -> Option<Result<Vec<Sample>, String>> {
+    fn apply(
+        &mut self,
+        line: &[u8],
+        received: DateTime<Utc>,
+    ) -> Option<Result<Vec<Sample>, String>> {
         let caps = self.regex.captures(line)?;
         let text = |i: usize| caps.get(i).map(|m| String::from_utf8_lossy(m.as_bytes()));
         let time = match &self.time {
-            Some((i, fmt)) => match text(*i).map(|t| fmt.read(&t)) {
-                Some(Ok(t)) => t,
-                Some(Err(e)) => return Some(Err(e)),
+            Some((i, fmt)) => match text(*i) {
+                Some(t) => match fmt.read(&t, self.zone, self.last_time) {
+                    Ok(read) => {
+                        self.last_time = Some(read.time);
+                        read.time
+                    }
+                    Err(why) => return Some(Err(format!("timestamp \"{}\" {why}", t.trim()))),
+                },
                 None => received,
             },
             None => received,
@@ -234,7 +189,7 @@ impl TemplateDecoder {
 
 impl Decoder for TemplateDecoder {
     fn decode(&mut self, line: &[u8], received: DateTime<Utc>, source: &str) -> Vec<SourceEvent> {
-        for t in &self.templates {
+        for t in &mut self.templates {
             match t.apply(line, received) {
                 None => continue,
                 Some(Ok(samples)) => return vec![SourceEvent::Samples(samples)],
@@ -352,7 +307,7 @@ mod tests {
         let mut d = decoder(&[TemplateSpec {
             pattern: r"^(?P<time>[^;]+);(?P<p>\S+)$".into(),
             unit: Some(MBAR),
-            time_format: Some(TimeFormat::Pattern("%Y-%m-%d %H:%M:%S%.f".into())),
+            time_format: TimeFormat::parse("%Y-%m-%d %H:%M:%S%.f").ok(),
             ..TemplateSpec::default()
         }]);
         let s = samples(d.decode(b"2026-03-04 05:06:07.250;2e-5", t0(), "x"));
@@ -420,14 +375,46 @@ mod tests {
 
     #[test]
     fn epoch_formats() {
-        let s = TimeFormat::EpochSeconds
-            .read("1700000000.5")
-            .expect("valid");
+        let read = |f: &TimeFormat, t: &str| f.read(t, None, None).map(|r| r.time);
+        let s = read(&TimeFormat::EpochSeconds, "1700000000.5").expect("valid");
         assert_eq!(s.timestamp_millis(), 1_700_000_000_500);
-        let ms = TimeFormat::EpochMillis
-            .read("1700000000123")
-            .expect("valid");
+        let ms = read(&TimeFormat::EpochMillis, "1700000000123").expect("valid");
         assert_eq!(ms.timestamp_millis(), 1_700_000_000_123);
-        assert!(TimeFormat::EpochSeconds.read("inf").is_err());
+        assert!(read(&TimeFormat::EpochSeconds, "inf").is_err());
+    }
+
+    #[test]
+    fn device_times_in_a_zone() {
+        let mut d = decoder(&[TemplateSpec {
+            pattern: r"^(?P<time>[^;]+);(?P<p>\S+)$".into(),
+            unit: Some(MBAR),
+            time_format: TimeFormat::parse("%Y-%m-%d %H:%M:%S").ok(),
+            time_zone: Zone::parse("Europe/Vienna").ok(),
+            ..TemplateSpec::default()
+        }]);
+        // Straight through the end of summer time: the repeated hour reads
+        // in order.
+        let times: Vec<String> = [
+            &b"2026-10-25 02:50:00;1"[..],
+            b"2026-10-25 02:10:00;1",
+            b"2026-10-25 03:10:00;1",
+        ]
+        .into_iter()
+        .map(|l| samples(d.decode(l, t0(), "x"))[0].time.to_rfc3339())
+        .collect();
+        assert_eq!(
+            times,
+            [
+                "2026-10-25T00:50:00+00:00",
+                "2026-10-25T01:10:00+00:00",
+                "2026-10-25T02:10:00+00:00"
+            ]
+        );
+        match &d.decode(b"2026-03-29 02:30:00;1", t0(), "x")[0] {
+            SourceEvent::Unparsed { text, .. } => {
+                assert!(text.contains("does not exist in Europe/Vienna"), "{text}")
+            }
+            other => panic!("{other:?}"),
+        }
     }
 }

@@ -1,0 +1,478 @@
+//! How timestamps are written, and reading them: one parser for the time
+//! format of line templates (`time_format`) and of other loggers' CSV
+//! (`[log] time = { format = … }`), so both accept and refuse the same texts
+//! with the same messages.
+//!
+//! A format is `"rfc3339"`, `"epoch-s"`, `"epoch-ms"` or a strftime pattern
+//! that gives at least the year, month, day, hour and minute. A pattern
+//! without a UTC offset (`%z`) is local time in a [`Zone`] (UTC when none is
+//! given).
+//!
+//! With a named zone, at a daylight-saving change:
+//!
+//! * a local time that occurs twice (the hour repeated when the clocks go
+//!   back) is read as the earlier instant, unless that would put it before
+//!   the previous time while the later instant would not — so times written
+//!   straight through the change read in order ([`Read::ambiguous`] says so);
+//! * a local time that does not exist (skipped when the clocks go forward) is
+//!   an error: the clock that wrote it was wrong, and no guess is made.
+//!
+//! ```
+//! use rarefy_core::timefmt::{TimeFormat, Zone};
+//! let f = TimeFormat::parse("%d.%m.%Y %H:%M:%S").unwrap();
+//! let zone = Zone::parse("+01:00").unwrap();
+//! let t = f.read("04.03.2026 06:00:00", Some(zone), None).unwrap();
+//! assert_eq!(t.time.to_rfc3339(), "2026-03-04T05:00:00+00:00");
+//! assert!(TimeFormat::parse("%s").unwrap_err().contains("epoch-s"));
+//! ```
+
+use chrono::format::{Fixed, Item, Numeric, StrftimeItems};
+use chrono::{DateTime, FixedOffset, LocalResult, NaiveDate, NaiveDateTime, Offset, TimeZone, Utc};
+use chrono_tz::Tz;
+use std::fmt::{self, Write as _};
+
+/// How times are written.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum TimeFormat {
+    /// RFC 3339 with an offset (`2026-10-25T01:20:00+02:00`).
+    Rfc3339,
+    /// Seconds since 1970-01-01 UTC, optionally with a fraction.
+    EpochSeconds,
+    /// Milliseconds since 1970-01-01 UTC, optionally with a fraction.
+    EpochMillis,
+    /// A strftime pattern.
+    Pattern {
+        /// The pattern.
+        pattern: String,
+        /// Whether the text carries its own offset (`%z` …); else it is
+        /// local time in the given zone.
+        absolute: bool,
+    },
+}
+
+/// A time read from a text.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Read {
+    /// The instant.
+    pub time: DateTime<Utc>,
+    /// The local time occurred twice in its zone (see the module docs).
+    pub ambiguous: bool,
+}
+
+impl TimeFormat {
+    /// Reads a format: `rfc3339`, `epoch-s`, `epoch-ms` or a strftime
+    /// pattern, checked (every `%` item known, no `%s`, a full date and
+    /// time). The message says what was expected.
+    pub fn parse(text: &str) -> Result<Self, String> {
+        let text = text.trim();
+        match text {
+            "rfc3339" | "RFC3339" | "rfc-3339" => Ok(TimeFormat::Rfc3339),
+            "epoch-s" => Ok(TimeFormat::EpochSeconds),
+            "epoch-ms" => Ok(TimeFormat::EpochMillis),
+            p if p.contains('%') => check_pattern(p).map(|absolute| TimeFormat::Pattern {
+                pattern: p.to_string(),
+                absolute,
+            }),
+            other => {
+                let hint = crate::suggest::nearest(other, ["rfc3339", "epoch-s", "epoch-ms"])
+                    .map(|s| format!("did you mean \"{s}\"? "))
+                    .unwrap_or_default();
+                Err(format!(
+                    "unknown time format \"{}\"; {hint}expected \"rfc3339\", \"epoch-s\", \"epoch-ms\" \
+                     or a strftime pattern such as \"%d.%m.%Y %H:%M:%S\"",
+                    other.escape_debug()
+                ))
+            }
+        }
+    }
+
+    /// Whether times in this format are local times, read in a zone.
+    pub fn is_local(&self) -> bool {
+        matches!(
+            self,
+            TimeFormat::Pattern {
+                absolute: false,
+                ..
+            }
+        )
+    }
+
+    /// Whether the format counts from the epoch (and so is a number, which
+    /// a decimal comma may be written in).
+    pub fn is_epoch(&self) -> bool {
+        matches!(self, TimeFormat::EpochSeconds | TimeFormat::EpochMillis)
+    }
+
+    /// Reads a time. Local times are read in `zone` (UTC when `None`);
+    /// `previous`, the time read before this one, picks between the two
+    /// instants of a repeated local time. The message says why the text
+    /// does not fit, to follow the text itself (`"… does not match format
+    /// \"%Y\" (…)"`).
+    pub fn read(
+        &self,
+        text: &str,
+        zone: Option<Zone>,
+        previous: Option<DateTime<Utc>>,
+    ) -> Result<Read, String> {
+        let text = text.trim();
+        let absolute = |time: DateTime<Utc>| Read {
+            time,
+            ambiguous: false,
+        };
+        match self {
+            TimeFormat::Rfc3339 => DateTime::parse_from_rfc3339(text)
+                .map(|t| absolute(t.with_timezone(&Utc)))
+                .map_err(|e| format!("is not RFC 3339, e.g. 2026-10-25T01:20:00+02:00 ({e})")),
+            TimeFormat::EpochSeconds => parse_epoch(text, 1_000_000_000)
+                .map(absolute)
+                .ok_or_else(|| "is not a number of seconds since 1970-01-01 UTC".to_string()),
+            TimeFormat::EpochMillis => parse_epoch(text, 1_000_000)
+                .map(absolute)
+                .ok_or_else(|| "is not a number of milliseconds since 1970-01-01 UTC".to_string()),
+            TimeFormat::Pattern {
+                pattern,
+                absolute: true,
+            } => DateTime::parse_from_str(text, pattern)
+                .map(|t| absolute(t.with_timezone(&Utc)))
+                .map_err(|e| format!("does not match format \"{pattern}\" ({e})")),
+            TimeFormat::Pattern {
+                pattern,
+                absolute: false,
+            } => {
+                let naive = NaiveDateTime::parse_from_str(text, pattern)
+                    .map_err(|e| format!("does not match format \"{pattern}\" ({e})"))?;
+                let zone = zone.unwrap_or(Zone::Fixed(Utc.fix()));
+                localize(naive, zone, previous).map(|(time, ambiguous)| Read { time, ambiguous })
+            }
+        }
+    }
+}
+
+impl fmt::Display for TimeFormat {
+    /// The format as written in a config: `rfc3339`, `epoch-s`, `epoch-ms`
+    /// or the quoted pattern.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            TimeFormat::Rfc3339 => f.write_str("rfc3339"),
+            TimeFormat::EpochSeconds => f.write_str("epoch-s"),
+            TimeFormat::EpochMillis => f.write_str("epoch-ms"),
+            TimeFormat::Pattern { pattern, .. } => write!(f, "\"{pattern}\""),
+        }
+    }
+}
+
+/// A time zone for local times.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Zone {
+    /// An IANA time zone, with its daylight-saving rules.
+    Named(Tz),
+    /// A fixed offset from UTC.
+    Fixed(FixedOffset),
+}
+
+impl fmt::Display for Zone {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Zone::Named(tz) => f.write_str(tz.name()),
+            Zone::Fixed(o) => write!(f, "{o}"),
+        }
+    }
+}
+
+impl Zone {
+    /// Reads a time zone: an IANA name (`"Europe/Vienna"`, `"UTC"`) or a
+    /// fixed offset (`"+01:00"`); an unknown name gets a suggestion.
+    pub fn parse(text: &str) -> Result<Zone, String> {
+        let t = text.trim();
+        if let Ok(tz) = t.parse::<Tz>() {
+            return Ok(Zone::Named(tz));
+        }
+        if let Some(body) = t.strip_prefix(['+', '-']) {
+            let bad = || {
+                format!(
+                    "bad UTC offset \"{}\"; expected e.g. \"+01:00\" or \"-05:30\"",
+                    t.escape_debug()
+                )
+            };
+            let sign = if t.starts_with('-') { -1 } else { 1 };
+            let (h, m) = body.split_once(':').unwrap_or((body, "0"));
+            let (Ok(h), Ok(m)) = (h.parse::<i32>(), m.parse::<i32>()) else {
+                return Err(bad());
+            };
+            if !(0..=23).contains(&h) || !(0..=59).contains(&m) {
+                return Err(bad());
+            }
+            return FixedOffset::east_opt(sign * (h * 3600 + m * 60))
+                .map(Zone::Fixed)
+                .ok_or_else(bad);
+        }
+        let names = chrono_tz::TZ_VARIANTS.iter().map(|z| z.name());
+        let lower = t.to_ascii_lowercase();
+        let hint = names
+            .clone()
+            .find(|n| n.to_ascii_lowercase() == lower)
+            .or_else(|| {
+                let suffix = format!("/{lower}");
+                names
+                    .clone()
+                    .find(|n| n.to_ascii_lowercase().ends_with(&suffix))
+            })
+            .or_else(|| crate::suggest::nearest(t, names));
+        let hint = hint
+            .map(|s| format!("; did you mean \"{s}\"?"))
+            .unwrap_or_default();
+        Err(format!(
+            "unknown time zone \"{}\"{hint} (expected an IANA name such as \"Europe/Vienna\" or \"UTC\", or an offset such as \"+01:00\")",
+            t.escape_debug()
+        ))
+    }
+}
+
+/// Checks that a zone is given only where it is used: a zone given to times
+/// that carry their own offset is refused (it would be silently ignored).
+pub fn check_zone(format: &TimeFormat, zone_given: bool) -> Result<(), String> {
+    if zone_given && !format.is_local() {
+        return Err(
+            "`timezone` has no effect: these times carry their own offset; remove it".into(),
+        );
+    }
+    Ok(())
+}
+
+/// Checks a strftime pattern: every `%` item known, and a formatted time
+/// reads back. Returns whether the text carries its own offset.
+fn check_pattern(pattern: &str) -> Result<bool, String> {
+    let items: Vec<Item> = StrftimeItems::new(pattern).collect();
+    if items.iter().any(|i| matches!(i, Item::Error)) {
+        return Err(format!(
+            "bad strftime pattern \"{}\": an unknown or incomplete `%` specifier \
+             (e.g. %Y year, %m month, %d day, %H hour, %M minute, %S second, %.3f milliseconds, %z offset)",
+            pattern.escape_debug()
+        ));
+    }
+    if items
+        .iter()
+        .any(|i| matches!(i, Item::Numeric(Numeric::Timestamp, _)))
+    {
+        return Err(format!(
+            "strftime pattern \"{}\" uses %s; for seconds since 1970 use format = \"epoch-s\"",
+            pattern.escape_debug()
+        ));
+    }
+    let absolute = items.iter().any(|i| {
+        matches!(
+            i,
+            Item::Fixed(
+                Fixed::TimezoneOffset
+                    | Fixed::TimezoneOffsetColon
+                    | Fixed::TimezoneOffsetDoubleColon
+                    | Fixed::TimezoneOffsetTripleColon
+                    | Fixed::TimezoneOffsetColonZ
+                    | Fixed::TimezoneOffsetZ
+                    | Fixed::RFC2822
+                    | Fixed::RFC3339
+            )
+        )
+    });
+    let reference = NaiveDate::from_ymd_opt(2001, 2, 3)
+        .and_then(|d| d.and_hms_milli_opt(14, 5, 6, 789))
+        .ok_or("internal: reference time")?;
+    let offset = FixedOffset::east_opt(3600).ok_or("internal: reference offset")?;
+    let zoned = offset
+        .from_local_datetime(&reference)
+        .single()
+        .ok_or("internal: reference time")?;
+    let mut text = String::new();
+    if write!(text, "{}", zoned.format_with_items(items.iter())).is_err() {
+        return Err(format!(
+            "bad strftime pattern \"{}\": it cannot format a time",
+            pattern.escape_debug()
+        ));
+    }
+    let back = if absolute {
+        DateTime::parse_from_str(&text, pattern).map(|_| ())
+    } else {
+        NaiveDateTime::parse_from_str(&text, pattern).map(|_| ())
+    };
+    back.map_err(|e| {
+        format!(
+            "strftime pattern \"{}\" does not give a full date and time ({e}); \
+             it needs at least the year, month, day, hour and minute",
+            pattern.escape_debug()
+        )
+    })?;
+    Ok(absolute)
+}
+
+/// Picks the instant for a local time (see the module docs); the flag says
+/// whether the local time occurred twice.
+fn localize(
+    naive: NaiveDateTime,
+    zone: Zone,
+    previous: Option<DateTime<Utc>>,
+) -> Result<(DateTime<Utc>, bool), String> {
+    let result = match zone {
+        Zone::Fixed(o) => o.from_local_datetime(&naive).map(|t| t.with_timezone(&Utc)),
+        Zone::Named(tz) => tz
+            .from_local_datetime(&naive)
+            .map(|t| t.with_timezone(&Utc)),
+    };
+    match result {
+        LocalResult::Single(t) => Ok((t, false)),
+        LocalResult::Ambiguous(early, late) => {
+            let chosen = match previous {
+                Some(p) if early < p && late >= p => late,
+                _ => early,
+            };
+            Ok((chosen, true))
+        }
+        LocalResult::None => Err(format!(
+            "local time {naive} does not exist in {zone} (the clocks skip it when they go forward); \
+             the logger's clock was wrong"
+        )),
+    }
+}
+
+/// Parses `[-]digits[.digits]` units since the epoch; `scale` is nanoseconds
+/// per unit (1e9 for seconds, 1e6 for milliseconds).
+fn parse_epoch(text: &str, scale: i128) -> Option<DateTime<Utc>> {
+    let (negative, body) = match text.strip_prefix('-') {
+        Some(b) => (true, b),
+        None => (false, text.strip_prefix('+').unwrap_or(text)),
+    };
+    let (int, frac) = body.split_once('.').unwrap_or((body, ""));
+    if int.is_empty() || !int.bytes().all(|b| b.is_ascii_digit()) || int.len() > 15 {
+        return None;
+    }
+    if !frac.bytes().all(|b| b.is_ascii_digit()) {
+        return None;
+    }
+    let mut nanos: i128 = int.parse::<i128>().ok()? * scale;
+    let mut place = scale / 10;
+    for d in frac.bytes() {
+        if place == 0 {
+            break;
+        }
+        nanos += i128::from(d - b'0') * place;
+        place /= 10;
+    }
+    if negative {
+        nanos = -nanos;
+    }
+    let secs = i64::try_from(nanos.div_euclid(1_000_000_000)).ok()?;
+    let sub = u32::try_from(nanos.rem_euclid(1_000_000_000)).ok()?;
+    DateTime::from_timestamp(secs, sub)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn utc(text: &str) -> DateTime<Utc> {
+        DateTime::parse_from_rfc3339(text)
+            .map(|t| t.with_timezone(&Utc))
+            .unwrap_or_else(|e| panic!("{text}: {e}"))
+    }
+
+    fn read(format: &str, text: &str, zone: Option<&str>) -> Result<DateTime<Utc>, String> {
+        let f = TimeFormat::parse(format).expect("valid format");
+        let z = zone.map(|z| Zone::parse(z).expect("valid zone"));
+        f.read(text, z, None).map(|r| r.time)
+    }
+
+    #[test]
+    fn formats_are_checked_with_reasons() {
+        let e = |t: &str| TimeFormat::parse(t).expect_err(t);
+        assert!(e("dd.mm.yyyy").starts_with("unknown time format \"dd.mm.yyyy\""));
+        assert!(e("epoch-sec").contains("did you mean \"epoch-s\"?"));
+        assert!(e("%Q").starts_with("bad strftime pattern \"%Q\""));
+        assert!(e("%s").contains("use format = \"epoch-s\""));
+        assert!(e("%d.%m.%Y").contains("does not give a full date and time"));
+        assert!(e("%H:%M:%S").contains("does not give a full date and time"));
+        assert_eq!(TimeFormat::parse(" rfc3339 "), Ok(TimeFormat::Rfc3339));
+        assert_eq!(TimeFormat::parse("RFC3339"), Ok(TimeFormat::Rfc3339));
+        assert!(
+            !TimeFormat::parse("%Y-%m-%d %H:%M:%S")
+                .expect("valid")
+                .to_string()
+                .is_empty()
+        );
+        assert!(
+            !TimeFormat::parse("%Y-%m-%d %H:%M:%S %z")
+                .expect("valid")
+                .is_local()
+        );
+    }
+
+    #[test]
+    fn epochs_are_exact_and_refuse_non_numbers() {
+        let s = read("epoch-s", "1700000000.5", None).expect("valid");
+        assert_eq!(s.timestamp_millis(), 1_700_000_000_500);
+        let ms = read("epoch-ms", "1700000000123", None).expect("valid");
+        assert_eq!(ms.timestamp_millis(), 1_700_000_000_123);
+        assert_eq!(read("epoch-s", "-1", None), Ok(utc("1969-12-31T23:59:59Z")));
+        for bad in ["inf", "NaN", "1e9", "", "1.2.3", "x"] {
+            assert!(read("epoch-s", bad, None).is_err(), "{bad}");
+        }
+    }
+
+    #[test]
+    fn patterns_read_in_their_zone_or_utc() {
+        let p = "%Y-%m-%d %H:%M:%S";
+        assert_eq!(
+            read(p, "2026-01-01 00:00:00", None),
+            Ok(utc("2026-01-01T00:00:00Z"))
+        );
+        assert_eq!(
+            read(p, "2026-01-01 00:00:00", Some("-05:30")),
+            Ok(utc("2026-01-01T05:30:00Z"))
+        );
+        assert_eq!(
+            read(&format!("{p} %z"), "2026-01-01 01:00:00 +0100", None),
+            Ok(utc("2026-01-01T00:00:00Z"))
+        );
+        let e = read(p, "2026-03-29 02:30:00", Some("Europe/Vienna")).expect_err("skipped");
+        assert!(e.contains("does not exist in Europe/Vienna"), "{e}");
+        let e = read(p, "yesterday", None).expect_err("no match");
+        assert!(e.starts_with("does not match format"), "{e}");
+    }
+
+    #[test]
+    fn a_repeated_hour_follows_the_previous_time() {
+        let f = TimeFormat::parse("%Y-%m-%d %H:%M:%S").expect("valid");
+        let z = Zone::parse("Europe/Vienna").ok();
+        let first = f.read("2026-10-25 02:50:00", z, None).expect("valid");
+        assert_eq!(first.time, utc("2026-10-25T00:50:00Z"));
+        assert!(first.ambiguous);
+        let next = f
+            .read("2026-10-25 02:10:00", z, Some(first.time))
+            .expect("valid");
+        assert_eq!(next.time, utc("2026-10-25T01:10:00Z"));
+    }
+
+    #[test]
+    fn zones_and_offsets() {
+        assert!(
+            Zone::parse("Europe/Viena")
+                .expect_err("typo")
+                .contains("did you mean \"Europe/Vienna\"?")
+        );
+        assert!(
+            Zone::parse("vienna")
+                .expect_err("short")
+                .contains("did you mean \"Europe/Vienna\"?")
+        );
+        assert!(
+            Zone::parse("+25:00")
+                .expect_err("range")
+                .starts_with("bad UTC offset")
+        );
+        assert_eq!(
+            Zone::parse("+01:00").map(|z| z.to_string()),
+            Ok("+01:00".to_string())
+        );
+        let absolute = TimeFormat::Rfc3339;
+        assert!(check_zone(&absolute, true).is_err());
+        assert!(check_zone(&absolute, false).is_ok());
+    }
+}
