@@ -61,6 +61,11 @@ fn nz(n: u16) -> std::num::NonZeroU16 {
 
 impl Dash {
     fn spawn(args: &[&str], rows: u16, cols: u16) -> Dash {
+        Dash::spawn_with(args, rows, cols, &[])
+    }
+
+    /// [`Dash::spawn`] with extra environment variables.
+    fn spawn_with(args: &[&str], rows: u16, cols: u16, env: &[(&str, &str)]) -> Dash {
         let pty = native_pty_system();
         let pair = pty
             .openpty(PtySize {
@@ -78,6 +83,9 @@ impl Dash {
         cmd.env_remove("LC_ALL");
         cmd.env_remove("LC_CTYPE");
         cmd.env_remove("NO_COLOR");
+        for (k, v) in env {
+            cmd.env(k, v);
+        }
         let child = pair.slave.spawn_command(cmd).expect("spawn rarefy");
         // Only the child holds the slave now, so reads end when it exits.
         drop(pair.slave);
@@ -643,4 +651,160 @@ fn watch_without_a_source_on_a_terminal_says_what_to_give() {
     let status = d.wait_exit();
     assert_eq!(status.exit_code(), 2);
     assert!(d.raw_text().contains("no source"), "{}", d.raw_text());
+}
+
+/// Every file of a recording directory with the given extension, by name.
+fn files(dir: &Path, ext: &str) -> Vec<(String, String)> {
+    let mut out: Vec<(String, String)> = std::fs::read_dir(dir)
+        .expect("dir")
+        .map(|e| e.expect("entry").path())
+        .filter(|p| p.extension().is_some_and(|e| e == ext))
+        .map(|p| {
+            (
+                p.file_name().expect("name").to_string_lossy().into_owned(),
+                std::fs::read_to_string(&p).expect("read"),
+            )
+        })
+        .collect();
+    out.sort();
+    out
+}
+
+fn event_lines(dir: &Path) -> Vec<serde_json::Value> {
+    files(dir, "jsonl")
+        .iter()
+        .flat_map(|(_, text)| {
+            text.lines()
+                .map(|l| serde_json::from_str(l).expect("event json"))
+                .collect::<Vec<_>>()
+        })
+        .collect()
+}
+
+#[test]
+fn watch_record_writes_what_record_writes_and_keeps_the_audit_trail() {
+    let log = format!("file://{}/sample-logs/demo.csv", env!("CARGO_MANIFEST_DIR"));
+    let by_record = tempdir("by-record");
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_rarefy"))
+        .args([
+            "record",
+            "--config",
+            "config/demo.toml",
+            "--source",
+            &log,
+            "--out",
+        ])
+        .arg(&by_record)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .expect("record");
+    assert_eq!(
+        out.status.code(),
+        Some(3),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+
+    let by_watch = tempdir("by-watch");
+    let dir = by_watch.to_str().expect("utf-8");
+    let mut d = Dash::spawn_with(
+        &[
+            "watch",
+            "--config",
+            "config/demo.toml",
+            "--source",
+            &log,
+            "--record",
+            dir,
+        ],
+        40,
+        120,
+        &[("USER", "op-kestrel"), ("LOGNAME", "op-kestrel")],
+    );
+    d.wait_text("all sources ended");
+    // Acknowledge everything waiting: each acknowledgement is an event in
+    // the event log, with who did it.
+    d.send(b"A");
+    d.wait_for("the acknowledgements", |s| {
+        s.lines()
+            .any(|l| l.contains(" acknowledged") && !l.contains(" 0 acknowledged"))
+    });
+    d.send(b"q");
+    d.assert_clean_exit();
+
+    // The same log, byte for byte.
+    let (a, b) = (files(&by_record, "csv"), files(&by_watch, "csv"));
+    assert_eq!(a.len(), 1, "{a:?}");
+    assert_eq!(a, b);
+    // The same alarm and gate events; the watch's log has the operator's
+    // acknowledgements besides.
+    let strip = |v: &serde_json::Value| {
+        let mut v = v.clone();
+        v.as_object_mut().map(|m| m.remove("wall_time"));
+        v
+    };
+    let recorded: Vec<_> = event_lines(&by_record).iter().map(strip).collect();
+    let watched = event_lines(&by_watch);
+    let automatic: Vec<_> = watched
+        .iter()
+        .filter(|e| e.get("operation").is_none())
+        .map(strip)
+        .collect();
+    assert!(recorded.len() > 10, "{recorded:?}");
+    assert_eq!(automatic, recorded);
+    let acks: Vec<_> = watched
+        .iter()
+        .filter(|e| e["operation"] == "acknowledge")
+        .collect();
+    assert!(!acks.is_empty(), "{watched:?}");
+    for e in acks {
+        assert_eq!(e["user"], "op-kestrel", "{e}");
+        // Acknowledged while active; back to normal once it had returned.
+        assert!(e["to"] == "acknowledged" || e["to"] == "normal", "{e}");
+        assert!(e["wall_time"].is_string(), "{e}");
+        assert_eq!(e["v"], 1, "{e}");
+    }
+}
+
+#[test]
+fn a_source_that_never_connects_raises_alarms_after_stale_after() {
+    let dir = tempdir("never-connects");
+    let config = dir.join("quiet.toml");
+    std::fs::write(
+        &config,
+        "[[gauge]]\nid = \"chamber\"\nkind = \"capacitance\"\n\n[alarms]\nstale_after = \"2 s\"\n",
+    )
+    .expect("config");
+    // A port nothing listens on: the source retries and never connects.
+    let port = std::net::TcpListener::bind("127.0.0.1:0")
+        .expect("bind")
+        .local_addr()
+        .expect("addr")
+        .port();
+    let source = format!("tcp://127.0.0.1:{port}");
+    let mut d = Dash::spawn(
+        &[
+            "watch",
+            "--config",
+            config.to_str().expect("utf-8"),
+            "--source",
+            &source,
+        ],
+        30,
+        120,
+    );
+    d.wait_text("LIVE");
+    let s = d.wait_for("the input and link alarms", |s| {
+        alarm_is(s, "chamber.input", &["ALARM"]) && alarm_is(s, "source-1.link", &["ALARM"])
+    });
+    assert!(
+        line_of(&s, "chamber.input").is_some_and(|l| l.contains("no data")),
+        "{s}"
+    );
+    assert!(
+        line_of(&s, "source-1.link").is_some_and(|l| l.contains("not connected")),
+        "{s}"
+    );
+    d.send(b"q");
+    d.assert_clean_exit();
 }

@@ -229,3 +229,17 @@ fn record_needs_an_output_directory() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("did you mean `baud`?"));
 }
+
+#[test]
+fn a_file_that_cannot_be_read_is_a_runtime_failure() {
+    let dir = tempdir("unreadable");
+    let out = Command::new(bin())
+        .args(["record", "--source", "file:///nonexistent/run.csv", "--out"])
+        .arg(&dir)
+        .output()
+        .expect("run");
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("cannot open /nonexistent/run.csv"), "{err}");
+    assert!(err.contains("no readings: the sources failed"), "{err}");
+}

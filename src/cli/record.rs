@@ -234,6 +234,7 @@ async fn record(
     let mut last_flush = std::time::Instant::now();
     let mut last_reminder = std::time::Instant::now();
     let mut stopped_by = None;
+    let mut source_errors = 0u64;
     let live = |clock: &DataClock, finite: bool| (!finite).then(|| clock.now());
     loop {
         tokio::select! {
@@ -242,10 +243,14 @@ async fn record(
             _ = sigint.recv() => { stopped_by = Some("SIGINT"); break; }
             ev = started.rx.recv() => {
                 let Some(ev) = ev else { break };
-                if let crate::sample::SourceEvent::Samples(s) = &ev
-                    && let Some(t) = s.iter().map(|s| s.time).max()
-                {
-                    clock.saw(t);
+                match &ev {
+                    crate::sample::SourceEvent::Samples(s) => {
+                        if let Some(t) = s.iter().map(|s| s.time).max() {
+                            clock.saw(t);
+                        }
+                    }
+                    crate::sample::SourceEvent::Error { .. } => source_errors += 1,
+                    _ => {}
                 }
                 pipeline.feed(&ev, live(&clock, started.finite), &mut Nowhere);
                 if args.exit_on_trip && pipeline.monitor().trip_active() {
@@ -334,6 +339,10 @@ async fn record(
         say(p);
     }
     if !problems.is_empty() {
+        return Ok(ExitCode::Runtime);
+    }
+    if counts.rows == 0 && source_errors > 0 {
+        say("no readings: the sources failed");
         return Ok(ExitCode::Runtime);
     }
     if pipeline.monitor().trip_seen() {

@@ -204,14 +204,28 @@ pub async fn live(mut app: App, mut input: LiveInput) -> Result<Vec<String>, Str
                 app.counters.behind = input.rx.len();
             }
             Some(n) = recv_opt(&mut input.notes) => {
-                app.message = Some(match n {
+                // The status line names the file; only trouble is a message.
+                match n {
                     RecordingNote::Recorder(RecordEvent::Opened { path, .. }) => {
-                        app.log_file = Some(path.clone());
-                        format!("recording to {}", path.display())
+                        app.log_file = Some(path);
                     }
-                    RecordingNote::Recorder(e) => format!("recording: {e:?}"),
-                    RecordingNote::EventLog(m) => m,
-                });
+                    RecordingNote::Recorder(RecordEvent::Closed { .. }) => {}
+                    RecordingNote::Recorder(RecordEvent::WriteFailed { path, error, buffered }) => {
+                        app.message = Some(format!(
+                            "RECORDING FAILS: {}: {error}; {buffered} rows kept in memory",
+                            path.display()
+                        ));
+                    }
+                    RecordingNote::Recorder(RecordEvent::Recovered { path }) => {
+                        app.message = Some(format!("recording again, to {}", path.display()));
+                    }
+                    RecordingNote::Recorder(RecordEvent::Lost { rows, total }) => {
+                        app.message = Some(format!(
+                            "DATA LOST: {rows} rows dropped ({total} in all)"
+                        ));
+                    }
+                    RecordingNote::EventLog(m) => app.message = Some(m),
+                }
                 app.dirty = true;
             }
             Some(o) = recv_opt(&mut input.outcomes) => {
@@ -432,6 +446,43 @@ pub fn seek(
     Ok(())
 }
 
+/// Plays one frame: moves the playhead by `elapsed_s` wall seconds at the
+/// replay's speed (at max speed, up to 20 000 rows), feeding the rows it
+/// passes and advancing data time to the playhead. Events do not depend on
+/// how the frames fall: the monitor runs every deadline at its own time.
+pub fn play(app: &mut App, player: &mut Player, head: &mut Option<DateTime<Utc>>, elapsed_s: f64) {
+    let (paused, speed) = app
+        .replay
+        .as_ref()
+        .map_or((true, Speed::Max), |r| (r.paused, r.speed));
+    if paused {
+        return;
+    }
+    match speed {
+        Speed::Max => {
+            player.feed(app, None, 20_000);
+            *head = app.monitor().now();
+        }
+        Speed::Times(x) => {
+            if let Some(h) = head.or(player.next_time()) {
+                let t = h + chrono::Duration::milliseconds((elapsed_s * x * 1000.0) as i64);
+                player.feed(app, Some(t), usize::MAX);
+                app.tick(t.min(app.replay.as_ref().map_or(t, |r| r.end)));
+                *head = Some(t);
+            }
+        }
+    }
+    let ended = player.next_time().is_none();
+    if let Some(r) = &mut app.replay
+        && ended
+        && !r.at_end
+    {
+        r.at_end = true;
+        r.paused = true;
+        app.dirty = true;
+    }
+}
+
 /// Runs the replay dashboard.
 pub async fn replay(
     mut app: App,
@@ -477,30 +528,7 @@ pub async fn replay(
             _ = sh.tick.tick() => {
                 let elapsed = last.elapsed().as_secs_f64();
                 last = Instant::now();
-                let (paused, speed) = app.replay.as_ref().map_or((true, Speed::Max), |r| (r.paused, r.speed));
-                if !paused {
-                    match speed {
-                        Speed::Max => {
-                            player.feed(&mut app, None, 20_000);
-                            head = app.monitor().now();
-                        }
-                        Speed::Times(x) => {
-                            let h = head.or(player.next_time());
-                            if let Some(h) = h {
-                                let t = h + chrono::Duration::milliseconds((elapsed * x * 1000.0) as i64);
-                                player.feed(&mut app, Some(t), usize::MAX);
-                                app.tick(t.min(app.replay.as_ref().map_or(t, |r| r.end)));
-                                head = Some(t);
-                            }
-                        }
-                    }
-                    let ended = player.next_time().is_none();
-                    if let Some(r) = &mut app.replay && ended && !r.at_end {
-                        r.at_end = true;
-                        r.paused = true;
-                        app.dirty = true;
-                    }
-                }
+                play(&mut app, &mut player, &mut head, elapsed);
                 draw(&mut sh.guard, &mut app).map_err(|e| e.to_string())?;
             }
         }

@@ -808,21 +808,32 @@ fn status_line(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             look.alarm,
         ));
     }
-    if let Some(f) = &app.log_file {
-        parts.push(Span::styled(
-            format!("recording {}  ", f.display()),
-            look.dim,
-        ));
-    }
+    // A message first: it is what the operator just did or must know.
     if let Some(m) = &app.message {
-        parts.push(Span::styled(
-            m.clone(),
-            Style::default().add_modifier(Modifier::BOLD),
-        ));
-    } else if let Some(u) = &app.last_unparsed {
-        parts.push(Span::styled(format!("last unparsed: {u}"), look.dim));
-    } else if let Some(e) = &app.source_error {
-        parts.push(Span::styled(e.clone(), look.dim));
+        parts.insert(
+            0,
+            Span::styled(
+                format!("{m}  "),
+                Style::default().add_modifier(Modifier::BOLD),
+            ),
+        );
+    }
+    if let Some(f) = &app.log_file {
+        // The file's name; its directory was given on the command line.
+        let name = f.file_name().map_or_else(
+            || f.display().to_string(),
+            |n| n.to_string_lossy().into_owned(),
+        );
+        parts.push(Span::styled(format!("recording {name}  "), look.dim));
+    }
+    // Without a message, the latest device trouble.
+    let trouble = match (&app.last_unparsed, &app.source_error) {
+        (Some(u), _) => Some(format!("last unparsed: {u}")),
+        (None, Some(e)) => Some(e.clone()),
+        (None, None) => None,
+    };
+    if let Some(t) = trouble.filter(|_| app.message.is_none()) {
+        parts.push(Span::styled(t, look.dim));
     }
     Paragraph::new(Line::from(parts)).render_into(area, buf);
 }
