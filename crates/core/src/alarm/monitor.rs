@@ -735,6 +735,10 @@ impl Monitor {
                 e.quantity = None;
                 e.value_text = Some(if up { "connected" } else { "not connected" }.into());
                 e.threshold = Some("connected".into());
+                e.text = match t.note.as_deref() {
+                    Some(n) => format!("{}: {} ({n})", self.links[i].machine.rule.label, t.to),
+                    None => format!("{}: {}", self.links[i].machine.rule.label, t.to),
+                };
                 events.push(e);
             }
         }
