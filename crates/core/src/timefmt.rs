@@ -31,6 +31,12 @@ use chrono::{DateTime, FixedOffset, LocalResult, NaiveDate, NaiveDateTime, Offse
 use chrono_tz::Tz;
 use std::fmt::{self, Write as _};
 
+/// How rarefy writes every timestamp (logs, events, messages): RFC 3339,
+/// UTC, with milliseconds (`2026-11-09T09:31:11.000Z`).
+pub fn write_rfc3339(t: DateTime<Utc>) -> String {
+    t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
+}
+
 /// How times are written.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum TimeFormat {

@@ -16,13 +16,12 @@ use super::keys;
 use super::render;
 use super::term::Guard;
 use crate::alarm::{Event, Monitor, MonitorSetup};
-use crate::log::LogSource;
 use crate::record::{RecordEvent, Recorder};
 use crate::sample::SourceEvent;
 use rarefy_app::action::Outcome;
-use rarefy_app::logfile::open_log;
-use rarefy_app::pipeline::sinks::{Collect, RecordingNote, RecordingState};
-use rarefy_app::pipeline::{DataClock, Pipeline};
+use rarefy_app::pipeline::DataClock;
+use rarefy_app::pipeline::replay::{self, Rows};
+use rarefy_app::pipeline::sinks::{RecordingNote, RecordingState};
 use std::sync::{Arc, Mutex};
 
 /// Frame interval: at most ten redraws a second.
@@ -286,9 +285,10 @@ pub struct ReplaySetup {
     pub monitor: MonitorSetup,
 }
 
-/// Reads the whole log once through the pipeline: start, end, gaps and the
-/// alarm events, for the timeline and for jumping between alarms. The
-/// events are exactly those playback gives at any speed.
+/// Reads the whole log once through the pipeline (see
+/// [`rarefy_app::pipeline::replay::index`]): start, end, gaps and the alarm
+/// events, for the timeline and for jumping between alarms. The events are
+/// exactly those playback gives at any speed.
 pub fn index(setup: &ReplaySetup) -> Result<Replay, String> {
     let (replay, _) = index_events(setup)?;
     Ok(replay)
@@ -296,46 +296,9 @@ pub fn index(setup: &ReplaySetup) -> Result<Replay, String> {
 
 /// [`index`], and every event of the log.
 pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String> {
-    let mut log = open_log(&setup.file, setup.foreign.as_ref()).map_err(|e| e.to_string())?;
-    let mut pipeline = Pipeline::new(Monitor::new(setup.monitor.clone()));
-    let mut events = Collect::default();
-    let mut start = None;
-    let mut end: Option<DateTime<Utc>> = None;
-    let mut gaps = Vec::new();
-    let mut intervals: Vec<i64> = Vec::new();
-    let mut bad_rows = 0;
-    for row in log.by_ref() {
-        let row = match row {
-            Ok(r) => r,
-            Err(e) => {
-                bad_rows += 1;
-                match e.row {
-                    Some(r) => *r,
-                    None => continue,
-                }
-            }
-        };
-        start.get_or_insert(row.time);
-        if let Some(prev) = end {
-            let dt = (row.time - prev).num_milliseconds();
-            if intervals.len() < 64 {
-                intervals.push(dt.max(1));
-            }
-            let mut sorted = intervals.clone();
-            sorted.sort_unstable();
-            let typical = sorted[sorted.len() / 2];
-            if dt > typical * 5 && dt > 5000 {
-                gaps.push((prev, row.time));
-            }
-        }
-        end = Some(end.map_or(row.time, |e| e.max(row.time)));
-        pipeline.feed(&SourceEvent::Samples(row.samples), None, &mut events);
-    }
-    let (Some(start), Some(end)) = (start, end) else {
-        return Err(format!("{}: the log has no rows", setup.file.display()));
-    };
-    let marks = events
-        .0
+    let ix = replay::index(&setup.file, setup.foreign.as_ref(), &setup.monitor)?;
+    let marks = ix
+        .events
         .iter()
         .map(|e| (e.time, e.id.clone(), e.to_text().to_string()))
         .collect();
@@ -344,67 +307,44 @@ pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String>
             file: setup.file.clone(),
             paused: false,
             speed: Speed::Times(60.0),
-            start,
-            end,
+            start: ix.start,
+            end: ix.end,
             marks,
-            gaps,
-            bad_rows,
+            gaps: ix.gaps,
+            bad_rows: ix.bad_rows,
             at_end: false,
         },
-        events.0,
+        ix.events,
     ))
 }
 
-/// A replay in progress: the reader and the next row.
+/// A replay in progress: the log's rows, fed to the app.
 pub struct Player {
-    log: Box<dyn LogSource>,
-    next: Option<crate::log::Row>,
+    rows: Rows,
 }
 
 impl Player {
     /// Opens the log at its start.
     pub fn open(setup: &ReplaySetup) -> Result<Player, String> {
-        let log = open_log(&setup.file, setup.foreign.as_ref()).map_err(|e| e.to_string())?;
-        let mut p = Player { log, next: None };
-        p.advance();
-        Ok(p)
-    }
-
-    fn advance(&mut self) {
-        self.next = None;
-        for row in self.log.by_ref() {
-            match row {
-                Ok(r) => {
-                    self.next = Some(r);
-                    return;
-                }
-                Err(e) => {
-                    if let Some(r) = e.row {
-                        self.next = Some(*r);
-                        return;
-                    }
-                }
-            }
-        }
+        Ok(Player {
+            rows: Rows::open(&setup.file, setup.foreign.as_ref())?,
+        })
     }
 
     /// Time of the next row.
     pub fn next_time(&self) -> Option<DateTime<Utc>> {
-        self.next.as_ref().map(|r| r.time)
+        self.rows.next_time()
     }
 
     /// Feeds the app every row up to `until` (at most `max` rows).
     pub fn feed(&mut self, app: &mut App, until: Option<DateTime<Utc>>, max: usize) -> usize {
         let mut n = 0;
         while n < max {
-            let Some(row) = self.next.take() else { break };
-            if until.is_some_and(|u| row.time > u) {
-                self.next = Some(row);
+            let Some(row) = self.rows.next_until(until) else {
                 break;
-            }
+            };
             app.ingest(&SourceEvent::Samples(row.samples), None);
             n += 1;
-            self.advance();
         }
         n
     }

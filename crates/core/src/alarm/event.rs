@@ -14,7 +14,7 @@ use super::rule::{AlarmState, Severity};
 pub const EVENT_VERSION: u32 = 1;
 
 fn rfc3339<S: Serializer>(t: &DateTime<Utc>, s: S) -> Result<S::Ok, S::Error> {
-    s.serialize_str(&crate::log::v1::format_time(*t))
+    s.serialize_str(&crate::timefmt::write_rfc3339(*t))
 }
 
 fn rfc3339_opt<S: Serializer>(t: &Option<DateTime<Utc>>, s: S) -> Result<S::Ok, S::Error> {

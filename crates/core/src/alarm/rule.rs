@@ -503,7 +503,7 @@ impl RuleMachine {
         self.shelved_until = Some(until);
         let note = Some(format!(
             "shelved by {who} until {}",
-            crate::log::v1::format_time(until)
+            crate::timefmt::write_rfc3339(until)
         ));
         self.set(time, AlarmState::Shelved, &mut out, note);
         Ok(out)

@@ -1,6 +1,6 @@
 //! Writing log format v1 (see the module docs of [`crate::log`]).
 
-use chrono::{DateTime, SecondsFormat, Utc};
+use chrono::{DateTime, Utc};
 use std::fmt::Write as _;
 
 use crate::sample::{ChannelInfo, ChannelUnit, Sample, Status};
@@ -66,7 +66,7 @@ impl Column {
 
 /// Formats a time as RFC 3339 UTC with milliseconds.
 pub fn format_time(t: DateTime<Utc>) -> String {
-    t.to_rfc3339_opts(SecondsFormat::Millis, true)
+    crate::timefmt::write_rfc3339(t)
 }
 
 /// Quotes a CSV cell when it needs it.
