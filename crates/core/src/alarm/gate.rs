@@ -123,6 +123,12 @@ impl GateMachine {
         Some((self.gate.hold_s - (now - since).num_milliseconds() as f64 / 1000.0).max(0.0))
     }
 
+    /// Forgets how long the conditions have held (the clock it ran on was
+    /// replaced); the hold starts again at the next evaluation.
+    pub fn restart_hold(&mut self) {
+        self.held_since = None;
+    }
+
     /// The next data time at which the gate becomes ready without a new
     /// reading: its conditions have held since `held_since`.
     pub fn deadline(&self) -> Option<DateTime<Utc>> {

@@ -181,6 +181,9 @@ pub struct Monitor {
     origin: Option<DateTime<Utc>>,
     /// Data time of the last evaluation.
     evaluated: Option<DateTime<Utc>>,
+    /// The clock was started by [`Monitor::start`] (live, before any data);
+    /// the first row's own time takes over from it.
+    provisional: bool,
     now: Option<DateTime<Utc>>,
     trip_seen: bool,
 }
@@ -255,6 +258,7 @@ impl Monitor {
             links: Vec::new(),
             origin: None,
             evaluated: None,
+            provisional: false,
             now: None,
             trip_seen: false,
         }
@@ -309,8 +313,34 @@ impl Monitor {
             return Vec::new();
         }
         self.origin = Some(t);
+        self.provisional = true;
         self.now = Some(self.now.map_or(t, |n| n.max(t)));
         self.evaluate(t)
+    }
+
+    /// The first row arrived after a provisional start: when the data's
+    /// clock is behind the one that started the monitor (a device clock, a
+    /// followed file of older rows), the data's clock takes over, and every
+    /// running delay starts again on it.
+    fn take_over_clock(&mut self, t: DateTime<Utc>) {
+        if !std::mem::take(&mut self.provisional) || self.now.is_none_or(|n| t >= n) {
+            return;
+        }
+        self.origin = Some(t);
+        self.now = Some(t);
+        self.evaluated = None;
+        for (r, _) in &mut self.rules {
+            r.restart_delays();
+        }
+        for r in &mut self.inputs {
+            r.restart_delays();
+        }
+        for l in &mut self.links {
+            l.machine.restart_delays();
+        }
+        for g in &mut self.gates {
+            g.restart_hold();
+        }
     }
 
     /// The setup it runs with.
@@ -397,6 +427,7 @@ impl Monitor {
         let Some(time) = samples.iter().map(|s| s.time).max() else {
             return Vec::new();
         };
+        self.take_over_clock(time);
         let mut events = self.advance_to(time);
         for s in samples {
             self.take(s);

@@ -312,6 +312,12 @@ impl RuleMachine {
         self.shelved_until
     }
 
+    /// Forgets a running on- or off-delay (the clock it ran on was replaced);
+    /// it starts again at the next evaluation.
+    pub fn restart_delays(&mut self) {
+        self.pending_since = None;
+    }
+
     /// The next data time at which this machine changes without a new
     /// reading: a running on- or off-delay runs out, or a shelving expires.
     pub fn deadline(&self) -> Option<DateTime<Utc>> {

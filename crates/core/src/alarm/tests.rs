@@ -717,3 +717,27 @@ fn operator_actions_are_events_with_who_and_when() {
     let shelf: Vec<_> = ev.iter().filter(|e| e.id == "r").collect();
     assert_eq!(shelf[0].time, t(33.0), "{ev:?}");
 }
+
+#[test]
+fn a_data_clock_behind_the_start_time_takes_over() {
+    // Live: started at wall time 1000 s; the device's clock says 0 s.
+    let mut r = rule(Test::Above(1e-1));
+    r.on_delay_s = 5.0;
+    let mut m = Monitor::new(setup(vec![r], vec![]));
+    m.add_link("source-1", "serial:///dev/ttyS9");
+    m.start(t(1000.0));
+    m.set_link("source-1", true, t(1000.5));
+    m.push(&[Sample::ok(t(0.0), "g", 1e-2, MBAR)]);
+    assert_eq!(m.now(), Some(t(0.0)), "the data's clock took over");
+    // The on-delay runs on the data's clock.
+    let ev = m.push(&[Sample::ok(t(6.0), "g", 1e-2, MBAR)]);
+    assert_eq!(
+        keys(&ev),
+        vec![("r".into(), "unacknowledged".into(), t(5.0))]
+    );
+    // A clock ahead of the start time simply moves on.
+    let mut m = Monitor::new(setup(vec![], vec![]));
+    m.start(t(0.0));
+    m.push(&[Sample::ok(t(50.0), "g", 1e-5, MBAR)]);
+    assert_eq!(m.now(), Some(t(50.0)));
+}
