@@ -15,7 +15,7 @@ use crate::engine::mixture::Mixture;
 use crate::engine::regime::{FlowRegime, VacuumRange};
 use crate::engine::{Conditions, GaugeModel, GaugeOverrides, NamedLength, Physics, derive};
 use crate::gas::GasTable;
-use crate::sample::{ChannelUnit, Sample, Status};
+use crate::sample::{ChannelUnit, Fault, Sample};
 use crate::units::{PressureUnit, TemperatureUnit};
 
 fn t(s: f64) -> DateTime<Utc> {
@@ -331,15 +331,15 @@ fn monitor_reads_statuses_sensibly() {
     let ev = m.push(&[Sample::ok(t(0.0), "g", 1e-4, MBAR)]);
     assert!(ev.is_empty(), "{ev:?}");
     // Over the top of the gauge's range answers an "above" rule.
-    let ev = m.push(&[Sample::bad(t(1.0), "g", MBAR, Status::OverRange)]);
+    let ev = m.push(&[Sample::bad(t(1.0), "g", MBAR, Fault::OverRange)]);
     assert_eq!(ev[0].to_text(), "unacknowledged");
     assert_eq!(ev[0].value_text.as_deref(), Some("over-range"));
     // Switched off: suppressed by design.
-    let ev = m.push(&[Sample::bad(t(2.0), "g", MBAR, Status::SensorOff)]);
+    let ev = m.push(&[Sample::bad(t(2.0), "g", MBAR, Fault::SensorOff)]);
     assert_eq!(ev[0].to_text(), "suppressed-by-design");
     // A sensor error raises the bad-input alarm; the rule holds.
     m.push(&[Sample::ok(t(3.0), "g", 1e-4, MBAR)]);
-    let ev = m.push(&[Sample::bad(t(4.0), "g", MBAR, Status::SensorError)]);
+    let ev = m.push(&[Sample::bad(t(4.0), "g", MBAR, Fault::SensorError)]);
     assert_eq!(ev.len(), 1, "{ev:?}");
     assert_eq!(
         (ev[0].id.as_str(), ev[0].to_text()),
@@ -580,7 +580,7 @@ fn events_do_not_depend_on_how_often_time_is_advanced() {
     ];
     let sample = |(s, v): (f64, Option<f64>)| match v {
         Some(v) => Sample::ok(t(s), "g", v, MBAR),
-        None => Sample::bad(t(s), "g", MBAR, Status::SensorError),
+        None => Sample::bad(t(s), "g", MBAR, Fault::SensorError),
     };
     let run = |ticks: &dyn Fn(f64, f64) -> Vec<f64>| {
         let mut m = Monitor::new(delayed_setup());
