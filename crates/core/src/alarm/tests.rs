@@ -348,6 +348,42 @@ fn monitor_reads_statuses_sensibly() {
     assert!(ev[0].text.contains("sensor-error"), "{}", ev[0].text);
 }
 
+/// Off the scale answers above/below, but no number stands in for the
+/// reading: the event says the status word and carries no value.
+#[test]
+fn off_scale_readings_answer_rules_without_a_number() {
+    let mut m = Monitor::new(setup(vec![rule(Test::Below(1e-1))], vec![]));
+    m.push(&[Sample::ok(t(0.0), "g", 1e-2, MBAR)]);
+    let ev = m.push(&[Sample::bad(t(1.0), "g", MBAR, Fault::UnderRange)]);
+    assert_eq!(ev.len(), 1, "{ev:?}");
+    assert_eq!(ev[0].to_text(), "unacknowledged");
+    assert_eq!(ev[0].value, None);
+    assert_eq!(ev[0].value_text.as_deref(), Some("under-range"));
+    let ev = m.push(&[Sample::bad(t(2.0), "g", MBAR, Fault::OverRange)]);
+    assert_eq!(ev.len(), 1, "{ev:?}");
+    assert_eq!(ev[0].value, None);
+    assert_eq!(ev[0].value_text.as_deref(), Some("over-range"));
+    assert_eq!(
+        m.alarms()
+            .iter()
+            .find(|a| a.rule.id == "r")
+            .and_then(|a| a.value_text.clone())
+            .as_deref(),
+        Some("over-range")
+    );
+
+    let wall = ChannelUnit::Temperature(TemperatureUnit::C);
+    let mut r = rule(Test::Above(400.0));
+    r.quantity = Quantity::Temperature;
+    let mut m = Monitor::new(setup(vec![r], vec![]));
+    m.push(&[Sample::ok(t(0.0), "g", 22.0, wall)]);
+    let ev = m.push(&[Sample::bad(t(1.0), "g", wall, Fault::OverRange)]);
+    assert_eq!(ev[0].value_text.as_deref(), Some("over-range"));
+    let ev = m.push(&[Sample::bad(t(2.0), "g", wall, Fault::UnderRange)]);
+    assert_eq!(ev[0].value, None);
+    assert_eq!(ev[0].value_text.as_deref(), Some("under-range"));
+}
+
 #[test]
 fn monitor_notices_a_stale_gauge_on_data_time() {
     let mut m = Monitor::new(setup(vec![rule(Test::Above(1.0))], vec![]));
