@@ -66,7 +66,7 @@ impl Probe {
             SourceEvent::Samples(s) => self
                 .seen
                 .values
-                .extend(s.into_iter().map(|s| (s.channel, s.value, s.status))),
+                .extend(s.iter().map(|s| (s.channel.clone(), s.value(), s.status()))),
             SourceEvent::Unparsed { text, .. } => self.seen.unparsed.push(text),
             SourceEvent::Status { state, .. } => self.seen.states.push(state),
             SourceEvent::Error { message, .. } => self.seen.errors.push(message),

@@ -10,7 +10,7 @@ use rarefy_app::config::{ConfigError, ConfigErrors};
 use rarefy_app::logfile::open_log;
 use rarefy_core::log::foreign::*;
 use rarefy_core::log::{LogError, LogFormat, Row, open_log_from};
-use rarefy_core::sample::{ChannelUnit, Status};
+use rarefy_core::sample::{ChannelUnit, Fault, Status};
 use rarefy_core::units::PressureUnit;
 
 const MBAR: ChannelUnit = ChannelUnit::Pressure(PressureUnit::Mbar);
@@ -116,14 +116,14 @@ fn the_example_export_reads_completely() {
     let s = &first.samples;
     assert_eq!(s.len(), 3);
     assert_eq!(
-        (s[0].channel.as_str(), s[0].value, s[0].unit),
+        (s[0].channel.as_str(), s[0].value(), s[0].unit),
         ("rough", Some(1030.0), MBAR)
     );
     assert_eq!(
-        (s[1].channel.as_str(), s[1].status),
+        (s[1].channel.as_str(), s[1].status()),
         ("chamber", Status::SensorOff)
     );
-    assert_eq!(s[2].value, Some(820.0));
+    assert_eq!(s[2].value(), Some(820.0));
     // Times are 30 s apart, straight through the change of clocks, except
     // for the gap when the logger lost its gauges.
     let mut gaps = Vec::new();
@@ -145,13 +145,13 @@ fn the_example_export_reads_completely() {
         .iter()
         .find(|s| s.channel == "chamber")
         .expect("chamber");
-    assert_eq!(chamber.value, Some(9.693e-6));
+    assert_eq!(chamber.value(), Some(9.693e-6));
     let rough = second_two
         .samples
         .iter()
         .find(|s| s.channel == "rough")
         .expect("rough");
-    assert_eq!((rough.status, rough.value), (Status::UnderRange, None));
+    assert_eq!((rough.status(), rough.value()), (Status::UnderRange, None));
     // The last row, 03:05:00 winter time.
     let last = rows.last().expect("rows");
     assert_eq!(last.time, utc("2026-10-25T02:05:00Z"));
@@ -160,7 +160,7 @@ fn the_example_export_reads_completely() {
         .iter()
         .find(|r| r.time == utc("2026-10-25T01:35:00Z"))
         .expect("fault row");
-    assert_eq!(fault.samples[1].status, Status::SensorError);
+    assert_eq!(fault.samples[1].status(), Status::SensorError);
     let after = rows
         .iter()
         .find(|r| r.time == utc("2026-10-25T01:35:30Z"))
@@ -178,9 +178,9 @@ fn the_example_config_checks_with_the_binary_config_loader() {
     assert_eq!(
         spec.columns[1].status,
         [
-            ("FAIL".to_string(), Status::SensorError),
-            ("LO".to_string(), Status::UnderRange),
-            ("OFF".to_string(), Status::SensorOff),
+            ("FAIL".to_string(), Fault::SensorError),
+            ("LO".to_string(), Fault::UnderRange),
+            ("OFF".to_string(), Fault::SensorOff),
         ]
     );
 }
@@ -402,7 +402,7 @@ fn zones_offsets_and_formats() {
     let items = read_all(&s, b"Time;P\n1767225600,25;1,5\n-1;2\nx;3\n");
     let r = items[0].as_ref().expect("row");
     assert_eq!(r.time, utc("2026-01-01T00:00:00.250Z"));
-    assert_eq!(r.samples[0].value, Some(1.5));
+    assert_eq!(r.samples[0].value(), Some(1.5));
     assert_eq!(
         items[1].as_ref().map(|r| r.time).ok(),
         Some(utc("1969-12-31T23:59:59Z"))
@@ -564,7 +564,7 @@ fn bad_cells_name_their_column() {
             Ok(row) => format!(
                 "ok {} {:?}",
                 row.line,
-                row.samples.first().map(|s| (s.value, s.status))
+                row.samples.first().map(|s| (s.value(), s.status()))
             ),
             Err(e) => e.to_string(),
         })
@@ -601,7 +601,7 @@ fn bad_cells_name_their_column() {
     );
     // The row with a bad cell is kept, that cell as `unparsed`.
     let row = e.row.expect("row");
-    assert_eq!(row.samples[0].status, Status::Unparsed);
+    assert_eq!(row.samples[0].status(), Status::Unparsed);
 }
 
 #[test]
@@ -617,7 +617,7 @@ fn encodings_line_endings_and_headerless_files() {
     );
     assert_eq!(items.len(), 2);
     assert_eq!(
-        items[1].as_ref().map(|r| r.samples[0].value).ok(),
+        items[1].as_ref().map(|r| r.samples[0].value()).ok(),
         Some(Some(22.0))
     );
     let toml = "[log]\nheader = false\ndelimiter = \"tab\"\n\

@@ -3,7 +3,9 @@
 //!
 //! Every sample carries its own UTC timestamp — device time where the data has
 //! one, else the time it was received — so that replay and simulation run on
-//! data time. A bad reading keeps its status and never becomes a number.
+//! data time. A bad reading keeps its status and never becomes a number: a
+//! [`Reading`] is either a [`Reading::Value`] or a [`Reading::Bad`] with its
+//! [`Fault`], never both.
 
 use chrono::{DateTime, Utc};
 use serde::{Deserialize, Serialize};
@@ -61,6 +63,19 @@ impl Status {
     pub fn is_ok(self) -> bool {
         self == Status::Ok
     }
+
+    /// The fault this status names; `None` for [`Status::Ok`].
+    pub fn fault(self) -> Option<Fault> {
+        match self {
+            Status::Ok => None,
+            Status::OverRange => Some(Fault::OverRange),
+            Status::UnderRange => Some(Fault::UnderRange),
+            Status::SensorOff => Some(Fault::SensorOff),
+            Status::SensorError => Some(Fault::SensorError),
+            Status::Stale => Some(Fault::Stale),
+            Status::Unparsed => Some(Fault::Unparsed),
+        }
+    }
 }
 
 impl fmt::Display for Status {
@@ -81,6 +96,135 @@ impl FromStr for Status {
                     Status::ALL.map(Status::as_str).join(", ")
                 )
             })
+    }
+}
+
+/// Why a reading has no value: every [`Status`] but [`Status::Ok`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Fault {
+    /// Above the gauge's range.
+    OverRange,
+    /// Below the gauge's range.
+    UnderRange,
+    /// The sensor is switched off (an ion gauge above its pressure limit …).
+    SensorOff,
+    /// The sensor reports a fault.
+    SensorError,
+    /// No reading within the channel's timeout.
+    Stale,
+    /// The device sent something that could not be read.
+    Unparsed,
+}
+
+impl Fault {
+    /// Every fault, in the order of SPEC §3.
+    pub const ALL: [Fault; 6] = [
+        Fault::OverRange,
+        Fault::UnderRange,
+        Fault::SensorOff,
+        Fault::SensorError,
+        Fault::Stale,
+        Fault::Unparsed,
+    ];
+
+    /// The status word of this fault.
+    pub fn status(self) -> Status {
+        match self {
+            Fault::OverRange => Status::OverRange,
+            Fault::UnderRange => Status::UnderRange,
+            Fault::SensorOff => Status::SensorOff,
+            Fault::SensorError => Status::SensorError,
+            Fault::Stale => Status::Stale,
+            Fault::Unparsed => Status::Unparsed,
+        }
+    }
+
+    /// The word used in logs and on screen.
+    pub fn as_str(self) -> &'static str {
+        self.status().as_str()
+    }
+}
+
+impl From<Fault> for Status {
+    fn from(f: Fault) -> Status {
+        f.status()
+    }
+}
+
+impl fmt::Display for Fault {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+impl FromStr for Fault {
+    type Err = String;
+    /// Reads a fault's word; `ok` is a status but not a fault.
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Fault::ALL
+            .into_iter()
+            .find(|f| f.as_str() == s)
+            .ok_or_else(|| {
+                format!(
+                    "unknown fault \"{s}\"; expected one of {}",
+                    Fault::ALL.map(Fault::as_str).join(", ")
+                )
+            })
+    }
+}
+
+/// What one reading holds: a value, or the fault that stands in its place.
+/// There is no way to hold both: a bad reading has no number to carry.
+///
+/// ```compile_fail
+/// use rarefy_core::sample::{Fault, Reading};
+/// // A fault cannot carry a value alongside it.
+/// let _ = Reading::Bad(Fault::OverRange, 1.0);
+/// ```
+///
+/// ```compile_fail
+/// use rarefy_core::sample::{Fault, Reading};
+/// // Nor can a value carry a fault.
+/// let _ = Reading::Value(1.0, Fault::Stale);
+/// ```
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Reading {
+    /// A valid value, in the channel's unit.
+    Value(f64),
+    /// A bad reading: no value, only why.
+    Bad(Fault),
+}
+
+impl Reading {
+    /// The status word of this reading.
+    pub fn status(self) -> Status {
+        match self {
+            Reading::Value(_) => Status::Ok,
+            Reading::Bad(f) => f.status(),
+        }
+    }
+
+    /// The value, when the reading is valid.
+    pub fn value(self) -> Option<f64> {
+        match self {
+            Reading::Value(v) => Some(v),
+            Reading::Bad(_) => None,
+        }
+    }
+
+    /// The fault, when the reading is bad.
+    pub fn fault(self) -> Option<Fault> {
+        match self {
+            Reading::Value(_) => None,
+            Reading::Bad(f) => Some(f),
+        }
+    }
+}
+
+impl From<Fault> for Reading {
+    fn from(f: Fault) -> Reading {
+        Reading::Bad(f)
     }
 }
 
@@ -137,13 +281,10 @@ pub struct Sample {
     pub time: DateTime<Utc>,
     /// Channel (gauge id).
     pub channel: String,
-    /// The value as the device gave it, in `unit`; `None` when it sent none.
-    /// Only meaningful when `status` is [`Status::Ok`].
-    pub value: Option<f64>,
-    /// Unit of `value`.
+    /// Unit of the reading's value.
     pub unit: ChannelUnit,
-    /// Status of the reading.
-    pub status: Status,
+    /// The value as the device gave it, in `unit`, or why there is none.
+    pub reading: Reading,
 }
 
 impl Sample {
@@ -157,34 +298,39 @@ impl Sample {
         Sample {
             time,
             channel: channel.into(),
-            value: Some(value),
             unit,
-            status: Status::Ok,
+            reading: Reading::Value(value),
         }
     }
 
-    /// A reading with a bad status and no value.
+    /// A bad reading: a fault and no value.
     pub fn bad(
         time: DateTime<Utc>,
         channel: impl Into<String>,
         unit: ChannelUnit,
-        status: Status,
+        fault: Fault,
     ) -> Self {
         Sample {
             time,
             channel: channel.into(),
-            value: None,
             unit,
-            status,
+            reading: Reading::Bad(fault),
         }
+    }
+
+    /// The status word of the reading.
+    pub fn status(&self) -> Status {
+        self.reading.status()
+    }
+
+    /// The value as the device gave it, in `unit`, when the reading is valid.
+    pub fn value(&self) -> Option<f64> {
+        self.reading.value()
     }
 
     /// The value in SI (Pa or K) when the reading is valid.
     pub fn si(&self) -> Option<f64> {
-        match (self.status, self.value) {
-            (Status::Ok, Some(v)) => Some(self.unit.to_si(v)),
-            _ => None,
-        }
+        self.reading.value().map(|v| self.unit.to_si(v))
     }
 }
 
@@ -312,8 +458,46 @@ mod tests {
         let t = DateTime::<Utc>::UNIX_EPOCH;
         let mut s = Sample::ok(t, "main", 1e-6, ChannelUnit::Pressure(PressureUnit::Mbar));
         assert!(s.si().is_some_and(|p| (p - 1e-4).abs() < 1e-18));
-        s.status = Status::OverRange;
+        s.reading = Reading::Bad(Fault::OverRange);
         assert_eq!(s.si(), None);
+    }
+
+    #[test]
+    fn faults_are_the_bad_statuses() {
+        assert_eq!(Status::Ok.fault(), None);
+        for f in Fault::ALL {
+            assert_eq!(f.status().fault(), Some(f));
+            assert!(!f.status().is_ok());
+            assert_eq!(f.as_str().parse::<Fault>(), Ok(f));
+        }
+        assert_eq!(
+            Status::ALL.iter().filter_map(|s| s.fault()).count(),
+            Fault::ALL.len()
+        );
+        assert!("ok".parse::<Fault>().is_err());
+    }
+
+    /// Every way to build a reading gives either a value or a fault, never
+    /// both and never neither.
+    #[test]
+    fn a_reading_is_a_value_or_a_fault_never_both() {
+        let t = DateTime::<Utc>::UNIX_EPOCH;
+        let unit = ChannelUnit::Pressure(PressureUnit::Mbar);
+        let mut readings = vec![Reading::Value(2.5), Sample::ok(t, "p", 2.5, unit).reading];
+        for f in Fault::ALL {
+            readings.push(Reading::Bad(f));
+            readings.push(Reading::from(f));
+            readings.push(Sample::bad(t, "p", unit, f).reading);
+        }
+        for r in readings {
+            assert!(r.value().is_some() != r.fault().is_some(), "{r:?}");
+            assert_eq!(r.status().is_ok(), r.value().is_some(), "{r:?}");
+            assert_eq!(r.status().fault(), r.fault(), "{r:?}");
+        }
+        for f in Fault::ALL {
+            let s = Sample::bad(t, "p", unit, f);
+            assert_eq!((s.value(), s.si(), s.status()), (None, None, f.status()));
+        }
     }
 
     #[test]

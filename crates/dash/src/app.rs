@@ -400,7 +400,7 @@ impl Sink for View<'_> {
                 });
                 for s in samples {
                     let t = (s.time - origin).num_milliseconds() as f64 / 1000.0;
-                    let v = match (s.status, monitor.track(&s.channel)) {
+                    let v = match (s.status(), monitor.track(&s.channel)) {
                         (Status::Ok, Some(track)) if s.unit.is_pressure() => track.pressure_pa,
                         (Status::Ok, Some(track)) => track.temperature_k,
                         _ => None,

@@ -1,15 +1,17 @@
 //! `[[gauge]]`: each gauge's kind, gas, range, sensitivities and calibration,
-//! resolved into its gas-response model.
+//! resolved into plain settings that the core checks and turns into a
+//! gas-response model.
 
 use super::{Errors, file};
 use crate::engine::GaugeModel;
 use crate::engine::GaugeOverrides;
-use crate::engine::gauge::{CalibrationTable, GaugeKind};
+use crate::engine::gauge::{CalibrationTable, GaugeKind, GaugeSetting, GaugeSettings};
 use crate::engine::mixture::Mixture;
 use crate::gas::GasTable;
 use crate::units::UnitKind;
 
-/// A gauge as configured, with its gas response resolved.
+/// A gauge as configured: plain settings, checked by the core when the
+/// config was resolved.
 #[derive(Debug, Clone, PartialEq)]
 pub struct GaugeConfig {
     /// Short id, also the channel name in logs.
@@ -20,13 +22,34 @@ pub struct GaugeConfig {
     pub kind: GaugeKind,
     /// Gas the gauge sees (the chamber's, or the gauge's own override).
     pub mixture: Mixture,
-    /// Reading → true pressure.
-    pub model: GaugeModel,
+    /// The pure gas the gauge is calibrated for, when one is named.
+    pub calibration_gas: Option<Mixture>,
+    /// Sensitivities, calibration table and range as configured.
+    pub overrides: GaugeOverrides,
+}
+
+impl GaugeConfig {
+    /// The settings the core builds the gauge's model from.
+    pub fn settings(&self) -> GaugeSettings {
+        GaugeSettings {
+            kind: self.kind,
+            mixture: self.mixture.clone(),
+            calibration_gas: self.calibration_gas.clone(),
+            overrides: self.overrides.clone(),
+        }
+    }
+
+    /// Reading → true pressure, built by the core from the settings. `None`
+    /// only for settings that a resolved config never holds (they were
+    /// refused, with their location, when it was read).
+    pub fn model(&self) -> Option<GaugeModel> {
+        GaugeModel::from_settings(&self.id, &self.settings()).ok()
+    }
 }
 
 /// Resolves the `[[gauge]]` tables: ids checked (well formed, unique), each
-/// gauge's model built for its gas (`chamber_mixture` unless it names its
-/// own).
+/// gauge's settings for its gas (`chamber_mixture` unless it names its own)
+/// checked by the core.
 pub(super) fn resolve(
     errs: &mut Errors<'_>,
     gases: &GasTable,
@@ -100,69 +123,51 @@ fn gauge(
         }
         None => None,
     };
-    let mut overrides = GaugeOverrides {
+    let overrides = GaugeOverrides {
         sensitivity: g.sensitivity.as_ref().map(|s| *s.get_ref()),
         thermal_sensitivity: g.thermal_sensitivity.as_ref().map(|s| *s.get_ref()),
         table,
         range_pa,
     };
-    if let Some(cal) = &g.calibration_gas {
-        let cal_gas = match gases.get(cal.get_ref()) {
-            Ok(gas) => Mixture::pure(gas.clone()),
+    let calibration_gas = match &g.calibration_gas {
+        Some(cal) => match gases.get(cal.get_ref()) {
+            Ok(gas) => Some(Mixture::pure(gas.clone())),
             Err(e) => {
                 errs.err(cal.span(), e.to_string());
                 return None;
             }
-        };
-        // Sensitivities are relative to N2; a gauge calibrated for another
-        // gas reads S_gas / S_cal of the true pressure.
-        if cal_gas.components()[0].gas.id != "N2" && overrides.table.is_none() {
-            let scale = |kind: GaugeKind, user: Option<f64>, this: &mut Errors<'_>| {
-                let o = GaugeOverrides {
-                    sensitivity: user,
-                    ..GaugeOverrides::default()
-                };
-                let s_gas = GaugeModel::new(kind, &mixture, &o)
-                    .ok()?
-                    .correct(1.0)
-                    .sensitivity?;
-                match GaugeModel::new(kind, &cal_gas, &GaugeOverrides::default()) {
-                    Ok(m) => Some(s_gas / m.correct(1.0).sensitivity?),
-                    Err(e) => {
-                        this.err(cal.span(), format!("gauge `{id}`: {e}"));
-                        None
-                    }
+        },
+        None => None,
+    };
+    let settings = GaugeSettings {
+        kind: g.kind,
+        mixture,
+        calibration_gas,
+        overrides,
+    };
+    // The core checks the settings; each problem goes to the key it is about.
+    let mut usable = true;
+    if let Err(problems) = GaugeModel::from_settings(&id, &settings) {
+        for p in problems {
+            let span = match p.setting {
+                GaugeSetting::CalibrationGas => g.calibration_gas.as_ref().map(|c| c.span()),
+                GaugeSetting::Response => {
+                    usable = false;
+                    g.sensitivity
+                        .as_ref()
+                        .map(|s| s.span())
+                        .or(g.gas.as_ref().map(|s| s.span()))
                 }
             };
-            match g.kind {
-                GaugeKind::Capacitance => {}
-                GaugeKind::Combined => {
-                    overrides.sensitivity =
-                        scale(GaugeKind::Ionization, overrides.sensitivity, errs);
-                    overrides.thermal_sensitivity =
-                        scale(GaugeKind::Thermal, overrides.thermal_sensitivity, errs);
-                }
-                k => overrides.sensitivity = scale(k, overrides.sensitivity, errs),
-            }
+            errs.err(span.unwrap_or(g.id.span()), p.message);
         }
     }
-    match GaugeModel::new(g.kind, &mixture, &overrides) {
-        Ok(model) => Some(GaugeConfig {
-            label: g.label.unwrap_or_else(|| id.clone()),
-            id,
-            kind: g.kind,
-            mixture,
-            model,
-        }),
-        Err(e) => {
-            let span = g
-                .sensitivity
-                .as_ref()
-                .map(|s| s.span())
-                .or(g.gas.as_ref().map(|s| s.span()))
-                .unwrap_or(g.id.span());
-            errs.err(span, format!("gauge `{id}` ({}): {e}", g.kind));
-            None
-        }
-    }
+    usable.then(|| GaugeConfig {
+        label: g.label.unwrap_or_else(|| id.clone()),
+        id,
+        kind: settings.kind,
+        mixture: settings.mixture,
+        calibration_gas: settings.calibration_gas,
+        overrides: settings.overrides,
+    })
 }

@@ -223,7 +223,7 @@ impl Config {
             ));
         }
         for g in &self.gauges {
-            let s = g.model.correct(1e-3).sensitivity;
+            let s = g.model().and_then(|m| m.correct(1e-3).sensitivity);
             let response = match (g.kind.is_gas_dependent(), s) {
                 (false, _) => "reads true pressure".to_string(),
                 (true, Some(s)) => format!("sensitivity {s:.3} for {}", g.mixture.label()),

@@ -3,6 +3,20 @@
 use super::Config;
 
 impl Config {
+    /// Each gauge's model, built by the core from its checked settings.
+    pub fn gauge_models(&self) -> Vec<crate::alarm::monitor::GaugeSetup> {
+        self.gauges
+            .iter()
+            .filter_map(|g| {
+                Some(crate::alarm::monitor::GaugeSetup {
+                    id: g.id.clone(),
+                    model: g.model()?,
+                    mixture: g.mixture.clone(),
+                })
+            })
+            .collect()
+    }
+
     /// The monitor's setup: gauges, gas, lengths, physics, the config's rules
     /// and gates, plus `extra` rules (from the command line).
     pub fn monitor_setup(&self, extra: Vec<crate::alarm::Rule>) -> crate::alarm::MonitorSetup {
@@ -13,15 +27,7 @@ impl Config {
                 .map(|rule| crate::alarm::RuleSpec { rule, enable: None }),
         );
         crate::alarm::MonitorSetup {
-            gauges: self
-                .gauges
-                .iter()
-                .map(|g| crate::alarm::monitor::GaugeSetup {
-                    id: g.id.clone(),
-                    model: g.model.clone(),
-                    mixture: g.mixture.clone(),
-                })
-                .collect(),
+            gauges: self.gauge_models(),
             mixture: self.mixture.clone(),
             lengths: self.lengths.clone(),
             physics: self.physics,

@@ -2,6 +2,7 @@
 //! line templates that read them.
 
 use super::{Errors, file};
+use crate::parse::DecoderSettings;
 use crate::parse::template::{Template, TemplateSpec};
 use crate::sample::ChannelUnit;
 use crate::source::{Poll, SourceUri};
@@ -15,38 +16,33 @@ pub struct SourceConfig {
     pub uri: SourceUri,
     /// Poll request, if the controller must be asked.
     pub poll: Option<Poll>,
-    /// Line templates; empty means the plain format.
-    pub templates: Vec<Template>,
+    /// How its lines are read: checked line templates, else the plain
+    /// format with the URI's channel and unit.
+    pub decoding: DecoderSettings,
 }
 
 impl SourceConfig {
     /// A source from a URI alone (the plain format).
     pub fn from_uri(uri: SourceUri) -> Self {
+        let decoding = plain_settings(&uri);
         SourceConfig {
             uri,
             poll: None,
-            templates: Vec::new(),
+            decoding,
         }
     }
+}
 
-    /// The decoder for this source's lines.
-    pub fn decoder(&self) -> Box<dyn crate::parse::Decoder> {
-        if self.templates.is_empty() {
-            let unit = self
-                .uri
-                .unit
-                .as_deref()
-                .and_then(ChannelUnit::parse)
-                .unwrap_or(ChannelUnit::Pressure(PressureUnit::Mbar));
-            let channel = self.uri.channel.clone().unwrap_or_else(|| "p".into());
-            Box::new(crate::parse::logline::AutoDecoder::new(
-                crate::parse::plain::PlainDecoder::new(channel, unit),
-            ))
-        } else {
-            Box::new(crate::parse::template::TemplateDecoder::new(
-                self.templates.clone(),
-            ))
-        }
+/// The plain format's settings for a URI: its `channel` (else `p`) and its
+/// `unit` (else mbar).
+fn plain_settings(uri: &SourceUri) -> DecoderSettings {
+    DecoderSettings::Plain {
+        channel: uri.channel.clone().unwrap_or_else(|| "p".into()),
+        unit: uri
+            .unit
+            .as_deref()
+            .and_then(ChannelUnit::parse)
+            .unwrap_or(ChannelUnit::Pressure(PressureUnit::Mbar)),
     }
 }
 
@@ -148,8 +144,10 @@ pub(super) fn resolve(errs: &mut Errors<'_>, s: file::SourceSection) -> Option<S
         if !ok {
             continue;
         }
+        // Checked here, so the error points at the template; the source
+        // builds its decoder from the same settings when it starts.
         match Template::new(&spec) {
-            Ok(t) => templates.push(t),
+            Ok(_) => templates.push(spec),
             Err(e) => {
                 let at = if e.starts_with("bad pattern") {
                     t.pattern.span()
@@ -160,9 +158,14 @@ pub(super) fn resolve(errs: &mut Errors<'_>, s: file::SourceSection) -> Option<S
             }
         }
     }
+    let decoding = if templates.is_empty() {
+        plain_settings(&uri)
+    } else {
+        DecoderSettings::Templates(templates)
+    };
     Some(SourceConfig {
         uri,
         poll,
-        templates,
+        decoding,
     })
 }

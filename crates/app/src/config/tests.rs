@@ -23,7 +23,14 @@ fn the_sample_config_is_valid() {
     assert_eq!(c.chamber.volume_m3, Some(0.085));
     assert_eq!(c.gauges[2].mixture.label(), "Ar");
     // The argon ion gauge is corrected with the CRC sensitivity 1.4.
-    assert_eq!(c.gauges[2].model.correct(1e-4).sensitivity, Some(1.4));
+    assert_eq!(
+        c.gauges[2]
+            .model()
+            .expect("model")
+            .correct(1e-4)
+            .sensitivity,
+        Some(1.4)
+    );
 }
 
 #[test]
@@ -143,7 +150,12 @@ fn gauge_calibrated_for_another_gas_is_rescaled() {
         Path::new("t.toml"),
     )
     .expect("valid");
-    let s = c.gauges[0].model.correct(1e-4).sensitivity.expect("factor");
+    let s = c.gauges[0]
+        .model()
+        .expect("model")
+        .correct(1e-4)
+        .sensitivity
+        .expect("factor");
     assert!((s - 1.0).abs() < 1e-12, "{s}");
 }
 

@@ -73,7 +73,18 @@ pub fn start(sources: Vec<SourceConfig>, queue: usize) -> Started {
         _ => None,
     });
     for s in sources {
-        let decoder = s.decoder();
+        let decoder = match crate::parse::decoder(&s.decoding) {
+            Ok(d) => d,
+            // The config checked the templates; should one still fail, the
+            // source reports it and does not start.
+            Err(message) => {
+                let _ = tx.try_send(SourceEvent::Error {
+                    source: s.uri.text.clone(),
+                    message,
+                });
+                continue;
+            }
+        };
         for c in decoder
             .channels()
             .into_iter()

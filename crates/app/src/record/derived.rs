@@ -31,9 +31,9 @@ impl Deriver {
         Deriver {
             mixture: config.mixture.clone(),
             gauges: config
-                .gauges
-                .iter()
-                .map(|g| (g.id.clone(), g.model.clone(), g.mixture.clone()))
+                .gauge_models()
+                .into_iter()
+                .map(|g| (g.id, g.model, g.mixture))
                 .collect(),
             lengths: config.lengths.clone(),
             physics: config.physics,

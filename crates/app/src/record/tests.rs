@@ -1,5 +1,5 @@
 use super::*;
-use crate::sample::{ChannelUnit, Status};
+use crate::sample::{ChannelUnit, Fault};
 use crate::units::{PressureUnit, TemperatureUnit};
 use chrono::TimeZone;
 
@@ -62,7 +62,7 @@ fn samples_of_one_line_share_a_row() {
         Sample::ok(t(0), "a", 1e-3, MBAR),
         Sample::ok(t(0), "b", 2e-3, MBAR),
     ]);
-    r.push(&Sample::bad(t(1), "b", MBAR, Status::OverRange));
+    r.push(&Sample::bad(t(1), "b", MBAR, Fault::OverRange));
     r.push(&Sample::ok(t(1), "b", 5.0, MBAR)); // another line at the same time
     assert_eq!(r.close(), 0);
     let f = files(&dir);

@@ -509,7 +509,7 @@ impl Monitor {
             .entry(s.channel.clone())
             .or_insert_with(GaugeTrack::new);
         track.last_time = Some(s.time);
-        track.status = s.status;
+        track.status = s.status();
         track.is_pressure = s.unit.is_pressure();
         let Some(v) = s.si() else {
             track.exposure.interrupt();
@@ -570,10 +570,10 @@ impl Monitor {
             // Off the scale: the pressure is beyond the gauge's range, which
             // answers above/below on pressure and temperature.
             Status::OverRange if matches!(q, Quantity::Pressure | Quantity::Temperature) => {
-                return Input::Value(f64::INFINITY);
+                return Input::OverRange;
             }
             Status::UnderRange if matches!(q, Quantity::Pressure | Quantity::Temperature) => {
-                return Input::Value(0.0);
+                return Input::UnderRange;
             }
             _ => return Input::Unusable,
         }
@@ -608,21 +608,26 @@ impl Monitor {
         };
         let input = self.input(gauge, &c.quantity, now);
         let shown = self.input_text(&c.quantity, input).unwrap_or_default();
-        let holds = match (&c.test, input) {
-            (CondTest::Above(t), Input::Value(v)) => v > *t,
-            (CondTest::Below(t), Input::Value(v)) => v < *t,
-            (CondTest::Is(k), Input::Class(v)) => v == *k,
-            (CondTest::IsNot(k), Input::Class(v)) => v != *k,
-            (_, Input::Disabled) => return Check::Unknown(format!("{gauge} is switched off")),
-            _ => {
-                let why = match self.tracks.get(gauge) {
-                    None => "no reading yet".to_string(),
-                    Some(t) if self.stale(t, now) => "reading is stale".to_string(),
-                    Some(t) => format!("reading is {}", t.status),
-                };
-                return Check::Unknown(format!("{gauge} {why}"));
-            }
-        };
+        let holds =
+            match (&c.test, input) {
+                (CondTest::Above(t), Input::Value(v)) => v > *t,
+                (CondTest::Below(t), Input::Value(v)) => v < *t,
+                (CondTest::Above(_), Input::OverRange)
+                | (CondTest::Below(_), Input::UnderRange) => true,
+                (CondTest::Above(_), Input::UnderRange)
+                | (CondTest::Below(_), Input::OverRange) => false,
+                (CondTest::Is(k), Input::Class(v)) => v == *k,
+                (CondTest::IsNot(k), Input::Class(v)) => v != *k,
+                (_, Input::Disabled) => return Check::Unknown(format!("{gauge} is switched off")),
+                _ => {
+                    let why = match self.tracks.get(gauge) {
+                        None => "no reading yet".to_string(),
+                        Some(t) if self.stale(t, now) => "reading is stale".to_string(),
+                        Some(t) => format!("reading is {}", t.status),
+                    };
+                    return Check::Unknown(format!("{gauge} {why}"));
+                }
+            };
         if holds {
             Check::Holds
         } else {
@@ -632,10 +637,8 @@ impl Monitor {
 
     fn input_text(&self, q: &Quantity, v: Input) -> Option<String> {
         match v {
-            Input::Value(x) if x.is_infinite() => Some("over-range".into()),
-            Input::Value(x) if x == 0.0 && matches!(q, Quantity::Pressure) => {
-                Some("under-range".into())
-            }
+            Input::OverRange => Some(Status::OverRange.as_str().into()),
+            Input::UnderRange => Some(Status::UnderRange.as_str().into()),
             Input::Value(x) => {
                 Some(q.show(x, self.setup.pressure_unit, self.setup.temperature_unit))
             }

@@ -216,6 +216,12 @@ impl Rule {
 pub enum Input {
     /// A number in SI.
     Value(f64),
+    /// Beyond the top of the gauge's range: no number, but above any
+    /// threshold of a pressure or temperature.
+    OverRange,
+    /// Below the bottom of the gauge's range: no number, but below any
+    /// threshold of a pressure or temperature.
+    UnderRange,
     /// A class (regime or range).
     Class(Class),
     /// No usable value (bad or stale reading): the rule holds its state.
@@ -351,6 +357,8 @@ impl RuleMachine {
             } else {
                 v < *t
             }),
+            (Test::Above(_), Input::OverRange) | (Test::Below(_), Input::UnderRange) => Some(true),
+            (Test::Above(_), Input::UnderRange) | (Test::Below(_), Input::OverRange) => Some(false),
             (Test::Enters(c), Input::Class(k)) => Some(k == *c),
             (Test::Leaves(c), Input::Class(k)) => Some(k != *c),
             (Test::Crosses(a, b), Input::Class(k)) => {

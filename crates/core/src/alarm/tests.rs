@@ -15,7 +15,7 @@ use crate::engine::mixture::Mixture;
 use crate::engine::regime::{FlowRegime, VacuumRange};
 use crate::engine::{Conditions, GaugeModel, GaugeOverrides, NamedLength, Physics, derive};
 use crate::gas::GasTable;
-use crate::sample::{ChannelUnit, Sample, Status};
+use crate::sample::{ChannelUnit, Fault, Sample};
 use crate::units::{PressureUnit, TemperatureUnit};
 
 fn t(s: f64) -> DateTime<Utc> {
@@ -331,21 +331,57 @@ fn monitor_reads_statuses_sensibly() {
     let ev = m.push(&[Sample::ok(t(0.0), "g", 1e-4, MBAR)]);
     assert!(ev.is_empty(), "{ev:?}");
     // Over the top of the gauge's range answers an "above" rule.
-    let ev = m.push(&[Sample::bad(t(1.0), "g", MBAR, Status::OverRange)]);
+    let ev = m.push(&[Sample::bad(t(1.0), "g", MBAR, Fault::OverRange)]);
     assert_eq!(ev[0].to_text(), "unacknowledged");
     assert_eq!(ev[0].value_text.as_deref(), Some("over-range"));
     // Switched off: suppressed by design.
-    let ev = m.push(&[Sample::bad(t(2.0), "g", MBAR, Status::SensorOff)]);
+    let ev = m.push(&[Sample::bad(t(2.0), "g", MBAR, Fault::SensorOff)]);
     assert_eq!(ev[0].to_text(), "suppressed-by-design");
     // A sensor error raises the bad-input alarm; the rule holds.
     m.push(&[Sample::ok(t(3.0), "g", 1e-4, MBAR)]);
-    let ev = m.push(&[Sample::bad(t(4.0), "g", MBAR, Status::SensorError)]);
+    let ev = m.push(&[Sample::bad(t(4.0), "g", MBAR, Fault::SensorError)]);
     assert_eq!(ev.len(), 1, "{ev:?}");
     assert_eq!(
         (ev[0].id.as_str(), ev[0].to_text()),
         ("g.input", "unacknowledged")
     );
     assert!(ev[0].text.contains("sensor-error"), "{}", ev[0].text);
+}
+
+/// Off the scale answers above/below, but no number stands in for the
+/// reading: the event says the status word and carries no value.
+#[test]
+fn off_scale_readings_answer_rules_without_a_number() {
+    let mut m = Monitor::new(setup(vec![rule(Test::Below(1e-1))], vec![]));
+    m.push(&[Sample::ok(t(0.0), "g", 1e-2, MBAR)]);
+    let ev = m.push(&[Sample::bad(t(1.0), "g", MBAR, Fault::UnderRange)]);
+    assert_eq!(ev.len(), 1, "{ev:?}");
+    assert_eq!(ev[0].to_text(), "unacknowledged");
+    assert_eq!(ev[0].value, None);
+    assert_eq!(ev[0].value_text.as_deref(), Some("under-range"));
+    let ev = m.push(&[Sample::bad(t(2.0), "g", MBAR, Fault::OverRange)]);
+    assert_eq!(ev.len(), 1, "{ev:?}");
+    assert_eq!(ev[0].value, None);
+    assert_eq!(ev[0].value_text.as_deref(), Some("over-range"));
+    assert_eq!(
+        m.alarms()
+            .iter()
+            .find(|a| a.rule.id == "r")
+            .and_then(|a| a.value_text.clone())
+            .as_deref(),
+        Some("over-range")
+    );
+
+    let wall = ChannelUnit::Temperature(TemperatureUnit::C);
+    let mut r = rule(Test::Above(400.0));
+    r.quantity = Quantity::Temperature;
+    let mut m = Monitor::new(setup(vec![r], vec![]));
+    m.push(&[Sample::ok(t(0.0), "g", 22.0, wall)]);
+    let ev = m.push(&[Sample::bad(t(1.0), "g", wall, Fault::OverRange)]);
+    assert_eq!(ev[0].value_text.as_deref(), Some("over-range"));
+    let ev = m.push(&[Sample::bad(t(2.0), "g", wall, Fault::UnderRange)]);
+    assert_eq!(ev[0].value, None);
+    assert_eq!(ev[0].value_text.as_deref(), Some("under-range"));
 }
 
 #[test]
@@ -580,7 +616,7 @@ fn events_do_not_depend_on_how_often_time_is_advanced() {
     ];
     let sample = |(s, v): (f64, Option<f64>)| match v {
         Some(v) => Sample::ok(t(s), "g", v, MBAR),
-        None => Sample::bad(t(s), "g", MBAR, Status::SensorError),
+        None => Sample::bad(t(s), "g", MBAR, Fault::SensorError),
     };
     let run = |ticks: &dyn Fn(f64, f64) -> Vec<f64>| {
         let mut m = Monitor::new(delayed_setup());

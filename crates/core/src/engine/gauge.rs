@@ -9,6 +9,9 @@
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
+use super::mixture::Mixture;
+use super::{GaugeModel, GaugeOverrides};
+
 /// Kind of gauge, which decides whether and how the reading depends on gas.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
@@ -213,6 +216,98 @@ impl Response {
     }
 }
 
+/// A gauge as a config describes it, before any physics: plain settings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GaugeSettings {
+    /// Kind of gauge.
+    pub kind: GaugeKind,
+    /// Gas the gauge sees (the chamber's, or the gauge's own).
+    pub mixture: Mixture,
+    /// The pure gas the gauge is calibrated for, when not N2.
+    pub calibration_gas: Option<Mixture>,
+    /// Sensitivities, calibration table and range as given.
+    pub overrides: GaugeOverrides,
+}
+
+/// Which of a gauge's settings a problem is about, so that a config can
+/// point at it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum GaugeSetting {
+    /// The calibration gas.
+    CalibrationGas,
+    /// The response for the gauge's gas (its sensitivities or its gas).
+    Response,
+}
+
+/// A problem with a gauge's settings: where, and the whole message.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct GaugeProblem {
+    /// The setting at fault.
+    pub setting: GaugeSetting,
+    /// What is wrong, naming the gauge.
+    pub message: String,
+}
+
+impl GaugeModel {
+    /// Builds the model of gauge `id` from its settings. Sensitivities are
+    /// relative to N2: a gauge calibrated for another gas reads S_gas / S_cal
+    /// of the true pressure, so its factors are rescaled (unless a
+    /// calibration table replaces them). `Err` lists every problem, in the
+    /// order found; a [`GaugeSetting::Response`] problem is always last.
+    pub fn from_settings(id: &str, s: &GaugeSettings) -> Result<GaugeModel, Vec<GaugeProblem>> {
+        let mut problems = Vec::new();
+        let mut overrides = s.overrides.clone();
+        if let Some(cal_gas) = &s.calibration_gas
+            && cal_gas
+                .components()
+                .first()
+                .is_some_and(|c| c.gas.id != "N2")
+            && overrides.table.is_none()
+        {
+            let mut scale = |kind: GaugeKind, user: Option<f64>| -> Option<f64> {
+                let o = GaugeOverrides {
+                    sensitivity: user,
+                    ..GaugeOverrides::default()
+                };
+                let s_gas = GaugeModel::new(kind, &s.mixture, &o)
+                    .ok()?
+                    .correct(1.0)
+                    .sensitivity?;
+                match GaugeModel::new(kind, cal_gas, &GaugeOverrides::default()) {
+                    Ok(m) => Some(s_gas / m.correct(1.0).sensitivity?),
+                    Err(e) => {
+                        problems.push(GaugeProblem {
+                            setting: GaugeSetting::CalibrationGas,
+                            message: format!("gauge `{id}`: {e}"),
+                        });
+                        None
+                    }
+                }
+            };
+            match s.kind {
+                GaugeKind::Capacitance => {}
+                GaugeKind::Combined => {
+                    overrides.sensitivity = scale(GaugeKind::Ionization, overrides.sensitivity);
+                    overrides.thermal_sensitivity =
+                        scale(GaugeKind::Thermal, overrides.thermal_sensitivity);
+                }
+                k => overrides.sensitivity = scale(k, overrides.sensitivity),
+            }
+        }
+        match GaugeModel::new(s.kind, &s.mixture, &overrides) {
+            Ok(model) if problems.is_empty() => Ok(model),
+            Ok(_) => Err(problems),
+            Err(e) => {
+                problems.push(GaugeProblem {
+                    setting: GaugeSetting::Response,
+                    message: format!("gauge `{id}` ({}): {e}", s.kind),
+                });
+                Err(problems)
+            }
+        }
+    }
+}
+
 /// Relative sensitivity of a mixture, S = Σ x_i S_i.
 pub fn mixture_sensitivity(parts: impl IntoIterator<Item = (f64, f64)>) -> f64 {
     parts.into_iter().map(|(x, s)| x * s).sum()
@@ -270,6 +365,82 @@ mod tests {
             CalibrationTable::new(&[(1.0, 1.0), (f64::NAN, 2.0)]),
             Err(CalibrationError::NotPositive { index: 1, .. })
         ));
+    }
+
+    fn gas(id: &str) -> Mixture {
+        Mixture::pure(
+            crate::gas::GasTable::builtin()
+                .get(id)
+                .unwrap_or_else(|e| panic!("{e}"))
+                .clone(),
+        )
+    }
+
+    fn settings(kind: GaugeKind, mixture: Mixture, cal: Option<Mixture>) -> GaugeSettings {
+        GaugeSettings {
+            kind,
+            mixture,
+            calibration_gas: cal,
+            overrides: GaugeOverrides::default(),
+        }
+    }
+
+    #[test]
+    fn settings_build_the_model_with_the_calibration_gas_taken_out() {
+        // An ionization gauge in argon reads 1.4x as N2-calibrated, 1x as
+        // argon-calibrated.
+        let n2_cal =
+            GaugeModel::from_settings("g", &settings(GaugeKind::Ionization, gas("Ar"), None))
+                .unwrap_or_else(|e| panic!("{e:?}"));
+        assert_eq!(n2_cal.correct(1e-4).sensitivity, Some(1.4));
+        let ar_cal = GaugeModel::from_settings(
+            "g",
+            &settings(GaugeKind::Ionization, gas("Ar"), Some(gas("Ar"))),
+        )
+        .unwrap_or_else(|e| panic!("{e:?}"));
+        assert!((ar_cal.correct(1e-4).sensitivity.unwrap_or_default() - 1.0).abs() < 1e-12);
+        // Capacitance gauges read true pressure whatever the calibration gas.
+        let cdg = GaugeModel::from_settings(
+            "g",
+            &settings(GaugeKind::Capacitance, gas("Ar"), Some(gas("He"))),
+        )
+        .unwrap_or_else(|e| panic!("{e:?}"));
+        assert_eq!(cdg.correct(1.0).pressure_pa, 1.0);
+    }
+
+    #[test]
+    fn settings_problems_name_the_gauge_and_the_setting() {
+        let mut s = settings(GaugeKind::Ionization, gas("N2"), None);
+        s.overrides.sensitivity = Some(-1.0);
+        assert_eq!(
+            GaugeModel::from_settings("main", &s),
+            Err(vec![GaugeProblem {
+                setting: GaugeSetting::Response,
+                message:
+                    "gauge `main` (ionization): gauge sensitivity must be a positive number, got -1"
+                        .into(),
+            }])
+        );
+        // A calibration gas with no thermal sensitivity cannot be taken out.
+        let mut odd = crate::gas::GasTable::builtin()
+            .get("Ar")
+            .unwrap_or_else(|e| panic!("{e}"))
+            .clone();
+        odd.id = "Qx".into();
+        odd.thermal_sensitivity = None;
+        let s = settings(GaugeKind::Thermal, gas("N2"), Some(Mixture::pure(odd)));
+        let problems = GaugeModel::from_settings("pir", &s)
+            .err()
+            .unwrap_or_default();
+        assert_eq!(problems.len(), 1, "{problems:?}");
+        assert_eq!(problems[0].setting, GaugeSetting::CalibrationGas);
+        assert!(
+            problems[0]
+                .message
+                .starts_with("gauge `pir`: no thermal gauge sensitivity is known for Qx"),
+            "{}",
+            problems[0].message
+        );
     }
 
     #[test]

@@ -43,7 +43,7 @@ use toml::Spanned;
 use super::lines::{self, Encoding, Lines};
 use super::read::{LogError, Row, show, text_in};
 use super::v1::{Column, ColumnKind, LogMeta};
-use crate::sample::{ChannelInfo, ChannelUnit, Sample, Status};
+use crate::sample::{ChannelInfo, ChannelUnit, Fault, Reading, Sample, Status};
 use crate::timefmt::check_zone;
 pub use crate::timefmt::{TimeFormat, Zone};
 use crate::units::{PressureUnit, TemperatureUnit, UnitKind};
@@ -145,7 +145,7 @@ pub struct ForeignColumn {
     /// Unit of the numbers.
     pub unit: ChannelUnit,
     /// The logger's status words and what they mean.
-    pub status: Vec<(String, Status)>,
+    pub status: Vec<(String, Fault)>,
 }
 
 /// A checked `[log]` section: everything needed to read a foreign log.
@@ -448,8 +448,8 @@ impl LogSection {
                     );
                     continue;
                 }
-                match meaning.get_ref().parse::<Status>() {
-                    Ok(Status::Ok) => err(
+                match meaning.get_ref().parse::<Status>().map(Status::fault) {
+                    Ok(None) => err(
                         meaning.span(),
                         format!(
                             "status word \"{}\" cannot mean `ok`: a valid reading is a number; expected one of {}",
@@ -457,7 +457,7 @@ impl LogSection {
                             super::read::status_words()
                         ),
                     ),
-                    Ok(s) => status.push((w.to_string(), s)),
+                    Ok(Some(f)) => status.push((w.to_string(), f)),
                     Err(_) => {
                         let words = Status::ALL
                             .iter()
@@ -769,7 +769,7 @@ impl<R: BufRead> ForeignReader<R> {
         Ok(read.time)
     }
 
-    fn cell(&self, k: usize, text: &str) -> Result<Option<Result<f64, Status>>, String> {
+    fn cell(&self, k: usize, text: &str) -> Result<Option<Reading>, String> {
         if text.is_empty() {
             return Ok(None);
         }
@@ -780,7 +780,7 @@ impl<R: BufRead> ForeignReader<R> {
                 .iter()
                 .find(|(w, _)| w.eq_ignore_ascii_case(text))
         }) {
-            return Ok(Some(Err(*s)));
+            return Ok(Some(Reading::Bad(*s)));
         }
         let prefix = format!("column \"{}\": cell \"{}\"", show(header), show(text));
         let number = if self.spec.decimal_comma {
@@ -794,7 +794,7 @@ impl<R: BufRead> ForeignReader<R> {
             text.to_string()
         };
         match number.parse::<f64>() {
-            Ok(v) if v.is_finite() => Ok(Some(Ok(v))),
+            Ok(v) if v.is_finite() => Ok(Some(Reading::Value(v))),
             Ok(_) => Err(format!(
                 "{prefix} is not a finite number; map the word to a status with `status = {{ \"{}\" = \"sensor-error\" }}`",
                 show(text)
@@ -863,7 +863,7 @@ impl<R: BufRead> ForeignReader<R> {
         for (k, (i, header)) in self.cells.iter().enumerate() {
             let col = &self.spec.columns[k];
             let Some(cell) = cells.get(*i) else {
-                samples.push(Sample::bad(time, &col.channel, col.unit, Status::Unparsed));
+                samples.push(Sample::bad(time, &col.channel, col.unit, Fault::Unparsed));
                 bad.push((
                     cells.len() + 1,
                     format!(
@@ -877,10 +877,14 @@ impl<R: BufRead> ForeignReader<R> {
             };
             match self.cell(k, &cell.text) {
                 Ok(None) => {}
-                Ok(Some(Ok(v))) => samples.push(Sample::ok(time, &col.channel, v, col.unit)),
-                Ok(Some(Err(s))) => samples.push(Sample::bad(time, &col.channel, col.unit, s)),
+                Ok(Some(reading)) => samples.push(Sample {
+                    time,
+                    channel: col.channel.clone(),
+                    unit: col.unit,
+                    reading,
+                }),
                 Err(msg) => {
-                    samples.push(Sample::bad(time, &col.channel, col.unit, Status::Unparsed));
+                    samples.push(Sample::bad(time, &col.channel, col.unit, Fault::Unparsed));
                     bad.push((i + 1, msg));
                 }
             }

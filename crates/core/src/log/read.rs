@@ -12,7 +12,7 @@ use std::io::BufRead;
 
 use super::lines::{self, Encoding, Lines, RawLine};
 use super::v1::{Column, ColumnKind, LogMeta, MAGIC};
-use crate::sample::{ChannelInfo, ChannelUnit, Sample, Status};
+use crate::sample::{ChannelInfo, ChannelUnit, Fault, Reading, Sample, Status};
 
 /// A problem reading a log, located by file, line and column.
 #[derive(Debug, Clone, PartialEq)]
@@ -27,7 +27,7 @@ pub struct LogError {
     /// What is wrong and what is expected.
     pub message: String,
     /// For a row with bad cells: the row with those cells kept as
-    /// [`Status::Unparsed`] samples, so a caller may still use the good ones.
+    /// [`Fault::Unparsed`] samples, so a caller may still use the good ones.
     pub row: Option<Box<Row>>,
 }
 
@@ -365,12 +365,14 @@ impl<R: BufRead> LogReader<R> {
             };
             match parse_cell(&cell.text) {
                 Ok(None) => {}
-                Ok(Some(Ok(v))) => samples.push(Sample::ok(time, &column.name, v, unit)),
-                Ok(Some(Err(status))) => {
-                    samples.push(Sample::bad(time, &column.name, unit, status));
-                }
+                Ok(Some(reading)) => samples.push(Sample {
+                    time,
+                    channel: column.name.clone(),
+                    unit,
+                    reading,
+                }),
                 Err(msg) => {
-                    samples.push(Sample::bad(time, &column.name, unit, Status::Unparsed));
+                    samples.push(Sample::bad(time, &column.name, unit, Fault::Unparsed));
                     bad.push((i + 2, msg));
                 }
             }
@@ -548,24 +550,24 @@ fn parse_time(text: &str) -> Result<DateTime<Utc>, String> {
         })
 }
 
-/// A cell: `None` when empty, a value, or a bad status; `Err` with a message
-/// when it is neither.
-type CellValue = Option<Result<f64, Status>>;
+/// A cell: `None` when empty, else its reading (a value or a fault); `Err`
+/// with a message when it is neither.
+type CellValue = Option<Reading>;
 
 fn parse_cell(text: &str) -> Result<CellValue, String> {
     if text.is_empty() {
         return Ok(None);
     }
     if let Ok(status) = text.parse::<Status>() {
-        if status.is_ok() {
+        let Some(fault) = status.fault() else {
             return Err(
                 "cell \"ok\" has no value; a valid reading is written as its number".into(),
             );
-        }
-        return Ok(Some(Err(status)));
+        };
+        return Ok(Some(Reading::Bad(fault)));
     }
     match text.parse::<f64>() {
-        Ok(v) if v.is_finite() => Ok(Some(Ok(v))),
+        Ok(v) if v.is_finite() => Ok(Some(Reading::Value(v))),
         Ok(_) => Err(format!(
             "cell \"{}\" is not a finite number; a log never holds NaN or infinity",
             show(text)

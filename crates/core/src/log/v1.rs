@@ -3,7 +3,7 @@
 use chrono::{DateTime, Utc};
 use std::fmt::Write as _;
 
-use crate::sample::{ChannelInfo, ChannelUnit, Sample, Status};
+use crate::sample::{ChannelInfo, ChannelUnit, Fault, Reading, Sample};
 
 /// First line of every v1 log.
 pub const MAGIC: &str = "# rarefy log v1";
@@ -132,17 +132,18 @@ pub enum Cell {
     Value(f64),
     /// A derived value, written with six significant digits.
     Derived(f64),
-    /// A bad reading.
-    Status(Status),
+    /// A bad reading, written as its status word.
+    Bad(Fault),
 }
 
 impl Cell {
-    /// The cell for a sample: its value when ok, else its status word.
+    /// The cell for a sample: its value when valid, else its status word.
+    /// A value that is not finite cannot be written and becomes `unparsed`.
     pub fn of(sample: &Sample) -> Cell {
-        match (sample.status, sample.value) {
-            (Status::Ok, Some(v)) if v.is_finite() => Cell::Value(v),
-            (Status::Ok, _) => Cell::Status(Status::Unparsed),
-            (s, _) => Cell::Status(s),
+        match sample.reading {
+            Reading::Value(v) if v.is_finite() => Cell::Value(v),
+            Reading::Value(_) => Cell::Bad(Fault::Unparsed),
+            Reading::Bad(f) => Cell::Bad(f),
         }
     }
 }
@@ -161,7 +162,7 @@ pub fn write_row(out: &mut String, time: DateTime<Utc>, cells: &[Cell]) {
             Cell::Derived(v) => {
                 let _ = write!(out, "{v:.5e}");
             }
-            Cell::Status(s) => out.push_str(s.as_str()),
+            Cell::Bad(f) => out.push_str(f.as_str()),
         }
     }
     out.push('\n');
@@ -209,11 +210,7 @@ mod tests {
         write_row(
             &mut row,
             t,
-            &[
-                Cell::Status(Status::OverRange),
-                Cell::Value(22.0),
-                Cell::Empty,
-            ],
+            &[Cell::Bad(Fault::OverRange), Cell::Value(22.0), Cell::Empty],
         );
         assert_eq!(row, "2026-12-01T19:00:00.000Z,over-range,2.2e1,\n");
     }

@@ -150,10 +150,14 @@ mod tests {
         for line in text.lines() {
             for e in d.decode(line.as_bytes(), DateTime::<Utc>::UNIX_EPOCH, "file") {
                 match e {
-                    SourceEvent::Samples(s) => samples.extend(
-                        s.into_iter()
-                            .map(|s| (s.channel, s.value, s.status, s.time.to_rfc3339())),
-                    ),
+                    SourceEvent::Samples(s) => samples.extend(s.into_iter().map(|s| {
+                        (
+                            s.channel.clone(),
+                            s.value(),
+                            s.status(),
+                            s.time.to_rfc3339(),
+                        )
+                    })),
                     SourceEvent::Unparsed { text, .. } => unparsed.push(text),
                     other => panic!("{other:?}"),
                 }

@@ -9,7 +9,8 @@ pub mod template;
 
 use chrono::{DateTime, Utc};
 
-use crate::sample::{ChannelInfo, SourceEvent};
+use crate::sample::{ChannelInfo, ChannelUnit, SourceEvent};
+use template::{Template, TemplateDecoder, TemplateSpec};
 
 /// Longest line kept; a longer one is reported (never silently cut) and the
 /// rest of it discarded up to the next line end.
@@ -100,6 +101,40 @@ pub trait Decoder: Send {
     fn decode(&mut self, line: &[u8], received: DateTime<Utc>, source: &str) -> Vec<SourceEvent>;
     /// The channels this decoder can produce, as far as known in advance.
     fn channels(&self) -> Vec<ChannelInfo>;
+}
+
+/// How a source's lines are read: plain settings, as a config resolves them.
+#[derive(Debug, Clone)]
+pub enum DecoderSettings {
+    /// The built-in plain format (switching to log v1 when a log arrives).
+    Plain {
+        /// Channel of bare numbers.
+        channel: String,
+        /// Unit of numbers written without one.
+        unit: ChannelUnit,
+    },
+    /// Line templates, tried in order.
+    Templates(Vec<TemplateSpec>),
+}
+
+/// Builds the decoder the settings describe; `Err` names the first template
+/// that does not compile and why.
+pub fn decoder(settings: &DecoderSettings) -> Result<Box<dyn Decoder>, String> {
+    match settings {
+        DecoderSettings::Plain { channel, unit } => Ok(Box::new(logline::AutoDecoder::new(
+            plain::PlainDecoder::new(channel.clone(), *unit),
+        ))),
+        DecoderSettings::Templates(specs) => {
+            let templates = specs
+                .iter()
+                .enumerate()
+                .map(|(i, spec)| {
+                    Template::new(spec).map_err(|e| format!("template {}: {e}", i + 1))
+                })
+                .collect::<Result<Vec<_>, _>>()?;
+            Ok(Box::new(TemplateDecoder::new(templates)))
+        }
+    }
 }
 
 /// Runs a framed line through a decoder, reporting over-long lines.
@@ -214,6 +249,40 @@ mod tests {
         assert_eq!(out.len(), 2);
         assert!(matches!(&out[0], Framed::TooLong { len, .. } if *len == MAX_LINE + 10));
         assert_eq!(out[1], Framed::Line(b"next".to_vec()));
+    }
+
+    #[test]
+    fn decoders_are_built_from_plain_settings() {
+        let mbar = ChannelUnit::Pressure(crate::units::PressureUnit::Mbar);
+        let t = DateTime::<Utc>::UNIX_EPOCH;
+        let mut plain = decoder(&DecoderSettings::Plain {
+            channel: "p".into(),
+            unit: mbar,
+        })
+        .unwrap_or_else(|e| panic!("{e}"));
+        assert!(matches!(
+            plain.decode(b"1.5e-6", t, "pipe").as_slice(),
+            [SourceEvent::Samples(s)] if s[0].channel == "p" && s[0].value() == Some(1.5e-6)
+        ));
+        let spec = |pattern: &str| TemplateSpec {
+            pattern: pattern.into(),
+            unit: Some(mbar),
+            ..TemplateSpec::default()
+        };
+        let mut templates = decoder(&DecoderSettings::Templates(vec![spec(r"^P=(?P<g>\S+)$")]))
+            .unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(templates.channels(), vec![ChannelInfo::new("g", mbar)]);
+        assert!(matches!(
+            templates.decode(b"P=2e-3", t, "serial").as_slice(),
+            [SourceEvent::Samples(s)] if s[0].value() == Some(2e-3)
+        ));
+        let e = decoder(&DecoderSettings::Templates(vec![
+            spec(r"^(?P<a>\S+)$"),
+            spec(r"^(?P<b>\S+"),
+        ]))
+        .err()
+        .unwrap_or_default();
+        assert!(e.starts_with("template 2: bad pattern"), "{e}");
     }
 
     #[test]

@@ -105,10 +105,10 @@ impl PlainDecoder {
             }
             let unit = self.unit_of(&channel, unit)?;
             if let Ok(status) = number.parse::<Status>() {
-                if status == Status::Ok {
+                let Some(fault) = status.fault() else {
                     return Err(format!("`{channel}`: \"ok\" is not a value"));
-                }
-                out.push(Sample::bad(time, channel, unit, status));
+                };
+                out.push(Sample::bad(time, channel, unit, fault));
                 continue;
             }
             match number.parse::<f64>() {
@@ -171,12 +171,12 @@ mod tests {
     fn bare_numbers_units_and_pairs() {
         let mut d = dec();
         let s = one(&mut d, "1.5e-6").expect("bare");
-        assert_eq!((s[0].channel.as_str(), s[0].value), ("p", Some(1.5e-6)));
+        assert_eq!((s[0].channel.as_str(), s[0].value()), ("p", Some(1.5e-6)));
         let s = one(&mut d, "chamber=2e-6 Torr, wall=22 C").expect("pairs");
         assert_eq!(s.len(), 2);
         assert_eq!(s[1].unit, ChannelUnit::Temperature(TemperatureUnit::C));
         let s = one(&mut d, "2026-12-01T10:00:00.250Z chamber=over-range").expect("time");
-        assert_eq!(s[0].status, Status::OverRange);
+        assert_eq!(s[0].status(), Status::OverRange);
         assert_eq!(s[0].time.timestamp_subsec_millis(), 250);
         assert_eq!(d.channels().len(), 3);
     }

@@ -21,7 +21,7 @@ use regex::bytes::Regex;
 use std::collections::BTreeMap;
 
 use super::Decoder;
-use crate::sample::{ChannelInfo, ChannelUnit, Sample, SourceEvent, Status, escape_bytes};
+use crate::sample::{ChannelInfo, ChannelUnit, Fault, Sample, SourceEvent, Status, escape_bytes};
 pub use crate::timefmt::{TimeFormat, Zone};
 
 /// One template, checked and compiled.
@@ -156,13 +156,18 @@ impl Template {
                 .find(|(_, c)| c == &ch.id)
                 .and_then(|(j, _)| text(*j))
                 .map(|w| self.lookup_word(w.trim()));
-            let sample = match (raw.parse::<f64>(), word_status) {
-                (_, Some(st)) if st != Status::Ok => Sample::bad(time, &ch.id, ch.unit, st),
+            let word_fault = word_status.and_then(Status::fault);
+            let sample = match (raw.parse::<f64>(), word_fault) {
+                (_, Some(fault)) => Sample::bad(time, &ch.id, ch.unit, fault),
                 (Ok(v), _) if v.is_finite() => Sample::ok(time, &ch.id, v, ch.unit),
-                _ => match self.words.get(raw) {
-                    Some(&st) if st != Status::Ok => Sample::bad(time, &ch.id, ch.unit, st),
-                    _ => Sample::bad(time, &ch.id, ch.unit, Status::Unparsed),
-                },
+                _ => {
+                    let fault = self
+                        .words
+                        .get(raw)
+                        .and_then(|st| st.fault())
+                        .unwrap_or(Fault::Unparsed);
+                    Sample::bad(time, &ch.id, ch.unit, fault)
+                }
             };
             out.push(sample);
         }
@@ -270,10 +275,10 @@ mod tests {
         }]);
         let s = samples(d.decode(b"0, 1.2300E-06, 5, 0.0000E+00", t0(), "x"));
         assert_eq!(s.len(), 2);
-        assert_eq!(s[0].value, Some(1.23e-6));
-        assert_eq!(s[0].status, Status::Ok);
-        assert_eq!(s[1].status, Status::SensorOff);
-        assert_eq!(s[1].value, None, "a bad reading never becomes a number");
+        assert_eq!(s[0].value(), Some(1.23e-6));
+        assert_eq!(s[0].status(), Status::Ok);
+        assert_eq!(s[1].status(), Status::SensorOff);
+        assert_eq!(s[1].value(), None, "a bad reading never becomes a number");
     }
 
     #[test]
@@ -295,11 +300,11 @@ mod tests {
             ..TemplateSpec::default()
         }]);
         let s = samples(d.decode(b"P=OVER T=21.5", t0(), "x"));
-        assert_eq!(s[0].status, Status::OverRange);
+        assert_eq!(s[0].status(), Status::OverRange);
         assert_eq!(s[1].si(), Some(294.65));
         let s = samples(d.decode(b"P=1.0e-3x T=nan", t0(), "x"));
-        assert_eq!(s[0].status, Status::Unparsed);
-        assert_eq!(s[1].status, Status::Unparsed, "NaN is not a reading");
+        assert_eq!(s[0].status(), Status::Unparsed);
+        assert_eq!(s[1].status(), Status::Unparsed, "NaN is not a reading");
     }
 
     #[test]

@@ -6,7 +6,7 @@ use chrono::{DateTime, Utc};
 use super::model::{N_SPECIES, Species};
 use super::rng::Rng;
 use crate::gas::GasTable;
-use crate::sample::{ChannelInfo, ChannelUnit, Sample, Status};
+use crate::sample::{ChannelInfo, ChannelUnit, Fault, Sample};
 use crate::units::{PressureUnit, TemperatureUnit, UnitKind, ZERO_CELSIUS_K};
 
 /// Channel id of the capacitance diaphragm gauge.
@@ -324,7 +324,7 @@ impl Gauges {
         let mut out = vec![cdg, chamber, ion, wall];
         for (s, g) in out.iter_mut().zip(GaugeId::ALL) {
             if self.dropped(g, x.t_s) {
-                *s = Sample::bad(x.time, g.channel(), g.unit(), Status::SensorError);
+                *s = Sample::bad(x.time, g.channel(), g.unit(), Fault::SensorError);
             }
         }
         out
@@ -360,10 +360,10 @@ impl Gauges {
         }
         match thermal {
             Some(t) if t < THERMAL_MIN_PA => {
-                Sample::bad(x.time, CHAMBER, PRESSURE_UNIT, Status::UnderRange)
+                Sample::bad(x.time, CHAMBER, PRESSURE_UNIT, Fault::UnderRange)
             }
             Some(t) => pressure_sample(x.time, CHAMBER, t, COMBINED_MIN_PA, COMBINED_MAX_PA),
-            None => Sample::bad(x.time, CHAMBER, PRESSURE_UNIT, Status::OverRange),
+            None => Sample::bad(x.time, CHAMBER, PRESSURE_UNIT, Fault::OverRange),
         }
     }
 
@@ -383,7 +383,7 @@ impl Gauges {
             e => e,
         };
         if self.ion != Emission::On {
-            return Sample::bad(x.time, ION, PRESSURE_UNIT, Status::SensorOff);
+            return Sample::bad(x.time, ION, PRESSURE_UNIT, Fault::SensorOff);
         }
         pressure_sample(x.time, ION, reading, ION_MIN_PA, ION_PROTECT_PA)
     }
@@ -392,7 +392,7 @@ impl Gauges {
         let rng = &mut self.rng[3];
         let c = x.wall_k - ZERO_CELSIUS_K + TC_NOISE_K * rng.normal();
         if !c.is_finite() {
-            return Sample::bad(x.time, WALL, TEMPERATURE_UNIT, Status::SensorError);
+            return Sample::bad(x.time, WALL, TEMPERATURE_UNIT, Fault::SensorError);
         }
         Sample::ok(x.time, WALL, (c * 10.0).round() / 10.0, TEMPERATURE_UNIT)
     }
@@ -408,11 +408,11 @@ fn pressure_sample(
     max_pa: f64,
 ) -> Sample {
     if !pa.is_finite() {
-        Sample::bad(time, channel, PRESSURE_UNIT, Status::SensorError)
+        Sample::bad(time, channel, PRESSURE_UNIT, Fault::SensorError)
     } else if pa > max_pa {
-        Sample::bad(time, channel, PRESSURE_UNIT, Status::OverRange)
+        Sample::bad(time, channel, PRESSURE_UNIT, Fault::OverRange)
     } else if pa < min_pa {
-        Sample::bad(time, channel, PRESSURE_UNIT, Status::UnderRange)
+        Sample::bad(time, channel, PRESSURE_UNIT, Fault::UnderRange)
     } else {
         Sample::ok(time, channel, mbar(pa), PRESSURE_UNIT)
     }

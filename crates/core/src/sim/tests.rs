@@ -186,7 +186,7 @@ fn helium_on_the_leak_lowers_the_ion_reading() {
         let v: Vec<f64> = rows
             .iter()
             .filter(|(t, _)| t.elapsed_s >= from && t.elapsed_s <= to)
-            .filter_map(|(_, s)| sample(s, "chamber").value)
+            .filter_map(|(_, s)| sample(s, "chamber").value())
             .collect();
         v.iter().sum::<f64>() / v.len() as f64
     };
@@ -290,7 +290,7 @@ fn bakeout_rises_then_falls_and_leaves_a_lower_base() {
     // Water is no longer the main residual gas.
     assert!(end.0.partial(Species::H2O) < 0.5 * end.0.total_pa);
     // The thermocouple follows the wall.
-    let tc = sample(&end.1, "wall").value.expect("thermocouple");
+    let tc = sample(&end.1, "wall").value().expect("thermocouple");
     assert!((tc - (end.0.wall_k - 273.15)).abs() < 0.6);
 }
 
@@ -303,14 +303,14 @@ fn ion_gauge_protects_itself_at_high_pressure() {
             let ion = sample(s, "ion");
             if t.total_pa > 0.2 {
                 assert_eq!(
-                    ion.status,
+                    ion.status(),
                     Status::SensorOff,
                     "{scenario} at {}",
                     t.elapsed_s
                 );
                 seen_off = true;
             }
-            if ion.status == Status::Ok {
+            if ion.status() == Status::Ok {
                 let v = ion.si().expect("ok has a value");
                 assert!(v <= gauges::ION_PROTECT_PA);
             }
@@ -321,7 +321,7 @@ fn ion_gauge_protects_itself_at_high_pressure() {
             rows.iter()
                 .rev()
                 .take(50)
-                .any(|(_, s)| sample(s, "ion").status == Status::Ok)
+                .any(|(_, s)| sample(s, "ion").status() == Status::Ok)
                 || scenario == Scenario::Demo
         );
     }
@@ -334,17 +334,17 @@ fn capacitance_gauge_over_and_under_range() {
     for (t, s) in &rows {
         let cdg = sample(s, "cdg");
         if t.total_pa > 1.2 * gauges::CDG_MAX_PA {
-            assert_eq!(cdg.status, Status::OverRange);
+            assert_eq!(cdg.status(), Status::OverRange);
             over += 1;
         } else if t.total_pa < 0.5 * gauges::CDG_MIN_PA {
-            assert_eq!(cdg.status, Status::UnderRange);
+            assert_eq!(cdg.status(), Status::UnderRange);
             under += 1;
         } else if t.total_pa > 10.0 * gauges::CDG_MIN_PA && t.total_pa < 0.9 * gauges::CDG_MAX_PA {
             let v = cdg.si().expect("in range");
             assert!((v / t.total_pa - 1.0).abs() < 0.02, "{v} vs {}", t.total_pa);
             ok += 1;
         }
-        assert_eq!(cdg.value.is_some(), cdg.status == Status::Ok);
+        assert_eq!(cdg.value().is_some(), cdg.status() == Status::Ok);
     }
     assert!(over > 10 && under > 100 && ok > 10, "{over} {under} {ok}");
 }
@@ -419,11 +419,11 @@ fn every_scenario_runs_to_its_end_with_finite_readings() {
             assert!(t.water_outgassing_pa_m3_s.is_finite());
             for s in samples {
                 assert_eq!(
-                    s.value.is_some(),
-                    s.status == Status::Ok,
+                    s.value().is_some(),
+                    s.status() == Status::Ok,
                     "{scenario} {s:?}"
                 );
-                if let Some(v) = s.value {
+                if let Some(v) = s.value() {
                     assert!(v.is_finite(), "{scenario} {s:?}");
                     if s.unit.is_pressure() {
                         assert!(v > 0.0, "{scenario} {s:?}");
@@ -487,10 +487,10 @@ fn demo_shows_a_gate_a_dropout_and_an_excursion() {
     let errors: Vec<&Sample> = rows
         .iter()
         .map(|(_, s)| sample(s, "chamber"))
-        .filter(|s| s.status == Status::SensorError)
+        .filter(|s| s.status() == Status::SensorError)
         .collect();
     assert!((15..=25).contains(&errors.len()), "{}", errors.len());
-    assert!(errors.iter().all(|s| s.value.is_none()));
+    assert!(errors.iter().all(|s| s.value().is_none()));
     // The excursion: two decades above base for a short while, then back.
     let h = 60.0;
     let base = window(&rows, 30.5 * h, 31.0 * h - 1.0)[0].total_pa;

@@ -95,15 +95,15 @@ fn round_trip(cells: &[(DateTime<Utc>, Vec<Cell>)]) {
                     let s = samples.next().expect("a sample");
                     assert_eq!(s.channel, col.name);
                     assert_eq!(s.unit, unit);
-                    assert_eq!(s.status, Status::Ok);
-                    assert_eq!(s.value.map(f64::to_bits), Some(v.to_bits()), "{v:e}");
+                    assert_eq!(s.status(), Status::Ok);
+                    assert_eq!(s.value().map(f64::to_bits), Some(v.to_bits()), "{v:e}");
                     assert_eq!(s.time, *t);
                 }
-                Cell::Status(st) => {
+                Cell::Bad(f) => {
                     let s = samples.next().expect("a sample");
                     assert_eq!(
-                        (s.channel.as_str(), s.status, s.value),
-                        (col.name.as_str(), *st, None)
+                        (s.channel.as_str(), s.status(), s.value()),
+                        (col.name.as_str(), f.status(), None)
                     );
                 }
             }
@@ -132,7 +132,7 @@ fn round_trip_is_bit_exact() {
         (
             t0 + ms(1),
             vec![
-                Cell::Status(Status::OverRange),
+                Cell::Bad(Fault::OverRange),
                 Cell::Empty,
                 Cell::Empty,
                 Cell::Value(0.1 + 0.2),
@@ -151,7 +151,7 @@ fn round_trip_is_bit_exact() {
             t0 + ms(86_400_123),
             vec![
                 Cell::Value(-0.0),
-                Cell::Status(Status::SensorError),
+                Cell::Bad(Fault::SensorError),
                 Cell::Empty,
                 Cell::Value(f64::MAX),
             ],
@@ -159,16 +159,16 @@ fn round_trip_is_bit_exact() {
         (
             t0 + ms(86_400_124),
             vec![
-                Cell::Status(Status::UnderRange),
-                Cell::Status(Status::SensorOff),
+                Cell::Bad(Fault::UnderRange),
+                Cell::Bad(Fault::SensorOff),
                 Cell::Empty,
-                Cell::Status(Status::Stale),
+                Cell::Bad(Fault::Stale),
             ],
         ),
         (
             t0 + ms(86_400_125),
             vec![
-                Cell::Status(Status::Unparsed),
+                Cell::Bad(Fault::Unparsed),
                 Cell::Empty,
                 Cell::Empty,
                 Cell::Empty,
@@ -184,7 +184,7 @@ fn cell_strategy() -> impl Strategy<Value = Cell> {
         any::<f64>()
             .prop_filter("finite", |v| v.is_finite())
             .prop_map(Cell::Value),
-        (1..Status::ALL.len()).prop_map(|i| Cell::Status(Status::ALL[i])),
+        (0..Fault::ALL.len()).prop_map(|i| Cell::Bad(Fault::ALL[i])),
     ]
 }
 
@@ -402,8 +402,8 @@ fn bad_cells_are_located_and_specific() {
     let e = one_row_error("2026-12-01T19:00:00.000Z,x,21.5\n");
     let row = e.row.expect("partial row");
     assert_eq!(row.samples.len(), 2);
-    assert_eq!(row.samples[0].status, Status::Unparsed);
-    assert_eq!(row.samples[1].value, Some(21.5));
+    assert_eq!(row.samples[0].status(), Status::Unparsed);
+    assert_eq!(row.samples[1].value(), Some(21.5));
     let e = one_row_error("2026-12-01T19:00:00.000Z,x,y\n");
     assert!(
         e.message.ends_with("(and 1 more bad cell in this row)"),
@@ -492,8 +492,8 @@ fn crlf_partial_last_line_and_offsets() {
         rows[0].samples,
         [Sample::ok(rows[0].time, "a", 1.5e-6, MBAR)]
     );
-    assert_eq!(rows[1].samples[0].status, Status::SensorOff);
-    assert_eq!(rows[1].samples[1].value, Some(22.0));
+    assert_eq!(rows[1].samples[0].status(), Status::SensorOff);
+    assert_eq!(rows[1].samples[1].value(), Some(22.0));
     assert_eq!(rows[2].time, time("2026-12-01T19:00:02.500Z"));
     assert_eq!(rows[2].line, 5);
 }
