@@ -178,8 +178,8 @@ fn replay_is_deterministic_and_seeks_to_alarms() {
         key(']'),
         key('u'),
         key('p'),
-        key('.'),
-        key('.'),
+        key('r'),
+        key('r'),
         key('A'),
         key('}'),
         key('{'),
@@ -195,7 +195,7 @@ fn replay_is_deterministic_and_seeks_to_alarms() {
     let mut seq = vec![key(' ')];
     seq.extend(std::iter::repeat_n(key('n'), 5));
     let s = play(&seq);
-    assert!(s.contains("09:31:11") && s.contains("ALARM"), "{s}");
+    assert!(s.contains("09:31:11") && s.contains("trip unack"), "{s}");
     // End of the log.
     let s = play(&[key('G')]);
     assert!(s.contains("09:40:00"), "{s}");
@@ -205,4 +205,116 @@ fn replay_is_deterministic_and_seeks_to_alarms() {
     seq.push(code(KeyCode::Enter));
     let s = play(&seq);
     assert!(s.contains("2026-11-09 09:40:00"), "{s}");
+}
+
+#[test]
+fn the_step_key_is_r_and_the_dot_does_nothing() {
+    let (mut app, _) = demo_app(None);
+    assert_eq!(keys::handle(&mut app, key('r')), Effect::Step);
+    assert_eq!(keys::handle(&mut app, key('.')), Effect::None);
+    assert!(
+        keys::HELP
+            .iter()
+            .any(|(k, w)| *k == "r" && w.contains("one row"))
+    );
+    assert!(keys::FOOTER_REPLAY.contains("r:step"));
+}
+
+#[test]
+fn typing_replaces_the_suggested_value() {
+    let (mut app, _) = demo_app(None);
+    app.selected = 0;
+    keys::handle(&mut app, key('s'));
+    assert_eq!(app.overlay, Overlay::Shelve("30 min".into()));
+    keys::handle(&mut app, key('2'));
+    assert_eq!(app.overlay, Overlay::Shelve("2".into()));
+    for c in "h".chars() {
+        keys::handle(&mut app, key(c));
+    }
+    keys::handle(&mut app, code(KeyCode::Enter));
+    assert_eq!(
+        app.message.as_deref(),
+        Some("ion-high shelved for 2h"),
+        "{:?}",
+        app.message
+    );
+    // Backspace edits the suggestion instead.
+    app.selected = 1;
+    keys::handle(&mut app, key('s'));
+    keys::handle(&mut app, code(KeyCode::Backspace));
+    keys::handle(&mut app, code(KeyCode::Backspace));
+    keys::handle(&mut app, code(KeyCode::Backspace));
+    keys::handle(&mut app, key('d'));
+    keys::handle(&mut app, code(KeyCode::Enter));
+    assert_eq!(
+        app.message.as_deref(),
+        Some("fast-rise shelved for 30 d"),
+        "{:?}",
+        app.message
+    );
+    // The threshold editor too.
+    app.selected = 0;
+    keys::handle(&mut app, key('e'));
+    keys::handle(&mut app, key('1'));
+    let Overlay::Edit(e) = &app.overlay else {
+        panic!("{:?}", app.overlay)
+    };
+    assert_eq!(e.input, "1");
+}
+
+#[test]
+fn next_and_previous_say_which_event_was_reached() {
+    let (mut app, setup) = demo_app(None);
+    let mut player = Player::open(&setup).expect("player");
+    let Effect::Seek(t) = keys::handle(&mut app, key('n')) else {
+        panic!("no seek")
+    };
+    seek(&mut app, &mut player, &setup, t).expect("seek");
+    let m = app.message.clone().unwrap_or_default();
+    assert!(
+        m.starts_with("alarm event 1 of ") && m.contains("line-regime"),
+        "{m}"
+    );
+    assert_eq!(keys::handle(&mut app, key('p')), Effect::None);
+    assert_eq!(app.message.as_deref(), Some("no earlier alarm event"));
+}
+
+#[test]
+fn a_clamped_seek_says_so() {
+    let (mut app, setup) = demo_app(None);
+    let mut player = Player::open(&setup).expect("player");
+    seek(
+        &mut app,
+        &mut player,
+        &setup,
+        "2026-11-10T00:00:00Z".parse().expect("time"),
+    )
+    .expect("seek");
+    let m = app.message.clone().unwrap_or_default();
+    assert!(m.contains("after the log") && m.contains("09:40:00"), "{m}");
+}
+
+#[test]
+fn the_replay_window_fits_the_log() {
+    use rarefy::ui::run::fit_window;
+    assert_eq!(fit_window(40.0 * 60.0), 3600.0);
+    assert_eq!(fit_window(3.0 * 86_400.0), 7.0 * 86_400.0);
+    assert_eq!(fit_window(30.0 * 86_400.0), 7.0 * 86_400.0);
+}
+
+#[test]
+fn help_scrolls_with_the_arrows_and_closes_on_another_key() {
+    let (mut app, _) = demo_app(None);
+    keys::handle(&mut app, key('?'));
+    let mut t = Terminal::new(TestBackend::new(80, 24)).expect("terminal");
+    t.draw(|f| render::draw(f, &app)).expect("draw");
+    assert!(app.help_max.get() > 0);
+    keys::handle(&mut app, code(KeyCode::Down));
+    assert_eq!(app.help_scroll, 1);
+    assert_eq!(app.overlay, Overlay::Help);
+    keys::handle(&mut app, code(KeyCode::PageDown));
+    keys::handle(&mut app, code(KeyCode::Up));
+    assert_eq!(app.help_scroll, 10);
+    keys::handle(&mut app, key('x'));
+    assert_eq!(app.overlay, Overlay::None);
 }

@@ -130,13 +130,13 @@ fn alarm_unacknowledged_acknowledged_and_shelved() {
     // Select ion-high, the first rule.
     app.selected = 0;
     let s = screen(&app, 120, 40);
-    assert!(s.contains("ALARM"), "{s}");
+    assert!(s.contains("unacknowledged"), "{s}");
     insta::assert_snapshot!("alarm_unack_120x40", s);
     let now = app.monitor().now().expect("time");
     app.operate(&Operation::Acknowledge("ion-high".into()), now, None)
         .expect("ack");
     let s = screen(&app, 120, 40);
-    assert!(s.contains("acked"), "{s}");
+    assert!(s.contains("acknowledged"), "{s}");
     insta::assert_snapshot!("alarm_ack_120x40", s);
     app.operate(&Operation::Shelve("fast-rise".into(), 1800.0), now, None)
         .expect("shelve");
@@ -208,4 +208,162 @@ fn tiny_terminals_do_not_panic() {
     for (w, h) in [(1, 1), (10, 3), (20, 6), (40, 10), (60, 16), (79, 23)] {
         let _ = screen(&app, w, h);
     }
+}
+
+/// The alarm table's line for `id`.
+fn line_with<'a>(s: &'a str, id: &str) -> &'a str {
+    s.lines().find(|l| l.contains(id)).unwrap_or("")
+}
+
+#[test]
+fn at_80x24_alarm_rows_keep_id_severity_state_and_value() {
+    let app = app_at(Some("09:31:30"));
+    let s = screen(&app, 80, 24);
+    // The trip and a notice are told apart by their severity word.
+    let ion = line_with(&s, "ion-high");
+    assert!(
+        ion.contains("trip") && ion.contains("unack") && ion.contains("4.15e-5 mbar"),
+        "{s}"
+    );
+    let line = line_with(&s, "line-regime");
+    assert!(
+        line.contains("note") && line.contains("rtn-unack") && line.contains("molecular"),
+        "{s}"
+    );
+    // The rows below the fold are announced.
+    assert!(s.contains("more ↓"), "{s}");
+    // The title counts the returned-unacknowledged alarms.
+    assert!(s.contains("4 to attend"), "{s}");
+    // Length names whole, regime words short (and listed in help).
+    assert!(
+        s.contains("source-to-substrate") && s.contains("molec"),
+        "{s}"
+    );
+    insta::assert_snapshot!("alarms_80x24", s);
+}
+
+#[test]
+fn wide_alarm_rows_use_the_full_words_and_the_label() {
+    let app = app_at(Some("09:31:30"));
+    for (w, h) in [(120, 40), (200, 60)] {
+        let s = screen(&app, w, h);
+        let ion = line_with(&s, "│>ion-high");
+        assert!(
+            ion.contains("unacknowledged") && ion.contains("trip"),
+            "{s}"
+        );
+        assert!(
+            line_with(&s, "│ line-regime").contains("returned-unacknowledged"),
+            "{s}"
+        );
+        assert!(s.contains("Ion gauge pressure high"), "{s}");
+        // On a large screen the events fill the left column rather than
+        // empty rows.
+        assert!(w < 200 || s.contains("events · latest"), "{s}");
+    }
+}
+
+#[test]
+fn the_threshold_line_is_labelled_with_its_own_value() {
+    let app = app_at(Some("09:31:30"));
+    for (w, h) in SIZES {
+        let s = screen(&app, w, h);
+        let rows: Vec<&str> = s.lines().filter(|l| l.contains("╌")).collect();
+        assert!(!rows.is_empty(), "{s}");
+        // ion-high is above 5e-5 mbar: its row says 5e-5, not a decade.
+        assert!(rows.iter().all(|l| l.contains("5e-5")), "{s}");
+    }
+}
+
+#[test]
+fn without_colour_each_gauge_has_its_own_mark() {
+    let app = app_at(Some("09:31:30"));
+    let s = panel(&app, Panel::Trend, 80, 12);
+    assert!(
+        s.contains("* cdg") && s.contains("o chamber") && s.contains("+ ion"),
+        "{s}"
+    );
+    assert!(
+        !s.contains('⠀') && !s.contains('⣀'),
+        "braille without colour:\n{s}"
+    );
+}
+
+#[test]
+fn an_under_range_pressure_gauge_is_not_painted_as_an_alarm() {
+    let app = app_at(Some("09:31:30"));
+    let look = Look::of(&app);
+    let area = Rect::new(0, 0, 40, 6);
+    let mut buf = Buffer::empty(area);
+    render::draw_panel(Panel::Readings, &app, &look, area, &mut buf);
+    let row = (0..6)
+        .find(|y| {
+            (0..40)
+                .map(|x| buf[(x, *y)].symbol())
+                .collect::<String>()
+                .contains("under-range")
+        })
+        .expect("cdg under-range");
+    let x = (0..40)
+        .find(|x| buf[(*x, row)].symbol() == "u" && buf[(*x + 1, row)].symbol() == "n")
+        .expect("the word");
+    assert_ne!(buf[(x, row)].style(), look.alarm);
+}
+
+#[test]
+fn the_status_line_says_folding_is_display_only() {
+    let app = app_at(Some("09:31:30"));
+    let s = panel(&app, Panel::Status, 80, 1);
+    assert!(s.contains("folded 0 (display only)"), "{s}");
+}
+
+#[test]
+fn the_replay_footer_keeps_quit_at_80_columns() {
+    let cfg = config::load(&root().join("config/demo.toml")).expect("config");
+    let setup = ReplaySetup {
+        file: root().join("sample-logs/demo.csv"),
+        foreign: None,
+        monitor: cfg.monitor_setup(Vec::new()),
+    };
+    let mut app = app_at(Some("09:31:30"));
+    app.replay = Some(index(&setup).expect("index"));
+    let s = screen(&app, 80, 24);
+    let footer = s.lines().last().expect("footer");
+    assert!(
+        footer.contains("q:quit") && footer.contains("r:step"),
+        "{s}"
+    );
+    // Timeline marks by severity: a notice N, warnings W, the ion gauge's
+    // trip a T (seen once the playhead is elsewhere).
+    assert!(
+        s.lines()
+            .nth(1)
+            .is_some_and(|l| l.contains('W') && l.contains('N')),
+        "{s}"
+    );
+    let mut early = app_at(Some("09:05:00"));
+    early.replay = app.replay.clone();
+    let e = screen(&early, 80, 24);
+    assert!(e.lines().nth(1).is_some_and(|l| l.contains('T')), "{e}");
+    // The event list with the detail of the last event reached.
+    let s = screen(&app, 200, 60);
+    assert!(s.contains("reached"), "{s}");
+    insta::assert_snapshot!("replay_events_200x60", s);
+}
+
+#[test]
+fn the_help_overlay_scrolls_and_lists_the_short_forms() {
+    let mut app = app_at(Some("09:05:00"));
+    app.overlay = rarefy::ui::app::Overlay::Help;
+    let s = screen(&app, 80, 24);
+    assert!(s.contains("more ↓"), "{s}");
+    assert!(!s.contains("rtn-unack"), "{s}");
+    app.help_scroll = 1000;
+    let s = screen(&app, 80, 24);
+    assert!(
+        s.contains("returned-unacknowledged") && s.contains("molec"),
+        "{s}"
+    );
+    assert!(s.contains("above"), "{s}");
+    insta::assert_snapshot!("help_scrolled_80x24", s);
 }

@@ -68,6 +68,8 @@ pub struct Replay {
     pub end: DateTime<Utc>,
     /// Alarm events found in the whole log: (time, id, new state).
     pub marks: Vec<(DateTime<Utc>, String, String)>,
+    /// Every event of the log, in order (the event list and its detail).
+    pub events: Vec<Event>,
     /// Gaps in the log (no row for much longer than usual).
     pub gaps: Vec<(DateTime<Utc>, DateTime<Utc>)>,
     /// Rows the reader reported as bad.
@@ -194,6 +196,13 @@ pub struct App {
     pub config_path: Option<PathBuf>,
     /// Whether something changed since the last draw.
     pub dirty: bool,
+    /// First line of the help screen shown (it scrolls on small terminals).
+    pub help_scroll: usize,
+    /// The open prompt still holds its suggestion (the first key typed
+    /// replaces it; Backspace edits it).
+    pub suggested: bool,
+    /// How far the help screen can scroll, as last drawn.
+    pub help_max: std::cell::Cell<usize>,
 }
 
 /// What a key asks the loop around the app to do.
@@ -252,6 +261,9 @@ impl App {
             color: true,
             config_path: None,
             dirty: true,
+            help_scroll: 0,
+            suggested: false,
+            help_max: std::cell::Cell::new(0),
         }
     }
 

@@ -13,8 +13,7 @@ use rarefy_app::pipeline::Operation;
 pub const FOOTER_LIVE: &str =
     "?:help  a:ack  A:ack all  s:shelve  e:edit  u:unit  w/W:window  f:freeze  q:quit";
 /// The footer's key list, replay.
-pub const FOOTER_REPLAY: &str =
-    "?:help  space:pause  </>:speed  ←/→:10s  [/]:1min  {/}:10min  n/p:alarm  t:time  q:quit";
+pub const FOOTER_REPLAY: &str = "?:help  space:pause  n/p:event  t:time  r:step  </>:speed  ←/→:10s  [/]:1min  {/}:10min  q:quit";
 
 /// Every key, for the help overlay: (keys, what).
 pub const HELP: [(&str, &str); 23] = [
@@ -34,7 +33,7 @@ pub const HELP: [(&str, &str); 23] = [
     ("f", "freeze the display (data keeps recording)"),
     ("x", "start the exposure again from zero"),
     ("space", "replay: pause / resume"),
-    (".", "replay: one row forward while paused"),
+    ("r", "replay: one row forward (pauses)"),
     ("< >", "replay: slower / faster (1x … 1000x, max)"),
     ("← →", "replay: back / forward 10 s"),
     ("[ ]", "replay: back / forward 1 min"),
@@ -88,27 +87,46 @@ fn seek_by(app: &App, seconds: i64) -> Effect {
     Effect::Seek(t.clamp(r.start, r.end))
 }
 
-fn jump_to_mark(app: &App, forward: bool) -> Effect {
+fn jump_to_mark(app: &mut App, forward: bool) -> Effect {
     let Some(r) = &app.replay else {
         return Effect::None;
     };
     let here = now(app);
     // Alarm events: an alarm going off (the marks on the timeline).
-    let mut times = r
-        .marks
+    let going_off: Vec<&crate::alarm::Event> = r
+        .events
         .iter()
-        .filter(|m| m.2 == "unacknowledged")
-        .map(|m| m.0);
-    let target = if forward {
-        times.find(|t| *t > here)
+        .filter(|e| e.to_text() == "unacknowledged")
+        .collect();
+    let found = if forward {
+        going_off.iter().position(|e| e.time > here)
     } else {
         // Strictly before the current position, skipping the event at it.
-        times.rfind(|t| *t < here - chrono::Duration::milliseconds(500))
+        going_off
+            .iter()
+            .rposition(|e| e.time < here - chrono::Duration::milliseconds(500))
     };
-    match target {
-        Some(t) => Effect::Seek(t),
-        None => Effect::None,
-    }
+    let (message, effect) = match found {
+        Some(i) => {
+            let e = going_off[i];
+            (
+                format!(
+                    "alarm event {} of {}: {} went off ({}) at {}",
+                    i + 1,
+                    going_off.len(),
+                    e.id,
+                    e.severity.map_or("-", |s| s.as_str()),
+                    e.time.format("%H:%M:%S")
+                ),
+                Effect::Seek(e.time),
+            )
+        }
+        None if going_off.is_empty() => ("no alarm went off in this log".into(), Effect::None),
+        None if forward => ("no later alarm event".into(), Effect::None),
+        None => ("no earlier alarm event".into(), Effect::None),
+    };
+    app.message = Some(message);
+    effect
 }
 
 /// Handles one key.
@@ -119,7 +137,21 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
     }
     match app.overlay.clone() {
         Overlay::Help => {
-            app.overlay = Overlay::None;
+            let max = app.help_max.get();
+            let page = 10;
+            match key.code {
+                KeyCode::Down | KeyCode::Char('j') => {
+                    app.help_scroll = (app.help_scroll + 1).min(max);
+                }
+                KeyCode::Up | KeyCode::Char('k') => {
+                    app.help_scroll = app.help_scroll.min(max).saturating_sub(1);
+                }
+                KeyCode::PageDown | KeyCode::Char(' ') => {
+                    app.help_scroll = (app.help_scroll + page).min(max);
+                }
+                KeyCode::PageUp => app.help_scroll = app.help_scroll.min(max).saturating_sub(page),
+                _ => app.overlay = Overlay::None,
+            }
             return Effect::None;
         }
         Overlay::Goto(s) | Overlay::Shelve(s) if key.code == KeyCode::Esc => {
@@ -128,8 +160,19 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
             return Effect::None;
         }
         Overlay::Goto(mut s) => return prompt(app, key, &mut s, true),
-        Overlay::Shelve(mut s) => return prompt(app, key, &mut s, false),
-        Overlay::Edit(mut e) => return edit_key(app, key, &mut e),
+        Overlay::Shelve(mut s) => {
+            // The suggestion goes as soon as something is typed.
+            if std::mem::take(&mut app.suggested) && matches!(key.code, KeyCode::Char(_)) {
+                s.clear();
+            }
+            return prompt(app, key, &mut s, false);
+        }
+        Overlay::Edit(mut e) => {
+            if std::mem::take(&mut app.suggested) && matches!(key.code, KeyCode::Char(_)) {
+                e.input.clear();
+            }
+            return edit_key(app, key, &mut e);
+        }
         Overlay::Confirm(e) => return confirm_key(app, key, e),
         Overlay::None => {}
     }
@@ -137,7 +180,10 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
     let replay = app.replay.is_some();
     match key.code {
         KeyCode::Char('q') => return Effect::Quit,
-        KeyCode::Char('?' | 'h') | KeyCode::F(1) => app.overlay = Overlay::Help,
+        KeyCode::Char('?' | 'h') | KeyCode::F(1) => {
+            app.overlay = Overlay::Help;
+            app.help_scroll = 0;
+        }
         KeyCode::Char('u') => app.next_unit(),
         KeyCode::Char('w') => {
             let i = WINDOWS.iter().position(|w| *w >= app.window_s).unwrap_or(0);
@@ -176,6 +222,7 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
         }
         KeyCode::Char('s') if app.selected < app.alarm_ids().len() => {
             app.overlay = Overlay::Shelve("30 min".into());
+            app.suggested = true;
         }
         KeyCode::Char('S') => {
             if let Some(id) = app.alarm_ids().get(app.selected).cloned()
@@ -196,7 +243,7 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
                 r.paused = !r.paused;
             }
         }
-        KeyCode::Char('.') if replay => return Effect::Step,
+        KeyCode::Char('r') if replay => return Effect::Step,
         KeyCode::Char('>') if replay => change_speed(app, 1),
         KeyCode::Char('<') if replay => change_speed(app, -1),
         KeyCode::Right if replay => return seek_by(app, 10),
@@ -302,6 +349,7 @@ fn start_edit(app: &mut App) {
             input: old.clone(),
             old,
         });
+        app.suggested = true;
     } else if let Some(g) = app.monitor().gates().get(app.selected - n) {
         let old = format!("{} s", g.gate.hold_s);
         app.overlay = Overlay::Edit(Edit {
@@ -311,6 +359,7 @@ fn start_edit(app: &mut App) {
             input: old.clone(),
             old,
         });
+        app.suggested = true;
     }
 }
 

@@ -310,6 +310,7 @@ pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String>
             start: ix.start,
             end: ix.end,
             marks,
+            events: ix.events.clone(),
             gaps: ix.gaps,
             bad_rows: ix.bad_rows,
             at_end: false,
@@ -368,11 +369,21 @@ pub fn seek(
     setup: &ReplaySetup,
     t: DateTime<Utc>,
 ) -> Result<(), String> {
-    // A time outside the log goes to its nearest end.
+    // A time outside the log goes to its nearest end, and says so.
+    let asked = t;
     let t = match &app.replay {
         Some(r) => t.clamp(r.start, r.end),
         None => t,
     };
+    if t != asked {
+        app.message = Some(format!(
+            "{} is {} the log; at its {} ({})",
+            asked.format("%Y-%m-%d %H:%M:%S"),
+            if asked < t { "before" } else { "after" },
+            if asked < t { "start" } else { "end" },
+            t.format("%Y-%m-%d %H:%M:%S")
+        ));
+    }
     if app.monitor().now().is_some_and(|now| t < now) {
         *player = rewind(app, setup)?;
     }
@@ -430,6 +441,9 @@ pub async fn replay(
     from: Option<DateTime<Utc>>,
 ) -> Result<(), String> {
     let mut player = Player::open(&setup)?;
+    if let Some(r) = &app.replay {
+        app.window_s = fit_window((r.end - r.start).num_milliseconds() as f64 / 1000.0);
+    }
     if let Some(t) = from {
         seek(&mut app, &mut player, &setup, t)?;
     }
@@ -477,9 +491,21 @@ pub async fn replay(
     Ok(())
 }
 
-/// Whether colour should be used: not with NO_COLOR set (any value).
+/// The shortest trend window that shows a log `span_s` long whole (the
+/// longest window for longer logs).
+pub fn fit_window(span_s: f64) -> f64 {
+    super::app::WINDOWS
+        .iter()
+        .copied()
+        .find(|w| *w >= span_s)
+        .unwrap_or(super::app::WINDOWS[super::app::WINDOWS.len() - 1])
+}
+
+/// Whether colour should be used: not with NO_COLOR set (any value), nor
+/// on a terminal that says it is dumb.
 pub fn use_color() -> bool {
     std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty())
+        && std::env::var("TERM").map_or(true, |t| t != "dumb")
 }
 
 /// Whether the terminal probably cannot show braille: `TERM=linux` (the

@@ -12,10 +12,11 @@ use ratatui::layout::{Constraint, Direction, Layout, Rect};
 use ratatui::style::{Color, Modifier, Style};
 use ratatui::symbols::border;
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Block, Borders, Clear, Paragraph, Wrap};
+use ratatui::widgets::{Block, Borders, Clear, Paragraph};
 
 use super::app::{App, Overlay};
 use super::keys::{FOOTER_LIVE, FOOTER_REPLAY, HELP};
+use crate::alarm::rule::Severity;
 use crate::alarm::{AlarmState, GateState};
 use crate::sample::{ChannelUnit, SourceState, Status};
 use crate::units::{self, format_sig};
@@ -91,17 +92,44 @@ impl Look {
             .title(Span::styled(format!(" {title} "), self.title))
     }
 
-    fn state_style(&self, s: AlarmState) -> Style {
+    /// A state's style; how loud an alarm in alarm is depends on its
+    /// severity, so a notice never looks like a trip.
+    fn state_style(&self, s: AlarmState, sev: Severity) -> Style {
         let base = Style::default();
         match (s, self.color) {
-            (AlarmState::Unacknowledged, _) => self.alarm,
-            (AlarmState::Acknowledged, true) => base.fg(Color::Red),
+            (AlarmState::Unacknowledged | AlarmState::Acknowledged, _)
+                if sev == Severity::Notice =>
+            {
+                if s == AlarmState::Unacknowledged {
+                    base.add_modifier(Modifier::BOLD)
+                } else {
+                    base
+                }
+            }
+            (AlarmState::Unacknowledged, _) if sev == Severity::Trip => self.alarm,
+            (AlarmState::Unacknowledged, true) => {
+                base.fg(Color::Yellow).add_modifier(Modifier::BOLD)
+            }
+            (AlarmState::Unacknowledged, false) => base.add_modifier(Modifier::BOLD),
+            (AlarmState::Acknowledged, true) if sev == Severity::Trip => base.fg(Color::Red),
+            (AlarmState::Acknowledged, true) => base.fg(Color::Yellow),
             (AlarmState::Acknowledged, false) => base.add_modifier(Modifier::BOLD),
             (AlarmState::ReturnedUnacknowledged, true) => base.fg(Color::Yellow),
             (AlarmState::ReturnedUnacknowledged, false) => base.add_modifier(Modifier::UNDERLINED),
             (AlarmState::Shelved | AlarmState::SuppressedByDesign, _) => self.dim,
             (AlarmState::Normal, true) => base.fg(Color::Green),
             (AlarmState::Normal, false) => base,
+        }
+    }
+
+    /// A severity word's style: a trip stands out, a notice is quiet.
+    fn severity_style(&self, sev: Severity) -> Style {
+        match (sev, self.color) {
+            (Severity::Trip, true) => Style::default().fg(Color::Red).add_modifier(Modifier::BOLD),
+            (Severity::Trip, false) => Style::default().add_modifier(Modifier::BOLD),
+            (Severity::Warning, true) => Style::default().fg(Color::Yellow),
+            (Severity::Warning, false) => Style::default(),
+            (Severity::Notice, _) => self.dim,
         }
     }
 
@@ -122,18 +150,6 @@ impl Look {
     /// Short glyph-free words for quantities in ASCII mode.
     fn sym(&self, unicode: &'static str, ascii: &'static str) -> &'static str {
         if self.ascii { ascii } else { unicode }
-    }
-}
-
-/// Short state words for the alarm table.
-fn state_word(s: AlarmState) -> &'static str {
-    match s {
-        AlarmState::Normal => "normal",
-        AlarmState::Unacknowledged => "ALARM",
-        AlarmState::Acknowledged => "acked",
-        AlarmState::ReturnedUnacknowledged => "rtn-unack",
-        AlarmState::Shelved => "shelved",
-        AlarmState::SuppressedByDesign => "suppressed",
     }
 }
 
@@ -185,6 +201,8 @@ pub enum Panel {
     Trend,
     /// Alarms and gates.
     Alarms,
+    /// Events (replay: the log's, with the current one's detail).
+    Events,
     /// Status line.
     Status,
     /// Key footer.
@@ -201,6 +219,7 @@ pub fn draw_panel(panel: Panel, app: &App, look: &Look, area: Rect, buf: &mut Bu
         Panel::Lengths => lengths(app, look, area, buf),
         Panel::Trend => trend_panel(app, look, area, buf),
         Panel::Alarms => alarms(app, look, area, buf),
+        Panel::Events => events_panel(app, look, area, buf),
         Panel::Status => status_line(app, look, area, buf),
         Panel::Footer => footer(app, look, area, buf),
     }
@@ -245,29 +264,40 @@ pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     footer(app, look, v[i + 2], buf);
 
     let gauges = app.gauges.len().max(1) as u16;
+    let lengths_n = app.monitor().setup().lengths.len().max(1) as u16;
     if p.wide {
-        // Left column of numbers, right column of trend and alarms.
+        // Numbers in a left column beside the trend; the events fill the
+        // rest of that column; the alarms take the whole width below, so
+        // their labels and thresholds have room.
+        let left_h = (gauges + 3) + 11 + (lengths_n + 2);
+        let alarms_h = (alarm_rows(app) + 2).min(body.height.saturating_sub(left_h).max(5));
+        let v2 = Layout::default()
+            .direction(Direction::Vertical)
+            .constraints([Constraint::Min(10), Constraint::Length(alarms_h)])
+            .split(body);
         let h = Layout::default()
             .direction(Direction::Horizontal)
             .constraints([Constraint::Length(52), Constraint::Min(40)])
-            .split(body);
+            .split(v2[0]);
+        let events_fit = h[0].height >= left_h + 4;
+        let mut parts = vec![Constraint::Length(gauges + 3), Constraint::Length(11)];
+        if events_fit {
+            parts.extend([Constraint::Length(lengths_n + 2), Constraint::Min(4)]);
+        } else {
+            parts.push(Constraint::Min(4));
+        }
         let left = Layout::default()
             .direction(Direction::Vertical)
-            .constraints([
-                Constraint::Length(gauges + 3),
-                Constraint::Length(11),
-                Constraint::Min(4),
-            ])
+            .constraints(parts)
             .split(h[0]);
         readings(app, look, left[0], buf);
         kinetics(app, look, left[1], buf);
         lengths(app, look, left[2], buf);
-        let right = Layout::default()
-            .direction(Direction::Vertical)
-            .constraints([Constraint::Min(10), Constraint::Length(alarm_rows(app) + 2)])
-            .split(h[1]);
-        trend_panel(app, look, right[0], buf);
-        alarms(app, look, right[1], buf);
+        if events_fit {
+            events_panel(app, look, left[3], buf);
+        }
+        trend_panel(app, look, h[1], buf);
+        alarms(app, look, v2[1], buf);
     } else {
         // Stacked: numbers on top, lengths and alarms, then the trend with
         // whatever height is left; the trend is dropped first.
@@ -278,7 +308,6 @@ pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             0
         };
         let top_h = (gauges + 2).max(kin_h);
-        let lengths_n = app.monitor().setup().lengths.len() as u16;
         let mid_h = if tall {
             (lengths_n + 2).max(alarm_rows(app) + 2).min(14)
         } else {
@@ -301,9 +330,15 @@ pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             readings(app, look, v2[0], buf);
         }
         if p.lengths {
-            let (l, r) = split(v2[1], 45);
-            lengths(app, look, l, buf);
-            alarms(app, look, r, buf);
+            // The lengths panel as narrow as its names allow: the alarm
+            // table needs the width more.
+            let lw = (v2[1].width * 44 / 100).min(36);
+            let h = Layout::default()
+                .direction(Direction::Horizontal)
+                .constraints([Constraint::Length(lw), Constraint::Min(20)])
+                .split(v2[1]);
+            lengths(app, look, h[0], buf);
+            alarms(app, look, h[1], buf);
         } else {
             alarms(app, look, v2[1], buf);
         }
@@ -398,8 +433,14 @@ fn timeline_bar(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let Some(r) = &app.replay else { return };
     let (_, _, now) = app.shown();
     let span = (r.end - r.start).num_milliseconds().max(1) as f64;
-    let label = format!(" {} ", r.start.format("%H:%M"));
-    let end_label = format!(" {} ", r.end.format("%H:%M"));
+    // A log over more than one day shows the dates too.
+    let fmt = if r.start.date_naive() == r.end.date_naive() {
+        "%H:%M"
+    } else {
+        "%m-%d %H:%M"
+    };
+    let label = format!(" {} ", r.start.format(fmt));
+    let end_label = format!(" {} ", r.end.format(fmt));
     let x0 = area.x + label.len() as u16;
     let w = area
         .width
@@ -423,11 +464,18 @@ fn timeline_bar(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             buf[(x0 + x, area.y)].set_char(' ');
         }
     }
-    for (t, _, to) in &r.marks {
-        if to == "unacknowledged" {
-            buf[(x0 + col(*t), area.y)]
-                .set_char('!')
-                .set_style(look.alarm);
+    // An alarm going off, by its severity's letter (listed in help).
+    for e in r.events.iter().filter(|e| e.to_text() == "unacknowledged") {
+        let (c, style) = match e.severity {
+            Some(Severity::Trip) => ('T', look.alarm),
+            Some(Severity::Warning) => ('W', look.severity_style(Severity::Warning)),
+            Some(Severity::Notice) => ('N', Style::default()),
+            None => ('!', look.alarm),
+        };
+        let cell = &mut buf[(x0 + col(e.time), area.y)];
+        // A trip is never hidden under a lesser mark at the same place.
+        if cell.symbol() != "T" {
+            cell.set_char(c).set_style(style);
         }
     }
     if let Some(now) = now {
@@ -469,6 +517,8 @@ fn readings(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         };
         let style = match status {
             Status::Ok => Style::default().add_modifier(Modifier::BOLD),
+            // Below its range is where a pressure gauge sits at high vacuum.
+            Status::UnderRange if g.unit.is_pressure() => look.dim,
             Status::SensorOff => look.dim,
             _ => look.alarm,
         };
@@ -661,30 +711,170 @@ fn lengths(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             .map_or(("-".to_string(), "-".to_string()), |x| {
                 (format_sig(x.knudsen, 3), x.regime.to_string())
             });
-        let narrow = inner.width < 48;
-        let name_w = if narrow { 13 } else { 20 };
-        let name: String = l.name.chars().take(name_w).collect();
+        let w = usize::from(inner.width);
+        let narrow = w < 48;
+        // Narrow: short regime words (listed in help), and the length
+        // itself only when the names still fit beside it.
+        let longest = monitor
+            .setup()
+            .lengths
+            .iter()
+            .map(|l| l.name.chars().count())
+            .max()
+            .unwrap_or(0);
+        let show_len = !narrow || w >= longest.min(20) + 1 + 8 + 1 + 7 + 1 + 5;
+        let name_w = if narrow {
+            w.saturating_sub(1 + 7 + 1 + 5 + if show_len { 9 } else { 0 })
+                .min(longest.max(4))
+        } else {
+            20
+        };
         let regime = if narrow {
-            regime.chars().take(5).collect::<String>()
+            match regime.as_str() {
+                "viscous" => "visc".to_string(),
+                "transitional" => "trans".to_string(),
+                "molecular" => "molec".to_string(),
+                r => r.to_string(),
+            }
         } else {
             regime
         };
-        lines.push(Line::from(vec![
-            Span::raw(format!("{name:<name_w$} ")),
-            Span::styled(format!("{:>8} ", length(l.length_m)), look.dim),
-            Span::raw(format!("{}{kn:>6} ", if narrow { "" } else { "Kn " })),
-            Span::styled(regime, Style::default().add_modifier(Modifier::BOLD)),
-        ]));
+        let mut spans = vec![Span::raw(format!("{} ", cell(&l.name, name_w, look)))];
+        if show_len {
+            spans.push(Span::styled(
+                format!("{:>8} ", length(l.length_m)),
+                look.dim,
+            ));
+        }
+        spans.push(Span::raw(format!(
+            "{}{kn:>kw$} ",
+            if narrow { "" } else { "Kn " },
+            kw = if narrow { 7 } else { 6 }
+        )));
+        spans.push(Span::styled(
+            regime,
+            Style::default().add_modifier(Modifier::BOLD),
+        ));
+        lines.push(Line::from(spans));
     }
     Paragraph::new(lines).render_into(inner, buf);
+}
+
+/// The state words of the alarm table: the README's and the events' words,
+/// or, where the panel is too narrow for them, the short forms listed in
+/// help ([`ABBREVIATIONS`]).
+fn state_word(s: AlarmState, short: bool) -> &'static str {
+    match (s, short) {
+        (AlarmState::Unacknowledged, true) => "unack",
+        (AlarmState::Acknowledged, true) => "acked",
+        (AlarmState::ReturnedUnacknowledged, true) => "rtn-unack",
+        (AlarmState::SuppressedByDesign, true) => "suppr",
+        (s, _) => s.as_str(),
+    }
+}
+
+/// Severity words: in full, or short where the panel is narrow.
+fn severity_word(s: Severity, short: bool) -> &'static str {
+    match (s, short) {
+        (Severity::Notice, true) => "note",
+        (Severity::Warning, true) => "warn",
+        (s, _) => s.as_str(),
+    }
+}
+
+/// The short forms used where the screen is narrow, for the help screen:
+/// (short, meaning).
+pub const ABBREVIATIONS: [(&str, &str); 8] = [
+    ("unack", "unacknowledged (in alarm, not acknowledged)"),
+    ("acked", "acknowledged (in alarm)"),
+    ("rtn-unack", "returned-unacknowledged (back to normal)"),
+    ("suppr", "suppressed-by-design (enable condition false)"),
+    (
+        "warn note",
+        "severity warning, notice (trip is written out)",
+    ),
+    ("visc trans", "flow regime viscous, transitional"),
+    ("molec", "flow regime molecular"),
+    ("Kn", "Knudsen number: mean free path / length"),
+];
+
+/// `text` cut to `w` columns (marked `…`/`~` when cut) and padded to `w`.
+fn cell(text: &str, w: usize, look: &Look) -> String {
+    let n = text.chars().count();
+    if n <= w {
+        return format!("{text:<w$}");
+    }
+    if w == 0 {
+        return String::new();
+    }
+    let cut: String = text.chars().take(w - 1).collect();
+    format!("{cut}{}", look.sym("…", "~"))
+}
+
+/// Column widths of the alarm table for a panel `width` wide.
+struct AlarmCols {
+    short: bool,
+    sev: usize,
+    id: usize,
+    state: usize,
+    value: usize,
+    rest: usize,
+}
+
+fn alarm_cols(width: usize, longest_id: usize) -> AlarmCols {
+    // Full words once the panel can hold them with a value beside them.
+    let short = width < 1 + 7 + 1 + 16 + 1 + 23 + 1 + 12 + 10;
+    let (sev, state) = if short { (4, 9) } else { (7, 23) };
+    let fixed = 1 + sev + 1 + 1 + state + 1;
+    let value_min = 12;
+    let id = longest_id
+        .min(width.saturating_sub(fixed + value_min))
+        .max(6);
+    let value = width.saturating_sub(fixed + id).min(16);
+    let rest = width.saturating_sub(fixed + id + value + 1);
+    AlarmCols {
+        short,
+        sev,
+        id,
+        state,
+        value,
+        rest,
+    }
 }
 
 fn alarms(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let (monitor, _, now) = app.shown();
     let views = monitor.alarms();
     let active = views.iter().filter(|a| a.state.is_active()).count();
-    let title = format!("alarms & gates · {active} active");
+    let returned = views
+        .iter()
+        .filter(|a| a.state == AlarmState::ReturnedUnacknowledged)
+        .count();
+    // Returned-unacknowledged alarms still wait for the operator, so they
+    // count; the words say how the count is made up.
+    let title = if returned == 0 {
+        format!("alarms & gates · {active} active")
+    } else if area.width >= 60 {
+        format!(
+            "alarms & gates · {} to attend: {active} active, {returned} returned-unacknowledged",
+            active + returned
+        )
+    } else {
+        format!(
+            "alarms & gates · {} to attend ({returned} rtn-unack)",
+            active + returned
+        )
+    };
     let inner = look.frame(&title, area, buf);
+    let width = usize::from(inner.width);
+    let longest = views
+        .iter()
+        .map(|a| a.rule.id.chars().count())
+        .chain(monitor.gates().iter().map(|g| g.gate.id.chars().count()))
+        .max()
+        .unwrap_or(8)
+        .min(20);
+    let c = alarm_cols(width, longest);
     let mut lines: Vec<Line> = Vec::new();
     let n = views.len();
     for (i, a) in views.iter().enumerate() {
@@ -696,22 +886,42 @@ fn alarms(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             Some(u) => format!("until {}", u.format("%H:%M:%S")),
             None => since,
         };
-        let id: String = a.rule.id.chars().take(16).collect();
-        lines.push(Line::from(vec![
-            Span::raw(format!("{sel}{id:<16} ")),
+        let sev = a.rule.severity;
+        let value = a.value_text.clone().unwrap_or_else(|| "-".into());
+        // A pressure gauge below its range at high vacuum is normal: the
+        // value is not painted as trouble.
+        let value_style = if value == Status::UnderRange.as_str() {
+            look.dim
+        } else {
+            Style::default()
+        };
+        let mut spans = vec![
+            Span::raw(format!("{sel}{} ", cell(&a.rule.id, c.id, look))),
             Span::styled(
-                format!("{:<10}", state_word(a.state)),
-                look.state_style(a.state),
+                format!("{:<w$}", severity_word(sev, c.short), w = c.sev),
+                look.severity_style(sev),
             ),
-            Span::raw(format!(
-                " {:<11}",
-                a.value_text.clone().unwrap_or_else(|| "-".into())
-            )),
+            Span::raw(" "),
             Span::styled(
-                format!(" {} · {extra}", a.threshold_text).replace('·', look.sym("·", "-")),
+                format!("{:<w$}", state_word(a.state, c.short), w = c.state),
+                look.state_style(a.state, sev),
+            ),
+            Span::styled(format!(" {}", cell(&value, c.value, look)), value_style),
+        ];
+        if c.rest >= 8 {
+            let label = if a.rule.label.is_empty() || a.rule.label == a.rule.id {
+                String::new()
+            } else {
+                format!("{} · ", a.rule.label)
+            };
+            let text =
+                format!("{label}{} · {extra}", a.threshold_text).replace('·', look.sym("·", "-"));
+            spans.push(Span::styled(
+                format!(" {}", cell(&text, c.rest, look)),
                 look.dim,
-            ),
-        ]));
+            ));
+        }
+        lines.push(Line::from(spans));
     }
     for (j, g) in monitor.gates().iter().enumerate() {
         let sel = if n + j == app.selected { ">" } else { " " };
@@ -745,20 +955,47 @@ fn alarms(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             (_, _, Some(r)) => r.to_string(),
             _ => String::new(),
         };
-        let id: String = g.gate.id.chars().take(16).collect();
+        let room = width.saturating_sub(1 + c.id + 1 + c.sev + 1 + 9 + 1);
         lines.push(Line::from(vec![
-            Span::raw(format!("{sel}{id:<16} ")),
-            Span::styled(format!("{word:<10}"), style),
-            Span::styled(format!(" {why}"), look.dim),
+            Span::raw(format!("{sel}{} ", cell(&g.gate.id, c.id, look))),
+            Span::styled(format!("{:<w$} ", "gate", w = c.sev), look.dim),
+            Span::styled(format!("{word:<9}"), style),
+            Span::styled(format!(" {}", cell(&why, room, look)), look.dim),
         ]));
     }
     if lines.is_empty() {
         lines.push(Line::styled("no alarms or gates configured", look.dim));
     }
-    // Keep the selection in view.
+    // Keep the selection in view, and say what is out of it.
     let height = inner.height as usize;
+    let total = lines.len();
     let skip = app.selected.saturating_sub(height.saturating_sub(1));
+    let below = total.saturating_sub(skip + height);
     Paragraph::new(lines.into_iter().skip(skip).collect::<Vec<_>>()).render_into(inner, buf);
+    more_hints(look, area, skip, below, buf);
+}
+
+/// `+N more ↓` (and `↑ N above`) on a panel's bottom border when rows are
+/// out of view.
+fn more_hints(look: &Look, area: Rect, above: usize, below: usize, buf: &mut Buffer) {
+    if area.height < 2 || area.width < 16 {
+        return;
+    }
+    let y = area.y + area.height - 1;
+    if below > 0 {
+        let text = format!(" +{below} more {} ", look.sym("↓", "v"));
+        let w = text.chars().count() as u16;
+        buf.set_string(
+            area.x + area.width.saturating_sub(w + 1),
+            y,
+            &text,
+            look.title,
+        );
+    }
+    if above > 0 {
+        let text = format!(" {} {above} above ", look.sym("↑", "^"));
+        buf.set_string(area.x + 1, y, &text, look.dim);
+    }
 }
 
 fn trend_panel(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
@@ -798,8 +1035,10 @@ fn status_line(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         )));
     }
     parts.push(Span::raw(format!("unparsed {}  ", app.counters.unparsed)));
+    // Readings folded into the trend's buckets: the display only; the
+    // monitor and the recording keep every reading.
     parts.push(Span::raw(format!(
-        "decimated {}  ",
+        "folded {} (display only)  ",
         app.history.decimated()
     )));
     if app.counters.behind > 100 {
@@ -849,8 +1088,24 @@ fn footer(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     } else {
         keys.to_string()
     };
+    // Keys drop from the right when the line is short, but quit stays.
+    let quit = "  q:quit";
+    let body = keys.trim_end_matches("q:quit").trim_end();
+    let room = usize::from(area.width).saturating_sub(quit.len());
+    let mut shown = String::new();
+    for part in body.split("  ") {
+        let next = if shown.is_empty() {
+            part.to_string()
+        } else {
+            format!("{shown}  {part}")
+        };
+        if next.chars().count() > room {
+            break;
+        }
+        shown = next;
+    }
     Paragraph::new(Line::styled(
-        keys,
+        format!("{shown}{quit}"),
         Style::default().add_modifier(Modifier::REVERSED),
     ))
     .render_into(area, buf);
@@ -870,36 +1125,7 @@ fn centered(area: Rect, w: u16, h: u16) -> Rect {
 fn overlay(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     match &app.overlay {
         Overlay::None => {}
-        Overlay::Help => {
-            let r = centered(area, 78, 40);
-            Clear.render_into(r, buf);
-            let title = "help · any key closes".replace('·', look.sym("·", "-"));
-            let block = look.block(&title);
-            let inner = block.inner(r);
-            block.render_into(r, buf);
-            let mut lines: Vec<Line> = vec![
-                Line::styled("CAUTION", look.alarm),
-                Line::raw(rarefy_core::CAUTION),
-                Line::raw(""),
-            ];
-            for (k, what) in HELP {
-                let k = if look.ascii {
-                    k.replace('↑', "Up")
-                        .replace('↓', "Down")
-                        .replace('←', "Left")
-                        .replace('→', "Right")
-                } else {
-                    k.to_string()
-                };
-                lines.push(Line::from(vec![
-                    Span::styled(format!("{k:<14}"), look.title),
-                    Span::raw(what),
-                ]));
-            }
-            Paragraph::new(lines)
-                .wrap(Wrap { trim: true })
-                .render_into(inner, buf);
-        }
+        Overlay::Help => help_overlay(app, look, area, buf),
         Overlay::Goto(s) => prompt_box(look, area, buf, "go to time (HH:MM:SS UTC or RFC 3339)", s),
         Overlay::Shelve(s) => prompt_box(look, area, buf, "shelve the selected alarm for", s),
         Overlay::Edit(e) => prompt_box(
@@ -935,4 +1161,204 @@ fn prompt_box(look: &Look, area: Rect, buf: &mut Buffer, title: &str, input: &st
     let inner = block.inner(r);
     block.render_into(r, buf);
     Paragraph::new(Line::raw(format!("{input}_"))).render_into(inner, buf);
+}
+
+/// One event as a line: time, id, the state it went to.
+fn event_line<'a>(e: &crate::alarm::Event, width: usize, look: &Look, current: bool) -> Line<'a> {
+    let sev = e.severity.map_or("", |s| severity_word(s, true));
+    let text = format!(
+        "{} {} {} {}",
+        e.time.format("%H:%M:%S"),
+        e.id,
+        e.to_text(),
+        sev
+    );
+    let style = if current {
+        Style::default().add_modifier(Modifier::REVERSED)
+    } else {
+        match e.change.alarm_to() {
+            Some(AlarmState::Unacknowledged) => e
+                .severity
+                .map_or(Style::default(), |s| look.severity_style(s)),
+            _ => Style::default(),
+        }
+    };
+    Line::styled(cell(&text, width, look), style)
+}
+
+/// The events: live, the latest; in replay, every event of the log around
+/// the playhead, the last one reached marked and its detail below.
+fn events_panel(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let (_, _, now) = app.shown();
+    let all: Vec<&crate::alarm::Event> = match &app.replay {
+        Some(r) => r.events.iter().collect(),
+        None => app.events.iter().collect(),
+    };
+    let reached = now.map_or(0, |t| all.iter().filter(|e| e.time <= t).count());
+    let title = if app.replay.is_some() {
+        format!("events · {reached} of {} reached", all.len())
+    } else {
+        format!("events · latest {}", all.len())
+    };
+    let inner = look.frame(&title, area, buf);
+    let width = usize::from(inner.width);
+    if all.is_empty() {
+        Paragraph::new(Line::styled("no events yet", look.dim)).render_into(inner, buf);
+        return;
+    }
+    let current = reached.checked_sub(1).filter(|_| app.replay.is_some());
+    // Detail of the current event below the list, when there is room.
+    let detail: Vec<Line> = match current.map(|i| all[i]) {
+        Some(e) if inner.height >= 8 => {
+            let mut d = vec![Line::styled(
+                cell(&format!("{} · {}", e.id, e.label), width, look)
+                    .replace('·', look.sym("·", "-")),
+                look.title,
+            )];
+            d.push(Line::raw(cell(
+                &format!(
+                    "{} {} -> {}{}",
+                    e.time.format("%Y-%m-%d %H:%M:%S"),
+                    e.from_text(),
+                    e.to_text(),
+                    e.severity.map_or(String::new(), |s| format!(" ({s})"))
+                ),
+                width,
+                look,
+            )));
+            let value = [e.value_text.as_deref(), e.threshold.as_deref()]
+                .into_iter()
+                .flatten()
+                .collect::<Vec<_>>()
+                .join(" · ")
+                .replace('·', look.sym("·", "-"));
+            if !value.is_empty() {
+                d.push(Line::styled(cell(&value, width, look), look.dim));
+            }
+            d
+        }
+        _ => Vec::new(),
+    };
+    let list_h =
+        usize::from(inner.height).saturating_sub(detail.len() + usize::from(!detail.is_empty()));
+    // The current event (or the newest, live) in view, a few after it.
+    let end = match current {
+        Some(i) => (i + 1 + list_h / 3)
+            .min(all.len())
+            .max(list_h.min(all.len())),
+        None => all.len(),
+    };
+    let start = end.saturating_sub(list_h);
+    let mut lines: Vec<Line> = all[start..end]
+        .iter()
+        .enumerate()
+        .map(|(k, e)| event_line(e, width, look, current == Some(start + k)))
+        .collect();
+    if !detail.is_empty() {
+        lines.push(Line::raw(""));
+        lines.extend(detail);
+    }
+    Paragraph::new(lines).render_into(inner, buf);
+    more_hints(look, area, start, all.len() - end, buf);
+}
+
+/// `text` broken into lines of at most `width` columns at spaces.
+fn wrap_words(text: &str, width: usize) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut line = String::new();
+    for word in text.split_whitespace() {
+        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
+            out.push(std::mem::take(&mut line));
+        }
+        if !line.is_empty() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    if !line.is_empty() {
+        out.push(line);
+    }
+    out
+}
+
+/// The help screen's lines for a box `width` wide.
+fn help_lines(look: &Look, width: usize) -> Vec<Line<'static>> {
+    let mut lines: Vec<Line> = vec![Line::styled("CAUTION", look.alarm)];
+    lines.extend(
+        wrap_words(rarefy_core::CAUTION, width)
+            .into_iter()
+            .map(Line::raw),
+    );
+    lines.push(Line::raw(""));
+    let arrows = |k: &str| {
+        if look.ascii {
+            k.replace('↑', "Up")
+                .replace('↓', "Down")
+                .replace('←', "Left")
+                .replace('→', "Right")
+        } else {
+            k.to_string()
+        }
+    };
+    let row = |k: String, what: &str| {
+        let what_w = width.saturating_sub(14).max(10);
+        let mut out = Vec::new();
+        for (i, part) in wrap_words(what, what_w).into_iter().enumerate() {
+            let k = if i == 0 { k.clone() } else { String::new() };
+            out.push(Line::from(vec![
+                Span::styled(format!("{k:<14}"), look.title),
+                Span::raw(part),
+            ]));
+        }
+        out
+    };
+    for (k, what) in HELP {
+        lines.extend(row(arrows(k), what));
+    }
+    lines.push(Line::raw(""));
+    lines.push(Line::styled(
+        "Short forms where the screen is narrow",
+        look.title,
+    ));
+    for (k, what) in ABBREVIATIONS {
+        lines.extend(row(k.to_string(), what));
+    }
+    lines.push(Line::raw(""));
+    lines.push(Line::styled("Replay timeline", look.title));
+    lines.extend(row(
+        "T W N".into(),
+        "an alarm went off: trip, warning, notice",
+    ));
+    lines.extend(row(
+        look.sym("█", "#").into(),
+        "where the replay is; a blank stretch is a gap in the log",
+    ));
+    lines
+}
+
+fn help_overlay(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
+    let r = centered(area, 78, 60);
+    Clear.render_into(r, buf);
+    let inner_w = usize::from(r.width.saturating_sub(2));
+    let lines = help_lines(look, inner_w);
+    let inner_h = usize::from(r.height.saturating_sub(2));
+    let max = lines.len().saturating_sub(inner_h);
+    app.help_max.set(max);
+    let top = app.help_scroll.min(max);
+    let title = if max > 0 {
+        format!(
+            "help · {}/{} PgUp/PgDn scroll · other keys close",
+            look.sym("↑", "Up"),
+            look.sym("↓", "Down")
+        )
+    } else {
+        "help · any key closes".to_string()
+    }
+    .replace('·', look.sym("·", "-"));
+    let block = look.block(&title);
+    let inner = block.inner(r);
+    block.render_into(r, buf);
+    let below = lines.len().saturating_sub(top + inner_h);
+    Paragraph::new(lines.into_iter().skip(top).collect::<Vec<_>>()).render_into(inner, buf);
+    more_hints(look, r, top, below, buf);
 }

@@ -116,25 +116,40 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             hi = hi.max(*t);
         }
     }
-    let (dlo, mut dhi) = (lo.floor(), hi.ceil());
+    let (mut dlo, mut dhi) = (lo.floor(), hi.ceil());
     if dhi <= dlo {
         dhi = dlo + 1.0;
     }
+    // Every decade on a row of its own, or a whole number of decades a
+    // row: a decade label then sits exactly where its value is, and the
+    // range grows downwards to fill the plot.
+    let spans = f64::from(plot.height.saturating_sub(1).max(1));
+    let decades = dhi - dlo;
+    let rows_per_decade = if spans >= decades {
+        (spans / decades).floor()
+    } else {
+        1.0 / (decades / spans).ceil()
+    };
+    // The decades added to fill the plot go half above, half below.
+    let total = (spans / rows_per_decade).floor();
+    dhi += ((total - decades) / 2.0).floor();
+    dlo = dhi - total;
     let rows = plot.height as f64;
     let cols = plot.width as f64;
     let y_of = |v: f64, sub: f64| {
-        ((dhi - v) / (dhi - dlo) * (rows * sub - 1.0))
+        // The middle of the row for a value on it (so a decade's dots sit
+        // in its row, not on an edge).
+        ((dhi - v) * rows_per_decade * sub + (sub - 1.0) / 2.0)
             .round()
-            .max(0.0) as usize
+            .clamp(0.0, rows * sub - 1.0) as usize
     };
     let x_of =
         |t: f64, sub: f64| ((t - t0) / (t1 - t0) * (cols * sub - 1.0)).round().max(0.0) as usize;
 
-    // Decade labels: one per decade, fewer when the plot is short.
-    let decades = (dhi - dlo) as usize;
-    let every = decades.div_ceil(plot.height.max(1) as usize).max(1);
-    for (k, d) in (dlo as i64..=dhi as i64).enumerate() {
-        if k % every != 0 && d != dhi as i64 {
+    // Decade labels, on the rows where a decade is exactly.
+    let per_row = (1.0 / rows_per_decade).max(1.0) as i64;
+    for d in (dlo as i64..=dhi as i64).rev() {
+        if (dhi as i64 - d) % per_row != 0 {
             continue;
         }
         let row = y_of(d as f64, 1.0) as u16;
@@ -155,10 +170,21 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             }
         }
     }
-    // Thresholds.
+    // Thresholds: a dashed line on the nearest row, labelled with its own
+    // value (in place of a decade label there), so it never reads as the
+    // decade of that row.
     for t in &thresholds {
         if (dlo..=dhi).contains(t) {
             let row = y_of(*t, 1.0) as u16;
+            let exact = (t - t.round()).abs() < 1e-9;
+            if !exact {
+                let (mut m, mut e) = (10f64.powf(t - t.floor()).round(), t.floor() as i64);
+                if m >= 10.0 {
+                    (m, e) = (1.0, e + 1);
+                }
+                let label = format!("{m:.0}e{e}");
+                buf.set_string(area.x, plot.y + row, format!("{label:>5}"), look.threshold);
+            }
             for x in (0..plot.width).step_by(2) {
                 buf[(plot.x + x, plot.y + row)]
                     .set_symbol(if look.ascii { "-" } else { "╌" })
@@ -166,8 +192,9 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             }
         }
     }
-    // Series: min–max spans per bucket; gaps stay open.
-    if look.ascii {
+    // Series: min–max spans per bucket; gaps stay open. Without colour
+    // each gauge has its own mark, so the series stay apart.
+    if look.ascii || !look.color {
         for (i, (_, buckets, w)) in series.iter().enumerate() {
             let mark = SERIES_ASCII[i % SERIES_ASCII.len()];
             let style = look.series(i);
@@ -244,7 +271,7 @@ pub fn draw(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     buf.set_string(lx, axis_y, &legend_unit, look.dim);
     lx += legend_unit.len() as u16;
     for (i, (id, _, _)) in series.iter().enumerate() {
-        let text = if look.ascii {
+        let text = if look.ascii || !look.color {
             format!("{} {id}  ", SERIES_ASCII[i % SERIES_ASCII.len()])
         } else {
             format!("━ {id}  ")
