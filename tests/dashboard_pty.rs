@@ -267,9 +267,19 @@ fn chamber_reading(screen: &str) -> Option<(String, String)> {
         .map(|r| (r.1, r.2))
 }
 
-/// The line of the screen mentioning `id`, if any.
+/// The line of the screen mentioning `id`, if any: its row in the alarm
+/// table (which starts at a panel's edge) before any other.
 fn line_of<'a>(screen: &'a str, id: &str) -> Option<&'a str> {
-    screen.lines().find(|l| l.contains(id))
+    let row = [
+        format!("│>{id} "),
+        format!("│ {id} "),
+        format!("|>{id} "),
+        format!("| {id} "),
+    ];
+    screen
+        .lines()
+        .find(|l| row.iter().any(|r| l.contains(r.as_str())))
+        .or_else(|| screen.lines().find(|l| l.contains(id)))
 }
 
 fn alarm_is(screen: &str, id: &str, states: &[&str]) -> bool {
@@ -319,7 +329,7 @@ fn watch_demo_live_keys_and_clean_quit() {
 
     // An alarm raised by the demo, then acknowledged with A.
     d.wait_for("line-regime to alarm", |s| {
-        alarm_is(s, "line-regime", &["ALARM", "rtn-unack"])
+        alarm_is(s, "line-regime", &["unack", "rtn-unack"])
     });
     // A new alarm rings the bell (written just after its frame).
     let deadline = Instant::now() + WAIT;
@@ -374,14 +384,16 @@ fn replay_goto_time_shows_the_trip_alarm() {
     d.send(b"t");
     d.wait_text("go to time");
     d.send(b"09:31:15\r");
-    let s = d.wait_for("ion-high in ALARM", |s| alarm_is(s, "ion-high", &["ALARM"]));
+    let s = d.wait_for("ion-high unacknowledged", |s| {
+        alarm_is(s, "ion-high", &["unack"])
+    });
     assert!(s.contains("2026-11-09 09:31:1"), "title time:\n{s}");
 
     // Back to the start, then the alarm events one by one: the trip is
     // among them and shows as ALARM on the way.
     d.send(b"g");
     d.wait_for("back at the start", |s| {
-        !alarm_is(s, "ion-high", &["ALARM"])
+        !alarm_is(s, "ion-high", &["unack"])
     });
     d.send(b" ");
     d.wait_text("PAUSED");
@@ -394,12 +406,16 @@ fn replay_goto_time_shows_the_trip_alarm() {
         while d.screen() == before && Instant::now() < deadline {
             std::thread::sleep(POLL);
         }
-        if alarm_is(&d.screen(), "ion-high", &["ALARM"]) {
+        if alarm_is(&d.screen(), "ion-high", &["unack"]) {
             seen = true;
             break;
         }
     }
-    assert!(seen, "n never reached ion-high in ALARM:\n{}", d.screen());
+    assert!(
+        seen,
+        "n never reached ion-high unacknowledged:\n{}",
+        d.screen()
+    );
     d.send(b"q");
     d.assert_clean_exit();
 }
@@ -795,7 +811,8 @@ fn a_source_that_never_connects_raises_alarms_after_stale_after() {
     );
     d.wait_text("LIVE");
     let s = d.wait_for("the input and link alarms", |s| {
-        alarm_is(s, "chamber.input", &["ALARM"]) && alarm_is(s, "source-1.link", &["ALARM"])
+        alarm_is(s, "chamber.input", &["unacknowledged"])
+            && alarm_is(s, "source-1.link", &["unacknowledged"])
     });
     assert!(
         line_of(&s, "chamber.input").is_some_and(|l| l.contains("no data")),
@@ -807,4 +824,102 @@ fn a_source_that_never_connects_raises_alarms_after_stale_after() {
     );
     d.send(b"q");
     d.assert_clean_exit();
+}
+
+#[test]
+fn at_80x24_alarm_rows_are_readable_and_help_scrolls() {
+    let mut d = Dash::spawn(&["watch", "--demo"], 24, 80);
+    d.wait_text("LIVE");
+    // Each alarm row: id, severity, state word, value.
+    let s = d.wait_for("the alarm rows", |s| {
+        line_of(s, "ion-high").is_some_and(|l| l.contains("trip"))
+            && line_of(s, "line-regime").is_some_and(|l| l.contains("note"))
+    });
+    assert!(alarm_is(&s, "wall-hot", &["normal"]), "{s}");
+    assert!(
+        line_of(&s, "wall-hot").is_some_and(|l| l.contains(" C")),
+        "{s}"
+    );
+    // Rows below the fold are announced.
+    assert!(s.contains("more ↓"), "{s}");
+    // Length names whole, regime words in their short form.
+    assert!(s.contains("source-to-substrate"), "{s}");
+    // Help scrolls to the legend of the short forms, and closes.
+    d.send(b"?");
+    d.wait_text("CAUTION");
+    for _ in 0..5 {
+        d.send(b"\x1b[6~");
+    }
+    let s = d.wait_text("Short forms");
+    assert!(s.contains("rtn-unack"), "{s}");
+    d.send(b"x");
+    d.wait_for("help to close", |s| !s.contains("Short forms"));
+    d.send(b"q");
+    d.assert_clean_exit();
+}
+
+#[test]
+fn replay_at_80x24_steps_with_r_names_events_and_keeps_quit() {
+    let mut d = Dash::spawn(
+        &[
+            "replay",
+            "sample-logs/demo.csv",
+            "--config",
+            "config/demo.toml",
+            "--speed",
+            "1",
+        ],
+        24,
+        80,
+    );
+    let s = d.wait_text("REPLAY");
+    let footer = s.lines().last().unwrap_or("").to_string();
+    assert!(
+        footer.contains("q:quit") && footer.contains("r:step"),
+        "{s}"
+    );
+    // The window fits the 40-minute log: one hour.
+    d.wait_text("last 60 min");
+    d.send(b"r");
+    d.wait_text("PAUSED");
+    d.send(b"n");
+    let s = d.wait_text("alarm event 1 of");
+    assert!(s.contains("line-regime"), "{s}");
+    // A time after the log's end goes to the end, and says so.
+    d.send(b"t");
+    d.wait_text("go to time");
+    d.send(b"23:59\r");
+    d.wait_text("after the log");
+    d.send(b"q");
+    d.assert_clean_exit();
+}
+
+/// SGR parameters that set a colour (foreground or background).
+fn colour_codes(raw: &str) -> Vec<String> {
+    let re = Regex::new(r"\x1b\[([0-9;]*)m").expect("regex");
+    re.captures_iter(raw)
+        .map(|c| c[1].to_string())
+        .filter(|p| {
+            p.split(';').any(|n| {
+                matches!(
+                    n.parse::<u32>(),
+                    Ok(30..=38 | 40..=48 | 90..=97 | 100..=107)
+                )
+            })
+        })
+        .collect()
+}
+
+#[test]
+fn term_dumb_and_no_color_send_no_colour_and_keep_series_apart() {
+    for env in [&[("TERM", "dumb")][..], &[("NO_COLOR", "1")][..]] {
+        let mut d = Dash::spawn_with(&["watch", "--demo"], 24, 80, env);
+        d.wait_text("LIVE");
+        // The series are told apart by their marks in the legend.
+        d.wait_for("the trend legend", |s| s.contains("o chamber"));
+        d.send(b"q");
+        d.assert_clean_exit();
+        let codes = colour_codes(&d.raw_text());
+        assert!(codes.is_empty(), "{env:?}: colour codes {codes:?}");
+    }
 }

@@ -1035,12 +1035,6 @@ fn status_line(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         )));
     }
     parts.push(Span::raw(format!("unparsed {}  ", app.counters.unparsed)));
-    // Readings folded into the trend's buckets: the display only; the
-    // monitor and the recording keep every reading.
-    parts.push(Span::raw(format!(
-        "folded {} (display only)  ",
-        app.history.decimated()
-    )));
     if app.counters.behind > 100 {
         parts.push(Span::styled(
             format!("DISPLAY BEHIND: {} queued  ", app.counters.behind),
@@ -1072,8 +1066,14 @@ fn status_line(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         (None, None) => None,
     };
     if let Some(t) = trouble.filter(|_| app.message.is_none()) {
-        parts.push(Span::styled(t, look.dim));
+        parts.push(Span::styled(format!("{t}  "), look.dim));
     }
+    // Readings folded into the trend's buckets: the display only; the
+    // monitor and the recording keep every reading. Device trouble first.
+    parts.push(Span::raw(format!(
+        "folded {} (display only)",
+        app.history.decimated()
+    )));
     Paragraph::new(Line::from(parts)).render_into(area, buf);
 }
 
