@@ -194,6 +194,9 @@ pub struct App {
     pub config_path: Option<PathBuf>,
     /// Whether something changed since the last draw.
     pub dirty: bool,
+    /// The gauge the kinetics and flow-regime panels follow; `None`: the
+    /// chamber pressure (the best gauge in range at each moment).
+    pub follow: Option<String>,
 }
 
 /// What a key asks the loop around the app to do.
@@ -252,6 +255,7 @@ impl App {
             color: true,
             config_path: None,
             dirty: true,
+            follow: None,
         }
     }
 
@@ -340,6 +344,33 @@ impl App {
             .iter()
             .map(|a| a.rule.id.clone())
             .collect()
+    }
+
+    /// The panels follow the next pressure gauge: auto, each gauge in
+    /// display order, auto again.
+    pub fn next_follow(&mut self) {
+        let ids: Vec<&String> = self
+            .gauges
+            .iter()
+            .filter(|g| g.unit.is_pressure())
+            .map(|g| &g.id)
+            .collect();
+        let next = match &self.follow {
+            None => ids.first().map(|s| s.to_string()),
+            Some(f) => ids
+                .iter()
+                .position(|g| *g == f)
+                .and_then(|i| ids.get(i + 1))
+                .map(|s| s.to_string()),
+        };
+        self.message = Some(match &next {
+            Some(g) => format!("kinetics follow {g}"),
+            None => format!(
+                "kinetics follow {} (the best gauge in range)",
+                crate::alarm::AUTO
+            ),
+        });
+        self.follow = next;
     }
 
     /// Switches to the next pressure unit.

@@ -17,7 +17,7 @@ pub const FOOTER_REPLAY: &str =
     "?:help  space:pause  </>:speed  ←/→:10s  [/]:1min  {/}:10min  n/p:alarm  t:time  q:quit";
 
 /// Every key, for the help overlay: (keys, what).
-pub const HELP: [(&str, &str); 23] = [
+pub const HELP: [(&str, &str); 24] = [
     ("? h F1", "this help (Esc closes)"),
     ("q", "quit (recording stops cleanly)"),
     ("↑ ↓ j k", "select an alarm or gate"),
@@ -33,6 +33,10 @@ pub const HELP: [(&str, &str); 23] = [
     ("w W", "longer / shorter trend window"),
     ("f", "freeze the display (data keeps recording)"),
     ("x", "start the exposure again from zero"),
+    (
+        "c",
+        "kinetics follow: auto (best gauge in range), each gauge",
+    ),
     ("space", "replay: pause / resume"),
     (".", "replay: one row forward while paused"),
     ("< >", "replay: slower / faster (1x … 1000x, max)"),
@@ -111,6 +115,11 @@ fn jump_to_mark(app: &App, forward: bool) -> Effect {
     }
 }
 
+/// `c`: the gauge the kinetics panel follows (auto → each gauge → auto).
+fn follow_key(app: &mut App) {
+    app.next_follow();
+}
+
 /// Handles one key.
 pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
     app.dirty = true;
@@ -185,6 +194,7 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
             }
         }
         KeyCode::Char('e') => start_edit(app),
+        KeyCode::Char('c') => follow_key(app),
         KeyCode::Char('x') => {
             app.message = Some(match operate(app, Operation::ResetExposure) {
                 Ok(_) => "exposure reset to zero".into(),
