@@ -327,6 +327,21 @@ fn invalid_configs_are_located() {
             ":7:13:",
             "no length named `thorw` is configured",
         ),
+        (
+            "gauge_named_auto.toml",
+            ":2:6:",
+            "`auto` names the chamber pressure",
+        ),
+        (
+            "chamber_pressure_unknown_gauge.toml",
+            ":6:18:",
+            "did you mean `ion`?",
+        ),
+        (
+            "chamber_pressure_unknown_key.toml",
+            ":2:1:",
+            "did you mean `mean_free_path`?",
+        ),
     ];
     let dir = Path::new("tests/invalid_configs");
     let mut seen = 0;

@@ -923,3 +923,88 @@ fn term_dumb_and_no_color_send_no_colour_and_keep_series_apart() {
         assert!(codes.is_empty(), "{env:?}: colour codes {codes:?}");
     }
 }
+/// The mean free path shown in the kinetics panel, in metres.
+fn shown_mean_free_path(screen: &str) -> Option<f64> {
+    let re = Regex::new(r"λ mfp\s+(\d[\d.e+-]*) (nm|um|mm|m|km)\b").expect("regex");
+    let c = re.captures(screen)?;
+    let v: f64 = c[1].parse().ok()?;
+    let scale = match &c[2] {
+        "nm" => 1e-9,
+        "um" => 1e-6,
+        "mm" => 1e-3,
+        "m" => 1.0,
+        _ => 1e3,
+    };
+    Some(v * scale)
+}
+
+/// Late in a pump-down the capacitance gauge is under its range. The
+/// kinetics panel follows the chamber pressure (the best gauge in range,
+/// here the combined gauge) instead of the capacitance gauge's last valid
+/// value, and says so; `c` cycles auto → each gauge → auto.
+#[test]
+fn kinetics_follow_the_chamber_pressure_and_c_picks_a_gauge() {
+    let mut d = Dash::spawn(
+        &[
+            "replay",
+            "sample-logs/pumpdown.csv",
+            "--config",
+            "config/demo.toml",
+            "--from",
+            "10:00",
+            "--speed",
+            "1",
+        ],
+        40,
+        120,
+    );
+    d.wait_text("REPLAY");
+    d.send(b" ");
+    let s = d.wait_for("paused on the chamber pressure", |s| {
+        s.contains("PAUSED") && s.contains("gas kinetics · auto: chamber")
+    });
+    // λ shown is the engine's for the combined gauge's reading and the
+    // measured wall temperature as shown (3 significant digits each).
+    let (p, unit) = chamber_reading(&s).expect("chamber reading");
+    assert_eq!(unit, "mbar");
+    let p_pa: f64 = p.parse::<f64>().expect("number") * 100.0;
+    let t_c: f64 = Regex::new(r"wall\s+(-?\d+\.\d) C")
+        .expect("regex")
+        .captures(&s)
+        .expect("wall temperature")[1]
+        .parse()
+        .expect("number");
+    let n2 = rarefy::engine::mixture::Mixture::pure(
+        rarefy::gas::GasTable::builtin()
+            .get("N2")
+            .expect("N2")
+            .clone(),
+    );
+    let want = rarefy::engine::derive(
+        &rarefy::engine::Conditions::new(p_pa, t_c + 273.15),
+        &n2,
+        &[],
+        &rarefy::engine::Physics::default(),
+    )
+    .mean_free_path_m;
+    let shown = shown_mean_free_path(&s).expect("λ line");
+    assert!(
+        (shown / want - 1.0).abs() < 0.01,
+        "λ shown {shown} m, engine {want} m at {p} mbar:\n{s}"
+    );
+    assert!(shown > 100.0, "hundreds of metres at 2e-7 mbar:\n{s}");
+    // `c`: the capacitance gauge itself, frozen on its last valid value.
+    d.send(b"c");
+    let s = d.wait_text("gas kinetics · cdg · last valid");
+    assert!(shown_mean_free_path(&s).is_some_and(|m| m < 1e-2), "{s}");
+    d.send(b"c");
+    d.wait_for("the combined gauge", |s| {
+        s.contains("gas kinetics · chamber") && !s.contains("auto: chamber")
+    });
+    d.send(b"c");
+    d.wait_text("gas kinetics · ion");
+    d.send(b"c");
+    d.wait_text("gas kinetics · auto: chamber");
+    d.send(b"q");
+    d.assert_clean_exit();
+}

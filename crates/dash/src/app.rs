@@ -203,6 +203,9 @@ pub struct App {
     pub suggested: bool,
     /// How far the help screen can scroll, as last drawn.
     pub help_max: std::cell::Cell<usize>,
+    /// The gauge the kinetics and flow-regime panels follow; `None`: the
+    /// chamber pressure (the best gauge in range at each moment).
+    pub follow: Option<String>,
 }
 
 /// What a key asks the loop around the app to do.
@@ -264,6 +267,7 @@ impl App {
             help_scroll: 0,
             suggested: false,
             help_max: std::cell::Cell::new(0),
+            follow: None,
         }
     }
 
@@ -352,6 +356,33 @@ impl App {
             .iter()
             .map(|a| a.rule.id.clone())
             .collect()
+    }
+
+    /// The panels follow the next pressure gauge: auto, each gauge in
+    /// display order, auto again.
+    pub fn next_follow(&mut self) {
+        let ids: Vec<&String> = self
+            .gauges
+            .iter()
+            .filter(|g| g.unit.is_pressure())
+            .map(|g| &g.id)
+            .collect();
+        let next = match &self.follow {
+            None => ids.first().map(|s| s.to_string()),
+            Some(f) => ids
+                .iter()
+                .position(|g| *g == f)
+                .and_then(|i| ids.get(i + 1))
+                .map(|s| s.to_string()),
+        };
+        self.message = Some(match &next {
+            Some(g) => format!("kinetics follow {g}"),
+            None => format!(
+                "kinetics follow {} (the best gauge in range)",
+                crate::alarm::AUTO
+            ),
+        });
+        self.follow = next;
     }
 
     /// Switches to the next pressure unit.

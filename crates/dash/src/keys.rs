@@ -16,7 +16,7 @@ pub const FOOTER_LIVE: &str =
 pub const FOOTER_REPLAY: &str = "?:help  space:pause  n/p:event  t:time  r:step  </>:speed  ←/→:10s  [/]:1min  {/}:10min  q:quit";
 
 /// Every key, for the help overlay: (keys, what).
-pub const HELP: [(&str, &str); 23] = [
+pub const HELP: [(&str, &str); 24] = [
     ("? h F1", "this help (Esc closes)"),
     ("q", "quit (recording stops cleanly)"),
     ("↑ ↓ j k", "select an alarm or gate"),
@@ -32,6 +32,10 @@ pub const HELP: [(&str, &str); 23] = [
     ("w W", "longer / shorter trend window"),
     ("f", "freeze the display (data keeps recording)"),
     ("x", "start the exposure again from zero"),
+    (
+        "c",
+        "kinetics follow: auto (best gauge in range), each gauge",
+    ),
     ("space", "replay: pause / resume"),
     ("r", "replay: one row forward (pauses)"),
     ("< >", "replay: slower / faster (1x … 1000x, max)"),
@@ -127,6 +131,11 @@ fn jump_to_mark(app: &mut App, forward: bool) -> Effect {
     };
     app.message = Some(message);
     effect
+}
+
+/// `c`: the gauge the kinetics panel follows (auto → each gauge → auto).
+fn follow_key(app: &mut App) {
+    app.next_follow();
 }
 
 /// Handles one key.
@@ -232,6 +241,7 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
             }
         }
         KeyCode::Char('e') => start_edit(app),
+        KeyCode::Char('c') => follow_key(app),
         KeyCode::Char('x') => {
             app.message = Some(match operate(app, Operation::ResetExposure) {
                 Ok(_) => "exposure reset to zero".into(),

@@ -81,7 +81,7 @@ pub(super) fn resolve(
     let length_of = move |name: &str| lengths.iter().find(|l| l.name == name).map(|l| l.length_m);
     let known_gauge = |this: &mut Errors<'_>, g: &toml::Spanned<String>| -> bool {
         let id = g.get_ref();
-        if gauge_ids.is_empty() || gauge_ids.contains(id) {
+        if gauge_ids.is_empty() || gauge_ids.contains(id) || id == crate::alarm::AUTO {
             return true;
         }
         let hint = crate::suggest::nearest(id, gauge_ids.iter().map(String::as_str))
@@ -205,12 +205,10 @@ pub(super) fn resolve(
         for c in &g.conditions {
             match syntax::condition(c.get_ref(), &length_of) {
                 Ok(cond) => {
-                    if cond.gauge.is_none() && out.default_gauge.is_none() {
-                        errs.err(
-                            c.span(),
-                            "the condition names no gauge and [alarms] has no default_gauge",
-                        );
-                    } else if let Some(gid) = &cond.gauge
+                    // A condition that names no gauge, without a default
+                    // gauge, watches the chamber pressure.
+                    if let Some(gid) = &cond.gauge
+                        && gid != crate::alarm::AUTO
                         && !gauge_ids.is_empty()
                         && !gauge_ids.contains(gid)
                     {
@@ -322,15 +320,8 @@ fn from_text(
             spanned.into_inner()
         }
         (None, Some(d)) => d.clone(),
-        (None, None) => {
-            errs.err(
-                text.span(),
-                format!(
-                    "alarm `{id}` names no gauge; begin its condition with one (\"chamber pressure above …\") or set [alarms] default_gauge"
-                ),
-            );
-            return None;
-        }
+        // Neither: the chamber pressure.
+        (None, None) => crate::alarm::AUTO.to_string(),
     };
     rule.id = id.to_string();
     rule.label = a.label.clone().unwrap_or_else(|| id.to_string());
@@ -368,13 +359,8 @@ fn from_keys(
             g.get_ref().clone()
         }
         (None, Some(d)) => d.clone(),
-        (None, None) => {
-            errs.err(
-                a.id.span(),
-                format!("alarm `{id}` names no gauge; give `gauge` or [alarms] default_gauge"),
-            );
-            return None;
-        }
+        // Neither: the chamber pressure.
+        (None, None) => crate::alarm::AUTO.to_string(),
     };
     let quantity = match Quantity::parse(
         quantity_key.get_ref(),

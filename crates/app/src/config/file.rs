@@ -43,6 +43,36 @@ pub struct ConfigFile {
     pub gate: Vec<GateSection>,
     /// `[alarms]`: settings shared by all alarms and gates.
     pub alarms: Option<AlarmsSection>,
+    /// `[chamber_pressure]`: which gauge the chamber pressure comes from.
+    pub chamber_pressure: Option<ChamberPressureSection>,
+}
+
+/// `[chamber_pressure]`: the order of preference of the gauges, and a gauge
+/// fixed for a quantity (keys are the quantity names rules use).
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChamberPressureSection {
+    /// Gauges in order of preference (default: capacitance first, then the
+    /// gas-dependent gauges in config order).
+    pub gauges: Option<Spanned<Vec<Spanned<String>>>>,
+    /// Gauge for `pressure`.
+    pub pressure: Option<Spanned<String>>,
+    /// Gauge for `mean_free_path`.
+    pub mean_free_path: Option<Spanned<String>>,
+    /// Gauge for `knudsen` (every length).
+    pub knudsen: Option<Spanned<String>>,
+    /// Gauge for `impingement`.
+    pub impingement: Option<Spanned<String>>,
+    /// Gauge for `monolayer_time`.
+    pub monolayer_time: Option<Spanned<String>>,
+    /// Gauge for `exposure`.
+    pub exposure: Option<Spanned<String>>,
+    /// Gauge for `rate_of_change`.
+    pub rate_of_change: Option<Spanned<String>>,
+    /// Gauge for `regime` (every length).
+    pub regime: Option<Spanned<String>>,
+    /// Gauge for `vacuum_range`.
+    pub vacuum_range: Option<Spanned<String>>,
 }
 
 /// `[[alarm]]`: one alarm rule.

@@ -75,6 +75,15 @@ pub(super) fn resolve(
             errs.err(g.id.span(), format!("gauge id `{id}` is used twice"));
             continue;
         }
+        if id == crate::alarm::AUTO {
+            errs.err(
+                g.id.span(),
+                format!(
+                    "`{id}` names the chamber pressure (the best gauge in range); give this gauge another id"
+                ),
+            );
+            continue;
+        }
         ids.push(id.clone());
         if let Some(gauge) = gauge(errs, gases, chamber_mixture, id, g) {
             out.push(gauge);

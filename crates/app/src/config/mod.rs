@@ -5,7 +5,7 @@
 //! Each section is resolved by its own module into plain types, with every
 //! problem located at its value: [`chamber`](Chamber), `gas`, `lengths`,
 //! `gauges`, `physics`, `display`, `sources`, `record`, `log` and `alarms`
-//! (`[alarms]`, `[[alarm]]`, `[[gate]]`). This module only reads the file
+//! (`[alarms]`, `[[alarm]]`, `[[gate]]`), `chamber_pressure`. This module only reads the file
 //! and hands each section to its resolver, in dependency order (gases before
 //! gauges, gauges and lengths before alarms).
 //!
@@ -14,6 +14,7 @@
 
 mod alarms;
 mod chamber;
+mod chamber_pressure;
 mod display;
 pub mod edit;
 mod error;
@@ -69,6 +70,8 @@ pub struct Config {
     pub alarms: AlarmConfig,
     /// How to read another logger's CSV (`[log]`), when configured.
     pub log: Option<crate::log::foreign::ForeignLogSpec>,
+    /// How the chamber pressure is chosen (`[chamber_pressure]`).
+    pub chamber_pressure: crate::alarm::ChamberPressure,
 }
 
 impl Default for Config {
@@ -88,6 +91,7 @@ impl Default for Config {
             record: RecordConfig::default(),
             alarms: AlarmConfig::default(),
             log: None,
+            chamber_pressure: crate::alarm::ChamberPressure::default(),
         }
     }
 }
@@ -168,6 +172,7 @@ fn resolve(errs: &mut Errors<'_>, raw: file::ConfigFile) -> Config {
     if let Some(l) = raw.log {
         config.log = log::resolve(errs, l);
     }
+    config.chamber_pressure = chamber_pressure::resolve(errs, &config.gauges, raw.chamber_pressure);
     config.alarms = alarms::resolve(
         errs,
         &config.gauges,

@@ -38,6 +38,7 @@ impl Config {
             rate_window_s: self.alarms.rate_window_s,
             input_severity: self.alarms.input_severity,
             default_gauge: self.alarms.default_gauge.clone(),
+            chamber: self.chamber_pressure.clone(),
             pressure_unit: self.display.pressure_unit,
             temperature_unit: self.display.temperature_unit,
         }

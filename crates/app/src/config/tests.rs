@@ -326,3 +326,46 @@ fn the_sample_configs_commented_text_alarm_is_valid() {
         .expect("the text alarm");
     assert_eq!(rule.rule.on_delay_s, 5.0);
 }
+
+#[test]
+fn chamber_pressure_section_and_gauge_less_conditions() {
+    let text = r#"
+[[gauge]]
+id = "cdg"
+kind = "capacitance"
+
+[[gauge]]
+id = "ion"
+kind = "ionization"
+
+[chamber_pressure]
+gauges = ["ion", "cdg"]
+mean_free_path = "ion"
+
+[[alarm]]
+id = "high"
+quantity = "pressure"
+above = "1e-3 mbar"
+
+[[gate]]
+id = "ready"
+conditions = ["pressure below 5e-6 mbar", "auto mean_free_path above 1 m"]
+hold = "1 s"
+"#;
+    let c = parse(text, Path::new("t.toml")).unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(c.chamber_pressure.order, ["ion", "cdg"]);
+    assert_eq!(
+        c.chamber_pressure
+            .fixed
+            .get("mean_free_path")
+            .map(String::as_str),
+        Some("ion")
+    );
+    // No gauge and no default gauge: the chamber pressure.
+    assert_eq!(c.alarms.rules[0].rule.gauge, crate::alarm::AUTO);
+    assert_eq!(c.alarms.gates[0].conditions[0].gauge, None);
+    let e = one_error(
+        "[[gauge]]\nid = \"cdg\"\nkind = \"capacitance\"\n[chamber_pressure]\ngauges = [\"cdg\", \"cdg\"]\n",
+    );
+    assert!(e.to_string().contains("listed twice"), "{e}");
+}

@@ -114,8 +114,8 @@ pub fn start(sources: Vec<SourceConfig>, queue: usize) -> Started {
 }
 
 /// One-off alarms from `--alarm` texts. The gauge, when a text names none:
-/// the config's default gauge, else its first gauge, else the only pressure
-/// channel the sources announce.
+/// the config's default gauge, else the chamber pressure (`auto`) when the
+/// config has gauges, else the only pressure channel the sources announce.
 pub fn cli_rules(
     texts: &[String],
     config: &Config,
@@ -126,7 +126,7 @@ pub fn cli_rules(
         .alarms
         .default_gauge
         .clone()
-        .or_else(|| config.gauges.first().map(|g| g.id.clone()))
+        .or_else(|| (!config.gauges.is_empty()).then(|| crate::alarm::AUTO.to_string()))
         .or_else(|| match pressure.as_slice() {
             [only] => Some(only.id.clone()),
             _ => None,

@@ -6,11 +6,13 @@
 //!   severity and latching, in the states of ISA-18.2 / IEC 62682.
 //! * [`gate`]: conditions that must all hold continuously for a duration.
 //! * [`syntax`]: the small language of conditions and one-off alarms.
+//! * [`chamber`]: the chamber pressure, the best gauge in range now.
 //! * [`monitor`]: keeps each gauge's latest kinetics and drives both.
 //! * [`event`]: the transitions, as JSON lines.
 //!
 //! Alarms are advisory: rarefy is not a safety interlock.
 
+pub mod chamber;
 pub mod event;
 pub mod gate;
 pub mod monitor;
@@ -19,8 +21,11 @@ pub mod rule;
 pub mod syntax;
 
 #[cfg(test)]
+mod chamber_tests;
+#[cfg(test)]
 mod tests;
 
+pub use chamber::{AUTO, ChamberPressure, ChamberSource};
 pub use event::{Actor, Change, EVENT_VERSION, Event, EventKind, Operation};
 pub use gate::{Gate, GateMachine, GateState};
 pub use monitor::{Monitor, MonitorSetup, RuleSpec};

@@ -6,6 +6,7 @@ use std::collections::{BTreeMap, VecDeque};
 
 use chrono::{DateTime, Utc};
 
+use super::chamber::{AUTO, ChamberPressure, ChamberSource};
 use super::event::{Actor, Change, EVENT_VERSION, Event, Operation};
 use super::gate::{Check, Gate, GateMachine, GateState};
 use super::quantity::{Class, Quantity};
@@ -63,8 +64,11 @@ pub struct MonitorSetup {
     pub rate_window_s: f64,
     /// Severity of the automatic bad-input alarms.
     pub input_severity: Severity,
-    /// Gauge used by conditions that name none.
+    /// Gauge used by conditions that name none; without one they watch the
+    /// chamber pressure ([`AUTO`]).
     pub default_gauge: Option<String>,
+    /// How the chamber pressure is chosen.
+    pub chamber: ChamberPressure,
     /// Units for event texts.
     pub pressure_unit: PressureUnit,
     /// Units for event texts.
@@ -241,6 +245,9 @@ impl Monitor {
                 }
             }
         }
+        watched.extend(setup.chamber.order.iter().cloned());
+        watched.extend(setup.chamber.fixed.values().cloned());
+        watched.retain(|g| g != AUTO);
         watched.sort();
         watched.dedup();
         let inputs = watched
@@ -550,6 +557,96 @@ impl Monitor {
         track.fit_rates(self.setup.rate_window_s);
     }
 
+    /// Where the chamber pressure of quantity `q` comes from at the
+    /// monitor's data time: the gauge the configuration fixes for it, else
+    /// the best gauge in its range (see [`super::chamber`]). `None` while no
+    /// gauge is in range.
+    pub fn chamber_source(&self, q: &Quantity) -> Option<ChamberSource> {
+        self.chamber_at(q, self.now?)
+    }
+
+    /// The track of the chamber pressure for quantity `q` now, with its
+    /// source.
+    pub fn chamber_track(&self, q: &Quantity) -> Option<(ChamberSource, &GaugeTrack)> {
+        let source = self.chamber_source(q)?;
+        let track = self.tracks.get(&source.gauge)?;
+        Some((source, track))
+    }
+
+    /// Gauges the chamber pressure may come from, best first.
+    pub fn chamber_candidates(&self) -> Vec<String> {
+        if !self.setup.chamber.order.is_empty() {
+            return self.setup.chamber.order.clone();
+        }
+        let configured = &self.setup.gauges;
+        let independent = configured
+            .iter()
+            .filter(|g| !g.model.kind.is_gas_dependent());
+        let dependent = configured
+            .iter()
+            .filter(|g| g.model.kind.is_gas_dependent());
+        let mut out: Vec<String> = independent.chain(dependent).map(|g| g.id.clone()).collect();
+        for (id, t) in &self.tracks {
+            if t.is_pressure && !out.contains(id) {
+                out.push(id.clone());
+            }
+        }
+        out
+    }
+
+    /// Whether gauge `id` reads a usable pressure at `now`: fresh, `ok`,
+    /// inside its configured range, with kinetics.
+    fn in_range(&self, id: &str, now: DateTime<Utc>) -> bool {
+        let Some(t) = self.tracks.get(id) else {
+            return false;
+        };
+        let inside = match (self.setup.gauges.iter().find(|g| g.id == id), t.indicated) {
+            (Some(g), Some(v)) => g
+                .model
+                .range_pa
+                .is_none_or(|(lo, hi)| (lo..=hi).contains(&v)),
+            (_, v) => v.is_some(),
+        };
+        t.is_pressure
+            && t.status == Status::Ok
+            && !self.stale(t, now)
+            && inside
+            && t.pressure_pa.is_some()
+            && t.derived.is_some()
+    }
+
+    fn chamber_at(&self, q: &Quantity, now: DateTime<Utc>) -> Option<ChamberSource> {
+        if let Some(g) = self.setup.chamber.fixed_for(q) {
+            return Some(ChamberSource {
+                gauge: g.to_string(),
+                fixed: true,
+            });
+        }
+        if q.is_temperature() {
+            // The first temperature channel with a fresh valid reading.
+            return self
+                .tracks
+                .iter()
+                .find(|(_, t)| {
+                    !t.is_pressure
+                        && t.status == Status::Ok
+                        && t.temperature_k.is_some()
+                        && !self.stale(t, now)
+                })
+                .map(|(id, _)| ChamberSource {
+                    gauge: id.clone(),
+                    fixed: false,
+                });
+        }
+        self.chamber_candidates()
+            .into_iter()
+            .find(|id| self.in_range(id, now))
+            .map(|gauge| ChamberSource {
+                gauge,
+                fixed: false,
+            })
+    }
+
     fn stale(&self, track: &GaugeTrack, now: DateTime<Utc>) -> bool {
         track
             .last_time
@@ -558,6 +655,12 @@ impl Monitor {
 
     /// The input a quantity of a gauge gives now.
     fn input(&self, gauge: &str, q: &Quantity, now: DateTime<Utc>) -> Input {
+        if gauge == AUTO {
+            return match self.chamber_at(q, now) {
+                Some(s) if s.gauge != AUTO => self.input(&s.gauge, q, now),
+                _ => Input::Unusable,
+            };
+        }
         let Some(track) = self.tracks.get(gauge) else {
             return Input::Unusable;
         };
@@ -603,9 +706,23 @@ impl Monitor {
     }
 
     fn check(&self, c: &Condition, now: DateTime<Utc>) -> Check {
-        let Some(gauge) = c.gauge.as_deref().or(self.setup.default_gauge.as_deref()) else {
-            return Check::Unknown("no gauge named and no default gauge".into());
+        let named = c
+            .gauge
+            .as_deref()
+            .or(self.setup.default_gauge.as_deref())
+            .unwrap_or(AUTO);
+        // The chamber pressure is reported as the gauge it comes from.
+        let source = (named == AUTO)
+            .then(|| self.chamber_at(&c.quantity, now))
+            .flatten();
+        if named == AUTO && source.is_none() {
+            return Check::Unknown("no gauge in range for the chamber pressure".into());
+        }
+        let shown_name = match &source {
+            Some(s) => format!("chamber pressure ({})", s.gauge),
+            None => named.to_string(),
         };
+        let gauge = source.as_ref().map_or(named, |s| s.gauge.as_str());
         let input = self.input(gauge, &c.quantity, now);
         let shown = self.input_text(&c.quantity, input).unwrap_or_default();
         let holds =
@@ -618,20 +735,22 @@ impl Monitor {
                 | (CondTest::Below(_), Input::OverRange) => false,
                 (CondTest::Is(k), Input::Class(v)) => v == *k,
                 (CondTest::IsNot(k), Input::Class(v)) => v != *k,
-                (_, Input::Disabled) => return Check::Unknown(format!("{gauge} is switched off")),
+                (_, Input::Disabled) => {
+                    return Check::Unknown(format!("{shown_name} is switched off"));
+                }
                 _ => {
                     let why = match self.tracks.get(gauge) {
                         None => "no reading yet".to_string(),
                         Some(t) if self.stale(t, now) => "reading is stale".to_string(),
                         Some(t) => format!("reading is {}", t.status),
                     };
-                    return Check::Unknown(format!("{gauge} {why}"));
+                    return Check::Unknown(format!("{shown_name} {why}"));
                 }
             };
         if holds {
             Check::Holds
         } else {
-            Check::Fails(format!("{gauge} is {shown}"))
+            Check::Fails(format!("{shown_name} is {shown}"))
         }
     }
 

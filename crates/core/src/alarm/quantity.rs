@@ -91,6 +91,23 @@ impl Quantity {
         }
     }
 
+    /// The quantity's name as written in configs (`knudsen`, `regime` without
+    /// their length; both rate forms are `rate_of_change`).
+    pub fn name(&self) -> &'static str {
+        match self {
+            Quantity::Pressure => "pressure",
+            Quantity::Temperature => "temperature",
+            Quantity::MeanFreePath => "mean_free_path",
+            Quantity::Knudsen(_) => "knudsen",
+            Quantity::Impingement => "impingement",
+            Quantity::MonolayerTime => "monolayer_time",
+            Quantity::Exposure => "exposure",
+            Quantity::RateOfChange | Quantity::DecadesPerMinute => "rate_of_change",
+            Quantity::Regime(_) => "regime",
+            Quantity::VacuumRange => "vacuum_range",
+        }
+    }
+
     /// Whether the quantity is a class (regime, range) rather than a number.
     pub fn is_class(&self) -> bool {
         matches!(self, Quantity::Regime(_) | Quantity::VacuumRange)

@@ -318,6 +318,7 @@ fn setup(rules: Vec<Rule>, gates: Vec<Gate>) -> MonitorSetup {
         rate_window_s: 10.0,
         input_severity: Severity::Warning,
         default_gauge: Some("g".into()),
+        chamber: Default::default(),
         pressure_unit: PressureUnit::Mbar,
         temperature_unit: TemperatureUnit::C,
     }

@@ -16,6 +16,7 @@ use ratatui::widgets::{Block, Borders, Clear, Paragraph};
 
 use super::app::{App, Overlay};
 use super::keys::{FOOTER_LIVE, FOOTER_REPLAY, HELP};
+use crate::alarm::quantity::Quantity;
 use crate::alarm::rule::Severity;
 use crate::alarm::{AlarmState, GateState};
 use crate::sample::{ChannelUnit, SourceState, Status};
@@ -538,26 +539,22 @@ fn readings(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     Paragraph::new(lines).render_into(inner, buf);
 }
 
-/// The gauge whose kinetics are shown: the default gauge, else the first
-/// pressure gauge with a valid reading.
-fn primary(app: &App) -> Option<String> {
+/// The gauge whose quantity `q` is shown: the one the operator chose with
+/// `c`, else the chamber pressure's source now (`None` while no gauge is in
+/// range). The flag says whether it is the automatic choice.
+fn primary(app: &App, q: &Quantity) -> Option<(String, bool)> {
     let (monitor, _, _) = app.shown();
-    monitor.setup().default_gauge.clone().or_else(|| {
-        app.gauges
-            .iter()
-            .filter(|g| g.unit.is_pressure())
-            .find(|g| {
-                monitor
-                    .track(&g.id)
-                    .is_some_and(|t| t.pressure_pa.is_some())
-            })
-            .map(|g| g.id.clone())
-    })
+    match &app.follow {
+        Some(g) => Some((g.clone(), false)),
+        None => monitor.chamber_source(q).map(|s| (s.gauge, true)),
+    }
 }
 
 fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let (monitor, _, _) = app.shown();
-    let id = primary(app);
+    let chosen = primary(app, &Quantity::Pressure);
+    let auto = app.follow.is_none();
+    let id = chosen.as_ref().map(|c| c.0.clone());
     let stale = id
         .as_deref()
         .and_then(|g| monitor.track(g))
@@ -566,16 +563,33 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
                 (n - l).num_milliseconds() as f64 / 1000.0 > monitor.setup().stale_after_s
             }) || !t.status.is_ok()
         });
-    let title = format!(
-        "gas kinetics · {}{}",
-        id.as_deref().unwrap_or("-"),
-        if stale { " · last valid" } else { "" }
-    );
+    let title = match (auto, id.as_deref()) {
+        (true, Some(g)) => format!("gas kinetics · {}: {g}", crate::alarm::AUTO),
+        (true, None) => format!("gas kinetics · {}", crate::alarm::AUTO),
+        (false, g) => format!(
+            "gas kinetics · {}{}",
+            g.unwrap_or("-"),
+            if stale { " · last valid" } else { "" }
+        ),
+    };
     let inner = look.frame(&title, area, buf);
     let track = id.as_deref().and_then(|g| monitor.track(g));
     let Some((d, track)) = track.and_then(|t| t.derived.as_ref().map(|d| (d, t))) else {
-        Paragraph::new(Line::styled("no valid pressure yet", look.dim)).render_into(inner, buf);
+        let why = if auto && monitor.now().is_some() && monitor.tracks().next().is_some() {
+            "no gauge in range"
+        } else {
+            "no valid pressure yet"
+        };
+        Paragraph::new(Line::styled(why, look.dim)).render_into(inner, buf);
         return;
+    };
+    // A gauge the configuration fixes for the mean free path.
+    let mfp = match primary(app, &Quantity::MeanFreePath) {
+        Some((g, _)) if auto => monitor
+            .track(&g)
+            .and_then(|t| t.derived.as_ref())
+            .map_or(d.mean_free_path_m, |x| x.mean_free_path_m),
+        _ => d.mean_free_path_m,
     };
     let gas = monitor
         .setup()
@@ -626,7 +640,7 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             ),
             pair(
                 look.sym("λ", "mfp"),
-                length(d.mean_free_path_m),
+                length(mfp),
                 "range",
                 d.vacuum_range.to_string(),
             ),
@@ -652,7 +666,7 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             look.sym("v̄ mean", "v mean"),
             format!("{} m/s", format_sig(d.mean_speed_m_per_s, 3)),
         ),
-        row(look.sym("λ mfp", "mfp"), length(d.mean_free_path_m)),
+        row(look.sym("λ mfp", "mfp"), length(mfp)),
         row(
             look.sym("Φ impinge", "impinge"),
             format!("{} /m2/s", format_sig(d.impingement_per_m2_s, 3)),
@@ -696,7 +710,7 @@ fn duration(s: f64) -> String {
 fn lengths(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let (monitor, _, _) = app.shown();
     let inner = look.frame("flow regime", area, buf);
-    let id = primary(app);
+    let id = primary(app, &Quantity::Regime(String::new())).map(|c| c.0);
     let d = id
         .as_deref()
         .and_then(|g| monitor.track(g))

@@ -1,0 +1,182 @@
+//! The chamber pressure: the best gauge in range at each data time, fixed
+//! gauges per quantity, and conditions that name no gauge.
+
+use chrono::{DateTime, Duration, TimeZone, Utc};
+
+use super::chamber::{AUTO, ChamberPressure};
+use super::gate::{Gate, GateState};
+use super::monitor::{GaugeSetup, Monitor, MonitorSetup};
+use super::quantity::Quantity;
+use super::syntax;
+use crate::engine::gauge::GaugeKind;
+use crate::engine::mixture::Mixture;
+use crate::engine::{Conditions, GaugeModel, GaugeOverrides, NamedLength, Physics, derive};
+use crate::gas::GasTable;
+use crate::sample::{ChannelUnit, Fault, Sample};
+use crate::units::{PressureUnit, TemperatureUnit};
+
+const MBAR: ChannelUnit = ChannelUnit::Pressure(PressureUnit::Mbar);
+
+fn t(s: f64) -> DateTime<Utc> {
+    Utc.timestamp_opt(1_800_000_000, 0).single().expect("time")
+        + Duration::milliseconds((s * 1000.0) as i64)
+}
+
+fn gas(id: &str) -> Mixture {
+    Mixture::pure(GasTable::builtin().get(id).expect("built-in gas").clone())
+}
+
+fn gauge(id: &str, kind: GaugeKind, mixture: &Mixture, range_mbar: (f64, f64)) -> GaugeSetup {
+    let overrides = GaugeOverrides {
+        range_pa: Some((range_mbar.0 * 100.0, range_mbar.1 * 100.0)),
+        ..GaugeOverrides::default()
+    };
+    GaugeSetup {
+        id: id.into(),
+        model: GaugeModel::new(kind, mixture, &overrides).expect("model"),
+        mixture: mixture.clone(),
+    }
+}
+
+/// The demo chamber's three gauges, the ionization gauge listed first so
+/// that the automatic order has to put the capacitance gauge ahead of it.
+fn setup(mixture: &Mixture) -> MonitorSetup {
+    MonitorSetup {
+        gauges: vec![
+            gauge("ion", GaugeKind::Ionization, mixture, (1e-10, 1e-3)),
+            gauge("cdg", GaugeKind::Capacitance, mixture, (1e-4, 11.0)),
+            gauge("chamber", GaugeKind::Combined, mixture, (5e-10, 1100.0)),
+        ],
+        mixture: mixture.clone(),
+        lengths: vec![NamedLength::new("throw", 0.15)],
+        physics: Physics::default(),
+        assumed_temperature_k: 295.15,
+        rules: vec![],
+        gates: vec![],
+        stale_after_s: 10.0,
+        rate_window_s: 10.0,
+        input_severity: super::rule::Severity::Warning,
+        default_gauge: None,
+        chamber: ChamberPressure::default(),
+        pressure_unit: PressureUnit::Mbar,
+        temperature_unit: TemperatureUnit::C,
+    }
+}
+
+fn row(s: f64, cdg: Result<f64, Fault>, chamber: f64, ion: Result<f64, Fault>) -> Vec<Sample> {
+    let one = |id: &str, v: Result<f64, Fault>| match v {
+        Ok(v) => Sample::ok(t(s), id, v, MBAR),
+        Err(f) => Sample::bad(t(s), id, MBAR, f),
+    };
+    vec![
+        one("cdg", cdg),
+        Sample::ok(t(s), "chamber", chamber, MBAR),
+        one("ion", ion),
+    ]
+}
+
+fn source(m: &Monitor, q: &Quantity) -> Option<String> {
+    m.chamber_source(q).map(|s| s.gauge)
+}
+
+#[test]
+fn capacitance_first_then_gas_dependent_never_a_bad_one() {
+    let mut m = Monitor::new(setup(&gas("N2")));
+    assert_eq!(source(&m, &Quantity::Pressure), None, "no data yet");
+    // Roughing: the capacitance gauge in range is preferred.
+    m.push(&row(0.0, Ok(5.0), 5.2, Err(Fault::SensorOff)));
+    assert_eq!(source(&m, &Quantity::Pressure).as_deref(), Some("cdg"));
+    // The capacitance gauge under its range: the gas-dependent gauges, in
+    // config order (the ionization gauge is listed first).
+    m.push(&row(10.0, Err(Fault::UnderRange), 2e-7, Ok(2.1e-7)));
+    assert_eq!(source(&m, &Quantity::Pressure).as_deref(), Some("ion"));
+    // Ion gauge reading above its configured range (1e-3 mbar) is skipped
+    // even though the device says ok.
+    m.push(&row(20.0, Err(Fault::UnderRange), 2e-3, Ok(2e-3)));
+    assert_eq!(source(&m, &Quantity::Pressure).as_deref(), Some("chamber"));
+    // A capacitance reading below its configured range is not in range.
+    m.push(&row(30.0, Ok(5e-5), 5e-5, Ok(5e-5)));
+    assert_eq!(source(&m, &Quantity::Pressure).as_deref(), Some("ion"));
+}
+
+#[test]
+fn a_stale_gauge_is_left_for_a_fresh_one_on_data_time() {
+    let mut m = Monitor::new(setup(&gas("N2")));
+    m.push(&row(0.0, Ok(1e-2), 1e-2, Err(Fault::SensorOff)));
+    assert_eq!(source(&m, &Quantity::Pressure).as_deref(), Some("cdg"));
+    // Only the combined gauge keeps reporting: the capacitance gauge's last
+    // value goes stale after 10 s of data time and is never used again.
+    m.push(&[Sample::ok(t(6.0), "chamber", 8e-3, MBAR)]);
+    m.push(&[Sample::ok(t(12.0), "chamber", 7e-3, MBAR)]);
+    assert_eq!(source(&m, &Quantity::Pressure).as_deref(), Some("chamber"));
+    let (_, track) = m.chamber_track(&Quantity::Pressure).expect("a source");
+    let p = track.pressure_pa.expect("pressure");
+    assert!((p - 0.7).abs() < 1e-12, "7e-3 mbar is 0.7 Pa: {p}");
+}
+
+#[test]
+fn the_gauge_fixed_for_a_quantity_wins() {
+    let mut s = setup(&gas("N2"));
+    s.chamber
+        .fixed
+        .insert("mean_free_path".into(), "chamber".into());
+    let mut m = Monitor::new(s);
+    m.push(&row(0.0, Ok(5.0), 5.2, Err(Fault::SensorOff)));
+    assert_eq!(source(&m, &Quantity::Pressure).as_deref(), Some("cdg"));
+    let fixed = m
+        .chamber_source(&Quantity::MeanFreePath)
+        .expect("fixed gauge");
+    assert_eq!((fixed.gauge.as_str(), fixed.fixed), ("chamber", true));
+}
+
+#[test]
+fn an_explicit_order_is_followed() {
+    let mut s = setup(&gas("N2"));
+    s.chamber.order = vec!["chamber".into(), "cdg".into()];
+    let mut m = Monitor::new(s);
+    m.push(&row(0.0, Ok(5.0), 5.2, Err(Fault::SensorOff)));
+    assert_eq!(source(&m, &Quantity::Pressure).as_deref(), Some("chamber"));
+}
+
+/// A gate that names no gauge watches the chamber pressure: it follows the
+/// capacitance gauge while in range and the ionization gauge below it. The
+/// mean free path it compares is the engine's for the chosen reading.
+#[test]
+fn a_condition_without_gauge_uses_the_chamber_pressure() {
+    let mut s = setup(&gas("N2"));
+    s.gates = vec![Gate {
+        id: "ready".into(),
+        label: "Ready".into(),
+        conditions: vec![
+            syntax::condition("mean_free_path above 10 x throw", &|l| {
+                (l == "throw").then_some(0.15)
+            })
+            .expect("condition"),
+        ],
+        hold_s: 0.0,
+    }];
+    let mut m = Monitor::new(s);
+    // The stale capacitance value 7e-3 mbar would say λ ≈ 9 mm: not ready.
+    m.push(&row(0.0, Ok(7e-3), 7e-3, Err(Fault::SensorOff)));
+    assert_eq!(m.gates()[0].state(), GateState::NotReady);
+    let ev = m.push(&row(10.0, Err(Fault::UnderRange), 2e-7, Ok(2e-7)));
+    assert_eq!(m.gates()[0].state(), GateState::Ready, "{ev:?}");
+    // What the gate compared: the engine's λ at 2e-7 mbar of N2 (computed
+    // here independently of the monitor).
+    let d = derive(
+        &Conditions::new(2e-5, 295.15),
+        &gas("N2"),
+        &[NamedLength::new("throw", 0.15)],
+        &Physics::default(),
+    );
+    let (src, track) = m.chamber_track(&Quantity::MeanFreePath).expect("source");
+    assert_eq!(src.gauge, "ion");
+    let got = track.derived.as_ref().expect("kinetics").mean_free_path_m;
+    assert!(
+        (got / d.mean_free_path_m - 1.0).abs() < 1e-12,
+        "{got} vs {d:?}"
+    );
+    assert!(got > 1.5, "λ at 2e-7 mbar is hundreds of metres: {got}");
+    // No bad-input alarm for the pseudo-gauge itself.
+    assert!(m.alarms().iter().all(|a| a.rule.gauge != AUTO));
+}
