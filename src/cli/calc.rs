@@ -56,8 +56,13 @@ pub struct CalcArgs {
     #[arg(long, value_enum)]
     gauge: Option<GaugeArg>,
     /// Gauge sensitivity relative to N2 (reading / true pressure), replacing the table's.
+    /// For a combined gauge: its ionization element's (readings below 0.1 Pa).
     #[arg(long, allow_hyphen_values = true, value_parser = positive_number, requires = "gauge")]
     sensitivity: Option<f64>,
+    /// A combined gauge's thermal-element sensitivity (readings at or above 0.1 Pa),
+    /// replacing the table's.
+    #[arg(long, allow_hyphen_values = true, value_parser = positive_number, requires = "gauge")]
+    thermal_sensitivity: Option<f64>,
     /// Diameter model.
     #[arg(long, value_enum)]
     model: Option<ModelArg>,
@@ -240,17 +245,60 @@ pub fn run(args: &CalcArgs) -> Result<ExitCode, CliError> {
     let mut gauge_warnings: Vec<Warning> = Vec::new();
     let (pressure_pa, sensitivity) = match args.gauge {
         Some(kind) => {
+            let kind = GaugeKind::from(kind);
+            if args.thermal_sensitivity.is_some() && kind != GaugeKind::Combined {
+                return Err(CliError::Usage(format!(
+                    "--thermal-sensitivity: applies to a combined gauge; for a {kind} gauge give --sensitivity"
+                )));
+            }
             let overrides = GaugeOverrides {
                 sensitivity: args.sensitivity,
+                thermal_sensitivity: args.thermal_sensitivity,
                 ..GaugeOverrides::default()
             };
-            let model = GaugeModel::new(kind.into(), &mixture, &overrides).map_err(|e| {
-                CliError::Usage(format!(
-                    "--gauge: {e}; on the command line: --sensitivity S"
-                ))
+            let element = kind.element(indicated_pa);
+            let flag = if element == GaugeKind::Thermal && kind == GaugeKind::Combined {
+                "--thermal-sensitivity"
+            } else {
+                "--sensitivity"
+            };
+            let model = GaugeModel::new(kind, &mixture, &overrides).map_err(|e| {
+                CliError::Usage(format!("--gauge: {e}; on the command line: {flag} S"))
             })?;
             let c = model.correct(indicated_pa);
+            if !c.pressure_pa.is_finite() {
+                // Only a combined gauge's element without a factor gets here.
+                let why = c
+                    .warnings
+                    .iter()
+                    .find(|w| w.code == "no-gauge-sensitivity")
+                    .map_or_else(|| "cannot correct the reading".into(), |w| w.to_string());
+                return Err(CliError::Usage(format!(
+                    "--gauge {kind}: {why}; on the command line: {flag} S"
+                )));
+            }
             gauge_warnings = c.warnings;
+            // A combined gauge's factor for the element that did not read is
+            // not silently dropped: say so.
+            let unused = match element {
+                GaugeKind::Thermal => args.sensitivity.map(|s| ("--sensitivity", s, "ionization")),
+                _ => args
+                    .thermal_sensitivity
+                    .map(|s| ("--thermal-sensitivity", s, "thermal")),
+            };
+            if kind == GaugeKind::Combined
+                && let Some((flag, s, other)) = unused
+            {
+                gauge_warnings.push(Warning {
+                    code: "sensitivity-not-applied",
+                    message: format!(
+                        "{flag} {s} is the combined gauge's {other}-element factor; this reading \
+                         ({indicated_pa:.3e} Pa, crossover {} Pa) comes from the {element} element \
+                         and was corrected with that element's factor",
+                        crate::engine::gauge::COMBINED_CROSSOVER_PA
+                    ),
+                });
+            }
             (c.pressure_pa, c.sensitivity)
         }
         None => (indicated_pa, None),

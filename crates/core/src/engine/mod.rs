@@ -25,7 +25,6 @@ use serde::{Deserialize, Serialize};
 use std::fmt;
 
 use crate::gas::Gas;
-use crate::units::ATM_PA;
 use constants::molecular_mass;
 use gauge::{CalibrationTable, GaugeKind, Response, TableFit};
 use mixture::Mixture;
@@ -261,7 +260,7 @@ pub fn derive(
     let p = conditions.pressure_pa;
     let t = conditions.temperature_k;
     let mut warnings = Vec::new();
-    if p > ATM_PA * 1.05 {
+    if p > regime::ABOVE_ATMOSPHERIC_PA {
         warnings.push(Warning::new(
             "above-atmospheric",
             format!("{p:.3e} Pa is above atmospheric pressure: not a vacuum"),
@@ -352,6 +351,10 @@ pub fn derive(
         warnings,
     }
 }
+
+/// Upper end of a thermal gauge's linear range, true pressure, Pa (about
+/// 1 mbar; common practice, no source).
+pub const THERMAL_LINEAR_BELOW_PA: f64 = 100.0;
 
 /// What stops a gauge's reading from being corrected for the gas.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -461,10 +464,20 @@ impl GaugeModel {
                 let r = factor(GaugeKind::Thermal, overrides.sensitivity)?;
                 (r.clone(), r)
             }
-            GaugeKind::Combined => (
-                factor(GaugeKind::Ionization, overrides.sensitivity)?,
-                factor(GaugeKind::Thermal, overrides.thermal_sensitivity)?,
-            ),
+            // Each element of a combined gauge reads its own decades: a gas
+            // with no factor for one element still has corrected readings
+            // from the other.
+            GaugeKind::Combined => {
+                let ion = factor(GaugeKind::Ionization, overrides.sensitivity);
+                let thermal = factor(GaugeKind::Thermal, overrides.thermal_sensitivity);
+                match (ion, thermal) {
+                    (Err(e), Err(_)) => return Err(e),
+                    (ion, thermal) => (
+                        ion.unwrap_or_else(Response::Missing),
+                        thermal.unwrap_or_else(Response::Missing),
+                    ),
+                }
+            }
         };
         Ok(GaugeModel {
             kind,
@@ -474,8 +487,22 @@ impl GaugeModel {
         })
     }
 
+    /// Why one element of a combined gauge has no correction, if so. A
+    /// monitored gauge needs both (a config refuses it); a single reading
+    /// needs only the element that reads it.
+    pub fn missing(&self) -> Option<&GaugeError> {
+        [&self.ionization, &self.thermal]
+            .into_iter()
+            .find_map(|r| match r {
+                Response::Missing(e) => Some(e),
+                _ => None,
+            })
+    }
+
     /// Corrects an indicated reading, flagging one outside the gauge's range
-    /// or outside its calibration table.
+    /// or outside its calibration table. A reading from a combined gauge's
+    /// element with no factor comes back as NaN with a `no-gauge-sensitivity`
+    /// warning: a number that cannot be corrected is never passed off as one.
     pub fn correct(&self, indicated_pa: f64) -> Corrected {
         let mut warnings = Vec::new();
         if let Some((lo, hi)) = self.range_pa
@@ -508,22 +535,35 @@ impl GaugeModel {
                 ),
             ));
         }
+        if let Response::Missing(e) = response {
+            warnings.push(Warning::new(
+                "no-gauge-sensitivity",
+                format!(
+                    "reading {indicated_pa:.3e} Pa comes from the {} element: {e}",
+                    self.kind.element(indicated_pa)
+                ),
+            ));
+        }
+        // Linearity is a property of the true pressure in the gauge, not of
+        // the N2-equivalent number it shows.
         if self.kind.element(indicated_pa) == GaugeKind::Thermal
             && let Response::Sensitivity(s) = response
             && *s != 1.0
-            && indicated_pa > 100.0
+            && pressure_pa > THERMAL_LINEAR_BELOW_PA
         {
             warnings.push(Warning::new(
                 "thermal-factor-nonlinear",
-                "a constant gas factor for a thermal gauge holds only in its linear range \
-                 (below about 1 mbar); above, use a calibration table"
-                    .to_string(),
+                format!(
+                    "true pressure {pressure_pa:.3e} Pa: a constant gas factor for a thermal \
+                     gauge holds only in its linear range (below about 1 mbar); above, use a \
+                     calibration table"
+                ),
             ));
         }
         let sensitivity = match response {
             Response::Direct => Some(1.0),
             Response::Sensitivity(s) => Some(*s),
-            Response::Table(_) => None,
+            Response::Table(_) | Response::Missing(_) => None,
         };
         Corrected {
             pressure_pa,

@@ -298,3 +298,62 @@ fn calibration_table_replaces_the_factor() {
             .any(|w| w.code == "calibration-extrapolated")
     );
 }
+
+#[test]
+fn combined_gauge_without_a_thermal_factor_reads_below_the_crossover() {
+    // Ar has an ionization factor (CRC Handbook sec. 15: 1.4) and no
+    // general thermal-conductivity factor (gas table).
+    let ar = pure("Ar");
+    let g = GaugeModel::new(GaugeKind::Combined, &ar, &GaugeOverrides::default())
+        .expect("the ionization element alone is enough for a gauge model");
+    let c = g.correct(1.0e-6);
+    // REFERENCES.md (a, b): 1.0e-6 Pa indicated in pure Ar -> 7.143e-7 Pa.
+    assert_close!(c.pressure_pa, 7.143e-7, 1e-4);
+    assert!(c.warnings.is_empty(), "{:?}", c.warnings);
+    // Above the crossover the thermal element reads: no number, a reason.
+    let c = g.correct(10.0);
+    assert!(c.pressure_pa.is_nan());
+    assert_eq!(c.sensitivity, None);
+    assert!(
+        c.warnings.iter().any(|w| w.code == "no-gauge-sensitivity"
+            && w.message.contains("thermal")
+            && w.message.contains("Ar")),
+        "{:?}",
+        c.warnings
+    );
+    assert!(g.missing().is_some());
+    // A monitored gauge reads on both elements, so a config still asks.
+    let s = gauge::GaugeSettings {
+        kind: GaugeKind::Combined,
+        mixture: ar,
+        calibration_gas: None,
+        overrides: GaugeOverrides::default(),
+    };
+    let problems = GaugeModel::from_settings("chamber", &s)
+        .err()
+        .unwrap_or_default();
+    assert_eq!(problems.len(), 1, "{problems:?}");
+    assert!(problems[0].message.contains("thermal"), "{problems:?}");
+}
+
+#[test]
+fn thermal_nonlinear_warning_follows_the_true_pressure() {
+    // The 1 mbar linear limit is common practice, no source; the check is
+    // that it is applied to p = p_ind / S, not to p_ind.
+    let ar = pure("Ar");
+    let nonlinear = |s: f64, indicated: f64| {
+        let o = GaugeOverrides {
+            sensitivity: Some(s),
+            ..GaugeOverrides::default()
+        };
+        let g = GaugeModel::new(GaugeKind::Thermal, &ar, &o).expect("factor given");
+        g.correct(indicated)
+            .warnings
+            .iter()
+            .any(|w| w.code == "thermal-factor-nonlinear")
+    };
+    // 80 Pa indicated with S = 0.6 is 133 Pa true: beyond the linear range.
+    assert!(nonlinear(0.6, 80.0));
+    // 120 Pa indicated with S = 2 is 60 Pa true: inside it.
+    assert!(!nonlinear(2.0, 120.0));
+}
