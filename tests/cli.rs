@@ -483,3 +483,42 @@ fn calc_vacuum_range_at_atmosphere_and_at_limits() {
     assert_eq!(range("1e-11 mbar"), "ultra-high");
     assert_eq!(range("9e-12 mbar"), "extreme-high");
 }
+
+#[test]
+fn calc_warns_of_water_above_its_vapour_pressure() {
+    // Saturation pressure of water at 22 C: 2645 Pa (Wagner & Pruss 1993;
+    // checked against chemicals 1.5.2 and CoolProp 8.0.0 in engine/vapour.rs).
+    let args = ["calc", "-p", "1 atm", "--gas", "H2O", "-t", "22 C"];
+    let v = json(&[&args[..], &["--json"]].concat());
+    assert!(
+        warning_codes(&v).contains(&"above-saturation".to_string()),
+        "{v}"
+    );
+    let o = rarefy(&args);
+    assert!(
+        stdout(&o).contains("above its saturation vapour pressure"),
+        "{}",
+        stdout(&o)
+    );
+    let v = json(&[
+        "calc", "-p", "1 kPa", "--gas", "H2O", "-t", "22 C", "--json",
+    ]);
+    assert!(!warning_codes(&v).contains(&"above-saturation".to_string()));
+    let v = json(&[
+        "calc",
+        "-p",
+        "1 Pa",
+        "-t",
+        "500 K",
+        "--model",
+        "hard-sphere",
+        "--json",
+    ]);
+    assert!(
+        warning_codes(&v).contains(&"hard-sphere-far-from-reference".to_string()),
+        "{v}"
+    );
+    let o = rarefy(&["calc", "--help"]);
+    assert!(stdout(&o).contains("mode of the"));
+    assert!(stdout(&o).contains("--thermal-sensitivity"));
+}

@@ -21,15 +21,41 @@ One-shot derived quantities: number density, mean, most probable and rms \
 speeds, mean free path, wall impingement rate, time to a monolayer, the ISO \
 3529-1 vacuum range, and a Knudsen number and flow regime for every --length.
 
+Vacuum range: ISO 3529-1 (edition from the config's [physics] iso_edition, \
+default 2019); a pressure at a limit belongs to the range above it (1e-9 Pa \
+is ultra-high), and the limit is compared after conversion to Pa within 1 \
+part in 1e9, so 1e-11 mbar and 1e-9 Pa get the same range. At and above the \
+standard atmosphere there is no vacuum: the range is `atmospheric` up to \
+1.05 atm and `above-atmospheric` beyond.
+
 With --gauge thermal|ionization|combined the pressure is taken as the gauge's \
 N2-equivalent reading and corrected for the gas (p = p_ind / S, S = Σ x_i S_i \
-for a mixture).
+for a mixture). A combined gauge reads on its ionization element below 0.1 Pa \
+(indicated) and on its thermal element at and above: --sensitivity sets the \
+ionization element's factor, --thermal-sensitivity the thermal one's. Only \
+the element that reads needs a factor (argon has no tabulated thermal factor, \
+so an argon reading at 10 Pa asks for --thermal-sensitivity); a factor given \
+for the other element is not applied and a sensitivity-not-applied warning \
+says so.
 
 For a mixture (--mix) every species gets its own mean free path, impingement \
-rate and monolayer time; the top-level mean free path is the \
-mole-fraction-weighted mean of the species values, the top-level impingement \
-rate is the sum over species, and the monolayer time is that of the summed \
-rate.
+rate and monolayer time. The top-level numbers: mean speed is the mean over \
+all molecules (Σ x_i v̄_i); rms speed is over all molecules (√Σ x_i v²_rms,i); \
+most probable speed is the mode of the mixture's speed distribution (the \
+number-weighted sum of the species' Maxwell-Boltzmann distributions, found \
+numerically; it sits at one species' peak when the masses are far apart); \
+mean free path is the mole-fraction-weighted mean of the species values; \
+impingement rate is the sum over species; the monolayer time is that of the \
+summed rate.
+
+Warnings (text, and `warnings` with a code in --json) include: \
+above-saturation (a species' partial pressure above its saturation vapour \
+pressure at the temperature; water, IAPWS equations), \
+hard-sphere-far-from-reference (--model hard-sphere where the fixed diameter \
+puts the mean free path more than 5 % from the Sutherland value), \
+thermal-factor-nonlinear (a thermal gauge's gas factor used above about \
+1 mbar of true pressure), temperature-outside-fit, gauge-out-of-range, \
+above-atmospheric.
 
 The temperature defaults to the config's [chamber] temperature, else 22 C, and \
 is then reported as assumed.";

@@ -20,6 +20,7 @@ pub mod gauge;
 pub mod kinetics;
 pub mod mixture;
 pub mod regime;
+pub mod vapour;
 
 use serde::{Deserialize, Serialize};
 use std::fmt;
@@ -191,7 +192,9 @@ pub struct Derived {
     pub number_density_per_m3: f64,
     /// Mean speed over all molecules (Σ x_i v̄_i), m/s.
     pub mean_speed_m_per_s: f64,
-    /// Most probable speed at the mean molecular mass, m/s.
+    /// Most probable speed: the mode of the mixture's speed distribution
+    /// (the number-weighted sum of the species' Maxwell–Boltzmann
+    /// distributions), m/s.
     pub most_probable_speed_m_per_s: f64,
     /// RMS speed over all molecules (√Σ x_i v²_rms,i), m/s.
     pub rms_speed_m_per_s: f64,
@@ -212,8 +215,15 @@ pub struct Derived {
     pub warnings: Vec<Warning>,
 }
 
+/// How far (relative, in λ) a fixed diameter may be from the Sutherland one
+/// before the hard-sphere model is flagged: 5 % (common practice, no source).
+pub const HARD_SPHERE_TOLERANCE: f64 = 0.05;
+
 /// Collision diameter of `gas` at `t_k` under `model`, with a warning when the
-/// temperature is outside the range the diameter was fitted over.
+/// temperature is outside the range the diameter was fitted over, and when a
+/// fixed (hard-sphere) diameter of a gas with a known Sutherland constant is
+/// used so far from its reference temperature that the mean free path is off
+/// by more than [`HARD_SPHERE_TOLERANCE`].
 pub fn diameter(gas: &Gas, model: Model, t_k: f64, warnings: &mut Vec<Warning>) -> f64 {
     let (lo, hi) = gas.fit_range_k;
     if !(lo..=hi).contains(&t_k) {
@@ -229,7 +239,28 @@ pub fn diameter(gas: &Gas, model: Model, t_k: f64, warnings: &mut Vec<Warning>) 
         ));
     }
     match (model, gas.sutherland_k) {
-        (Model::HardSphere, _) => gas.diameter_m,
+        (Model::HardSphere, Some(s)) => {
+            // λ_hs/λ_sutherland = d_S(T)²/d_ref² = (1 + S/T)/(1 + S/T_ref).
+            let ratio = (1.0 + s / t_k) / (1.0 + s / gas.reference_temperature_k);
+            if (ratio - 1.0).abs() > HARD_SPHERE_TOLERANCE {
+                let (how, pct) = if ratio < 1.0 {
+                    ("shorter", (1.0 - ratio) * 100.0)
+                } else {
+                    ("longer", (ratio - 1.0) * 100.0)
+                };
+                warnings.push(Warning::new(
+                    "hard-sphere-far-from-reference",
+                    format!(
+                        "the hard-sphere diameter of {} is its value at {:.2} K; at {t_k:.1} K \
+                         its Sutherland constant ({s:.0} K) puts the mean free path {pct:.0} % \
+                         {how} than shown (use the sutherland model)",
+                        gas.id, gas.reference_temperature_k
+                    ),
+                ));
+            }
+            gas.diameter_m
+        }
+        (Model::HardSphere, None) => gas.diameter_m,
         (Model::Sutherland, Some(s)) => {
             kinetics::sutherland_diameter(gas.diameter_m, gas.reference_temperature_k, s, t_k)
         }
@@ -293,6 +324,19 @@ pub fn derive(
                     * (1.0 + masses[i] / masses[j]).sqrt()
             })
             .sum();
+        if let Some(sat) = vapour::saturation(&c.gas.id, t)
+            && p_i > sat.pressure_pa
+        {
+            warnings.push(Warning::new(
+                "above-saturation",
+                format!(
+                    "{} partial pressure {p_i:.3e} Pa is above its saturation vapour pressure \
+                     {:.3e} Pa at {t:.2} K ({}): it condenses on surfaces at this temperature, \
+                     and the numbers shown assume it stays a gas",
+                    c.gas.id, sat.pressure_pa, sat.source
+                ),
+            ));
+        }
         let phi = kinetics::impingement_rate(p_i, t, masses[i]);
         species.push(SpeciesDerived {
             gas: c.gas.id.clone(),
@@ -316,7 +360,11 @@ pub fn derive(
     };
     let mean_free_path_m = weighted(&|_, s| s.mean_free_path_m);
     let mean_speed = weighted(&|_, s| s.mean_speed_m_per_s);
-    let mean_mass = weighted(&|i, _| masses[i]);
+    let by_number: Vec<(f64, f64)> = comps
+        .iter()
+        .zip(&masses)
+        .map(|(c, &m)| (c.fraction, m))
+        .collect();
     let rms_sq = weighted(&|i, _| kinetics::rms_speed(t, masses[i]).powi(2));
     let impingement: f64 = species.iter().map(|s| s.impingement_per_m2_s).sum();
 
@@ -336,7 +384,7 @@ pub fn derive(
     Derived {
         number_density_per_m3: n_total,
         mean_speed_m_per_s: mean_speed,
-        most_probable_speed_m_per_s: kinetics::most_probable_speed(t, mean_mass),
+        most_probable_speed_m_per_s: kinetics::mixture_most_probable_speed(t, &by_number),
         rms_speed_m_per_s: rms_sq.sqrt(),
         mean_free_path_m,
         impingement_per_m2_s: impingement,
