@@ -74,6 +74,8 @@ pub struct Physics {
     pub sites_per_m2: f64,
     /// Sticking coefficient, 0 < s ≤ 1.
     pub sticking: f64,
+    /// When a monitored gauge's exposure starts counting.
+    pub exposure_start: exposure::ExposureStart,
 }
 
 impl Default for Physics {
@@ -84,6 +86,7 @@ impl Default for Physics {
             edition: IsoEdition::default(),
             sites_per_m2: DEFAULT_SITES_PER_M2,
             sticking: 1.0,
+            exposure_start: exposure::ExposureStart::default(),
         }
     }
 }
