@@ -408,3 +408,132 @@ fn gases_lists_every_source() {
         );
     }
 }
+
+fn warning_codes(v: &serde_json::Value) -> Vec<String> {
+    v["warnings"]
+        .as_array()
+        .expect("warnings")
+        .iter()
+        .filter_map(|w| w["code"].as_str().map(String::from))
+        .collect()
+}
+
+#[test]
+fn calc_combined_gauge_needs_only_the_reading_elements_factor() {
+    // Ar: ionization factor 1.4 (CRC Handbook sec. 15), no thermal factor.
+    let args = [
+        "calc",
+        "-p",
+        "1e-6 Pa",
+        "--gas",
+        "Ar",
+        "--gauge",
+        "combined",
+        "--sensitivity",
+        "1.4",
+        "--json",
+    ];
+    let v = json(&args);
+    // REFERENCES.md (a, b): 1.0e-6 Pa indicated in pure Ar -> 7.143e-7 Pa.
+    let p = num(&v["inputs"], "pressure_pa");
+    assert!((p - 7.143e-7).abs() / 7.143e-7 < 1e-4, "{p}");
+    // Above the crossover the thermal element reads and needs its factor.
+    let o = rarefy(&["calc", "-p", "10 Pa", "--gas", "Ar", "--gauge", "combined"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("--thermal-sensitivity"),
+        "{}",
+        stderr(&o)
+    );
+    let v = json(&[
+        "calc",
+        "-p",
+        "10 Pa",
+        "--gas",
+        "Ar",
+        "--gauge",
+        "combined",
+        "--thermal-sensitivity",
+        "1.6",
+        "--json",
+    ]);
+    assert!((num(&v["inputs"], "pressure_pa") - 10.0 / 1.6).abs() < 1e-12);
+    // --sensitivity is the ionization element's; above the crossover it is
+    // not applied, and the output says so.
+    let v = json(&[
+        "calc",
+        "-p",
+        "10 Pa",
+        "--gauge",
+        "combined",
+        "--sensitivity",
+        "1.4",
+        "--json",
+    ]);
+    assert_eq!(num(&v["inputs"], "pressure_pa"), 10.0);
+    assert!(
+        warning_codes(&v).contains(&"sensitivity-not-applied".to_string()),
+        "{v}"
+    );
+    let o = rarefy(&[
+        "calc",
+        "-p",
+        "10 Pa",
+        "--gauge",
+        "thermal",
+        "--thermal-sensitivity",
+        "2",
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+}
+
+#[test]
+fn calc_vacuum_range_at_atmosphere_and_at_limits() {
+    let range = |p: &str| json(&["calc", "-p", p, "--json"])["vacuum_range"].clone();
+    assert_eq!(range("1 atm"), "atmospheric");
+    assert_eq!(range("2e5 Pa"), "above-atmospheric");
+    // ISO 3529-1:2019 (REFERENCES.md, c from memory): extreme-high is below
+    // 1e-9 Pa; 1e-11 mbar is 1e-9 Pa by definition of the mbar.
+    assert_eq!(range("1e-9 Pa"), "ultra-high");
+    assert_eq!(range("1e-11 mbar"), "ultra-high");
+    assert_eq!(range("9e-12 mbar"), "extreme-high");
+}
+
+#[test]
+fn calc_warns_of_water_above_its_vapour_pressure() {
+    // Saturation pressure of water at 22 C: 2645 Pa (Wagner & Pruss 1993;
+    // checked against chemicals 1.5.2 and CoolProp 8.0.0 in engine/vapour.rs).
+    let args = ["calc", "-p", "1 atm", "--gas", "H2O", "-t", "22 C"];
+    let v = json(&[&args[..], &["--json"]].concat());
+    assert!(
+        warning_codes(&v).contains(&"above-saturation".to_string()),
+        "{v}"
+    );
+    let o = rarefy(&args);
+    assert!(
+        stdout(&o).contains("above its saturation vapour pressure"),
+        "{}",
+        stdout(&o)
+    );
+    let v = json(&[
+        "calc", "-p", "1 kPa", "--gas", "H2O", "-t", "22 C", "--json",
+    ]);
+    assert!(!warning_codes(&v).contains(&"above-saturation".to_string()));
+    let v = json(&[
+        "calc",
+        "-p",
+        "1 Pa",
+        "-t",
+        "500 K",
+        "--model",
+        "hard-sphere",
+        "--json",
+    ]);
+    assert!(
+        warning_codes(&v).contains(&"hard-sphere-far-from-reference".to_string()),
+        "{v}"
+    );
+    let o = rarefy(&["calc", "--help"]);
+    assert!(stdout(&o).contains("mode of the"));
+    assert!(stdout(&o).contains("--thermal-sensitivity"));
+}

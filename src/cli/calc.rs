@@ -21,15 +21,41 @@ One-shot derived quantities: number density, mean, most probable and rms \
 speeds, mean free path, wall impingement rate, time to a monolayer, the ISO \
 3529-1 vacuum range, and a Knudsen number and flow regime for every --length.
 
+Vacuum range: ISO 3529-1 (edition from the config's [physics] iso_edition, \
+default 2019); a pressure at a limit belongs to the range above it (1e-9 Pa \
+is ultra-high), and the limit is compared after conversion to Pa within 1 \
+part in 1e9, so 1e-11 mbar and 1e-9 Pa get the same range. At and above the \
+standard atmosphere there is no vacuum: the range is `atmospheric` up to \
+1.05 atm and `above-atmospheric` beyond.
+
 With --gauge thermal|ionization|combined the pressure is taken as the gauge's \
 N2-equivalent reading and corrected for the gas (p = p_ind / S, S = Σ x_i S_i \
-for a mixture).
+for a mixture). A combined gauge reads on its ionization element below 0.1 Pa \
+(indicated) and on its thermal element at and above: --sensitivity sets the \
+ionization element's factor, --thermal-sensitivity the thermal one's. Only \
+the element that reads needs a factor (argon has no tabulated thermal factor, \
+so an argon reading at 10 Pa asks for --thermal-sensitivity); a factor given \
+for the other element is not applied and a sensitivity-not-applied warning \
+says so.
 
 For a mixture (--mix) every species gets its own mean free path, impingement \
-rate and monolayer time; the top-level mean free path is the \
-mole-fraction-weighted mean of the species values, the top-level impingement \
-rate is the sum over species, and the monolayer time is that of the summed \
-rate.
+rate and monolayer time. The top-level numbers: mean speed is the mean over \
+all molecules (Σ x_i v̄_i); rms speed is over all molecules (√Σ x_i v²_rms,i); \
+most probable speed is the mode of the mixture's speed distribution (the \
+number-weighted sum of the species' Maxwell-Boltzmann distributions, found \
+numerically; it sits at one species' peak when the masses are far apart); \
+mean free path is the mole-fraction-weighted mean of the species values; \
+impingement rate is the sum over species; the monolayer time is that of the \
+summed rate.
+
+Warnings (text, and `warnings` with a code in --json) include: \
+above-saturation (a species' partial pressure above its saturation vapour \
+pressure at the temperature; water, IAPWS equations), \
+hard-sphere-far-from-reference (--model hard-sphere where the fixed diameter \
+puts the mean free path more than 5 % from the Sutherland value), \
+thermal-factor-nonlinear (a thermal gauge's gas factor used above about \
+1 mbar of true pressure), temperature-outside-fit, gauge-out-of-range, \
+above-atmospheric.
 
 The temperature defaults to the config's [chamber] temperature, else 22 C, and \
 is then reported as assumed.";
@@ -56,8 +82,13 @@ pub struct CalcArgs {
     #[arg(long, value_enum)]
     gauge: Option<GaugeArg>,
     /// Gauge sensitivity relative to N2 (reading / true pressure), replacing the table's.
+    /// For a combined gauge: its ionization element's (readings below 0.1 Pa).
     #[arg(long, allow_hyphen_values = true, value_parser = positive_number, requires = "gauge")]
     sensitivity: Option<f64>,
+    /// A combined gauge's thermal-element sensitivity (readings at or above 0.1 Pa),
+    /// replacing the table's.
+    #[arg(long, allow_hyphen_values = true, value_parser = positive_number, requires = "gauge")]
+    thermal_sensitivity: Option<f64>,
     /// Diameter model.
     #[arg(long, value_enum)]
     model: Option<ModelArg>,
@@ -240,17 +271,60 @@ pub fn run(args: &CalcArgs) -> Result<ExitCode, CliError> {
     let mut gauge_warnings: Vec<Warning> = Vec::new();
     let (pressure_pa, sensitivity) = match args.gauge {
         Some(kind) => {
+            let kind = GaugeKind::from(kind);
+            if args.thermal_sensitivity.is_some() && kind != GaugeKind::Combined {
+                return Err(CliError::Usage(format!(
+                    "--thermal-sensitivity: applies to a combined gauge; for a {kind} gauge give --sensitivity"
+                )));
+            }
             let overrides = GaugeOverrides {
                 sensitivity: args.sensitivity,
+                thermal_sensitivity: args.thermal_sensitivity,
                 ..GaugeOverrides::default()
             };
-            let model = GaugeModel::new(kind.into(), &mixture, &overrides).map_err(|e| {
-                CliError::Usage(format!(
-                    "--gauge: {e}; on the command line: --sensitivity S"
-                ))
+            let element = kind.element(indicated_pa);
+            let flag = if element == GaugeKind::Thermal && kind == GaugeKind::Combined {
+                "--thermal-sensitivity"
+            } else {
+                "--sensitivity"
+            };
+            let model = GaugeModel::new(kind, &mixture, &overrides).map_err(|e| {
+                CliError::Usage(format!("--gauge: {e}; on the command line: {flag} S"))
             })?;
             let c = model.correct(indicated_pa);
+            if !c.pressure_pa.is_finite() {
+                // Only a combined gauge's element without a factor gets here.
+                let why = c
+                    .warnings
+                    .iter()
+                    .find(|w| w.code == "no-gauge-sensitivity")
+                    .map_or_else(|| "cannot correct the reading".into(), |w| w.to_string());
+                return Err(CliError::Usage(format!(
+                    "--gauge {kind}: {why}; on the command line: {flag} S"
+                )));
+            }
             gauge_warnings = c.warnings;
+            // A combined gauge's factor for the element that did not read is
+            // not silently dropped: say so.
+            let unused = match element {
+                GaugeKind::Thermal => args.sensitivity.map(|s| ("--sensitivity", s, "ionization")),
+                _ => args
+                    .thermal_sensitivity
+                    .map(|s| ("--thermal-sensitivity", s, "thermal")),
+            };
+            if kind == GaugeKind::Combined
+                && let Some((flag, s, other)) = unused
+            {
+                gauge_warnings.push(Warning {
+                    code: "sensitivity-not-applied",
+                    message: format!(
+                        "{flag} {s} is the combined gauge's {other}-element factor; this reading \
+                         ({indicated_pa:.3e} Pa, crossover {} Pa) comes from the {element} element \
+                         and was corrected with that element's factor",
+                        crate::engine::gauge::COMBINED_CROSSOVER_PA
+                    ),
+                });
+            }
             (c.pressure_pa, c.sensitivity)
         }
         None => (indicated_pa, None),

@@ -331,6 +331,9 @@ pub struct PhysicsSection {
     pub sites_per_m2: Option<Spanned<f64>>,
     /// Sticking coefficient (default 1).
     pub sticking: Option<Spanned<f64>>,
+    /// When exposure starts counting: `"below 0.1 Pa"` (default), `"reset"`
+    /// or `"first reading"`.
+    pub exposure_start: Option<Spanned<String>>,
 }
 
 /// `[display]`

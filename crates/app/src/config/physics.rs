@@ -3,6 +3,7 @@
 
 use super::{Errors, file};
 use crate::engine::Physics;
+use crate::engine::exposure::ExposureStart;
 use crate::engine::regime::{IsoEdition, RegimeBounds};
 
 /// Resolves `[physics]`: the model, regime bounds, ISO edition and surface
@@ -65,5 +66,30 @@ pub(super) fn resolve(errs: &mut Errors<'_>, p: file::PhysicsSection) -> Physics
             errs.err(s.span(), "sticking must be greater than 0 and at most 1");
         }
     }
+    if let Some(s) = p.exposure_start {
+        match exposure_start(s.get_ref()) {
+            Ok(start) => out.exposure_start = start,
+            Err(msg) => errs.err(s.span(), msg),
+        }
+    }
     out
+}
+
+/// Reads `exposure_start`: `"below 0.1 Pa"`, `"reset"` or `"first reading"`.
+fn exposure_start(text: &str) -> Result<ExposureStart, String> {
+    let expected =
+        "expected \"below PRESSURE\" (e.g. \"below 0.1 Pa\"), \"reset\" or \"first reading\"";
+    let t = text.trim();
+    if t == "reset" {
+        return Ok(ExposureStart::Reset);
+    }
+    if t.split_whitespace().collect::<Vec<_>>() == ["first", "reading"] {
+        return Ok(ExposureStart::FirstReading);
+    }
+    match t.strip_prefix("below") {
+        Some(p) => crate::units::parse::<crate::units::PressureUnit>(p)
+            .map(|q| ExposureStart::Below(q.si))
+            .map_err(|e| format!("exposure_start: {e}")),
+        None => Err(format!("exposure_start \"{t}\": {expected}")),
+    }
 }

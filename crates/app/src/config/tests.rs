@@ -369,3 +369,28 @@ hold = "1 s"
     );
     assert!(e.to_string().contains("listed twice"), "{e}");
 }
+
+#[test]
+fn exposure_start_is_a_physics_setting() {
+    use crate::engine::exposure::ExposureStart;
+    let start = |text: &str| {
+        parse(
+            &format!("[physics]\nexposure_start = {text:?}\n"),
+            Path::new("t.toml"),
+        )
+        .unwrap_or_else(|e| panic!("{e}"))
+        .physics
+        .exposure_start
+    };
+    // 1e-3 mbar = 0.1 Pa (definition of the mbar).
+    assert_eq!(start("below 1e-3 mbar"), ExposureStart::Below(0.1));
+    assert_eq!(start("reset"), ExposureStart::Reset);
+    assert_eq!(start("first reading"), ExposureStart::FirstReading);
+    let c = parse("", Path::new("t.toml")).unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(c.physics.exposure_start, ExposureStart::Below(0.1));
+    let e = one_error("[physics]\nexposure_start = \"when ready\"\n");
+    assert_eq!(e.line, Some(2));
+    assert!(e.message.contains("below 0.1 Pa"), "{}", e.message);
+    let e = one_error("[physics]\nexposure_start = \"below 0 Pa\"\n");
+    assert!(e.message.contains("greater than zero"), "{}", e.message);
+}

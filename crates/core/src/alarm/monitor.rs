@@ -14,7 +14,7 @@ use super::rule::{
     AlarmState, Deadband, Input, Rule, RuleMachine, Severity, Test, Transition, after,
 };
 use super::syntax::{CondTest, Condition};
-use crate::engine::exposure::Exposure;
+use crate::engine::exposure::{Exposure, ExposureStart};
 use crate::engine::mixture::Mixture;
 use crate::engine::{Conditions, Derived, GaugeModel, NamedLength, Physics, derive};
 use crate::sample::{Sample, Status};
@@ -92,7 +92,7 @@ pub struct GaugeTrack {
     pub temperature_k: Option<f64>,
     /// Kinetics of the last valid reading.
     pub derived: Option<Derived>,
-    /// Exposure since the start.
+    /// Exposure since its start ([`GaugeTrack::exposure_since`]).
     pub exposure: Exposure,
     /// dp/dt, Pa/s.
     pub dpdt: Option<f64>,
@@ -103,7 +103,14 @@ pub struct GaugeTrack {
 }
 
 impl GaugeTrack {
-    fn new() -> Self {
+    /// Data time the exposure counts from; `None` while it waits for its
+    /// start (the pressure to fall below the threshold, or a reset).
+    pub fn exposure_since(&self) -> Option<DateTime<Utc>> {
+        let since_ms = (self.exposure.since_s()? * 1000.0).round() as i64;
+        Some(self.t0? + chrono::Duration::milliseconds(since_ms))
+    }
+
+    fn new(exposure: ExposureStart) -> Self {
         GaugeTrack {
             last_time: None,
             status: Status::Stale,
@@ -112,7 +119,7 @@ impl GaugeTrack {
             pressure_pa: None,
             temperature_k: None,
             derived: None,
-            exposure: Exposure::new(60.0),
+            exposure: Exposure::with_start(60.0, exposure),
             dpdt: None,
             decades_per_min: None,
             window: VecDeque::new(),
@@ -511,10 +518,11 @@ impl Monitor {
     }
 
     fn take(&mut self, s: &Sample) {
+        let start = self.setup.physics.exposure_start;
         let track = self
             .tracks
             .entry(s.channel.clone())
-            .or_insert_with(GaugeTrack::new);
+            .or_insert_with(|| GaugeTrack::new(start));
         track.last_time = Some(s.time);
         track.status = s.status();
         track.is_pressure = s.unit.is_pressure();
@@ -1071,7 +1079,8 @@ impl Monitor {
         ))
     }
 
-    /// Starts every gauge's exposure again from zero (a fresh substrate).
+    /// Starts every gauge's exposure again from zero (a fresh substrate),
+    /// counting from the reset's data time whatever the start threshold.
     /// Returns an audit event per gauge that had counted any.
     pub fn reset_exposure(&mut self, who: &Actor, now: DateTime<Utc>) -> Vec<Event> {
         let now = self.op_time(now);
@@ -1080,7 +1089,9 @@ impl Monitor {
             if t.is_pressure && t.exposure.pa_s() > 0.0 {
                 old.push((id.clone(), t.exposure.langmuir()));
             }
-            t.exposure = Exposure::new(60.0);
+            let t0 = *t.t0.get_or_insert(now);
+            t.exposure
+                .restart((now - t0).num_milliseconds() as f64 / 1000.0);
         }
         old.into_iter()
             .map(|(id, langmuir)| {

@@ -287,6 +287,8 @@ impl Class {
                 .map(Class::Regime)
                 .ok_or_else(|| format!("unknown regime \"{w}\"; expected viscous, transitional or molecular")),
             Quantity::VacuumRange => [
+                VacuumRange::AboveAtmospheric,
+                VacuumRange::Atmospheric,
                 VacuumRange::Low,
                 VacuumRange::Medium,
                 VacuumRange::High,
@@ -297,7 +299,7 @@ impl Class {
             .find(|r| r.as_str() == w)
             .map(Class::Range)
             .ok_or_else(|| {
-                format!("unknown vacuum range \"{w}\"; expected low, medium, high, ultra-high or extreme-high")
+                format!("unknown vacuum range \"{w}\"; expected above-atmospheric, atmospheric, low, medium, high, ultra-high or extreme-high")
             }),
             other => Err(format!("{other} is a number; compare it with above or below")),
         }

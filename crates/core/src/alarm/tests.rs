@@ -722,8 +722,9 @@ fn operator_actions_are_events_with_who_and_when() {
         wall_time: Some(wall),
     };
     let mut m = Monitor::new(setup(vec![rule(Test::Above(1e-3))], vec![]));
-    m.push(&[Sample::ok(t(0.0), "g", 1e-2, MBAR)]);
-    m.push(&[Sample::ok(t(0.5), "g", 1e-2, MBAR)]);
+    // Below the default exposure start (0.1 Pa), so there is dose to reset.
+    m.push(&[Sample::ok(t(0.0), "g", 1e-4, MBAR)]);
+    m.push(&[Sample::ok(t(0.5), "g", 1e-4, MBAR)]);
     let ev = m.acknowledge("r", &ana, t(1.0)).expect("ack");
     assert_eq!(ev.len(), 1);
     assert_eq!(ev[0].operation, Some(crate::alarm::Operation::Acknowledge));
@@ -777,4 +778,41 @@ fn a_data_clock_behind_the_start_time_takes_over() {
     m.start(t(0.0));
     m.push(&[Sample::ok(t(50.0), "g", 1e-5, MBAR)]);
     assert_eq!(m.now(), Some(t(50.0)));
+}
+
+#[test]
+fn exposure_counts_from_below_the_threshold_and_says_since_when() {
+    // Default start: 0.1 Pa. An hour at atmosphere adds nothing.
+    let mut m = Monitor::new(setup(vec![], vec![]));
+    for i in 0..60 {
+        m.push(&[Sample::ok(t(f64::from(i)), "g", 1000.0, MBAR)]);
+    }
+    let track = |m: &Monitor| {
+        m.tracks()
+            .find(|(id, _)| *id == "g")
+            .map(|(_, t)| t.clone())
+    };
+    let g = track(&m).expect("g");
+    assert_eq!((g.exposure.pa_s(), g.exposure_since()), (0.0, None));
+    // 1e-4 mbar = 1e-2 Pa from t = 60 s: 10 s of it is 0.1 Pa·s.
+    for i in 60..=70 {
+        m.push(&[Sample::ok(t(f64::from(i)), "g", 1e-4, MBAR)]);
+    }
+    let g = track(&m).expect("g");
+    assert_eq!(g.exposure_since(), Some(t(60.0)));
+    assert!(
+        (g.exposure.pa_s() - 0.1).abs() < 1e-12,
+        "{}",
+        g.exposure.pa_s()
+    );
+    // A reset counts from its own data time.
+    let ana = Actor {
+        user: "ana".into(),
+        wall_time: None,
+    };
+    m.reset_exposure(&ana, t(70.0));
+    m.push(&[Sample::ok(t(75.0), "g", 1e-4, MBAR)]);
+    let g = track(&m).expect("g");
+    assert_eq!(g.exposure_since(), Some(t(70.0)));
+    assert!((g.exposure.pa_s() - 0.05).abs() < 1e-12);
 }

@@ -2,7 +2,30 @@
 
 use crate::units::LANGMUIR_PA_S;
 
-/// Running integral of pressure over data time (trapezoid rule), in Pa·s.
+/// When an exposure starts counting.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum ExposureStart {
+    /// At the first reading whose true pressure is below this, Pa, or at an
+    /// operator reset, whichever comes first.
+    Below(f64),
+    /// Only at an operator reset.
+    Reset,
+    /// At the first reading (the time at atmosphere counts too).
+    FirstReading,
+}
+
+/// Default start threshold, Pa: 0.1 Pa (1e-3 mbar), the top of the high
+/// vacuum range of ISO 3529-1, so pump-down from atmosphere is not counted.
+pub const DEFAULT_EXPOSURE_BELOW_PA: f64 = 0.1;
+
+impl Default for ExposureStart {
+    fn default() -> Self {
+        ExposureStart::Below(DEFAULT_EXPOSURE_BELOW_PA)
+    }
+}
+
+/// Running integral of pressure over data time (trapezoid rule), in Pa·s,
+/// from its start (see [`ExposureStart`]).
 ///
 /// Readings further apart than `max_gap_s` are not bridged: the gap is
 /// counted in [`Exposure::gap_s`] instead, so a dropout never invents dose.
@@ -12,23 +35,73 @@ pub struct Exposure {
     gap_s: f64,
     max_gap_s: f64,
     last: Option<(f64, f64)>,
+    start: ExposureStart,
+    since_s: Option<f64>,
 }
 
 impl Exposure {
-    /// Starts at zero; samples further apart than `max_gap_s` are not joined.
+    /// Starts at zero at the first reading; samples further apart than
+    /// `max_gap_s` are not joined.
     pub fn new(max_gap_s: f64) -> Self {
+        Exposure::with_start(max_gap_s, ExposureStart::FirstReading)
+    }
+
+    /// Starts at zero and counts from `start` on.
+    pub fn with_start(max_gap_s: f64, start: ExposureStart) -> Self {
         Exposure {
             pa_s: 0.0,
             gap_s: 0.0,
             max_gap_s,
             last: None,
+            start,
+            since_s: None,
         }
+    }
+
+    /// When counting started, data time in seconds on the caller's origin;
+    /// `None` while waiting for the start.
+    pub fn since_s(&self) -> Option<f64> {
+        self.since_s
+    }
+
+    /// The start condition.
+    pub fn start(&self) -> ExposureStart {
+        self.start
+    }
+
+    /// Operator reset at data time `t_s`: back to zero and counting from
+    /// `t_s` whatever the start condition. The last reading's pressure is
+    /// held from `t_s` to the next reading, so the trapezoid goes on.
+    pub fn restart(&mut self, t_s: f64) {
+        self.pa_s = 0.0;
+        self.gap_s = 0.0;
+        self.since_s = Some(t_s);
+        self.last = self
+            .last
+            .filter(|&(t0, _)| t0 <= t_s)
+            .map(|(_, p0)| (t_s, p0));
     }
 
     /// Adds a reading of `pressure_pa` at data time `t_s` (seconds on any
     /// fixed origin). A reading at or before the previous one restarts the
     /// trapezoid without adding dose (a clock jump is never integrated).
+    /// Before the start nothing is added; the first reading that meets the
+    /// start condition starts the count at its time.
     pub fn add(&mut self, t_s: f64, pressure_pa: f64) {
+        if self.since_s.is_none() {
+            let starts = match self.start {
+                ExposureStart::Below(limit) => pressure_pa < limit,
+                ExposureStart::Reset => false,
+                ExposureStart::FirstReading => true,
+            };
+            if !starts {
+                // Kept for a reset, which holds it from the reset on.
+                self.last = Some((t_s, pressure_pa));
+                return;
+            }
+            self.since_s = Some(t_s);
+            self.last = None;
+        }
         if let Some((t0, p0)) = self.last {
             let dt = t_s - t0;
             if dt > 0.0 && dt <= self.max_gap_s {
@@ -119,6 +192,38 @@ mod tests {
         e.interrupt();
         e.add(52.0, 1.0);
         assert_eq!(e.pa_s(), 2.0);
+    }
+
+    #[test]
+    fn counting_starts_below_the_threshold_or_at_a_reset() {
+        // Pump-down: 1e5 Pa for 10 s, then 1e-2 Pa from t = 10 s on.
+        let mut e = Exposure::with_start(10.0, ExposureStart::Below(0.1));
+        for i in 0..10 {
+            e.add(f64::from(i), 1e5);
+        }
+        assert_eq!(e.pa_s(), 0.0);
+        assert_eq!(e.since_s(), None);
+        for i in 10..=20 {
+            e.add(f64::from(i), 1e-2);
+        }
+        assert_eq!(e.since_s(), Some(10.0));
+        assert!((e.pa_s() - 0.1).abs() < 1e-15, "{}", e.pa_s());
+        // Reset at 25 s: the last pressure is held from the reset on.
+        e.restart(25.0);
+        assert_eq!((e.pa_s(), e.since_s()), (0.0, Some(25.0)));
+        e.add(27.0, 1e-2);
+        assert!((e.pa_s() - 2e-2).abs() < 1e-15);
+        // "reset" waits for the operator; the first reading starts otherwise.
+        let mut e = Exposure::with_start(10.0, ExposureStart::Reset);
+        e.add(0.0, 1e-6);
+        e.add(1.0, 1e-6);
+        assert_eq!((e.pa_s(), e.since_s()), (0.0, None));
+        e.restart(1.0);
+        e.add(2.0, 1e-6);
+        assert!((e.pa_s() - 1e-6).abs() < 1e-20);
+        let mut e = Exposure::with_start(10.0, ExposureStart::FirstReading);
+        e.add(3.0, 1e5);
+        assert_eq!(e.since_s(), Some(3.0));
     }
 
     #[test]

@@ -202,6 +202,9 @@ pub enum Response {
     Sensitivity(f64),
     /// A calibration table.
     Table(CalibrationTable),
+    /// No factor is known for this element of a combined gauge: its
+    /// readings cannot be corrected (the other element's still can).
+    Missing(super::GaugeError),
 }
 
 impl Response {
@@ -212,6 +215,7 @@ impl Response {
             Response::Direct => (indicated_pa, TableFit::Inside),
             Response::Sensitivity(s) => (indicated_pa / s, TableFit::Inside),
             Response::Table(t) => t.convert(indicated_pa),
+            Response::Missing(_) => (f64::NAN, TableFit::Inside),
         }
     }
 }
@@ -295,8 +299,20 @@ impl GaugeModel {
             }
         }
         match GaugeModel::new(s.kind, &s.mixture, &overrides) {
-            Ok(model) if problems.is_empty() => Ok(model),
-            Ok(_) => Err(problems),
+            Ok(model) => {
+                // A monitored combined gauge reads on both elements.
+                if let Some(e) = model.missing() {
+                    problems.push(GaugeProblem {
+                        setting: GaugeSetting::Response,
+                        message: format!("gauge `{id}` ({}): {e}", s.kind),
+                    });
+                }
+                if problems.is_empty() {
+                    Ok(model)
+                } else {
+                    Err(problems)
+                }
+            }
             Err(e) => {
                 problems.push(GaugeProblem {
                     setting: GaugeSetting::Response,

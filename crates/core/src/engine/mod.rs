@@ -20,12 +20,12 @@ pub mod gauge;
 pub mod kinetics;
 pub mod mixture;
 pub mod regime;
+pub mod vapour;
 
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
 use crate::gas::Gas;
-use crate::units::ATM_PA;
 use constants::molecular_mass;
 use gauge::{CalibrationTable, GaugeKind, Response, TableFit};
 use mixture::Mixture;
@@ -74,6 +74,8 @@ pub struct Physics {
     pub sites_per_m2: f64,
     /// Sticking coefficient, 0 < s ≤ 1.
     pub sticking: f64,
+    /// When a monitored gauge's exposure starts counting.
+    pub exposure_start: exposure::ExposureStart,
 }
 
 impl Default for Physics {
@@ -84,6 +86,7 @@ impl Default for Physics {
             edition: IsoEdition::default(),
             sites_per_m2: DEFAULT_SITES_PER_M2,
             sticking: 1.0,
+            exposure_start: exposure::ExposureStart::default(),
         }
     }
 }
@@ -192,7 +195,9 @@ pub struct Derived {
     pub number_density_per_m3: f64,
     /// Mean speed over all molecules (Σ x_i v̄_i), m/s.
     pub mean_speed_m_per_s: f64,
-    /// Most probable speed at the mean molecular mass, m/s.
+    /// Most probable speed: the mode of the mixture's speed distribution
+    /// (the number-weighted sum of the species' Maxwell–Boltzmann
+    /// distributions), m/s.
     pub most_probable_speed_m_per_s: f64,
     /// RMS speed over all molecules (√Σ x_i v²_rms,i), m/s.
     pub rms_speed_m_per_s: f64,
@@ -213,8 +218,15 @@ pub struct Derived {
     pub warnings: Vec<Warning>,
 }
 
+/// How far (relative, in λ) a fixed diameter may be from the Sutherland one
+/// before the hard-sphere model is flagged: 5 % (common practice, no source).
+pub const HARD_SPHERE_TOLERANCE: f64 = 0.05;
+
 /// Collision diameter of `gas` at `t_k` under `model`, with a warning when the
-/// temperature is outside the range the diameter was fitted over.
+/// temperature is outside the range the diameter was fitted over, and when a
+/// fixed (hard-sphere) diameter of a gas with a known Sutherland constant is
+/// used so far from its reference temperature that the mean free path is off
+/// by more than [`HARD_SPHERE_TOLERANCE`].
 pub fn diameter(gas: &Gas, model: Model, t_k: f64, warnings: &mut Vec<Warning>) -> f64 {
     let (lo, hi) = gas.fit_range_k;
     if !(lo..=hi).contains(&t_k) {
@@ -230,7 +242,28 @@ pub fn diameter(gas: &Gas, model: Model, t_k: f64, warnings: &mut Vec<Warning>) 
         ));
     }
     match (model, gas.sutherland_k) {
-        (Model::HardSphere, _) => gas.diameter_m,
+        (Model::HardSphere, Some(s)) => {
+            // λ_hs/λ_sutherland = d_S(T)²/d_ref² = (1 + S/T)/(1 + S/T_ref).
+            let ratio = (1.0 + s / t_k) / (1.0 + s / gas.reference_temperature_k);
+            if (ratio - 1.0).abs() > HARD_SPHERE_TOLERANCE {
+                let (how, pct) = if ratio < 1.0 {
+                    ("shorter", (1.0 - ratio) * 100.0)
+                } else {
+                    ("longer", (ratio - 1.0) * 100.0)
+                };
+                warnings.push(Warning::new(
+                    "hard-sphere-far-from-reference",
+                    format!(
+                        "the hard-sphere diameter of {} is its value at {:.2} K; at {t_k:.1} K \
+                         its Sutherland constant ({s:.0} K) puts the mean free path {pct:.0} % \
+                         {how} than shown (use the sutherland model)",
+                        gas.id, gas.reference_temperature_k
+                    ),
+                ));
+            }
+            gas.diameter_m
+        }
+        (Model::HardSphere, None) => gas.diameter_m,
         (Model::Sutherland, Some(s)) => {
             kinetics::sutherland_diameter(gas.diameter_m, gas.reference_temperature_k, s, t_k)
         }
@@ -261,7 +294,7 @@ pub fn derive(
     let p = conditions.pressure_pa;
     let t = conditions.temperature_k;
     let mut warnings = Vec::new();
-    if p > ATM_PA * 1.05 {
+    if p > regime::ABOVE_ATMOSPHERIC_PA {
         warnings.push(Warning::new(
             "above-atmospheric",
             format!("{p:.3e} Pa is above atmospheric pressure: not a vacuum"),
@@ -294,6 +327,19 @@ pub fn derive(
                     * (1.0 + masses[i] / masses[j]).sqrt()
             })
             .sum();
+        if let Some(sat) = vapour::saturation(&c.gas.id, t)
+            && p_i > sat.pressure_pa
+        {
+            warnings.push(Warning::new(
+                "above-saturation",
+                format!(
+                    "{} partial pressure {p_i:.3e} Pa is above its saturation vapour pressure \
+                     {:.3e} Pa at {t:.2} K ({}): it condenses on surfaces at this temperature, \
+                     and the numbers shown assume it stays a gas",
+                    c.gas.id, sat.pressure_pa, sat.source
+                ),
+            ));
+        }
         let phi = kinetics::impingement_rate(p_i, t, masses[i]);
         species.push(SpeciesDerived {
             gas: c.gas.id.clone(),
@@ -317,7 +363,11 @@ pub fn derive(
     };
     let mean_free_path_m = weighted(&|_, s| s.mean_free_path_m);
     let mean_speed = weighted(&|_, s| s.mean_speed_m_per_s);
-    let mean_mass = weighted(&|i, _| masses[i]);
+    let by_number: Vec<(f64, f64)> = comps
+        .iter()
+        .zip(&masses)
+        .map(|(c, &m)| (c.fraction, m))
+        .collect();
     let rms_sq = weighted(&|i, _| kinetics::rms_speed(t, masses[i]).powi(2));
     let impingement: f64 = species.iter().map(|s| s.impingement_per_m2_s).sum();
 
@@ -337,7 +387,7 @@ pub fn derive(
     Derived {
         number_density_per_m3: n_total,
         mean_speed_m_per_s: mean_speed,
-        most_probable_speed_m_per_s: kinetics::most_probable_speed(t, mean_mass),
+        most_probable_speed_m_per_s: kinetics::mixture_most_probable_speed(t, &by_number),
         rms_speed_m_per_s: rms_sq.sqrt(),
         mean_free_path_m,
         impingement_per_m2_s: impingement,
@@ -352,6 +402,10 @@ pub fn derive(
         warnings,
     }
 }
+
+/// Upper end of a thermal gauge's linear range, true pressure, Pa (about
+/// 1 mbar; common practice, no source).
+pub const THERMAL_LINEAR_BELOW_PA: f64 = 100.0;
 
 /// What stops a gauge's reading from being corrected for the gas.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -461,10 +515,20 @@ impl GaugeModel {
                 let r = factor(GaugeKind::Thermal, overrides.sensitivity)?;
                 (r.clone(), r)
             }
-            GaugeKind::Combined => (
-                factor(GaugeKind::Ionization, overrides.sensitivity)?,
-                factor(GaugeKind::Thermal, overrides.thermal_sensitivity)?,
-            ),
+            // Each element of a combined gauge reads its own decades: a gas
+            // with no factor for one element still has corrected readings
+            // from the other.
+            GaugeKind::Combined => {
+                let ion = factor(GaugeKind::Ionization, overrides.sensitivity);
+                let thermal = factor(GaugeKind::Thermal, overrides.thermal_sensitivity);
+                match (ion, thermal) {
+                    (Err(e), Err(_)) => return Err(e),
+                    (ion, thermal) => (
+                        ion.unwrap_or_else(Response::Missing),
+                        thermal.unwrap_or_else(Response::Missing),
+                    ),
+                }
+            }
         };
         Ok(GaugeModel {
             kind,
@@ -474,8 +538,22 @@ impl GaugeModel {
         })
     }
 
+    /// Why one element of a combined gauge has no correction, if so. A
+    /// monitored gauge needs both (a config refuses it); a single reading
+    /// needs only the element that reads it.
+    pub fn missing(&self) -> Option<&GaugeError> {
+        [&self.ionization, &self.thermal]
+            .into_iter()
+            .find_map(|r| match r {
+                Response::Missing(e) => Some(e),
+                _ => None,
+            })
+    }
+
     /// Corrects an indicated reading, flagging one outside the gauge's range
-    /// or outside its calibration table.
+    /// or outside its calibration table. A reading from a combined gauge's
+    /// element with no factor comes back as NaN with a `no-gauge-sensitivity`
+    /// warning: a number that cannot be corrected is never passed off as one.
     pub fn correct(&self, indicated_pa: f64) -> Corrected {
         let mut warnings = Vec::new();
         if let Some((lo, hi)) = self.range_pa
@@ -508,22 +586,35 @@ impl GaugeModel {
                 ),
             ));
         }
+        if let Response::Missing(e) = response {
+            warnings.push(Warning::new(
+                "no-gauge-sensitivity",
+                format!(
+                    "reading {indicated_pa:.3e} Pa comes from the {} element: {e}",
+                    self.kind.element(indicated_pa)
+                ),
+            ));
+        }
+        // Linearity is a property of the true pressure in the gauge, not of
+        // the N2-equivalent number it shows.
         if self.kind.element(indicated_pa) == GaugeKind::Thermal
             && let Response::Sensitivity(s) = response
             && *s != 1.0
-            && indicated_pa > 100.0
+            && pressure_pa > THERMAL_LINEAR_BELOW_PA
         {
             warnings.push(Warning::new(
                 "thermal-factor-nonlinear",
-                "a constant gas factor for a thermal gauge holds only in its linear range \
-                 (below about 1 mbar); above, use a calibration table"
-                    .to_string(),
+                format!(
+                    "true pressure {pressure_pa:.3e} Pa: a constant gas factor for a thermal \
+                     gauge holds only in its linear range (below about 1 mbar); above, use a \
+                     calibration table"
+                ),
             ));
         }
         let sensitivity = match response {
             Response::Direct => Some(1.0),
             Response::Sensitivity(s) => Some(*s),
-            Response::Table(_) => None,
+            Response::Table(_) | Response::Missing(_) => None,
         };
         Corrected {
             pressure_pa,

@@ -87,11 +87,18 @@ pub fn knudsen(mean_free_path_m: f64, length_m: f64) -> f64 {
     mean_free_path_m / length_m
 }
 
-/// Vacuum range names of ISO 3529-1.
+/// Vacuum range names of ISO 3529-1, with two classes above it: the
+/// standard defines vacuum as a pressure below atmospheric, so at and above
+/// atmosphere there is no vacuum range to name.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum VacuumRange {
-    /// Low (rough) vacuum.
+    /// Above atmospheric pressure: more than [`ABOVE_ATMOSPHERIC_PA`].
+    AboveAtmospheric,
+    /// At atmospheric pressure: from the standard atmosphere (101325 Pa) up
+    /// to [`ABOVE_ATMOSPHERIC_PA`]; not a vacuum.
+    Atmospheric,
+    /// Low (rough) vacuum: below atmospheric pressure down to 100 Pa.
     Low,
     /// Medium vacuum.
     Medium,
@@ -107,6 +114,8 @@ impl VacuumRange {
     /// The word used in output and configs.
     pub fn as_str(self) -> &'static str {
         match self {
+            VacuumRange::AboveAtmospheric => "above-atmospheric",
+            VacuumRange::Atmospheric => "atmospheric",
             VacuumRange::Low => "low",
             VacuumRange::Medium => "medium",
             VacuumRange::High => "high",
@@ -121,6 +130,17 @@ impl fmt::Display for VacuumRange {
         f.write_str(self.as_str())
     }
 }
+
+/// Upper end of [`VacuumRange::Atmospheric`], Pa: the standard atmosphere
+/// plus 5 %, the spread of barometric pressure at sea level (common
+/// practice, no source). The same margin flags `above-atmospheric` readings.
+pub const ABOVE_ATMOSPHERIC_PA: f64 = crate::units::ATM_PA * 1.05;
+
+/// Relative tolerance when a pressure is compared with a published range
+/// limit: a pressure within one part in 1e9 of a limit is taken as at the
+/// limit, so that the last-bit rounding of a unit conversion
+/// (1e-11 mbar × 100 = 9.999999999999999e-10 Pa) never moves it across.
+pub const LIMIT_REL_TOL: f64 = 1e-9;
 
 /// Edition of ISO 3529-1 whose range limits are used.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
@@ -154,13 +174,19 @@ impl IsoEdition {
         }
     }
 
-    /// Lower limits, Pa, of each range from `Low` downwards; a pressure at a
-    /// limit belongs to the range above it (100 Pa is low vacuum).
+    /// Lower limits, Pa, of each class from `AboveAtmospheric` downwards; a
+    /// pressure at a limit (within [`LIMIT_REL_TOL`]) belongs to the range
+    /// above it: 1 atm is atmospheric, 100 Pa is low vacuum, 1e-9 Pa is
+    /// ultra-high vacuum (extreme-high is "below 1e-9 Pa").
     // Limits: ISO 3529-1 as recorded in REFERENCES.md (c, from memory; the
-    // 2019 text calls them approximate).
+    // 2019 text calls them approximate). Both editions start low vacuum at
+    // atmospheric pressure (the 1981 edition writes it rounded, 1e5 Pa); the
+    // tool takes the standard atmosphere, 101325 Pa, for both.
     fn lower_limits(self) -> &'static [(VacuumRange, f64)] {
         match self {
             IsoEdition::Ed2019 => &[
+                (VacuumRange::AboveAtmospheric, ABOVE_ATMOSPHERIC_PA),
+                (VacuumRange::Atmospheric, crate::units::ATM_PA),
                 (VacuumRange::Low, 100.0),
                 (VacuumRange::Medium, 0.1),
                 (VacuumRange::High, 1e-6),
@@ -168,6 +194,8 @@ impl IsoEdition {
                 (VacuumRange::ExtremeHigh, 0.0),
             ],
             IsoEdition::Ed1981 => &[
+                (VacuumRange::AboveAtmospheric, ABOVE_ATMOSPHERIC_PA),
+                (VacuumRange::Atmospheric, crate::units::ATM_PA),
                 (VacuumRange::Low, 100.0),
                 (VacuumRange::Medium, 0.1),
                 (VacuumRange::High, 1e-5),
@@ -180,7 +208,7 @@ impl IsoEdition {
     pub fn classify(self, pressure_pa: f64) -> VacuumRange {
         self.lower_limits()
             .iter()
-            .find(|&&(_, lower)| pressure_pa >= lower)
+            .find(|&&(_, lower)| pressure_pa >= lower * (1.0 - LIMIT_REL_TOL))
             .map_or(VacuumRange::Low, |&(r, _)| r)
     }
 
@@ -228,7 +256,7 @@ mod tests {
     fn iso_3529_1_2019_ranges() {
         // Limits: ISO 3529-1:2019 as recorded in REFERENCES.md (c, from memory).
         let e = IsoEdition::Ed2019;
-        assert_eq!(e.classify(101_325.0), VacuumRange::Low);
+        assert_eq!(e.classify(101_324.0), VacuumRange::Low);
         assert_eq!(e.classify(100.0), VacuumRange::Low);
         assert_eq!(e.classify(99.9), VacuumRange::Medium);
         assert_eq!(e.classify(0.1), VacuumRange::Medium);
@@ -249,5 +277,51 @@ mod tests {
         assert_eq!(e.classify(1e-12), VacuumRange::UltraHigh);
         assert_eq!(e.limits(VacuumRange::ExtremeHigh), None);
         assert_eq!(e.limits(VacuumRange::High), Some((0.1, 1e-5)));
+    }
+
+    /// Parses "VALUE UNIT" as an operator types it.
+    fn pa(text: &str) -> f64 {
+        crate::units::parse::<crate::units::PressureUnit>(text)
+            .unwrap_or_else(|e| panic!("{e}"))
+            .si
+    }
+
+    #[test]
+    fn at_and_above_atmosphere_is_no_vacuum() {
+        // ISO 3529-1 defines vacuum as below atmospheric pressure (REFERENCES.md,
+        // low vacuum "atmospheric - 100 Pa"); 1 atm = 101325 Pa by definition.
+        for e in [IsoEdition::Ed2019, IsoEdition::Ed1981] {
+            assert_eq!(e.classify(pa("1 atm")), VacuumRange::Atmospheric);
+            assert_eq!(e.classify(pa("1013.25 mbar")), VacuumRange::Atmospheric);
+            assert_eq!(e.classify(pa("2e5 Pa")), VacuumRange::AboveAtmospheric);
+            assert_eq!(e.classify(pa("1000 mbar")), VacuumRange::Low);
+            assert_eq!(e.limits(VacuumRange::Low), Some((101_325.0, 100.0)));
+        }
+    }
+
+    #[test]
+    fn the_unit_never_moves_a_pressure_across_a_limit() {
+        // Every published limit of both editions (REFERENCES.md, ISO 3529-1,
+        // c from memory) written in Pa, mbar, kPa and Torr-free forms: the
+        // same pressure is in the same range whatever its unit, and a limit
+        // belongs to the range above it.
+        let e = IsoEdition::Ed2019;
+        for (pa_text, mbar_text, range) in [
+            ("100 Pa", "1 mbar", VacuumRange::Low),
+            ("0.1 Pa", "1e-3 mbar", VacuumRange::Medium),
+            ("1e-6 Pa", "1e-8 mbar", VacuumRange::High),
+            ("1e-9 Pa", "1e-11 mbar", VacuumRange::UltraHigh),
+        ] {
+            assert_eq!(e.classify(pa(pa_text)), range, "{pa_text}");
+            assert_eq!(e.classify(pa(mbar_text)), range, "{mbar_text}");
+        }
+        assert_eq!(e.classify(pa("1e-12 kPa")), VacuumRange::UltraHigh);
+        assert_eq!(e.classify(pa("9.99e-12 mbar")), VacuumRange::ExtremeHigh);
+        assert_eq!(e.classify(pa("0.99e-9 Pa")), VacuumRange::ExtremeHigh);
+        let e = IsoEdition::Ed1981;
+        // 1e-7 mbar x 100 is 9.999999999999999e-6 Pa in binary floating point.
+        assert_eq!(e.classify(pa("1e-7 mbar")), VacuumRange::High);
+        assert_eq!(e.classify(pa("1e-5 Pa")), VacuumRange::High);
+        assert_eq!(e.classify(pa("0.99e-5 Pa")), VacuumRange::UltraHigh);
     }
 }

@@ -298,3 +298,151 @@ fn calibration_table_replaces_the_factor() {
             .any(|w| w.code == "calibration-extrapolated")
     );
 }
+
+#[test]
+fn combined_gauge_without_a_thermal_factor_reads_below_the_crossover() {
+    // Ar has an ionization factor (CRC Handbook sec. 15: 1.4) and no
+    // general thermal-conductivity factor (gas table).
+    let ar = pure("Ar");
+    let g = GaugeModel::new(GaugeKind::Combined, &ar, &GaugeOverrides::default())
+        .expect("the ionization element alone is enough for a gauge model");
+    let c = g.correct(1.0e-6);
+    // REFERENCES.md (a, b): 1.0e-6 Pa indicated in pure Ar -> 7.143e-7 Pa.
+    assert_close!(c.pressure_pa, 7.143e-7, 1e-4);
+    assert!(c.warnings.is_empty(), "{:?}", c.warnings);
+    // Above the crossover the thermal element reads: no number, a reason.
+    let c = g.correct(10.0);
+    assert!(c.pressure_pa.is_nan());
+    assert_eq!(c.sensitivity, None);
+    assert!(
+        c.warnings.iter().any(|w| w.code == "no-gauge-sensitivity"
+            && w.message.contains("thermal")
+            && w.message.contains("Ar")),
+        "{:?}",
+        c.warnings
+    );
+    assert!(g.missing().is_some());
+    // A monitored gauge reads on both elements, so a config still asks.
+    let s = gauge::GaugeSettings {
+        kind: GaugeKind::Combined,
+        mixture: ar,
+        calibration_gas: None,
+        overrides: GaugeOverrides::default(),
+    };
+    let problems = GaugeModel::from_settings("chamber", &s)
+        .err()
+        .unwrap_or_default();
+    assert_eq!(problems.len(), 1, "{problems:?}");
+    assert!(problems[0].message.contains("thermal"), "{problems:?}");
+}
+
+#[test]
+fn thermal_nonlinear_warning_follows_the_true_pressure() {
+    // The 1 mbar linear limit is common practice, no source; the check is
+    // that it is applied to p = p_ind / S, not to p_ind.
+    let ar = pure("Ar");
+    let nonlinear = |s: f64, indicated: f64| {
+        let o = GaugeOverrides {
+            sensitivity: Some(s),
+            ..GaugeOverrides::default()
+        };
+        let g = GaugeModel::new(GaugeKind::Thermal, &ar, &o).expect("factor given");
+        g.correct(indicated)
+            .warnings
+            .iter()
+            .any(|w| w.code == "thermal-factor-nonlinear")
+    };
+    // 80 Pa indicated with S = 0.6 is 133 Pa true: beyond the linear range.
+    assert!(nonlinear(0.6, 80.0));
+    // 120 Pa indicated with S = 2 is 60 Pa true: inside it.
+    assert!(!nonlinear(2.0, 120.0));
+}
+
+#[test]
+fn mixture_most_probable_speed_is_the_mode() {
+    // (b) tests/reference/mixture_speed_mode.py: the mode of the summed
+    // Maxwell-Boltzmann distributions, scipy 1.17.1 (CODATA 2022).
+    let t = GasTable::builtin();
+    for (mix, temp, mode) in [
+        ("N2=0.78,O2=0.21,Ar=0.01", 295.15, 411.221671),
+        ("He=0.5,Ar=0.5", 300.0, 366.295364),
+        // Two peaks: the H2 one is taller here, the Xe one below.
+        ("H2=0.9,Ar=0.1", 300.0, 1573.11369),
+        ("H2=0.5,Xe=0.5", 300.0, 195.417491),
+    ] {
+        let m = Mixture::parse(mix, &t).expect(mix);
+        let d = derive(&Conditions::new(1e-3, temp), &m, &[], &Physics::default());
+        assert!(
+            close(d.most_probable_speed_m_per_s, mode, 1e-6),
+            "{mix}: {} vs {mode}",
+            d.most_probable_speed_m_per_s
+        );
+    }
+    // A pure gas: sqrt(2kT/m) (REFERENCES.md (b): Ar at 273.15 K, 337.198 m/s).
+    assert_close!(
+        at(1.0, 273.15, "Ar").most_probable_speed_m_per_s,
+        337.198,
+        2e-6
+    );
+}
+
+#[test]
+fn water_above_its_vapour_pressure_warns() {
+    // Saturation pressure at 22 C is 2645 Pa (Wagner & Pruss 1993, checked
+    // in engine/vapour.rs): 1 atm of water vapour cannot exist there.
+    let d = at(101_325.0, 295.15, "H2O");
+    assert!(
+        d.warnings.iter().any(|w| w.code == "above-saturation"),
+        "{:?}",
+        d.warnings
+    );
+    // 1 kPa is below it; and a mixture warns on the partial pressure
+    // (0.5 x 6 kPa = 3 kPa > 2645 Pa).
+    assert!(at(1000.0, 295.15, "H2O").warnings.is_empty());
+    let m = Mixture::parse("H2O=0.5,N2=0.5", &GasTable::builtin()).expect("mix");
+    let d = derive(
+        &Conditions::new(6000.0, 295.15),
+        &m,
+        &[],
+        &Physics::default(),
+    );
+    assert!(d.warnings.iter().any(|w| w.code == "above-saturation"));
+    let d = derive(
+        &Conditions::new(4000.0, 295.15),
+        &m,
+        &[],
+        &Physics::default(),
+    );
+    assert!(!d.warnings.iter().any(|w| w.code == "above-saturation"));
+}
+
+#[test]
+fn hard_sphere_far_from_its_reference_temperature_warns() {
+    // REFERENCES.md (b): N2 with a fixed 0.375 nm diameter has a mean free
+    // path ~14 % short at 500 K; at 295 K (2 % off) no warning.
+    let hs = Physics {
+        model: Model::HardSphere,
+        ..Physics::default()
+    };
+    let warn = |t: f64| {
+        derive(&Conditions::new(1.0, t), &pure("N2"), &[], &hs)
+            .warnings
+            .into_iter()
+            .find(|w| w.code == "hard-sphere-far-from-reference")
+    };
+    let w = warn(500.0).expect("500 K warns");
+    assert!(w.message.contains("14 % shorter"), "{}", w.message);
+    assert!(warn(295.0).is_none());
+    // The Sutherland model itself never raises it.
+    let d = derive(
+        &Conditions::new(1.0, 500.0),
+        &pure("N2"),
+        &[],
+        &Physics::default(),
+    );
+    assert!(
+        !d.warnings
+            .iter()
+            .any(|w| w.code == "hard-sphere-far-from-reference")
+    );
+}

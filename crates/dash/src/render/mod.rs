@@ -614,12 +614,24 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         units::format_temperature(t_k, app.temperature_unit),
         if measured { "measured" } else { "assumed" }
     );
-    let exposure_text = format!(
-        "{} Pa·s {} L",
-        format_sig(exposure, 3),
+    let since = match (track.exposure_since(), track.exposure.start()) {
+        (Some(t), _) => format!(" since {}", t.format("%H:%M:%S")),
+        (None, crate::engine::exposure::ExposureStart::Below(p)) => {
+            format!(" (from < {})", units::format_pressure(p, app.pressure_unit))
+        }
+        (None, _) => " (from reset)".to_string(),
+    };
+    let langmuir = format!(
+        "{} L{since}",
         format_sig(exposure / units::LANGMUIR_PA_S, 3)
-    )
-    .replace('·', look.sym("·", "*"));
+    );
+    let full = format!("{} Pa·s {langmuir}", format_sig(exposure, 3));
+    // A narrow panel keeps the langmuir and the start, dropping Pa·s.
+    let exposure_text = if full.chars().count() + 12 > usize::from(inner.width) {
+        langmuir
+    } else {
+        full.replace('·', look.sym("·", "*"))
+    };
     if inner.height < 9 {
         // Compact: two quantities a line.
         let pair = |a: &str, av: String, b: &str, bv: String| {
