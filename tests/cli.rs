@@ -327,9 +327,21 @@ fn invalid_configs_are_located() {
             ":7:13:",
             "no length named `thorw` is configured",
         ),
+        ("several_problems.toml", ":3:1:", "did you mean `volume`?"),
+        (
+            "several_problems.toml",
+            ":5:2:",
+            "unknown section `[camber]`",
+        ),
+        ("several_problems.toml", ":9:11:", "expected a duration"),
+        (
+            "not_utf8.toml",
+            ":2:10:",
+            "byte 0xe4 at byte offset 19 is not UTF-8",
+        ),
     ];
     let dir = Path::new("tests/invalid_configs");
-    let mut seen = 0;
+    let mut seen = std::collections::BTreeSet::new();
     for (file, at, expect) in cases {
         let path = dir.join(file);
         let o = rarefy(&["config", "check", path.to_str().expect("utf-8 path")]);
@@ -340,13 +352,14 @@ fn invalid_configs_are_located() {
             "{file}: {err}"
         );
         assert!(err.contains(expect), "{file}: expected {expect:?} in {err}");
-        seen += 1;
+        seen.insert(file);
     }
     let on_disk = std::fs::read_dir(Path::new(env!("CARGO_MANIFEST_DIR")).join(dir))
         .expect("dir")
         .count();
     assert_eq!(
-        seen, on_disk,
+        seen.len(),
+        on_disk,
         "every file in tests/invalid_configs has a case"
     );
 }

@@ -121,12 +121,7 @@ pub(crate) struct LoadedConfig {
 fn load_config(path: Option<&PathBuf>) -> Result<LoadedConfig, CliError> {
     match path {
         Some(p) => {
-            let text = std::fs::read_to_string(p).map_err(|e| {
-                CliError::Config(ConfigErrors(vec![config::ConfigError::file(
-                    p,
-                    format!("cannot read the file: {e}"),
-                )]))
-            })?;
+            let text = config::read_text(p)?;
             Ok(LoadedConfig {
                 config: config::parse(&text, p)?,
                 file: Some((p.clone(), text)),
