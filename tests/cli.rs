@@ -406,3 +406,64 @@ fn gases_lists_every_source() {
         );
     }
 }
+
+/// Whether text holds anything a terminal would act on.
+fn has_terminal_controls(text: &str) -> bool {
+    text.chars().any(|c| {
+        matches!(c as u32, 0..=0x08 | 0x0b..=0x1f | 0x7f..=0x9f | 0x202a..=0x202e | 0x2066..=0x2069)
+    })
+}
+
+#[test]
+fn escapes_in_arguments_config_text_and_names_never_reach_the_terminal() {
+    let dir = std::env::temp_dir().join(format!("rarefy-cli-esc-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("dir");
+    // An argument echoed in a usage error.
+    let o = rarefy(&["calc", "--pressure", "1e-6 \u{1b}[2J\u{202e}mbar"]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = stderr(&o);
+    assert!(!has_terminal_controls(&err), "{err:?}");
+    assert!(err.contains("\\u{202e}mbar"), "{err:?}");
+    // Configuration text echoed by `config check` (summary and errors).
+    let cfg = dir.join("esc.toml");
+    std::fs::write(&cfg, "[chamber]\nname = \"rig \\u001b]0;title\\u0007\"\n").expect("write");
+    let o = rarefy(&["config", "check", cfg.to_str().expect("utf-8")]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(!has_terminal_controls(&out), "{out:?}");
+    assert!(out.contains("rig \\x1b]0;title\\x07"), "{out:?}");
+    std::fs::write(&cfg, "[chamber]\nname = \"x\"\n\u{1b}[31m = 1\n").expect("write");
+    let o = rarefy(&["config", "check", cfg.to_str().expect("utf-8")]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(!has_terminal_controls(&stderr(&o)), "{:?}", stderr(&o));
+    // A path in a source URI, echoed in a runtime message.
+    let o = rarefy(&[
+        "record",
+        "--source",
+        "file:///nonexistent/\u{1b}[2Jrun.csv",
+        "--out",
+        dir.to_str().expect("utf-8"),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    let err = stderr(&o);
+    assert!(!has_terminal_controls(&err), "{err:?}");
+    assert!(!has_terminal_controls(&stdout(&o)), "{:?}", stdout(&o));
+    // A custom gas's name in the `gases` table and its JSON.
+    std::fs::write(
+        &cfg,
+        "[[gas.custom]]\nid = \"X\\u009b1m\"\nmolar_mass = \"40 g/mol\"\ndiameter = \"3.6e-10 m\"\n",
+    )
+    .expect("write");
+    for json in [false, true] {
+        let mut args = vec!["gases", "--config", cfg.to_str().expect("utf-8")];
+        if json {
+            args.push("--json");
+        }
+        let o = rarefy(&args);
+        let text = format!("{}{}", stdout(&o), stderr(&o));
+        assert!(!has_terminal_controls(&text), "{text:?}");
+        if json && o.status.code() == Some(0) {
+            let _: serde_json::Value = serde_json::from_slice(&o.stdout).expect("still JSON");
+        }
+    }
+}

@@ -143,8 +143,20 @@ fn runtime() -> Result<tokio::runtime::Runtime, CliError> {
         .map_err(|e| CliError::Runtime(format!("cannot start the runtime: {e}")))
 }
 
-/// Writes to stdout; a closed pipe (`rarefy gases | head`) is not an error.
+/// Writes text to stdout, escaping what could act on a terminal (device
+/// text, names and arguments echoed in tables); a closed pipe
+/// (`rarefy gases | head`) is not an error.
 fn print_out(text: &str) -> Result<(), CliError> {
+    write_out(&rarefy_core::parse::terminal_text(text))
+}
+
+/// Writes JSON text to stdout, as [`print_out`] does, keeping it the same
+/// JSON.
+fn print_json(json: &str) -> Result<(), CliError> {
+    write_out(&rarefy_core::parse::terminal_json(json))
+}
+
+fn write_out(text: &str) -> Result<(), CliError> {
     let mut out = std::io::stdout().lock();
     match out.write_all(text.as_bytes()).and_then(|()| out.flush()) {
         Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => Err(e.into()),
@@ -157,14 +169,17 @@ pub fn main() -> std::process::ExitCode {
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
         Err(e) => {
-            // Prints help/version to stdout (exit 0) or the error (exit 2).
-            let _ = e.print();
-            return if e.use_stderr() {
-                ExitCode::Usage
-            } else {
-                ExitCode::Ok
+            // Prints help/version to stdout (exit 0) or the error (exit 2);
+            // an error echoes the arguments, so it is escaped.
+            if e.use_stderr() {
+                eprint!(
+                    "{}",
+                    rarefy_core::parse::terminal_text(&e.render().to_string())
+                );
+                return ExitCode::Usage.into();
             }
-            .into();
+            let _ = e.print();
+            return ExitCode::Ok.into();
         }
     };
     let result = match cli.command {
@@ -180,7 +195,10 @@ pub fn main() -> std::process::ExitCode {
     match result {
         Ok(code) => code.into(),
         Err(e) => {
-            eprintln!("error: {e}");
+            eprintln!(
+                "error: {}",
+                rarefy_core::parse::terminal_text(&e.to_string())
+            );
             e.exit_code().into()
         }
     }
