@@ -467,3 +467,77 @@ fn escapes_in_arguments_config_text_and_names_never_reach_the_terminal() {
         }
     }
 }
+
+#[test]
+fn one_off_alarms_on_unknown_gauges_or_with_taken_ids_are_refused() {
+    let dir = std::env::temp_dir().join(format!("rarefy-cli-alarm-{}", std::process::id()));
+    let out = dir.to_str().expect("utf-8");
+    let o = rarefy(&[
+        "record",
+        "--config",
+        "config/demo.toml",
+        "--source",
+        "stdin:",
+        "--alarm",
+        "chambr pressure above 1 mbar",
+        "--out",
+        out,
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("no gauge or channel `chambr`; did you mean `chamber`?"),
+        "{}",
+        stderr(&o)
+    );
+    let o = rarefy(&[
+        "record",
+        "--config",
+        "config/demo.toml",
+        "--source",
+        "stdin:",
+        "--alarm",
+        "chamber pressure above 1 mbar named twin",
+        "--alarm",
+        "chamber pressure above 2 mbar named twin",
+        "--out",
+        out,
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("the id `twin` is already used"),
+        "{}",
+        stderr(&o)
+    );
+    let o = rarefy(&["record", "--source", "stdin:?unit=mbr", "--out", out]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("did you mean `mbar`?"),
+        "{}",
+        stderr(&o)
+    );
+}
+
+#[test]
+fn lines_of_only_delimiters_are_counted_unparsed() {
+    let dir = std::env::temp_dir().join(format!("rarefy-cli-blank-{}", std::process::id()));
+    let mut child = Command::new(env!("CARGO_BIN_EXE_rarefy"))
+        .args(["record", "--source", "stdin:", "--out"])
+        .arg(&dir)
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    {
+        use std::io::Write;
+        let mut stdin = child.stdin.take().expect("stdin");
+        stdin.write_all(b",,,\n  \t \n;\n1e-6\n").expect("write");
+    }
+    let o = child.wait_with_output().expect("wait");
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("1 samples in 1 rows written; 3 unparsed lines"),
+        "{}",
+        stderr(&o)
+    );
+}
