@@ -288,3 +288,33 @@ fn a_file_that_cannot_be_read_is_a_runtime_failure() {
     assert!(err.contains("cannot open /nonexistent/run.csv"), "{err}");
     assert!(err.contains("no readings: the sources failed"), "{err}");
 }
+
+#[test]
+fn with_no_source_a_terminal_on_stdin_is_refused_not_read() {
+    let dir = tempdir("terminal");
+    let pty = nix::pty::openpty(None, None).expect("openpty");
+    let gates = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("config/demo.toml");
+    let commands: [Vec<std::ffi::OsString>; 2] = [
+        vec!["record".into(), "--out".into(), dir.clone().into()],
+        vec![
+            "gate".into(),
+            "wait".into(),
+            "deposition-ready".into(),
+            "--config".into(),
+            gates.into(),
+            "--timeout".into(),
+            "1 s".into(),
+        ],
+    ];
+    for args in commands {
+        let stdin = pty.slave.try_clone().expect("pty");
+        let out = Command::new(bin())
+            .args(&args)
+            .stdin(Stdio::from(stdin))
+            .output()
+            .expect("run");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains("no source"), "{args:?}: {err}");
+    }
+}

@@ -134,6 +134,22 @@ fn load_config(path: Option<&PathBuf>) -> Result<LoadedConfig, CliError> {
     }
 }
 
+/// With no source named (no `--source`, no `[[source]]`), a live command
+/// reads a pipe on stdin; a terminal there is the keyboard, not a gauge, and
+/// is refused (exit 2) rather than read silently.
+fn refuse_terminal_input(sources: &[String], config: &Config) -> Result<(), CliError> {
+    if sources.is_empty()
+        && config.sources.is_empty()
+        && std::io::IsTerminal::is_terminal(&std::io::stdin())
+    {
+        return Err(CliError::Usage(
+            "no source: give --source URI or a --config with [[source]] (or pipe readings into stdin)"
+                .into(),
+        ));
+    }
+    Ok(())
+}
+
 /// The runtime every live command runs on.
 fn runtime() -> Result<tokio::runtime::Runtime, CliError> {
     tokio::runtime::Builder::new_multi_thread()

@@ -125,6 +125,7 @@ fn report_outcome(o: &crate::action::Outcome) {
 /// Runs `rarefy record`.
 pub fn run(args: &RecordArgs) -> Result<ExitCode, CliError> {
     let loaded = load_config(args.config.as_ref())?;
+    super::refuse_terminal_input(&args.source, &loaded.config)?;
     let sources = start::sources(&args.source, &loaded.config).map_err(CliError::Usage)?;
     let dir = args
         .out
