@@ -342,9 +342,21 @@ fn invalid_configs_are_located() {
             ":2:1:",
             "did you mean `mean_free_path`?",
         ),
+        ("several_problems.toml", ":3:1:", "did you mean `volume`?"),
+        (
+            "several_problems.toml",
+            ":5:2:",
+            "unknown section `[camber]`",
+        ),
+        ("several_problems.toml", ":9:11:", "expected a duration"),
+        (
+            "not_utf8.toml",
+            ":2:10:",
+            "byte 0xe4 at byte offset 19 is not UTF-8",
+        ),
     ];
     let dir = Path::new("tests/invalid_configs");
-    let mut seen = 0;
+    let mut seen = std::collections::BTreeSet::new();
     for (file, at, expect) in cases {
         let path = dir.join(file);
         let o = rarefy(&["config", "check", path.to_str().expect("utf-8 path")]);
@@ -355,13 +367,14 @@ fn invalid_configs_are_located() {
             "{file}: {err}"
         );
         assert!(err.contains(expect), "{file}: expected {expect:?} in {err}");
-        seen += 1;
+        seen.insert(file);
     }
     let on_disk = std::fs::read_dir(Path::new(env!("CARGO_MANIFEST_DIR")).join(dir))
         .expect("dir")
         .count();
     assert_eq!(
-        seen, on_disk,
+        seen.len(),
+        on_disk,
         "every file in tests/invalid_configs has a case"
     );
 }
@@ -536,4 +549,139 @@ fn calc_warns_of_water_above_its_vapour_pressure() {
     let o = rarefy(&["calc", "--help"]);
     assert!(stdout(&o).contains("mode of the"));
     assert!(stdout(&o).contains("--thermal-sensitivity"));
+}
+
+/// Whether text holds anything a terminal would act on.
+fn has_terminal_controls(text: &str) -> bool {
+    text.chars().any(|c| {
+        matches!(c as u32, 0..=0x08 | 0x0b..=0x1f | 0x7f..=0x9f | 0x202a..=0x202e | 0x2066..=0x2069)
+    })
+}
+
+#[test]
+fn escapes_in_arguments_config_text_and_names_never_reach_the_terminal() {
+    let dir = std::env::temp_dir().join(format!("rarefy-cli-esc-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("dir");
+    // An argument echoed in a usage error.
+    let o = rarefy(&["calc", "--pressure", "1e-6 \u{1b}[2J\u{202e}mbar"]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = stderr(&o);
+    assert!(!has_terminal_controls(&err), "{err:?}");
+    assert!(err.contains("\\u{202e}mbar"), "{err:?}");
+    // Configuration text echoed by `config check` (summary and errors).
+    let cfg = dir.join("esc.toml");
+    std::fs::write(&cfg, "[chamber]\nname = \"rig \\u001b]0;title\\u0007\"\n").expect("write");
+    let o = rarefy(&["config", "check", cfg.to_str().expect("utf-8")]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(!has_terminal_controls(&out), "{out:?}");
+    assert!(out.contains("rig \\x1b]0;title\\x07"), "{out:?}");
+    std::fs::write(&cfg, "[chamber]\nname = \"x\"\n\u{1b}[31m = 1\n").expect("write");
+    let o = rarefy(&["config", "check", cfg.to_str().expect("utf-8")]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(!has_terminal_controls(&stderr(&o)), "{:?}", stderr(&o));
+    // A path in a source URI, echoed in a runtime message.
+    let o = rarefy(&[
+        "record",
+        "--source",
+        "file:///nonexistent/\u{1b}[2Jrun.csv",
+        "--out",
+        dir.to_str().expect("utf-8"),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    let err = stderr(&o);
+    assert!(!has_terminal_controls(&err), "{err:?}");
+    assert!(!has_terminal_controls(&stdout(&o)), "{:?}", stdout(&o));
+    // A custom gas's name in the `gases` table and its JSON.
+    std::fs::write(
+        &cfg,
+        "[[gas.custom]]\nid = \"X\\u009b1m\"\nmolar_mass = \"40 g/mol\"\ndiameter = \"3.6e-10 m\"\n",
+    )
+    .expect("write");
+    for json in [false, true] {
+        let mut args = vec!["gases", "--config", cfg.to_str().expect("utf-8")];
+        if json {
+            args.push("--json");
+        }
+        let o = rarefy(&args);
+        let text = format!("{}{}", stdout(&o), stderr(&o));
+        assert!(!has_terminal_controls(&text), "{text:?}");
+        if json && o.status.code() == Some(0) {
+            let _: serde_json::Value = serde_json::from_slice(&o.stdout).expect("still JSON");
+        }
+    }
+}
+
+#[test]
+fn one_off_alarms_on_unknown_gauges_or_with_taken_ids_are_refused() {
+    let dir = std::env::temp_dir().join(format!("rarefy-cli-alarm-{}", std::process::id()));
+    let out = dir.to_str().expect("utf-8");
+    let o = rarefy(&[
+        "record",
+        "--config",
+        "config/demo.toml",
+        "--source",
+        "stdin:",
+        "--alarm",
+        "chambr pressure above 1 mbar",
+        "--out",
+        out,
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("no gauge or channel `chambr`; did you mean `chamber`?"),
+        "{}",
+        stderr(&o)
+    );
+    let o = rarefy(&[
+        "record",
+        "--config",
+        "config/demo.toml",
+        "--source",
+        "stdin:",
+        "--alarm",
+        "chamber pressure above 1 mbar named twin",
+        "--alarm",
+        "chamber pressure above 2 mbar named twin",
+        "--out",
+        out,
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("the id `twin` is already used"),
+        "{}",
+        stderr(&o)
+    );
+    let o = rarefy(&["record", "--source", "stdin:?unit=mbr", "--out", out]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("did you mean `mbar`?"),
+        "{}",
+        stderr(&o)
+    );
+}
+
+#[test]
+fn lines_of_only_delimiters_are_counted_unparsed() {
+    let dir = std::env::temp_dir().join(format!("rarefy-cli-blank-{}", std::process::id()));
+    let mut child = Command::new(env!("CARGO_BIN_EXE_rarefy"))
+        .args(["record", "--source", "stdin:", "--out"])
+        .arg(&dir)
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    {
+        use std::io::Write;
+        let mut stdin = child.stdin.take().expect("stdin");
+        stdin.write_all(b",,,\n  \t \n;\n1e-6\n").expect("write");
+    }
+    let o = child.wait_with_output().expect("wait");
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("1 samples in 1 rows written; 3 unparsed lines"),
+        "{}",
+        stderr(&o)
+    );
 }

@@ -208,6 +208,51 @@ fn a_file_size_limit_is_reported_and_survived_in_new_files() {
 }
 
 #[test]
+fn rows_lost_to_a_full_buffer_are_one_event_with_count_and_time_range() {
+    let dir = tempdir("lost");
+    // A file where the output directory should be: nothing can be written.
+    let out_dir = dir.join("blocked");
+    std::fs::create_dir_all(&dir).expect("dir");
+    std::fs::write(&out_dir, "not a directory").expect("block");
+    let mut child = Command::new(bin())
+        .args([
+            "record",
+            "--source",
+            "stdin:",
+            "--buffer-rows",
+            "10",
+            "--out",
+        ])
+        .arg(&out_dir)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    {
+        let mut stdin = child.stdin.take().expect("stdin");
+        for i in 0..200 {
+            writeln!(stdin, "{}e-8", i + 1).expect("write");
+        }
+    }
+    let out = child.wait_with_output().expect("wait");
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(1), "{stderr}");
+    let lost: Vec<serde_json::Value> = stdout
+        .lines()
+        .filter_map(|l| serde_json::from_str::<serde_json::Value>(l).ok())
+        .filter(|v| v["event"] == "rows-lost")
+        .collect();
+    assert_eq!(lost.len(), 1, "{stdout}");
+    assert_eq!(lost[0]["rows"], 190, "{stdout}");
+    assert_eq!(lost[0]["total"], 190, "{stdout}");
+    let (from, to) = (lost[0]["from"].as_str(), lost[0]["to"].as_str());
+    assert!(from.is_some_and(|f| to.is_some_and(|t| f <= t)), "{stdout}");
+    assert_eq!(stderr.matches("memory buffer full").count(), 1, "{stderr}");
+}
+
+#[test]
 fn record_needs_an_output_directory() {
     let out = Command::new(bin())
         .args(["record", "--source", "stdin:"])
@@ -242,4 +287,34 @@ fn a_file_that_cannot_be_read_is_a_runtime_failure() {
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("cannot open /nonexistent/run.csv"), "{err}");
     assert!(err.contains("no readings: the sources failed"), "{err}");
+}
+
+#[test]
+fn with_no_source_a_terminal_on_stdin_is_refused_not_read() {
+    let dir = tempdir("terminal");
+    let pty = nix::pty::openpty(None, None).expect("openpty");
+    let gates = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("config/demo.toml");
+    let commands: [Vec<std::ffi::OsString>; 2] = [
+        vec!["record".into(), "--out".into(), dir.clone().into()],
+        vec![
+            "gate".into(),
+            "wait".into(),
+            "deposition-ready".into(),
+            "--config".into(),
+            gates.into(),
+            "--timeout".into(),
+            "1 s".into(),
+        ],
+    ];
+    for args in commands {
+        let stdin = pty.slave.try_clone().expect("pty");
+        let out = Command::new(bin())
+            .args(&args)
+            .stdin(Stdio::from(stdin))
+            .output()
+            .expect("run");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains("no source"), "{args:?}: {err}");
+    }
 }

@@ -331,6 +331,38 @@ async fn followed_file_is_appended_rotated_and_truncated() {
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn a_followed_file_truncated_and_regrown_at_once_is_read_again_from_its_start() {
+    let dir = tempdir("regrow");
+    let path = dir.join("chamber.log");
+    std::fs::write(&path, "1e-6\n2e-6\n3e-6\n4e").expect("write");
+    let uri = format!("file://{}?follow=true", path.display());
+    let (mut p, task) = Probe::start(&uri, Box::new(PlainDecoder::new("p", MBAR)), None);
+    p.until("existing lines", |s| s.values.len() >= 3).await;
+    // Truncated and at once written again, longer than before, within one
+    // poll: the size alone never shows the truncation.
+    let burst: Vec<String> = (1..=40).map(|i| format!("{i}e-9\n")).collect();
+    std::fs::write(&path, burst.concat()).expect("truncate and burst");
+    p.until("every line of the burst", |s| s.values.len() >= 43)
+        .await;
+    let mut expected = vec![1e-6, 2e-6, 3e-6];
+    expected.extend((1..=40).map(|i| format!("{i}e-9").parse::<f64>().unwrap_or(f64::NAN)));
+    assert_eq!(p.values(), expected);
+    assert!(
+        p.seen.errors.iter().any(|e| e.contains("truncated")),
+        "{:?}",
+        p.seen.errors
+    );
+    // The unfinished line the truncation cut off is counted, not lost.
+    assert_eq!(
+        p.seen.unparsed,
+        ["incomplete line cut off by truncation: 4e"],
+        "{:?}",
+        p.seen
+    );
+    task.abort();
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn a_file_read_once_ends_with_its_last_line() {
     let dir = tempdir("once");
     let path = dir.join("short.log");

@@ -5,7 +5,7 @@ use std::path::PathBuf;
 use clap::{Args, ValueEnum};
 use serde::Serialize;
 
-use super::{CliError, ExitCode, load_config, print_out};
+use super::{CliError, ExitCode, load_config, print_json, print_out};
 use crate::engine::gauge::GaugeKind;
 use crate::engine::mixture::Mixture;
 use crate::engine::{
@@ -371,7 +371,7 @@ pub fn run(args: &CalcArgs) -> Result<ExitCode, CliError> {
         let mut text = serde_json::to_string_pretty(&out)
             .map_err(|e| CliError::Runtime(format!("cannot write JSON: {e}")))?;
         text.push('\n');
-        print_out(&text)?;
+        print_json(&text)?;
     } else {
         let unit = args.unit.unwrap_or(args.pressure.unit);
         let temp_unit = args

@@ -4,7 +4,7 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use super::{CliError, ExitCode, load_config, print_out};
+use super::{CliError, ExitCode, load_config, print_json, print_out};
 use crate::units::format_sig;
 
 /// `rarefy gases` arguments.
@@ -26,7 +26,7 @@ pub fn run(args: &GasesArgs) -> Result<ExitCode, CliError> {
         let mut text = serde_json::to_string_pretty(&gases)
             .map_err(|e| CliError::Runtime(format!("cannot write JSON: {e}")))?;
         text.push('\n');
-        return print_out(&text).map(|()| ExitCode::Ok);
+        return print_json(&text).map(|()| ExitCode::Ok);
     }
     let opt = |v: Option<f64>, sig: usize| v.map_or("-".to_string(), |v| format_sig(v, sig));
     let mut s = format!(

@@ -68,6 +68,7 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
             }
         )));
     }
+    super::refuse_terminal_input(source, config)?;
     let sources = start::sources(source, config).map_err(CliError::Usage)?;
     let rt = super::runtime()?;
     let result = rt.block_on(async {

@@ -121,12 +121,7 @@ pub(crate) struct LoadedConfig {
 fn load_config(path: Option<&PathBuf>) -> Result<LoadedConfig, CliError> {
     match path {
         Some(p) => {
-            let text = std::fs::read_to_string(p).map_err(|e| {
-                CliError::Config(ConfigErrors(vec![config::ConfigError::file(
-                    p,
-                    format!("cannot read the file: {e}"),
-                )]))
-            })?;
+            let text = config::read_text(p)?;
             Ok(LoadedConfig {
                 config: config::parse(&text, p)?,
                 file: Some((p.clone(), text)),
@@ -139,6 +134,22 @@ fn load_config(path: Option<&PathBuf>) -> Result<LoadedConfig, CliError> {
     }
 }
 
+/// With no source named (no `--source`, no `[[source]]`), a live command
+/// reads a pipe on stdin; a terminal there is the keyboard, not a gauge, and
+/// is refused (exit 2) rather than read silently.
+fn refuse_terminal_input(sources: &[String], config: &Config) -> Result<(), CliError> {
+    if sources.is_empty()
+        && config.sources.is_empty()
+        && std::io::IsTerminal::is_terminal(&std::io::stdin())
+    {
+        return Err(CliError::Usage(
+            "no source: give --source URI or a --config with [[source]] (or pipe readings into stdin)"
+                .into(),
+        ));
+    }
+    Ok(())
+}
+
 /// The runtime every live command runs on.
 fn runtime() -> Result<tokio::runtime::Runtime, CliError> {
     tokio::runtime::Builder::new_multi_thread()
@@ -148,8 +159,20 @@ fn runtime() -> Result<tokio::runtime::Runtime, CliError> {
         .map_err(|e| CliError::Runtime(format!("cannot start the runtime: {e}")))
 }
 
-/// Writes to stdout; a closed pipe (`rarefy gases | head`) is not an error.
+/// Writes text to stdout, escaping what could act on a terminal (device
+/// text, names and arguments echoed in tables); a closed pipe
+/// (`rarefy gases | head`) is not an error.
 fn print_out(text: &str) -> Result<(), CliError> {
+    write_out(&rarefy_core::parse::terminal_text(text))
+}
+
+/// Writes JSON text to stdout, as [`print_out`] does, keeping it the same
+/// JSON.
+fn print_json(json: &str) -> Result<(), CliError> {
+    write_out(&rarefy_core::parse::terminal_json(json))
+}
+
+fn write_out(text: &str) -> Result<(), CliError> {
     let mut out = std::io::stdout().lock();
     match out.write_all(text.as_bytes()).and_then(|()| out.flush()) {
         Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => Err(e.into()),
@@ -162,14 +185,17 @@ pub fn main() -> std::process::ExitCode {
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
         Err(e) => {
-            // Prints help/version to stdout (exit 0) or the error (exit 2).
-            let _ = e.print();
-            return if e.use_stderr() {
-                ExitCode::Usage
-            } else {
-                ExitCode::Ok
+            // Prints help/version to stdout (exit 0) or the error (exit 2);
+            // an error echoes the arguments, so it is escaped.
+            if e.use_stderr() {
+                eprint!(
+                    "{}",
+                    rarefy_core::parse::terminal_text(&e.render().to_string())
+                );
+                return ExitCode::Usage.into();
             }
-            .into();
+            let _ = e.print();
+            return ExitCode::Ok.into();
         }
     };
     let result = match cli.command {
@@ -185,7 +211,10 @@ pub fn main() -> std::process::ExitCode {
     match result {
         Ok(code) => code.into(),
         Err(e) => {
-            eprintln!("error: {e}");
+            eprintln!(
+                "error: {}",
+                rarefy_core::parse::terminal_text(&e.to_string())
+            );
             e.exit_code().into()
         }
     }

@@ -13,6 +13,7 @@ use super::{CliError, ExitCode, LoadedConfig, load_config};
 use crate::action::ActionRunner;
 use crate::alarm::Monitor;
 use crate::config::SourceConfig;
+use crate::log::v1::format_time;
 use crate::pipeline::sinks::{Actions, JsonLines, Recording, RecordingNote, emit, say};
 use crate::pipeline::start::{self, ConfigFile};
 use crate::pipeline::{DataClock, Nowhere, Pipeline};
@@ -93,11 +94,19 @@ pub(crate) fn report(note: RecordingNote) {
             say(&format!("writing again, to {}", path.display()));
             emit(json!({"event": "write-recovered", "path": path}));
         }
-        RecordingNote::Recorder(RecordEvent::Lost { rows, total }) => {
+        RecordingNote::Recorder(RecordEvent::Lost {
+            rows,
+            total,
+            from,
+            to,
+        }) => {
+            let (from, to) = (format_time(from), format_time(to));
             say(&format!(
-                "DATA LOST: memory buffer full, {rows} rows dropped ({total} in all)"
+                "DATA LOST: memory buffer full while writing failed, {rows} rows dropped, data time {from} to {to} ({total} in all)"
             ));
-            emit(json!({"event": "rows-lost", "rows": rows, "total": total}));
+            emit(
+                json!({"event": "rows-lost", "rows": rows, "total": total, "from": from, "to": to}),
+            );
         }
         RecordingNote::EventLog(message) => {
             say(&message);
@@ -116,6 +125,7 @@ fn report_outcome(o: &crate::action::Outcome) {
 /// Runs `rarefy record`.
 pub fn run(args: &RecordArgs) -> Result<ExitCode, CliError> {
     let loaded = load_config(args.config.as_ref())?;
+    super::refuse_terminal_input(&args.source, &loaded.config)?;
     let sources = start::sources(&args.source, &loaded.config).map_err(CliError::Usage)?;
     let dir = args
         .out

@@ -183,7 +183,7 @@ pub fn watch(args: &WatchArgs) -> Result<ExitCode, CliError> {
     rt.shutdown_background();
     let problems = result?;
     for p in &problems {
-        eprintln!("rarefy: {p}");
+        eprintln!("rarefy: {}", rarefy_core::parse::terminal_text(p));
     }
     Ok(if problems.is_empty() {
         ExitCode::Ok

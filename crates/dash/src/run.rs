@@ -218,7 +218,7 @@ pub async fn live(mut app: App, mut input: LiveInput) -> Result<Vec<String>, Str
                     RecordingNote::Recorder(RecordEvent::Recovered { path }) => {
                         app.message = Some(format!("recording again, to {}", path.display()));
                     }
-                    RecordingNote::Recorder(RecordEvent::Lost { rows, total }) => {
+                    RecordingNote::Recorder(RecordEvent::Lost { rows, total, .. }) => {
                         app.message = Some(format!(
                             "DATA LOST: {rows} rows dropped ({total} in all)"
                         ));

@@ -149,6 +149,31 @@ pub fn explain_serde_message(message: &str, section: Option<&str>) -> String {
     format!("unknown {what} `{bad}`{place}{hint} ({label}: {list})")
 }
 
+/// Rewrites serde's "unknown field `x`, expected one of …" for a top-level
+/// key as an unknown section that names itself (`[x]`, `[[x]]`), with the
+/// nearest valid section. `header` is `[]`, `[[]]` or empty for a plain key.
+pub fn unknown_section(message: &str, key: &str, header: &str) -> String {
+    let expected: Vec<&str> = message.split('`').skip(3).step_by(2).collect();
+    let shown = |k: &str| match header {
+        "[]" => format!("[{k}]"),
+        "[[]]" => format!("[[{k}]]"),
+        _ => k.to_string(),
+    };
+    let what = if header.is_empty() {
+        "top-level key"
+    } else {
+        "section"
+    };
+    let hint = crate::suggest::nearest(key, expected.iter().copied())
+        .map(|s| format!("; did you mean `{s}`?"))
+        .unwrap_or_default();
+    format!(
+        "unknown {what} `{}`{hint} (sections: {})",
+        shown(key),
+        expected.join(", ")
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

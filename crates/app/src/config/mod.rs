@@ -98,30 +98,273 @@ impl Default for Config {
 
 /// Reads and checks a configuration file.
 pub fn load(path: &Path) -> Result<Config, ConfigErrors> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| ConfigError::file(path, format!("cannot read the file: {e}")))?;
+    let text = read_text(path)?;
     parse(&text, path)
 }
 
-/// Parses and checks configuration text; `path` is used in messages.
+/// Reads a configuration file's text. Bytes that are not UTF-8 are an error
+/// naming their line, column and byte offset.
+pub fn read_text(path: &Path) -> Result<String, ConfigErrors> {
+    let bytes = std::fs::read(path)
+        .map_err(|e| ConfigError::file(path, format!("cannot read the file: {e}")))?;
+    String::from_utf8(bytes).map_err(|e| {
+        let bytes = e.as_bytes();
+        let at = e.utf8_error().valid_up_to();
+        // The prefix up to `at` is valid UTF-8.
+        let before = std::str::from_utf8(&bytes[..at]).unwrap_or_default();
+        let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+        ConfigErrors(vec![ConfigError {
+            line: Some(before.matches('\n').count() + 1),
+            column: Some(before[line_start..].chars().count() + 1),
+            ..ConfigError::file(
+                path,
+                format!(
+                    "byte 0x{:02x} at byte offset {at} is not UTF-8; the file must be UTF-8 text",
+                    bytes[at]
+                ),
+            )
+        }])
+    })
+}
+
+/// Parses and checks configuration text; `path` is used in messages. Every
+/// problem found is reported: all syntax errors, every unknown key or wrong
+/// type, then (when the file's shape is sound) every value's problem.
 pub fn parse(text: &str, path: &Path) -> Result<Config, ConfigErrors> {
-    let raw: file::ConfigFile = toml::from_str(text).map_err(|e| {
-        let span = e.span().unwrap_or(0..0);
-        let section = error::section_at(text, span.start);
-        let message = error::explain_serde_message(e.message(), section.as_deref());
-        ConfigError::at(path, text, span, message)
-    })?;
     let mut errs = Errors {
         path,
         text,
         list: Vec::new(),
     };
-    let config = resolve(&mut errs, raw);
+    let raw = read_raw(&mut errs);
+    let config = match raw {
+        Some(raw) => resolve(&mut errs, raw),
+        None => Config::default(),
+    };
     if errs.list.is_empty() {
         Ok(config)
     } else {
+        errs.list
+            .sort_by_key(|e| (e.line.unwrap_or(0), e.column.unwrap_or(0)));
         Err(ConfigErrors(errs.list))
     }
+}
+
+/// Reads the text into the file's sections, collecting every syntax error
+/// and every unknown key or wrong type instead of stopping at the first: an
+/// entry in error is reported, taken out, and the rest read again. `None`
+/// when what is left cannot be resolved without misleading follow-on errors
+/// (a syntax error, or a whole table left out).
+fn read_raw(errs: &mut Errors<'_>) -> Option<file::ConfigFile> {
+    use serde::Deserialize;
+    let text = errs.text;
+    let (root, syntax) = toml::de::DeTable::parse_recoverable(text);
+    for e in &syntax {
+        errs.err(e.span().unwrap_or(0..0), e.message().trim().to_string());
+    }
+    // A table with a syntax error in it (or in its header) is read back
+    // unreliably: its other problems are not reported.
+    let broken: Vec<usize> = errs
+        .list
+        .iter()
+        .filter_map(|e| e.line)
+        .map(|l| table_region(text, l))
+        .collect();
+    let span = root.span();
+    let mut table = root.into_inner();
+    let mut removed_keys: Vec<String> = Vec::new();
+    let mut whole_table_left_out = false;
+    // Each round takes one entry out; a file has far fewer than this.
+    for _ in 0..500 {
+        let attempt = toml::Spanned::new(span.clone(), table.clone());
+        let e = match file::ConfigFile::deserialize(toml::de::Deserializer::from(attempt)) {
+            Ok(raw) => {
+                return (syntax.is_empty() && !whole_table_left_out).then_some(raw);
+            }
+            Err(e) => e,
+        };
+        let at = e.span().unwrap_or(0..0);
+        let Some(out) = take_out(&mut table, at.start, 0) else {
+            errs.err(at, e.message().trim().to_string());
+            return None;
+        };
+        whole_table_left_out |= out.whole_table;
+        let message = e.message();
+        let follow_on = message
+            .strip_prefix("missing field `")
+            .and_then(|m| m.split('`').next())
+            .is_some_and(|k| {
+                // Missing because it was taken out, or misspelt.
+                removed_keys
+                    .iter()
+                    .any(|r| r == k || crate::suggest::nearest(r, [k]).is_some())
+            });
+        removed_keys.push(out.key.clone());
+        let line = text[..at.start.min(text.len())].matches('\n').count() + 1;
+        if follow_on || broken.contains(&table_region(text, line)) {
+            continue;
+        }
+        let message = if out.depth == 0 && message.starts_with("unknown field `") {
+            error::unknown_section(message, &out.key, out.header)
+        } else {
+            let section = error::section_at(text, at.start);
+            error::explain_serde_message(message, section.as_deref())
+        };
+        errs.err(at, message);
+    }
+    None
+}
+
+/// The line of the table header in force at one-based `line` (0 before any).
+fn table_region(text: &str, line: usize) -> usize {
+    text.lines()
+        .take(line)
+        .enumerate()
+        .filter(|(_, l)| l.trim_start().starts_with('['))
+        .map(|(i, _)| i + 1)
+        .last()
+        .unwrap_or(0)
+}
+
+/// An entry taken out of the file by [`take_out`].
+struct TakenOut {
+    /// Its key.
+    key: String,
+    /// Nesting: 0 for a top-level key.
+    depth: usize,
+    /// A whole table (or array element) was taken out.
+    whole_table: bool,
+    /// How its header reads: `[key]`, `[[key]]` or `key`.
+    header: &'static str,
+}
+
+/// Takes out of `table` the innermost entry at byte `pos`: the key or value
+/// there, or else the table (or array element) whose header holds `pos`.
+fn take_out(table: &mut toml::de::DeTable<'_>, pos: usize, depth: usize) -> Option<TakenOut> {
+    take_entry(table, pos, depth).or_else(|| take_table(table, pos, depth))
+}
+
+fn contains(r: std::ops::Range<usize>, pos: usize) -> bool {
+    r.start <= pos && pos < r.end.max(r.start + 1)
+}
+
+/// Whether `v` is an array of tables (`[[x]]`).
+fn is_table_array(v: &toml::de::DeValue<'_>) -> bool {
+    matches!(v, toml::de::DeValue::Array(a) if !a.is_empty() && a.iter().all(|i| i.get_ref().is_table()))
+}
+
+fn header_of(v: &toml::de::DeValue<'_>) -> &'static str {
+    match v {
+        toml::de::DeValue::Table(_) => "[]",
+        v if is_table_array(v) => "[[]]",
+        _ => "",
+    }
+}
+
+/// Takes out the entry whose key or plain value holds `pos`, at any depth.
+fn take_entry(table: &mut toml::de::DeTable<'_>, pos: usize, depth: usize) -> Option<TakenOut> {
+    use toml::de::DeValue;
+    let mut hit: Option<String> = None;
+    for (k, v) in table.iter_mut() {
+        if contains(k.span(), pos) {
+            hit = Some(k.get_ref().to_string());
+            break;
+        }
+        let value_span = v.span();
+        match v.get_mut() {
+            DeValue::Table(t) => {
+                if let Some(out) = take_entry(t, pos, depth + 1) {
+                    return Some(out);
+                }
+            }
+            DeValue::Array(items) if items.iter().all(|i| i.get_ref().is_table()) => {
+                for item in items.iter_mut() {
+                    if let DeValue::Table(t) = item.get_mut()
+                        && let Some(out) = take_entry(t, pos, depth + 1)
+                    {
+                        return Some(out);
+                    }
+                }
+            }
+            _ if contains(value_span, pos) => {
+                hit = Some(k.get_ref().to_string());
+                break;
+            }
+            _ => {}
+        }
+    }
+    let key = hit?;
+    let header = table
+        .get(key.as_str())
+        .map_or("", |v| header_of(v.get_ref()));
+    table.remove(key.as_str());
+    Some(TakenOut {
+        key,
+        depth,
+        whole_table: !header.is_empty(),
+        header,
+    })
+}
+
+/// Takes out the innermost table or array element whose span holds `pos`.
+fn take_table(table: &mut toml::de::DeTable<'_>, pos: usize, depth: usize) -> Option<TakenOut> {
+    use toml::de::DeValue;
+    let mut hit: Option<String> = None;
+    for (k, v) in table.iter_mut() {
+        let key = k.get_ref().to_string();
+        let value_span = v.span();
+        match v.get_mut() {
+            DeValue::Table(t) => {
+                if let Some(out) = take_table(t, pos, depth + 1) {
+                    return Some(out);
+                }
+                if contains(value_span, pos) {
+                    hit = Some(key);
+                    break;
+                }
+            }
+            DeValue::Array(items) if items.iter().all(|i| i.get_ref().is_table()) => {
+                let mut drop = None;
+                for (i, item) in items.iter_mut().enumerate() {
+                    let span = item.span();
+                    if let DeValue::Table(t) = item.get_mut()
+                        && let Some(out) = take_table(t, pos, depth + 1)
+                    {
+                        return Some(out);
+                    }
+                    if contains(span, pos) {
+                        drop = Some(i);
+                        break;
+                    }
+                }
+                if let Some(i) = drop {
+                    // Drop the element: rebuild the array without it.
+                    let mut kept = toml::de::DeArray::new();
+                    for (j, item) in items.iter().enumerate() {
+                        if j != i {
+                            kept.push(item.clone());
+                        }
+                    }
+                    *items = kept;
+                    return Some(TakenOut {
+                        key,
+                        depth,
+                        whole_table: true,
+                        header: "[[]]",
+                    });
+                }
+            }
+            _ => {}
+        }
+    }
+    let key = hit?;
+    table.remove(key.as_str());
+    Some(TakenOut {
+        key,
+        depth,
+        whole_table: true,
+        header: "[]",
+    })
 }
 
 /// Problems found while resolving, each located in the text.

@@ -106,15 +106,86 @@ fn several_problems_are_reported_together() {
          [[gauge]]\nid = \"a\"\nkind = \"capacitance\"\n\
          [[length]]\nname = \"x\"\nlength = \"1 m\"\n[[length]]\nname = \"x\"\nlength = \"2 m\"\n",
     );
+    // In the order of the file.
     assert_eq!(v.len(), 3, "{v:?}");
-    assert!(v[0].message.contains("defined twice"), "{}", v[0].message);
     assert!(
-        v[1].message
+        v[0].message
             .contains("no thermal gauge sensitivity is known for Ar"),
         "{}",
-        v[1].message
+        v[0].message
     );
-    assert!(v[2].message.contains("used twice"), "{}", v[2].message);
+    assert!(v[1].message.contains("used twice"), "{}", v[1].message);
+    assert!(v[2].message.contains("defined twice"), "{}", v[2].message);
+}
+
+#[test]
+fn every_unknown_key_and_wrong_type_is_reported_not_only_the_first() {
+    let v = errors(
+        "[chamber]\nnam = \"x\"\nvolum = \"3 L\"\n\n[camber]\nx = 1\n\n\
+         [[gauge]]\nid = \"g\"\nkind = \"ionisation\"\nfoo = 1\n\n[display]\nhistory = 5\n",
+    );
+    let got: Vec<(Option<usize>, &str)> = v.iter().map(|e| (e.line, e.message.as_str())).collect();
+    assert_eq!(got.len(), 6, "{got:#?}");
+    assert!(
+        got[0]
+            .1
+            .starts_with("unknown key `nam` in [chamber]; did you mean `name`?"),
+        "{got:#?}"
+    );
+    assert!(
+        got[1]
+            .1
+            .starts_with("unknown key `volum` in [chamber]; did you mean `volume`?"),
+        "{got:#?}"
+    );
+    // An unknown table names itself.
+    assert_eq!(got[2].0, Some(5));
+    assert!(
+        got[2]
+            .1
+            .starts_with("unknown section `[camber]`; did you mean `chamber`?"),
+        "{got:#?}"
+    );
+    assert!(got[3].1.contains("did you mean `ionization`?"), "{got:#?}");
+    assert!(
+        got[4].1.starts_with("unknown key `foo` in [[gauge]]"),
+        "{got:#?}"
+    );
+    assert_eq!(got[5].0, Some(14));
+    assert!(got[5].1.contains("expected a duration"), "{got:#?}");
+}
+
+#[test]
+fn syntax_errors_are_all_reported_with_the_problems_of_sound_tables() {
+    let v = errors("[chamber\nname = 3\n[display]\nfoo = 1\n[physics]\nbar = = 2\n");
+    let got: Vec<(Option<usize>, &str)> = v.iter().map(|e| (e.line, e.message.as_str())).collect();
+    assert_eq!(got.len(), 4, "{got:#?}");
+    assert_eq!(got[0].0, Some(1));
+    assert!(got[0].1.contains("unclosed table"), "{got:#?}");
+    assert_eq!(got[1].0, Some(4));
+    assert!(
+        got[1].1.starts_with("unknown key `foo` in [display]"),
+        "{got:#?}"
+    );
+    assert_eq!((got[2].0, got[3].0), (Some(6), Some(6)), "{got:#?}");
+}
+
+#[test]
+fn bytes_that_are_not_utf8_are_located() {
+    let dir = std::env::temp_dir().join(format!("rarefy-cfg-utf8-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("dir");
+    let path = dir.join("bad.toml");
+    std::fs::write(&path, b"[chamber]\nname = \"K\xc3\xa4mmer \xff\"\n").expect("write");
+    let e = match load(&path) {
+        Ok(_) => panic!("not UTF-8 yet accepted"),
+        Err(ConfigErrors(v)) => v,
+    };
+    assert_eq!(e.len(), 1);
+    assert_eq!((e[0].line, e[0].column), (Some(2), Some(16)), "{e:?}");
+    assert!(
+        e[0].message.contains("byte 0xff at byte offset 26"),
+        "{e:?}"
+    );
 }
 
 #[test]

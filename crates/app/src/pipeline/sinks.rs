@@ -341,13 +341,14 @@ pub fn emit(mut v: Value) {
         m.insert("wall_time".into(), Value::String(format_time(Utc::now())));
     }
     let mut out = std::io::stdout().lock();
-    let _ = writeln!(out, "{v}");
+    let _ = writeln!(out, "{}", crate::parse::terminal_json(&v.to_string()));
     let _ = out.flush();
 }
 
-/// A human status line on stderr.
+/// A human status line on stderr; what could act on a terminal (device
+/// text, names, paths) is escaped.
 pub fn say(text: &str) {
-    eprintln!("rarefy: {text}");
+    eprintln!("rarefy: {}", crate::parse::terminal_text(text));
 }
 
 /// An event as a stdout JSON line: `{"event": "alarm", …}` (the event log

@@ -138,14 +138,49 @@ pub fn cli_rules(
             .find(|l| l.name == name)
             .map(|l| l.length_m)
     };
-    texts
+    let rules = texts
         .iter()
         .enumerate()
         .map(|(i, t)| {
             crate::alarm::syntax::alarm(t, default.as_deref(), i + 1, &lengths)
                 .map_err(|e| format!("--alarm \"{t}\": {e}"))
         })
-        .collect()
+        .collect::<Result<Vec<Rule>, String>>()?;
+    // The gauges and channels known before any data: a rule on none of
+    // them would never fire. (Plain input announces its channels only as
+    // they come: with nothing known, nothing is refused.)
+    let known: Vec<&str> = config
+        .gauges
+        .iter()
+        .map(|g| g.id.as_str())
+        .chain(channels.iter().map(|c| c.id.as_str()))
+        .collect();
+    let mut ids: Vec<&str> = config
+        .alarms
+        .rules
+        .iter()
+        .map(|r| r.rule.id.as_str())
+        .collect();
+    for (rule, text) in rules.iter().zip(texts) {
+        if !known.is_empty() && !known.contains(&rule.gauge.as_str()) {
+            let hint = crate::suggest::nearest(&rule.gauge, known.iter().copied())
+                .map(|s| format!("; did you mean `{s}`?"))
+                .unwrap_or_default();
+            return Err(format!(
+                "--alarm \"{text}\": no gauge or channel `{}`{hint} (known: {})",
+                rule.gauge,
+                known.join(", ")
+            ));
+        }
+        if ids.contains(&rule.id.as_str()) {
+            return Err(format!(
+                "--alarm \"{text}\": the id `{}` is already used by another alarm",
+                rule.id
+            ));
+        }
+        ids.push(&rule.id);
+    }
+    Ok(rules)
 }
 
 /// The configuration a run was started with, as the log header keeps it.

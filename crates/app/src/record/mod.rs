@@ -12,6 +12,9 @@
 //!   file is cut back to its last complete row, rows stay in a bounded
 //!   buffer, the error is reported, and writing is retried in a new file;
 //!   only when that buffer is full are rows lost, oldest first, and counted.
+//!   The rows lost in one spell of failure are reported once, as one
+//!   [`RecordEvent::Lost`] with their count and data-time range, when
+//!   writing works again or the recorder is closed.
 
 pub mod derived;
 
@@ -85,12 +88,17 @@ pub enum RecordEvent {
         /// The new file.
         path: PathBuf,
     },
-    /// The buffer overflowed: rows were lost.
+    /// The buffer overflowed while writing failed: rows were lost. One
+    /// event for a whole spell of failure, sent when it ends.
     Lost {
-        /// Rows lost by this overflow.
+        /// Rows lost in this spell.
         rows: u64,
         /// Rows lost since the start.
         total: u64,
+        /// Data time of the first row lost.
+        from: DateTime<Utc>,
+        /// Data time of the last row lost.
+        to: DateTime<Utc>,
     },
 }
 
@@ -132,6 +140,8 @@ pub struct Recorder {
     events: Vec<RecordEvent>,
     rows_written: u64,
     rows_lost: u64,
+    /// Rows lost in the current spell of failure and their time range.
+    losing: Option<(u64, DateTime<Utc>, DateTime<Utc>)>,
     segments: u64,
 }
 
@@ -150,6 +160,7 @@ impl Recorder {
             events: Vec::new(),
             rows_written: 0,
             rows_lost: 0,
+            losing: None,
             segments: 0,
         };
         for c in channels {
@@ -272,11 +283,24 @@ impl Recorder {
         let limit = self.settings.buffer_rows.max(1);
         if self.pending.len() > limit {
             let over = self.pending.len() - limit;
-            self.pending.drain(..over);
+            for lost in self.pending.drain(..over) {
+                let span = self.losing.get_or_insert((0, lost.time, lost.time));
+                span.0 += 1;
+                span.1 = span.1.min(lost.time);
+                span.2 = span.2.max(lost.time);
+            }
             self.rows_lost += over as u64;
+        }
+    }
+
+    /// Reports the rows lost in the spell of failure that ends now.
+    fn report_lost(&mut self) {
+        if let Some((rows, from, to)) = self.losing.take() {
             self.events.push(RecordEvent::Lost {
-                rows: over as u64,
+                rows,
                 total: self.rows_lost,
+                from,
+                to,
             });
         }
     }
@@ -411,9 +435,9 @@ impl Recorder {
                     self.pending.drain(..n);
                     if self.failing {
                         self.failing = false;
-                        self.events.push(RecordEvent::Recovered {
-                            path: seg.path.clone(),
-                        });
+                        let path = seg.path.clone();
+                        self.report_lost();
+                        self.events.push(RecordEvent::Recovered { path });
                     }
                 }
                 Err(e) => {
@@ -479,6 +503,7 @@ impl Recorder {
     /// memory (lost when the process ends).
     pub fn close(&mut self) -> usize {
         self.flush();
+        self.report_lost();
         self.close_segment();
         self.buffered()
     }

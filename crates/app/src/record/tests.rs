@@ -167,25 +167,66 @@ fn an_unwritable_place_buffers_then_counts_losses_exactly() {
             .any(|e| matches!(e, RecordEvent::WriteFailed { .. })),
         "{events:?}"
     );
-    let lost: u64 = events
-        .iter()
-        .filter_map(|e| match e {
-            RecordEvent::Lost { rows, .. } => Some(*rows),
-            _ => None,
-        })
-        .sum();
+    // Nothing is reported row by row while the spell lasts.
+    assert!(
+        !events.iter().any(|e| matches!(e, RecordEvent::Lost { .. })),
+        "{events:?}"
+    );
     // 150 rows, 100 kept.
     assert_eq!(r.buffered(), 100);
-    assert_eq!(lost + 100, 150);
-    assert_eq!(r.rows_lost(), lost);
-    // Once the place is writable again everything kept is written.
+    assert_eq!(r.rows_lost(), 50);
+    // Once the place is writable again everything kept is written, and the
+    // loss is reported once: its count and the data times it covers.
     std::fs::remove_file(&dir).expect("unblock");
     assert!(r.flush());
+    let events = r.take_events();
+    let lost: Vec<_> = events
+        .iter()
+        .filter(|e| matches!(e, RecordEvent::Lost { .. }))
+        .collect();
+    assert_eq!(
+        lost,
+        [&RecordEvent::Lost {
+            rows: 50,
+            total: 50,
+            from: t(0),
+            to: t(49),
+        }],
+        "{events:?}"
+    );
     assert!(
-        r.take_events()
+        events
             .iter()
             .any(|e| matches!(e, RecordEvent::Recovered { .. }))
     );
     r.close();
     assert_eq!(files(&dir).iter().map(|(_, r)| r.len()).sum::<usize>(), 100);
+}
+
+#[test]
+fn rows_lost_until_the_end_are_reported_once_at_close() {
+    let dir = tempdir("blocked-to-the-end");
+    std::fs::write(&dir, b"a file where the directory should be").expect("block");
+    let mut s = settings(&dir);
+    s.buffer_rows = 10;
+    let mut r = Recorder::new(s, LogMeta::default(), &[ChannelInfo::new("p", MBAR)]);
+    for i in 0..1000 {
+        r.push(&Sample::ok(t(i), "p", 1.0, MBAR));
+        r.flush();
+    }
+    assert_eq!(r.close(), 10);
+    let lost: Vec<_> = r
+        .take_events()
+        .into_iter()
+        .filter(|e| matches!(e, RecordEvent::Lost { .. }))
+        .collect();
+    assert_eq!(
+        lost,
+        [RecordEvent::Lost {
+            rows: 990,
+            total: 990,
+            from: t(0),
+            to: t(989),
+        }]
+    );
 }

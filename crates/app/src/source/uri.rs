@@ -183,6 +183,11 @@ impl SourceUri {
             }
             _ => true,
         });
+        if let Some(u) = &unit
+            && crate::sample::ChannelUnit::parse(u).is_none()
+        {
+            return Err(unknown_unit(u));
+        }
         let kind = match scheme {
             "serial" => Self::serial(body, &ps)?,
             "tcp" => {
@@ -403,9 +408,34 @@ impl SourceUri {
     }
 }
 
+/// Units a channel may be in, for messages.
+const UNITS: [&str; 13] = [
+    "Pa", "kPa", "hPa", "mbar", "bar", "Torr", "mTorr", "micron", "atm", "psi", "K", "C", "F",
+];
+
+/// The error for a `unit=` that is neither a pressure nor a temperature unit.
+fn unknown_unit(u: &str) -> String {
+    let hint = crate::suggest::nearest(u, UNITS)
+        .map(|s| format!("; did you mean `{s}`?"))
+        .unwrap_or_default();
+    format!(
+        "unknown unit \"{u}\" in `unit=`{hint} (expected a pressure or temperature unit: {})",
+        UNITS.join(", ")
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn an_unknown_unit_is_refused_with_a_suggestion() {
+        let e = SourceUri::parse("stdin:?unit=mbr").expect_err("unknown unit");
+        assert!(e.contains("unknown unit \"mbr\""), "{e}");
+        assert!(e.contains("did you mean `mbar`?"), "{e}");
+        assert!(SourceUri::parse("file:///x.log?unit=Torr").is_ok());
+        assert!(SourceUri::parse("tcp://host:4000?unit=C").is_ok());
+    }
 
     #[test]
     fn parses_every_scheme() {

@@ -80,9 +80,10 @@ fn csv_cell(out: &mut String, text: &str) {
     }
 }
 
-/// Metadata values are one line each; line breaks are replaced.
+/// Metadata values are one line each; line breaks are replaced, and what
+/// could act on a terminal showing the file is escaped.
 fn meta_value(v: &str) -> String {
-    v.replace(['\r', '\n'], " ")
+    crate::parse::terminal_text(&v.replace(['\r', '\n'], " ").replace('\t', " "))
 }
 
 /// The header block: magic line, metadata lines, header row; ends with `\n`.
@@ -91,7 +92,7 @@ pub fn header(meta: &LogMeta, columns: &[Column]) -> String {
     s.push_str(MAGIC);
     s.push('\n');
     let mut kv = |k: &str, v: &str| {
-        let _ = writeln!(s, "# {k}: {}", meta_value(v));
+        let _ = writeln!(s, "# {}: {}", meta_value(k), meta_value(v));
     };
     if let Some(c) = &meta.chamber {
         kv("chamber", c);
@@ -117,7 +118,7 @@ pub fn header(meta: &LogMeta, columns: &[Column]) -> String {
     s.push_str("time");
     for c in columns {
         s.push(',');
-        csv_cell(&mut s, &c.header());
+        csv_cell(&mut s, &crate::parse::terminal_text(&c.header()));
     }
     s.push('\n');
     s
@@ -213,6 +214,24 @@ mod tests {
             &[Cell::Bad(Fault::OverRange), Cell::Value(22.0), Cell::Empty],
         );
         assert_eq!(row, "2026-12-01T19:00:00.000Z,over-range,2.2e1,\n");
+    }
+
+    #[test]
+    fn header_text_cannot_act_on_a_terminal() {
+        let meta = LogMeta {
+            chamber: Some("rig\u{1b}]0;owned\u{7}".into()),
+            extra: vec![("note\u{1b}[2J".into(), "a\r\nb\u{202e}".into())],
+            ..LogMeta::default()
+        };
+        let cols = [Column {
+            name: "p\u{1b}[31m".into(),
+            kind: ColumnKind::Derived("m".into()),
+        }];
+        let h = header(&meta, &cols);
+        assert!(!h.contains('\u{1b}') && !h.contains('\u{202e}'), "{h:?}");
+        assert!(h.contains("# chamber: rig\\x1b]0;owned\\x07\n"), "{h}");
+        assert!(h.contains("# note\\x1b[2J: a  b\\u{202e}\n"), "{h}");
+        assert!(h.ends_with("time,p\\x1b[31m [m]\n"), "{h}");
     }
 
     #[test]

@@ -157,6 +157,53 @@ pub fn decode_framed(
     }
 }
 
+/// Text made safe to print on a terminal: line ends and tabs are kept; other
+/// control characters become `\xNN`, and C1 controls, bidirectional
+/// overrides and invisible characters `\u{NNNN}`. For messages and tables
+/// that echo arguments, configuration text, device text or channel names.
+pub fn terminal_text(text: &str) -> String {
+    escape_chars(text, |c, out| {
+        if (c as u32) < 0x80 {
+            out.push_str(&format!("\\x{:02x}", c as u32));
+        } else {
+            out.push_str(&format!("\\u{{{:x}}}", c as u32));
+        }
+    })
+}
+
+/// JSON text made safe to print on a terminal: serde_json escapes C0
+/// controls already; DEL, C1 controls, bidirectional overrides and invisible
+/// characters (which can only stand inside strings) become `\uNNNN`, so the
+/// text stays the same JSON.
+pub fn terminal_json(json: &str) -> String {
+    escape_chars(json, |c, out| {
+        let mut units = [0u16; 2];
+        for u in c.encode_utf16(&mut units) {
+            out.push_str(&format!("\\u{u:04x}"));
+        }
+    })
+}
+
+/// Whether a character can change what a terminal shows beyond itself.
+fn is_unsafe(c: char) -> bool {
+    matches!(c as u32, 0..=0x08 | 0x0b..=0x1f | 0x7f..=0x9f | 0x200b..=0x200f | 0x202a..=0x202e | 0x2066..=0x2069 | 0xfeff)
+}
+
+fn escape_chars(text: &str, mut escape: impl FnMut(char, &mut String)) -> String {
+    if !text.chars().any(is_unsafe) {
+        return text.to_string();
+    }
+    let mut out = String::with_capacity(text.len() + 16);
+    for c in text.chars() {
+        if is_unsafe(c) {
+            escape(c, &mut out);
+        } else {
+            out.push(c);
+        }
+    }
+    out
+}
+
 /// Interprets the escapes of a poll string: `\r`, `\n`, `\t`, `\\`, `\0`,
 /// `\xNN`. Anything else after a backslash is an error naming its position.
 pub fn unescape(text: &str) -> Result<Vec<u8>, String> {
@@ -283,6 +330,20 @@ mod tests {
         .err()
         .unwrap_or_default();
         assert!(e.starts_with("template 2: bad pattern"), "{e}");
+    }
+
+    #[test]
+    fn text_for_a_terminal_keeps_lines_and_escapes_controls() {
+        assert_eq!(terminal_text("a\tb\nc"), "a\tb\nc");
+        assert_eq!(
+            terminal_text("x\u{1b}[2J\r\u{7f}\u{9b}1m\u{202e}"),
+            "x\\x1b[2J\\x0d\\x7f\\u{9b}1m\\u{202e}"
+        );
+        let json = "{\"a\":\"\\u001b\u{9b}\u{202e}\"}";
+        let safe = terminal_json(json);
+        assert_eq!(safe, "{\"a\":\"\\u001b\\u009b\\u202e\"}");
+        let back: Vec<char> = safe.chars().filter(|c| is_unsafe(*c)).collect();
+        assert!(back.is_empty());
     }
 
     #[test]

@@ -56,6 +56,9 @@ impl PlainDecoder {
 
     fn parse_line(&mut self, text: &str, received: DateTime<Utc>) -> Result<Vec<Sample>, String> {
         let mut rest = text.trim();
+        if rest.is_empty() {
+            return Err("a line of blanks only".into());
+        }
         let mut time = received;
         if let Some((first, tail)) = rest.split_once(char::is_whitespace)
             && first.len() >= 20
@@ -120,6 +123,9 @@ impl PlainDecoder {
                 }
             }
         }
+        if out.is_empty() {
+            return Err("no reading: only delimiters".into());
+        }
         Ok(out)
     }
 }
@@ -165,6 +171,15 @@ mod tests {
             }
         }
         Ok(out)
+    }
+
+    #[test]
+    fn lines_of_only_delimiters_or_blanks_are_unparsed_not_skipped() {
+        let mut d = dec();
+        for line in [",,,", " ; , ", " \t ", "2026-12-01T10:00:00Z ,"] {
+            let e = one(&mut d, line).expect_err(line);
+            assert!(e.contains("only"), "{line:?}: {e}");
+        }
     }
 
     #[test]
