@@ -16,7 +16,7 @@ pub const FOOTER_LIVE: &str =
 pub const FOOTER_REPLAY: &str = "?:help  space:pause  n/p:event  t:time  r:step  </>:speed  ←/→:10s  [/]:1min  {/}:10min  q:quit";
 
 /// Every key, for the help overlay: (keys, what).
-pub const HELP: [(&str, &str); 24] = [
+pub const HELP: [(&str, &str); 25] = [
     ("? h F1", "this help (Esc closes)"),
     ("q", "quit (recording stops cleanly)"),
     ("↑ ↓ j k", "select an alarm or gate"),
@@ -35,6 +35,10 @@ pub const HELP: [(&str, &str); 24] = [
     (
         "c",
         "kinetics follow: auto (best gauge in range), each gauge",
+    ),
+    (
+        "m",
+        "gas in force: auto (config steps), the base gas, each step's gas",
     ),
     ("space", "replay: pause / resume"),
     ("r", "replay: one row forward (pauses)"),
@@ -136,6 +140,31 @@ fn jump_to_mark(app: &mut App, forward: bool) -> Effect {
 /// `c`: the gauge the kinetics panel follows (auto → each gauge → auto).
 fn follow_key(app: &mut App) {
     app.next_follow();
+}
+
+/// `m`: the gas in force, cycling auto (config steps) → the base gas →
+/// each configured step's gas → auto. An audited operation.
+fn gas_key(app: &mut App) {
+    use crate::alarm::GasChoice;
+    let setup = app.monitor().setup();
+    let mut choices = vec![GasChoice::Auto, GasChoice::Fixed(setup.mixture.clone())];
+    for step in &setup.gas_steps {
+        let c = GasChoice::Fixed(step.mixture.clone());
+        if !choices.contains(&c) {
+            choices.push(c);
+        }
+    }
+    let current = app.monitor().gas_choice();
+    let next = choices
+        .iter()
+        .position(|c| c == current)
+        .map_or(0, |i| (i + 1) % choices.len());
+    let choice = choices.swap_remove(next);
+    let label = choice.label();
+    app.message = Some(match operate(app, Operation::SetGas(choice)) {
+        Ok(_) => format!("gas: {label}"),
+        Err(e) => e,
+    });
 }
 
 /// Handles one key.
@@ -242,6 +271,7 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
         }
         KeyCode::Char('e') => start_edit(app),
         KeyCode::Char('c') => follow_key(app),
+        KeyCode::Char('m') => gas_key(app),
         KeyCode::Char('x') => {
             app.message = Some(match operate(app, Operation::ResetExposure) {
                 Ok(_) => "exposure reset to zero".into(),

@@ -277,6 +277,30 @@ pub struct GasSection {
     /// `[[gas.custom]]`: user gases.
     #[serde(default)]
     pub custom: Vec<CustomGas>,
+    /// `[[gas.step]]`: gases that replace the base gas while a condition
+    /// holds or inside a data-time window.
+    #[serde(default)]
+    pub step: Vec<GasStepSection>,
+}
+
+/// `[[gas.step]]`: a gas in force while all its conditions hold and data
+/// time is inside its window; the first step that matches wins.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct GasStepSection {
+    /// Id, unique among steps, shown as where the gas came from.
+    pub id: Spanned<String>,
+    /// A single gas, `"Ar"`.
+    pub species: Option<Spanned<String>>,
+    /// A mixture, `"Ar=0.9,O2=0.1"`.
+    pub mix: Option<Spanned<String>>,
+    /// Conditions that must all hold, each `[gauge] quantity above|below|is VALUE`.
+    #[serde(default)]
+    pub when: Vec<Spanned<String>>,
+    /// Data time from which the step may apply, RFC 3339.
+    pub from: Option<Spanned<String>>,
+    /// Data time until which the step may apply, RFC 3339.
+    pub until: Option<Spanned<String>>,
 }
 
 /// `[[gas.custom]]`

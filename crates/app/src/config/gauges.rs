@@ -26,6 +26,9 @@ pub struct GaugeConfig {
     pub calibration_gas: Option<Mixture>,
     /// Sensitivities, calibration table and range as configured.
     pub overrides: GaugeOverrides,
+    /// The gauge names a gas of its own (`gas = …`): it does not follow the
+    /// chamber's gas when that changes during a run.
+    pub own_gas: bool,
 }
 
 impl GaugeConfig {
@@ -172,6 +175,7 @@ fn gauge(
         }
     }
     usable.then(|| GaugeConfig {
+        own_gas: g.gas.is_some(),
         label: g.label.unwrap_or_else(|| id.clone()),
         id,
         kind: settings.kind,

@@ -54,6 +54,8 @@ pub struct Config {
     pub gases: GasTable,
     /// The chamber's gas.
     pub mixture: Mixture,
+    /// `[[gas.step]]`: gases in force by condition or data time.
+    pub gas_steps: Vec<crate::alarm::GasStep>,
     /// Gauges.
     pub gauges: Vec<GaugeConfig>,
     /// Named lengths for Knudsen numbers.
@@ -82,6 +84,7 @@ impl Default for Config {
             path: None,
             chamber: Chamber::default(),
             mixture: Mixture::pure(n2),
+            gas_steps: Vec::new(),
             gases,
             gauges: Vec::new(),
             lengths: Vec::new(),
@@ -383,7 +386,7 @@ impl Errors<'_> {
 }
 
 /// Hands each section to its resolver, in dependency order.
-fn resolve(errs: &mut Errors<'_>, raw: file::ConfigFile) -> Config {
+fn resolve(errs: &mut Errors<'_>, mut raw: file::ConfigFile) -> Config {
     let mut config = Config {
         path: Some(errs.path.to_path_buf()),
         ..Config::default()
@@ -397,6 +400,11 @@ fn resolve(errs: &mut Errors<'_>, raw: file::ConfigFile) -> Config {
     if let Some(d) = raw.display {
         config.display = display::resolve(errs, d);
     }
+    let steps = raw
+        .gas
+        .as_mut()
+        .map(|g| std::mem::take(&mut g.step))
+        .unwrap_or_default();
     if let Some(g) = raw.gas
         && let Some(m) = gas::resolve(errs, &mut config.gases, g)
     {
@@ -404,6 +412,7 @@ fn resolve(errs: &mut Errors<'_>, raw: file::ConfigFile) -> Config {
     }
     config.lengths = lengths::resolve(errs, raw.length);
     config.gauges = gauges::resolve(errs, &config.gases, &config.mixture, raw.gauge);
+    config.gas_steps = gas::steps(errs, &config.gases, &config.gauges, &config.lengths, steps);
     config.sources = raw
         .source
         .into_iter()
@@ -454,6 +463,21 @@ impl Config {
             ));
         }
         line(format!("gas        {}", self.mixture.label()));
+        for s in &self.gas_steps {
+            let mut when: Vec<String> = s.when.iter().map(|c| c.text.clone()).collect();
+            if let Some(f) = s.from {
+                when.push(format!("from {}", crate::timefmt::write_rfc3339(f)));
+            }
+            if let Some(u) = s.until {
+                when.push(format!("until {}", crate::timefmt::write_rfc3339(u)));
+            }
+            line(format!(
+                "  step     {:<12} {} while {}",
+                s.id,
+                s.mixture.label(),
+                when.join(" and ")
+            ));
+        }
         line(format!(
             "physics    model {}, viscous below Kn {}, molecular above Kn {}, ISO 3529-1:{}, {:e} sites/m2, sticking {}",
             Model::as_str(self.physics.model),

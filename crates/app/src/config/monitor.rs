@@ -12,6 +12,7 @@ impl Config {
                     id: g.id.clone(),
                     model: g.model()?,
                     mixture: g.mixture.clone(),
+                    settings: (!g.own_gas).then(|| g.settings()),
                 })
             })
             .collect()
@@ -29,6 +30,7 @@ impl Config {
         crate::alarm::MonitorSetup {
             gauges: self.gauge_models(),
             mixture: self.mixture.clone(),
+            gas_steps: self.gas_steps.clone(),
             lengths: self.lengths.clone(),
             physics: self.physics,
             assumed_temperature_k: self.chamber.temperature_k.unwrap_or(295.15),

@@ -73,6 +73,9 @@ pub enum Operation {
     SetHold(String, f64),
     /// Start the exposure count again.
     ResetExposure,
+    /// Choose the gas in force, or "auto" (config steps, the log, the base
+    /// gas).
+    SetGas(crate::alarm::GasChoice),
 }
 
 /// Counts of what went through.
@@ -235,6 +238,7 @@ impl Pipeline {
             Operation::SetThreshold(id, v) => vec![m.set_threshold(id, *v, who, now)?],
             Operation::SetHold(id, s) => vec![m.set_hold(id, *s, who, now)?],
             Operation::ResetExposure => m.reset_exposure(who, now),
+            Operation::SetGas(c) => m.set_gas(c.clone(), who, now),
         };
         self.dispatch_events_also(&events, also);
         Ok(events)

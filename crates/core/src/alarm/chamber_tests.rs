@@ -8,7 +8,7 @@ use super::gate::{Gate, GateState};
 use super::monitor::{GaugeSetup, Monitor, MonitorSetup};
 use super::quantity::Quantity;
 use super::syntax;
-use crate::engine::gauge::GaugeKind;
+use crate::engine::gauge::{GaugeKind, GaugeSettings};
 use crate::engine::mixture::Mixture;
 use crate::engine::{Conditions, GaugeModel, GaugeOverrides, NamedLength, Physics, derive};
 use crate::gas::GasTable;
@@ -35,6 +35,12 @@ fn gauge(id: &str, kind: GaugeKind, mixture: &Mixture, range_mbar: (f64, f64)) -
         id: id.into(),
         model: GaugeModel::new(kind, mixture, &overrides).expect("model"),
         mixture: mixture.clone(),
+        settings: Some(GaugeSettings {
+            kind,
+            mixture: mixture.clone(),
+            calibration_gas: None,
+            overrides,
+        }),
     }
 }
 
@@ -48,6 +54,7 @@ fn setup(mixture: &Mixture) -> MonitorSetup {
             gauge("chamber", GaugeKind::Combined, mixture, (5e-10, 1100.0)),
         ],
         mixture: mixture.clone(),
+        gas_steps: vec![],
         lengths: vec![NamedLength::new("throw", 0.15)],
         physics: Physics::default(),
         assumed_temperature_k: 295.15,

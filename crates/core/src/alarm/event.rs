@@ -54,6 +54,8 @@ pub enum EventKind {
     Gate,
     /// An operator changed a setting (a threshold, a hold, the exposure).
     Setting,
+    /// The gas in force changed (a config step, the log, an operator).
+    Gas,
 }
 
 impl EventKind {
@@ -63,6 +65,7 @@ impl EventKind {
             EventKind::Alarm => "alarm",
             EventKind::Gate => "gate",
             EventKind::Setting => "setting",
+            EventKind::Gas => "gas",
         }
     }
 }
@@ -99,6 +102,14 @@ pub enum Change {
         /// The value after.
         to: String,
     },
+    /// The gas in force changed; old and new gas labels (`"N2"`,
+    /// `"Ar"`, `"H2=0.6,N2=0.4"`), or an operator's choice (`"auto"`).
+    Gas {
+        /// The gas before.
+        from: String,
+        /// The gas after.
+        to: String,
+    },
 }
 
 impl Change {
@@ -108,6 +119,7 @@ impl Change {
             Change::Alarm { .. } => EventKind::Alarm,
             Change::Gate { .. } => EventKind::Gate,
             Change::Setting { .. } => EventKind::Setting,
+            Change::Gas { .. } => EventKind::Gas,
         }
     }
 
@@ -116,7 +128,7 @@ impl Change {
         match self {
             Change::Alarm { from, .. } => from.as_str(),
             Change::Gate { from, .. } => from.as_str(),
-            Change::Setting { from, .. } => from,
+            Change::Setting { from, .. } | Change::Gas { from, .. } => from,
         }
     }
 
@@ -125,7 +137,7 @@ impl Change {
         match self {
             Change::Alarm { to, .. } => to.as_str(),
             Change::Gate { to, .. } => to.as_str(),
-            Change::Setting { to, .. } => to,
+            Change::Setting { to, .. } | Change::Gas { to, .. } => to,
         }
     }
 
@@ -154,6 +166,8 @@ pub enum Operation {
     SetHold,
     /// Started the exposure count again.
     ResetExposure,
+    /// Chose the gas in force (or "auto").
+    SetGas,
 }
 
 impl Operation {
@@ -166,6 +180,7 @@ impl Operation {
             Operation::SetThreshold => "set-threshold",
             Operation::SetHold => "set-hold",
             Operation::ResetExposure => "reset-exposure",
+            Operation::SetGas => "set-gas",
         }
     }
 }

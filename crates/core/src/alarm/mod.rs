@@ -6,6 +6,7 @@
 //!   severity and latching, in the states of ISA-18.2 / IEC 62682.
 //! * [`gate`]: conditions that must all hold continuously for a duration.
 //! * [`syntax`]: the small language of conditions and one-off alarms.
+//! * [`gas_step`]: the gas in force (base, config steps, log, operator).
 //! * [`chamber`]: the chamber pressure, the best gauge in range now.
 //! * [`monitor`]: keeps each gauge's latest kinetics and drives both.
 //! * [`event`]: the transitions, as JSON lines.
@@ -14,6 +15,7 @@
 
 pub mod chamber;
 pub mod event;
+pub mod gas_step;
 pub mod gate;
 pub mod monitor;
 pub mod quantity;
@@ -27,6 +29,7 @@ mod tests;
 
 pub use chamber::{AUTO, ChamberPressure, ChamberSource};
 pub use event::{Actor, Change, EVENT_VERSION, Event, EventKind, Operation};
+pub use gas_step::{GasChoice, GasOrigin, GasStep};
 pub use gate::{Gate, GateMachine, GateState};
 pub use monitor::{Monitor, MonitorSetup, RuleSpec};
 pub use rule::{AlarmState, Rule, RuleMachine, Severity};

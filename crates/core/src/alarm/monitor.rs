@@ -8,6 +8,7 @@ use chrono::{DateTime, Utc};
 
 use super::chamber::{AUTO, ChamberPressure, ChamberSource};
 use super::event::{Actor, Change, EVENT_VERSION, Event, Operation};
+use super::gas_step::{GasChoice, GasOrigin, GasStep};
 use super::gate::{Check, Gate, GateMachine, GateState};
 use super::quantity::{Class, Quantity};
 use super::rule::{
@@ -15,6 +16,7 @@ use super::rule::{
 };
 use super::syntax::{CondTest, Condition};
 use crate::engine::exposure::{Exposure, ExposureStart};
+use crate::engine::gauge::GaugeSettings;
 use crate::engine::mixture::Mixture;
 use crate::engine::{Conditions, Derived, GaugeModel, NamedLength, Physics, derive};
 use crate::sample::{Sample, Status};
@@ -34,10 +36,14 @@ pub struct RuleSpec {
 pub struct GaugeSetup {
     /// Channel id.
     pub id: String,
-    /// Reading → true pressure.
+    /// Reading → true pressure, for the base gas.
     pub model: GaugeModel,
-    /// Gas at the gauge.
+    /// Gas at the gauge (the base gas, or the gauge's own).
     pub mixture: Mixture,
+    /// The settings the model was built from, when the gauge sees the
+    /// chamber's gas: its model is rebuilt for the gas in force. `None` for a
+    /// gauge with a gas of its own, whose model never changes.
+    pub settings: Option<GaugeSettings>,
 }
 
 /// Everything the monitor needs, resolved from the configuration.
@@ -46,8 +52,11 @@ pub struct MonitorSetup {
     /// Configured gauges; other pressure channels read true pressure in the
     /// chamber's gas.
     pub gauges: Vec<GaugeSetup>,
-    /// The chamber's gas.
+    /// The chamber's base gas (`[gas]`).
     pub mixture: Mixture,
+    /// Gas steps: the first whose conditions hold at a row replaces the
+    /// base gas.
+    pub gas_steps: Vec<GasStep>,
     /// Named lengths.
     pub lengths: Vec<NamedLength>,
     /// Physics settings.
@@ -88,6 +97,9 @@ pub struct GaugeTrack {
     pub is_pressure: bool,
     /// True pressure of the last valid reading, Pa.
     pub pressure_pa: Option<f64>,
+    /// The last reading could not be corrected for the gas in force (no
+    /// factor for the gas): it has no pressure and no kinetics.
+    pub uncorrectable: bool,
     /// Temperature of the last valid reading, K (temperature channels).
     pub temperature_k: Option<f64>,
     /// Kinetics of the last valid reading.
@@ -117,6 +129,7 @@ impl GaugeTrack {
             indicated: None,
             is_pressure: true,
             pressure_pa: None,
+            uncorrectable: false,
             temperature_k: None,
             derived: None,
             exposure: Exposure::with_start(60.0, exposure),
@@ -197,6 +210,40 @@ pub struct Monitor {
     provisional: bool,
     now: Option<DateTime<Utc>>,
     trip_seen: bool,
+    gas: GasNow,
+}
+
+/// The gas in force and each configured gauge's model for it.
+#[derive(Debug, Clone)]
+struct GasNow {
+    mixture: Mixture,
+    origin: GasOrigin,
+    /// The operator's choice and who made it.
+    choice: (GasChoice, String),
+    /// The gas the log's gas column gave last.
+    log: Option<Mixture>,
+    /// Per configured gauge (same order): its model for the gas in force,
+    /// `None` when none can be built (its readings are uncorrectable).
+    models: Vec<Option<GaugeModel>>,
+}
+
+/// Each gauge's model for `gas`.
+fn models_for(gauges: &[GaugeSetup], base: &Mixture, gas: &Mixture) -> Vec<Option<GaugeModel>> {
+    gauges
+        .iter()
+        .map(|g| match &g.settings {
+            Some(_) if gas == base => Some(g.model.clone()),
+            Some(s) => GaugeModel::for_gas(
+                &g.id,
+                &GaugeSettings {
+                    mixture: gas.clone(),
+                    ..s.clone()
+                },
+            )
+            .ok(),
+            None => Some(g.model.clone()),
+        })
+        .collect()
 }
 
 /// A source's connection, watched by a `<id>.link` alarm.
@@ -262,7 +309,15 @@ impl Monitor {
             .map(|g| RuleMachine::new(input_rule(&g, setup.input_severity)))
             .collect();
         let gates = setup.gates.iter().cloned().map(GateMachine::new).collect();
+        let gas = GasNow {
+            mixture: setup.mixture.clone(),
+            origin: GasOrigin::Base,
+            choice: (GasChoice::Auto, String::new()),
+            log: None,
+            models: setup.gauges.iter().map(|g| Some(g.model.clone())).collect(),
+        };
         Monitor {
+            gas,
             setup,
             tracks: BTreeMap::new(),
             temperature_k: None,
@@ -443,12 +498,204 @@ impl Monitor {
         };
         self.take_over_clock(time);
         let mut events = self.advance_to(time);
+        let now = self.now.map_or(time, |n| n.max(time));
+        // Gas steps are decided on the row taken with the gas in force;
+        // when they change the gas, the row is taken again with the new one.
+        let steps = !self.setup.gas_steps.is_empty()
+            && self.gas.choice.0 == GasChoice::Auto
+            && self.gas.log.is_none();
+        let saved = steps.then(|| (self.tracks.clone(), self.temperature_k));
         for s in samples {
             self.take(s);
         }
-        let now = self.now.map_or(time, |n| n.max(time));
+        if let Some((tracks, temperature_k)) = saved {
+            let (mixture, origin) = self.wanted_gas(now);
+            if mixture != self.gas.mixture || origin != self.gas.origin {
+                self.tracks = tracks;
+                self.temperature_k = temperature_k;
+                events.push(self.apply_gas(mixture, origin, None, now));
+                for s in samples {
+                    self.take(s);
+                }
+            }
+        }
         events.extend(self.evaluate(now));
         events
+    }
+
+    /// The gas in force and where it came from.
+    pub fn gas(&self) -> (&Mixture, &GasOrigin) {
+        (&self.gas.mixture, &self.gas.origin)
+    }
+
+    /// The operator's choice of gas ([`GasChoice::Auto`] unless changed).
+    pub fn gas_choice(&self) -> &GasChoice {
+        &self.gas.choice.0
+    }
+
+    /// The gas a configured gauge sees now.
+    pub fn gauge_gas(&self, id: &str) -> Option<&Mixture> {
+        let g = self.setup.gauges.iter().find(|g| g.id == id)?;
+        Some(if g.settings.is_some() {
+            &self.gas.mixture
+        } else {
+            &g.mixture
+        })
+    }
+
+    /// The gas that should be in force at `now`: the operator's fixed
+    /// choice, else the log's gas, else the first step that holds, else
+    /// the base gas.
+    fn wanted_gas(&self, now: DateTime<Utc>) -> (Mixture, GasOrigin) {
+        if let (GasChoice::Fixed(m), who) = &self.gas.choice {
+            return (m.clone(), GasOrigin::Operator(who.clone()));
+        }
+        if let Some(m) = &self.gas.log {
+            return (m.clone(), GasOrigin::Log);
+        }
+        self.setup
+            .gas_steps
+            .iter()
+            .find(|step| {
+                step.in_window(now)
+                    && step
+                        .when
+                        .iter()
+                        .all(|c| matches!(self.check(c, now), Check::Holds))
+            })
+            .map_or((self.setup.mixture.clone(), GasOrigin::Base), |step| {
+                (step.mixture.clone(), GasOrigin::Step(step.id.clone()))
+            })
+    }
+
+    /// Puts `mixture` in force: rebuilds the models of the gauges that see
+    /// the chamber's gas and restarts their rate fits (a rate across a change
+    /// of correction is not the chamber's). Returns the event.
+    fn apply_gas(
+        &mut self,
+        mixture: Mixture,
+        origin: GasOrigin,
+        who: Option<&Actor>,
+        now: DateTime<Utc>,
+    ) -> Event {
+        let from = self.gas.mixture.label();
+        let to = mixture.label();
+        self.gas.models = models_for(&self.setup.gauges, &self.setup.mixture, &mixture);
+        self.gas.mixture = mixture;
+        self.gas.origin = origin;
+        for g in self.setup.gauges.iter().filter(|g| g.settings.is_some()) {
+            if let Some(t) = self.tracks.get_mut(&g.id) {
+                t.window.clear();
+                t.dpdt = None;
+                t.decades_per_min = None;
+            }
+        }
+        let origin = self.gas.origin.to_string();
+        let by = who.map(|w| format!(" by {}", w.user)).unwrap_or_default();
+        Event {
+            v: EVENT_VERSION,
+            time: now,
+            wall_time: who.and_then(|w| w.wall_time),
+            text: format!("Gas in force: {from} -> {to} ({origin}){by}"),
+            change: Change::Gas { from, to },
+            id: "gas".into(),
+            label: "Gas in force".into(),
+            severity: None,
+            gauge: None,
+            quantity: None,
+            value: None,
+            value_text: Some(origin),
+            threshold: None,
+            operation: who.map(|_| Operation::SetGas),
+            user: who.map(|w| w.user.clone()),
+        }
+    }
+
+    /// Corrects every channel's last valid reading again (after an
+    /// operator's change of gas between rows); exposure and rate windows
+    /// keep what they counted.
+    fn recorrect_latest(&mut self) {
+        let latest: Vec<(String, f64)> = self
+            .tracks
+            .iter()
+            .filter(|(_, t)| t.is_pressure && t.status == Status::Ok)
+            .filter_map(|(id, t)| Some((id.clone(), t.indicated?)))
+            .collect();
+        for (id, v) in latest {
+            let c = self.corrected(&id, v);
+            if let Some(t) = self.tracks.get_mut(&id) {
+                t.uncorrectable = c == Err(true);
+                t.pressure_pa = c.as_ref().ok().map(|c| c.0);
+                t.derived = c.ok().map(|c| c.1);
+            }
+        }
+    }
+
+    /// An operator chooses the gas: one gas or mixture until changed, or
+    /// [`GasChoice::Auto`] (config steps, the log, the base gas). The
+    /// latest readings are corrected again at once. Returns the audit event.
+    pub fn set_gas(&mut self, choice: GasChoice, who: &Actor, now: DateTime<Utc>) -> Vec<Event> {
+        let now = self.op_time(now);
+        self.gas.choice = (choice, who.user.clone());
+        let (mixture, origin) = self.wanted_gas(now);
+        let e = self.apply_gas(mixture, origin, Some(who), now);
+        self.recorrect_latest();
+        vec![e]
+    }
+
+    /// The log's gas column gave `mixture` at data time `now` (`None`: the
+    /// column is empty, the config decides again). Returns the event of a
+    /// change.
+    pub fn set_log_gas(&mut self, mixture: Option<Mixture>, now: DateTime<Utc>) -> Vec<Event> {
+        if self.gas.log == mixture {
+            return Vec::new();
+        }
+        self.gas.log = mixture;
+        let (m, origin) = self.wanted_gas(now);
+        if m == self.gas.mixture && origin == self.gas.origin {
+            return Vec::new();
+        }
+        let e = self.apply_gas(m, origin, None, now);
+        self.recorrect_latest();
+        vec![e]
+    }
+
+    /// True pressure and kinetics of reading `v` (SI) of pressure channel
+    /// `channel` with the gas in force; `None` when it is not a usable
+    /// pressure, with whether that is because no correction exists for the
+    /// gas (the reading is uncorrectable).
+    fn corrected(&self, channel: &str, v: f64) -> Result<(f64, Derived), bool> {
+        let (p, mixture) = match self.setup.gauges.iter().position(|g| g.id == channel) {
+            Some(i) => {
+                let g = &self.setup.gauges[i];
+                let mixture = if g.settings.is_some() {
+                    &self.gas.mixture
+                } else {
+                    &g.mixture
+                };
+                let p = self
+                    .gas
+                    .models
+                    .get(i)
+                    .and_then(Option::as_ref)
+                    .map_or(f64::NAN, |m| m.correct(v).pressure_pa);
+                (p, mixture)
+            }
+            None => (v, &self.gas.mixture),
+        };
+        if !(p.is_finite() && p > 0.0) {
+            return Err(p.is_nan());
+        }
+        let t = self
+            .temperature_k
+            .unwrap_or(self.setup.assumed_temperature_k);
+        let d = derive(
+            &Conditions::new(p, t),
+            mixture,
+            &self.setup.lengths,
+            &self.setup.physics,
+        );
+        Ok((p, d))
     }
 
     /// Advances data time to `t` without new readings: evaluates at each
@@ -518,6 +765,10 @@ impl Monitor {
     }
 
     fn take(&mut self, s: &Sample) {
+        let corrected = s
+            .si()
+            .filter(|_| s.unit.is_pressure())
+            .map(|v| self.corrected(&s.channel, v));
         let start = self.setup.physics.exposure_start;
         let track = self
             .tracks
@@ -539,25 +790,15 @@ impl Monitor {
             self.temperature_k = Some(v);
             return;
         }
-        let (p, mixture) = match self.setup.gauges.iter().find(|g| g.id == s.channel) {
-            Some(g) => (g.model.correct(v).pressure_pa, &g.mixture),
-            None => (v, &self.setup.mixture),
-        };
-        if !(p.is_finite() && p > 0.0) {
+        let Some(Ok((p, derived))) = corrected else {
+            track.uncorrectable = corrected == Some(Err(true));
             track.pressure_pa = None;
             track.derived = None;
             return;
-        }
-        let t = self
-            .temperature_k
-            .unwrap_or(self.setup.assumed_temperature_k);
+        };
+        track.uncorrectable = false;
         track.pressure_pa = Some(p);
-        track.derived = Some(derive(
-            &Conditions::new(p, t),
-            mixture,
-            &self.setup.lengths,
-            &self.setup.physics,
-        ));
+        track.derived = Some(derived);
         let t0 = *track.t0.get_or_insert(s.time);
         let ts = (s.time - t0).num_milliseconds() as f64 / 1000.0;
         track.exposure.add(ts, p);

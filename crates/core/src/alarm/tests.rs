@@ -306,6 +306,7 @@ fn setup(rules: Vec<Rule>, gates: Vec<Gate>) -> MonitorSetup {
     MonitorSetup {
         gauges: vec![],
         mixture: n2(),
+        gas_steps: vec![],
         lengths: vec![NamedLength::new("bore", 0.3)],
         physics: Physics::default(),
         assumed_temperature_k: 295.15,
@@ -415,6 +416,7 @@ fn monitor_derives_kinetics_with_gauge_correction() {
         id: "g".into(),
         model,
         mixture: ar.clone(),
+        settings: None,
     }];
     let mut m = Monitor::new(s);
     m.push(&[Sample::ok(t(0.0), "g", 1.4e-5, MBAR)]);
@@ -657,6 +659,7 @@ fn a_configured_gauge_that_never_sends_goes_stale() {
         model: GaugeModel::new(GaugeKind::Capacitance, &n2(), &GaugeOverrides::default())
             .expect("model"),
         mixture: n2(),
+        settings: None,
     }];
     let mut m = Monitor::new(s);
     assert!(

@@ -259,6 +259,23 @@ impl GaugeModel {
     /// calibration table replaces them). `Err` lists every problem, in the
     /// order found; a [`GaugeSetting::Response`] problem is always last.
     pub fn from_settings(id: &str, s: &GaugeSettings) -> Result<GaugeModel, Vec<GaugeProblem>> {
+        Self::build(id, s, true)
+    }
+
+    /// Builds the model of gauge `id` for the gas in its settings as
+    /// [`GaugeModel::from_settings`] does, but lets one element of a
+    /// combined gauge go without a factor (its readings then correct to
+    /// NaN, which the monitor never passes off as a pressure). Used when
+    /// the gas changes during a run.
+    pub fn for_gas(id: &str, s: &GaugeSettings) -> Result<GaugeModel, Vec<GaugeProblem>> {
+        Self::build(id, s, false)
+    }
+
+    fn build(
+        id: &str,
+        s: &GaugeSettings,
+        both_elements: bool,
+    ) -> Result<GaugeModel, Vec<GaugeProblem>> {
         let mut problems = Vec::new();
         let mut overrides = s.overrides.clone();
         if let Some(cal_gas) = &s.calibration_gas
@@ -301,7 +318,7 @@ impl GaugeModel {
         match GaugeModel::new(s.kind, &s.mixture, &overrides) {
             Ok(model) => {
                 // A monitored combined gauge reads on both elements.
-                if let Some(e) = model.missing() {
+                if let Some(e) = model.missing().filter(|_| both_elements) {
                     problems.push(GaugeProblem {
                         setting: GaugeSetting::Response,
                         message: format!("gauge `{id}` ({}): {e}", s.kind),

@@ -591,12 +591,25 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             .map_or(d.mean_free_path_m, |x| x.mean_free_path_m),
         _ => d.mean_free_path_m,
     };
-    let gas = monitor
-        .setup()
-        .gauges
-        .iter()
-        .find(|g| Some(&g.id) == id.as_ref())
-        .map_or(monitor.setup().mixture.label(), |g| g.mixture.label());
+    // The gas in force and where it came from (a gauge with a gas of its
+    // own keeps it).
+    let (in_force, origin) = monitor.gas();
+    let own = id
+        .as_deref()
+        .and_then(|g| monitor.gauge_gas(g))
+        .filter(|m| *m != in_force);
+    let (gas, gas_full) = match own {
+        Some(m) => (m.label(), format!("{} (gauge's own)", m.label())),
+        None => {
+            let short = match origin {
+                crate::alarm::GasOrigin::Base => in_force.label(),
+                crate::alarm::GasOrigin::Step(s) => format!("{} ({s})", in_force.label()),
+                crate::alarm::GasOrigin::Log => format!("{} (log)", in_force.label()),
+                crate::alarm::GasOrigin::Operator(_) => format!("{} (op)", in_force.label()),
+            };
+            (short, format!("{} ({origin})", in_force.label()))
+        }
+    };
     let measured = monitor.tracks().any(|(_, t)| t.temperature_k.is_some());
     let t_k = monitor
         .tracks()
@@ -668,7 +681,7 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         return;
     }
     let lines = vec![
-        row("gas", gas),
+        row("gas", gas_full),
         row("temperature", t_text),
         row(
             look.sym("n", "n"),
