@@ -31,12 +31,12 @@ fn demo_log() -> String {
     format!("file://{}", root().join("sample-logs/demo.csv").display())
 }
 
-/// The alarm and gate events among stdout's JSON lines.
+/// The alarm, gate and gas events among stdout's JSON lines.
 fn events(o: &Output) -> Vec<Value> {
     String::from_utf8_lossy(&o.stdout)
         .lines()
         .filter_map(|l| serde_json::from_str::<Value>(l).ok())
-        .filter(|v| v["event"] == "alarm" || v["event"] == "gate")
+        .filter(|v| v["event"] == "alarm" || v["event"] == "gate" || v["event"] == "gas")
         .collect()
 }
 
@@ -95,6 +95,16 @@ fn record_on_a_sample_log_gives_the_expected_events() {
     );
     // While the ion gauge is switched off the rule is suppressed by design.
     assert!(!find(&ev, "ion-high", "suppressed-by-design").is_empty());
+    // The argon step (20 to 28 min in the demo scenario) puts Ar in force
+    // by the config's step `argon` once the capacitance gauge holds steady
+    // (its 10 s rate window after the rise), and N2 returns with the step.
+    let ar = find(&ev, "gas", "Ar");
+    assert_eq!(ar.len(), 1, "{ar:?}");
+    assert_eq!(ar[0]["time"], "2026-11-09T09:20:35.000Z");
+    assert_eq!(ar[0]["value_text"], "step argon");
+    let n2 = find(&ev, "gas", "N2");
+    assert_eq!(n2.len(), 1, "{n2:?}");
+    assert_eq!(n2[0]["time"], "2026-11-09T09:28:01.000Z");
     // The same events are in the event log beside the recording.
     let log = std::fs::read_dir(&out)
         .expect("out")

@@ -312,6 +312,9 @@ fn invalid_configs_are_located() {
             "did you mean `chamber`?",
         ),
         ("gate_bad_condition.toml", ":3:15:", "is not of the form"),
+        ("gas_step_bad_condition.toml", ":7:9:", "gas step `argon`: "),
+        ("gas_step_unknown_gas.toml", ":7:11:", "Argn"),
+        ("gas_step_bad_window.toml", ":5:9:", "is not a data time"),
         (
             "alarm_crosses_not_neighbours.toml",
             ":16:11:",

@@ -1008,3 +1008,75 @@ fn kinetics_follow_the_chamber_pressure_and_c_picks_a_gauge() {
     d.send(b"q");
     d.assert_clean_exit();
 }
+
+/// During the argon step of `process.csv` the demo config's gas step
+/// `argon` puts Ar in force: the combined gauge (no thermal factor for Ar
+/// above its crossover) is uncorrectable and the kinetics follow the
+/// capacitance gauge, with λ the engine's for Ar at its reading (14.2 mm
+/// at 5e-3 mbar and 22 C, as `rarefy calc -p "5e-3 mbar" --gas Ar` gives).
+/// `m` is an audited choice of gas: the base gas N2 by the operator.
+#[test]
+fn replay_argon_step_shows_ar_and_m_changes_the_gas() {
+    let mut d = Dash::spawn(
+        &[
+            "replay",
+            "sample-logs/process.csv",
+            "--config",
+            "config/demo.toml",
+            "--from",
+            "07:25",
+            "--speed",
+            "1",
+        ],
+        40,
+        120,
+    );
+    d.wait_text("REPLAY");
+    d.send(b" ");
+    let s = d.wait_for("paused on the argon step", |s| {
+        s.contains("PAUSED") && s.contains("gas kinetics · auto: cdg")
+    });
+    assert!(s.contains("Ar (step argon)"), "{s}");
+    let (p, unit) = readings(&s)
+        .into_iter()
+        .find(|r| r.0 == "cdg")
+        .map(|r| (r.1, r.2))
+        .expect("cdg reading");
+    assert_eq!(unit, "mbar");
+    let p_pa: f64 = p.parse::<f64>().expect("number") * 100.0;
+    let t_c: f64 = Regex::new(r"wall\s+(-?\d+\.\d) C")
+        .expect("regex")
+        .captures(&s)
+        .expect("wall temperature")[1]
+        .parse()
+        .expect("number");
+    let ar = rarefy::engine::mixture::Mixture::pure(
+        rarefy::gas::GasTable::builtin()
+            .get("Ar")
+            .expect("Ar")
+            .clone(),
+    );
+    let want = rarefy::engine::derive(
+        &rarefy::engine::Conditions::new(p_pa, t_c + 273.15),
+        &ar,
+        &[],
+        &rarefy::engine::Physics::default(),
+    )
+    .mean_free_path_m;
+    let shown = shown_mean_free_path(&s).expect("λ line");
+    assert!(
+        (shown / want - 1.0).abs() < 0.01,
+        "λ shown {shown} m, engine {want} m for Ar at {p} mbar:\n{s}"
+    );
+    assert!((shown - 14.2e-3).abs() < 0.3e-3, "about 14.2 mm:\n{s}");
+    // `m`: auto → the base gas, chosen by the operator.
+    d.send(b"m");
+    let s = d.wait_text("N2 (operator");
+    assert!(s.contains("gas: N2"), "{s}");
+    d.send(b"m");
+    d.wait_text("Ar (operator");
+    d.send(b"m");
+    d.wait_text("Ar (step argon)");
+    d.send(b"q");
+    d.assert_clean_exit();
+}

@@ -187,3 +187,98 @@ fn a_condition_without_gauge_uses_the_chamber_pressure() {
     // No bad-input alarm for the pseudo-gauge itself.
     assert!(m.alarms().iter().all(|a| a.rule.gauge != AUTO));
 }
+
+// --- The gas in force: config steps, the operator ---
+
+fn argon_step() -> super::gas_step::GasStep {
+    super::gas_step::GasStep {
+        id: "argon".into(),
+        mixture: gas("Ar"),
+        when: vec![syntax::condition("cdg pressure above 1e-3 mbar", &|_| None).expect("cond")],
+        from: None,
+        until: None,
+    }
+}
+
+/// A step on the capacitance gauge puts Ar in force at the row where it
+/// holds: the combined gauge above its crossover has no thermal factor for
+/// Ar, so it is uncorrectable and the chamber pressure falls back to the
+/// capacitance gauge, whose kinetics are the engine's for Ar. When the step
+/// stops holding the base gas returns. One event per change.
+#[test]
+fn a_gas_step_recorrects_and_the_uncorrectable_gauge_drops_out() {
+    let mut s = setup(&gas("N2"));
+    s.gas_steps = vec![argon_step()];
+    // Only the combined gauge is preferred, so that falling back shows.
+    s.chamber.order = vec!["chamber".into(), "cdg".into()];
+    let mut m = Monitor::new(s);
+    let ev = m.push(&row(0.0, Err(Fault::UnderRange), 2e-7, Ok(2e-7)));
+    assert!(ev.iter().all(|e| e.kind() != super::event::EventKind::Gas));
+    assert_eq!(m.gas().0.label(), "N2");
+    // Argon at 5e-3 mbar true; the combined gauge reads 2.81e-3 N2-equivalent.
+    let ev = m.push(&row(5.0, Ok(5e-3), 2.81e-3, Err(Fault::SensorOff)));
+    let gas_events: Vec<_> = ev
+        .iter()
+        .filter(|e| e.kind() == super::event::EventKind::Gas)
+        .collect();
+    assert_eq!(gas_events.len(), 1, "{ev:?}");
+    assert_eq!(
+        (gas_events[0].from_text(), gas_events[0].to_text()),
+        ("N2", "Ar")
+    );
+    assert_eq!(gas_events[0].value_text.as_deref(), Some("step argon"));
+    assert_eq!(m.gas().1, &super::gas_step::GasOrigin::Step("argon".into()));
+    let chamber = m.track("chamber").expect("track");
+    assert!(chamber.uncorrectable && chamber.pressure_pa.is_none());
+    assert_eq!(source(&m, &Quantity::Pressure).as_deref(), Some("cdg"));
+    // λ of Ar at 5e-3 mbar, 22 C: the engine fed the same numbers.
+    let want = derive(
+        &Conditions::new(0.5, 295.15),
+        &gas("Ar"),
+        &[],
+        &Physics::default(),
+    )
+    .mean_free_path_m;
+    let (_, track) = m.chamber_track(&Quantity::MeanFreePath).expect("source");
+    let got = track.derived.as_ref().expect("kinetics").mean_free_path_m;
+    assert!((got / want - 1.0).abs() < 1e-12, "{got} vs {want}");
+    // The same step on the next row: no event.
+    let ev = m.push(&row(10.0, Ok(5e-3), 2.8e-3, Err(Fault::SensorOff)));
+    assert!(ev.iter().all(|e| e.kind() != super::event::EventKind::Gas));
+    // Back under the capacitance gauge's range: N2 again, the combined
+    // gauge corrected with the N2 model.
+    let ev = m.push(&row(15.0, Err(Fault::UnderRange), 2e-7, Ok(2e-7)));
+    assert!(
+        ev.iter()
+            .any(|e| e.kind() == super::event::EventKind::Gas && e.to_text() == "N2")
+    );
+    let chamber = m.track("chamber").expect("track");
+    assert!(!chamber.uncorrectable);
+    assert!((chamber.pressure_pa.expect("p") - 2e-5).abs() < 1e-12);
+}
+
+/// Below the crossover the combined gauge reads on its ionization element,
+/// which has a factor for Ar (REFERENCES: relative ionization sensitivity
+/// of Ar, the gas table's value): it stays correctable in Ar.
+#[test]
+fn in_argon_the_ionization_element_still_corrects() {
+    let mut m = Monitor::new(setup(&gas("N2")));
+    let who = super::event::Actor::named("op");
+    let ev = m.set_gas(super::gas_step::GasChoice::Fixed(gas("Ar")), &who, t(0.0));
+    assert_eq!(ev.len(), 1);
+    assert_eq!(ev[0].operation, Some(super::event::Operation::SetGas));
+    assert_eq!(ev[0].user.as_deref(), Some("op"));
+    m.push(&row(0.0, Err(Fault::UnderRange), 2e-6, Ok(2e-6)));
+    let s_ar = GasTable::builtin()
+        .get("Ar")
+        .expect("Ar")
+        .ion_sensitivity
+        .expect("Ar ion factor");
+    let p = m.track("chamber").expect("track").pressure_pa.expect("p");
+    assert!((p - 2e-4 / s_ar).abs() < 1e-15, "{p}");
+    // The operator's fixed choice wins over a step, and auto returns.
+    let ev = m.set_gas(super::gas_step::GasChoice::Auto, &who, t(1.0));
+    assert_eq!((ev[0].from_text(), ev[0].to_text()), ("Ar", "N2"));
+    let p = m.track("chamber").expect("track").pressure_pa.expect("p");
+    assert!((p - 2e-4).abs() < 1e-15, "re-corrected at once: {p}");
+}
