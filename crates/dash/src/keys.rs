@@ -38,7 +38,7 @@ pub const HELP: [(&str, &str); 25] = [
     ),
     (
         "m",
-        "gas in force: auto (config steps), the base gas, each step's gas",
+        "gas in force: auto (config steps), base gas, step gases",
     ),
     ("space", "replay: pause / resume"),
     ("r", "replay: one row forward (pauses)"),

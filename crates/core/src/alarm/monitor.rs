@@ -583,7 +583,12 @@ impl Monitor {
         self.gas.models = models_for(&self.setup.gauges, &self.setup.mixture, &mixture);
         self.gas.mixture = mixture;
         self.gas.origin = origin;
-        for g in self.setup.gauges.iter().filter(|g| g.settings.is_some()) {
+        for g in self
+            .setup
+            .gauges
+            .iter()
+            .filter(|g| g.settings.is_some() && g.model.kind.is_gas_dependent())
+        {
             if let Some(t) = self.tracks.get_mut(&g.id) {
                 t.window.clear();
                 t.dpdt = None;
@@ -792,6 +797,13 @@ impl Monitor {
         }
         let Some(Ok((p, derived))) = corrected else {
             track.uncorrectable = corrected == Some(Err(true));
+            if track.uncorrectable {
+                // No pressure to count or fit until it can be corrected.
+                track.exposure.interrupt();
+                track.window.clear();
+                track.dpdt = None;
+                track.decades_per_min = None;
+            }
             track.pressure_pa = None;
             track.derived = None;
             return;
