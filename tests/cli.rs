@@ -276,6 +276,11 @@ fn invalid_configs_are_located() {
             "no unit for channel `wall`",
         ),
         (
+            "template_unknown_unit.toml",
+            ":6:36:",
+            "unknown unit \"ppm\"; expected a pressure or temperature unit",
+        ),
+        (
             "template_bad_status_word.toml",
             ":7:19:",
             "did you mean `over-range`?",
