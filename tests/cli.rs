@@ -192,6 +192,18 @@ fn bad_arguments_exit_2_naming_the_argument() {
             &["calc", "-p", "1 Pa", "--length", "x=3 furlong"],
             "unknown length unit",
         ),
+        (
+            &[
+                "calc", "-p", "1 Pa", "--length", "gap=1 mm", "--length", "gap=2 mm",
+            ],
+            "the name `gap` is given twice",
+        ),
+        (
+            &[
+                "calc", "-p", "1 Pa", "--length", "1 mm", "--length", "L1=2 mm",
+            ],
+            "the name `L1` is given twice",
+        ),
         (&["calc", "-p", "1 Pa", "--sticking", "2"], "at most 1"),
         (
             &["calc", "-p", "1 Pa", "--sites", "-1"],
