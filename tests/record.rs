@@ -369,7 +369,13 @@ fn a_log_row_with_a_bad_cell_is_one_row_not_also_an_unparsed_line() {
         .collect();
     assert_eq!(reports.len(), 3, "{reports:?}");
     assert!(reports[0].contains("log line 4, cell 3"), "{reports:?}");
-    assert!(reports[1].contains("repeats the row before's"), "{reports:?}");
-    assert!(reports[2].contains("earlier than the row before"), "{reports:?}");
+    assert!(
+        reports[1].contains("repeats the row before's"),
+        "{reports:?}"
+    );
+    assert!(
+        reports[2].contains("earlier than the row before"),
+        "{reports:?}"
+    );
     assert!(stderr.contains("earlier than the row before"), "{stderr}");
 }
