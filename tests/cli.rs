@@ -192,6 +192,18 @@ fn bad_arguments_exit_2_naming_the_argument() {
             &["calc", "-p", "1 Pa", "--length", "x=3 furlong"],
             "unknown length unit",
         ),
+        (
+            &[
+                "calc", "-p", "1 Pa", "--length", "gap=1 mm", "--length", "gap=2 mm",
+            ],
+            "the name `gap` is given twice",
+        ),
+        (
+            &[
+                "calc", "-p", "1 Pa", "--length", "1 mm", "--length", "L1=2 mm",
+            ],
+            "the name `L1` is given twice",
+        ),
         (&["calc", "-p", "1 Pa", "--sticking", "2"], "at most 1"),
         (
             &["calc", "-p", "1 Pa", "--sites", "-1"],
@@ -274,6 +286,11 @@ fn invalid_configs_are_located() {
             "template_missing_unit.toml",
             ":4:1:",
             "no unit for channel `wall`",
+        ),
+        (
+            "template_unknown_unit.toml",
+            ":6:36:",
+            "unknown unit \"ppm\"; expected a pressure or temperature unit",
         ),
         (
             "template_bad_status_word.toml",

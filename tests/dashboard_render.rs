@@ -367,3 +367,78 @@ fn the_help_overlay_scrolls_and_lists_the_short_forms() {
     assert!(s.contains("above"), "{s}");
     insta::assert_snapshot!("help_scrolled_80x24", s);
 }
+
+/// A replay of `file` (read with `config`'s `[log]`) played up to `until`,
+/// paused there.
+fn replay_app(file: &Path, config_text: &str, until: &str) -> App {
+    let cfg = config::parse(config_text, Path::new("t.toml")).expect("config");
+    let setup = ReplaySetup {
+        file: file.to_path_buf(),
+        foreign: cfg.log.clone(),
+        monitor: cfg.monitor_setup(Vec::new()),
+    };
+    let mut replay = index(&setup).expect("index");
+    replay.paused = true;
+    let mut app = App::new("t", Monitor::new(setup.monitor.clone()), Vec::new());
+    app.color = false;
+    app.replay = Some(replay);
+    let mut player = rarefy::ui::run::Player::open(&setup).expect("player");
+    let until = DateTime::parse_from_rfc3339(until)
+        .expect("time")
+        .with_timezone(&Utc);
+    player.feed(&mut app, Some(until), usize::MAX);
+    app
+}
+
+#[test]
+fn replay_shows_the_latest_operator_note_at_the_playhead() {
+    let file = root().join("sample-logs/foreign/marrowgate-ml3.csv");
+    let text = std::fs::read_to_string(root().join("sample-logs/foreign/marrowgate-ml3.toml"))
+        .expect("config");
+    // 02:05 and 02:17 local (summer time, +02:00) are 00:05 and 00:17 UTC.
+    let app = replay_app(&file, &text, "2026-10-25T00:10:00Z");
+    let s = screen(&app, 200, 60);
+    assert!(
+        s.contains("note 00:05:00 Event: Roughing valve open"),
+        "{s}"
+    );
+    let app = replay_app(&file, &text, "2026-10-25T00:20:00Z");
+    let s = screen(&app, 200, 60);
+    assert!(s.contains("note 00:17:00 Event: Crossover"), "{s}");
+    assert!(!s.contains("Roughing valve open"), "{s}");
+}
+
+#[test]
+fn replay_notes_are_escaped_and_times_out_of_order_are_said() {
+    let dir = std::env::temp_dir().join(format!("rarefy-render-notes-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("dir");
+    let file = dir.join("notes.csv");
+    std::fs::write(
+        &file,
+        "Time;P;Remark\n2026-01-01T00:00:00Z;1;\n2026-01-01T00:00:01Z;2;\x1b[31mvent\x07\n\
+         2026-01-01T00:00:01Z;3;\n2026-01-01T00:00:00.500Z;4;\n2026-01-01T00:00:02Z;5;\n",
+    )
+    .expect("write");
+    let config = r#"
+[log]
+delimiter = ";"
+time = { column = "Time", format = "rfc3339" }
+notes = ["Remark"]
+
+[[log.column]]
+name = "P"
+channel = "p"
+unit = "mbar"
+"#;
+    let app = replay_app(&file, config, "2026-01-01T00:00:02Z");
+    let s = screen(&app, 200, 60);
+    let status = s.lines().rev().nth(1).expect("status line");
+    assert!(
+        s.contains("note 00:00:01 Remark: \\x1b[31mvent\\x07"),
+        "{status}"
+    );
+    assert!(!s.contains('\x1b') && !s.contains('\x07'), "{s}");
+    assert!(s.contains("time went back 1×"), "{status}");
+    assert!(s.contains("time repeated 1×"), "{status}");
+    let _ = std::fs::remove_dir_all(&dir);
+}

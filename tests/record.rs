@@ -318,3 +318,64 @@ fn with_no_source_a_terminal_on_stdin_is_refused_not_read() {
         assert!(err.contains("no source"), "{args:?}: {err}");
     }
 }
+
+#[test]
+fn a_log_row_with_a_bad_cell_is_one_row_not_also_an_unparsed_line() {
+    let dir = tempdir("badcell");
+    let mut child = Command::new(bin())
+        .args(["record", "--source", "stdin:", "--out"])
+        .arg(&dir)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    child
+        .stdin
+        .take()
+        .expect("stdin")
+        .write_all(
+            b"# rarefy log v1\ntime,a [mbar],b [mbar]\n\
+              2026-01-01T00:00:01.000Z,1e-6,2e-6\n\
+              2026-01-01T00:00:02.000Z,1.5e-6,1.2.3\n\
+              2026-01-01T00:00:02.000Z,1.4e-6,2e-6\n\
+              2026-01-01T00:00:01.500Z,1.3e-6,2e-6\n",
+        )
+        .expect("write");
+    let out = child.wait_with_output().expect("wait");
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{stderr}");
+    let rows = rows(&dir);
+    assert_eq!(rows.len(), 4, "{rows:?}");
+    // The bad cell is recorded as its status, next to the good one.
+    assert!(rows[1].contains(",1.5e-6,unparsed"), "{rows:?}");
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let json: Vec<serde_json::Value> = stdout
+        .lines()
+        .filter_map(|l| serde_json::from_str(l).ok())
+        .collect();
+    let summary = json
+        .iter()
+        .find(|v| v["event"] == "summary")
+        .expect("summary");
+    assert_eq!(summary["rows"], 4);
+    assert_eq!(summary["unparsed"], 0);
+    // The bad cell, the repeated time and the time going back are each
+    // reported on stderr and as a JSON line.
+    let reports: Vec<&str> = json
+        .iter()
+        .filter(|v| v["event"] == "source-error")
+        .filter_map(|v| v["message"].as_str())
+        .collect();
+    assert_eq!(reports.len(), 3, "{reports:?}");
+    assert!(reports[0].contains("log line 4, cell 3"), "{reports:?}");
+    assert!(
+        reports[1].contains("repeats the row before's"),
+        "{reports:?}"
+    );
+    assert!(
+        reports[2].contains("earlier than the row before"),
+        "{reports:?}"
+    );
+    assert!(stderr.contains("earlier than the row before"), "{stderr}");
+}

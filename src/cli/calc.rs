@@ -256,13 +256,23 @@ pub fn run(args: &CalcArgs) -> Result<ExitCode, CliError> {
     };
 
     // Lengths: the config's, then the command line's (replacing by name).
+    // A name given twice on the command line is a mistake, not a replacement.
     let mut lengths = config.lengths.clone();
+    let mut given: Vec<String> = Vec::new();
     for (i, l) in args.length.iter().enumerate() {
         let name = if l.name.is_empty() {
             format!("L{}", i + 1)
         } else {
             l.name.clone()
         };
+        if given.contains(&name) {
+            return Err(CliError::Usage(format!(
+                "--length: the name `{}` is given twice (--length number {}); give each length its own name",
+                crate::sample::escape_bytes(name.as_bytes()),
+                i + 1
+            )));
+        }
+        given.push(name.clone());
         lengths.retain(|x| x.name != name);
         lengths.push(NamedLength::new(name, l.length_m));
     }

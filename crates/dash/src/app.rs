@@ -74,6 +74,10 @@ pub struct Replay {
     pub gaps: Vec<(DateTime<Utc>, DateTime<Utc>)>,
     /// Rows the reader reported as bad.
     pub bad_rows: u64,
+    /// Rows whose time was earlier than the row before's.
+    pub times_went_back: u64,
+    /// Rows whose time was the same as the row before's.
+    pub times_repeated: u64,
     /// Whether the log ended.
     pub at_end: bool,
 }
@@ -182,6 +186,9 @@ pub struct App {
     pub message: Option<String>,
     /// The last unparsed line, escaped.
     pub last_unparsed: Option<String>,
+    /// Replay: the latest operator note at or before the playhead — its row
+    /// time, column and text (as read; escape before showing).
+    pub note: Option<(DateTime<Utc>, String, String)>,
     /// Recent events, newest last.
     pub events: VecDeque<Event>,
     /// A new alarm asks for the bell.
@@ -257,6 +264,7 @@ impl App {
             selected: 0,
             message: None,
             last_unparsed: None,
+            note: None,
             events: VecDeque::new(),
             bell: false,
             bell_enabled: true,

@@ -313,6 +313,8 @@ pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String>
             events: ix.events.clone(),
             gaps: ix.gaps,
             bad_rows: ix.bad_rows,
+            times_went_back: ix.times_went_back,
+            times_repeated: ix.times_repeated,
             at_end: false,
         },
         ix.events,
@@ -344,6 +346,9 @@ impl Player {
             let Some(row) = self.rows.next_until(until) else {
                 break;
             };
+            if let Some((column, text)) = row.notes.last() {
+                app.note = Some((row.time, column.clone(), text.clone()));
+            }
             app.ingest(&SourceEvent::Samples(row.samples), None);
             n += 1;
         }
@@ -359,6 +364,7 @@ pub fn rewind(app: &mut App, setup: &ReplaySetup) -> Result<Player, String> {
     app.events.clear();
     app.counters = Default::default();
     app.frozen = None;
+    app.note = None;
     Player::open(setup)
 }
 

@@ -182,10 +182,10 @@ pub struct TemplateSection {
     /// Regular expression with a named group per channel.
     pub pattern: Spanned<String>,
     /// Unit of every channel without an entry in `units`.
-    pub unit: Option<String>,
+    pub unit: Option<Spanned<String>>,
     /// Unit per channel.
     #[serde(default)]
-    pub units: std::collections::BTreeMap<String, String>,
+    pub units: std::collections::BTreeMap<String, Spanned<String>>,
     /// Device words mapped to statuses.
     #[serde(default)]
     pub status: std::collections::BTreeMap<String, crate::sample::Status>,

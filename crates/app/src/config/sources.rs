@@ -7,7 +7,8 @@ use crate::parse::template::{Template, TemplateSpec};
 use crate::sample::ChannelUnit;
 use crate::source::{Poll, SourceUri};
 use crate::timefmt::{TimeFormat, Zone};
-use crate::units::PressureUnit;
+use crate::units::{PressureUnit, TemperatureUnit, UnitKind};
+use toml::Spanned;
 
 /// A configured source, ready to start.
 #[derive(Debug, Clone)]
@@ -86,12 +87,22 @@ pub(super) fn resolve(errs: &mut Errors<'_>, s: file::SourceSection) -> Option<S
     for t in &s.template {
         let span = t.span();
         let t = t.get_ref();
-        let unit = |this: &mut Errors<'_>, text: &str| -> Option<ChannelUnit> {
+        // An unknown unit is located at its own value, with the nearest
+        // known unit as a hint.
+        let unit = |this: &mut Errors<'_>, given: &Spanned<String>| -> Option<ChannelUnit> {
+            let text = given.get_ref();
             let u = ChannelUnit::parse(text);
             if u.is_none() {
+                let symbols = PressureUnit::ALL
+                    .iter()
+                    .map(|u| u.symbol())
+                    .chain(TemperatureUnit::ALL.iter().map(|u| u.symbol()));
+                let hint = crate::suggest::nearest(text.trim(), symbols)
+                    .map(|s| format!("; did you mean \"{s}\"?"))
+                    .unwrap_or_default();
                 this.err(
-                    span.clone(),
-                    format!("unknown unit \"{text}\"; expected a pressure or temperature unit (mbar, Torr, Pa, C, K …)"),
+                    given.span(),
+                    format!("unknown unit \"{}\"; expected a pressure or temperature unit (mbar, Torr, Pa, C, K …){hint}", crate::sample::escape_bytes(text.as_bytes())),
                 );
             }
             u

@@ -73,6 +73,16 @@ impl Rows {
     pub fn bad_rows(&self) -> u64 {
         self.bad
     }
+
+    /// Rows read so far whose time was earlier than the row before's.
+    pub fn times_went_back(&self) -> u64 {
+        self.log.times_went_back()
+    }
+
+    /// Rows read so far whose time was the same as the row before's.
+    pub fn times_repeated(&self) -> u64 {
+        self.log.times_repeated()
+    }
 }
 
 /// What one pass through a log found.
@@ -87,6 +97,10 @@ pub struct LogIndex {
     pub gaps: Vec<(DateTime<Utc>, DateTime<Utc>)>,
     /// Rows the reader reported as bad.
     pub bad_rows: u64,
+    /// Rows whose time was earlier than the row before's.
+    pub times_went_back: u64,
+    /// Rows whose time was the same as the row before's.
+    pub times_repeated: u64,
     /// Every event of the log, as playback gives them.
     pub events: Vec<Event>,
 }
@@ -129,6 +143,8 @@ pub fn index(
         end,
         gaps,
         bad_rows: rows.bad_rows(),
+        times_went_back: rows.times_went_back(),
+        times_repeated: rows.times_repeated(),
         events: events.0,
     })
 }

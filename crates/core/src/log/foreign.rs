@@ -29,7 +29,9 @@
 //! * a local time that does not exist (skipped when the clocks go forward) is
 //!   a located error: the logger's clock was wrong, and no guess is made.
 //!
-//! Cells that are empty give no sample (a gap). Columns not named in the
+//! Cells that are empty give no sample (a gap). Text columns listed in
+//! `notes = ["Event"]` (by header cell text) are kept as the rows' notes
+//! ([`Row::notes`]), non-empty cells only. Other columns not named in the
 //! configuration are ignored.
 
 use chrono::{DateTime, Utc};
@@ -70,6 +72,10 @@ pub struct LogSection {
     /// `[[log.column]]`: the gauge columns to read.
     #[serde(default)]
     pub column: Vec<ColumnSection>,
+    /// Text columns kept as row notes (operator remarks), by header cell
+    /// text: `notes = ["Event"]`.
+    #[serde(default)]
+    pub notes: Vec<Spanned<String>>,
 }
 
 /// `time = { column = "Timestamp", format = "…", timezone = "…" }`
@@ -165,6 +171,8 @@ pub struct ForeignLogSpec {
     pub time: TimeColumn,
     /// The gauge columns.
     pub columns: Vec<ForeignColumn>,
+    /// Text columns kept as row notes (operator remarks).
+    pub notes: Vec<ColumnRef>,
 }
 
 impl ForeignLogSpec {
@@ -487,6 +495,31 @@ impl LogSection {
             }
         }
 
+        // Note columns are chosen by their header text.
+        let mut notes = Vec::new();
+        for n in &self.notes {
+            let text = n.get_ref().trim();
+            if !header {
+                err(
+                    n.span(),
+                    "notes name header cells, but header = false: this log has no column-name row"
+                        .to_string(),
+                );
+            } else if text.is_empty() {
+                err(
+                    n.span(),
+                    "a notes column needs its header cell text".to_string(),
+                );
+            } else if notes.contains(&ColumnRef::Name(text.to_string())) {
+                err(
+                    n.span(),
+                    format!("notes column \"{}\" is given twice", show(text)),
+                );
+            } else {
+                notes.push(ColumnRef::Name(text.to_string()));
+            }
+        }
+
         match (time_ref, format) {
             (Some(column), Some(format)) if errors.is_empty() => Ok(ForeignLogSpec {
                 delimiter,
@@ -500,6 +533,7 @@ impl LogSection {
                     zone,
                 },
                 columns,
+                notes,
             }),
             _ => Err(errors),
         }
@@ -535,7 +569,10 @@ pub struct ForeignReader<R> {
     meta: LogMeta,
     last_time: Option<DateTime<Utc>>,
     went_back: u64,
+    repeated: u64,
     ambiguous: u64,
+    /// (cell index, header text) per `notes` column.
+    note_cells: Vec<(usize, String)>,
 }
 
 impl<R: BufRead> ForeignReader<R> {
@@ -691,6 +728,23 @@ impl<R: BufRead> ForeignReader<R> {
             }
             cells.push((i, header_text(i)));
         }
+        let mut note_cells: Vec<(usize, String)> = Vec::new();
+        for n in &spec.notes {
+            let i = find(n)?;
+            if i == time_cell || cells.iter().chain(&note_cells).any(|&(j, _)| j == i) {
+                return Err(LogError::at(
+                    name,
+                    header_line,
+                    Some(i + 1),
+                    format!(
+                        "column \"{}\" (cell {}) is in [log] notes and read as time, a gauge or another note",
+                        show(&header_text(i)),
+                        i + 1
+                    ),
+                ));
+            }
+            note_cells.push((i, header_text(i)));
+        }
         let columns = spec
             .columns
             .iter()
@@ -710,7 +764,9 @@ impl<R: BufRead> ForeignReader<R> {
             meta,
             last_time: None,
             went_back: 0,
+            repeated: 0,
             ambiguous: 0,
+            note_cells,
         })
     }
 
@@ -732,6 +788,11 @@ impl<R: BufRead> ForeignReader<R> {
     /// How many rows so far had a time earlier than the row before.
     pub fn times_went_back(&self) -> u64 {
         self.went_back
+    }
+
+    /// How many rows so far had the same time as the row before.
+    pub fn times_repeated(&self) -> u64 {
+        self.repeated
     }
 
     /// How many rows so far had a local time that occurs twice (the hour
@@ -889,16 +950,25 @@ impl<R: BufRead> ForeignReader<R> {
                 }
             }
         }
-        let time_went_back = self.last_time.is_some_and(|last| time < last);
-        if time_went_back {
-            self.went_back += 1;
-        }
+        let (time_went_back, time_repeated) = super::read::time_order(self.last_time, time);
+        self.went_back += u64::from(time_went_back);
+        self.repeated += u64::from(time_repeated);
         self.last_time = Some(time);
+        let notes = self
+            .note_cells
+            .iter()
+            .filter_map(|(i, header)| {
+                let text = cells.get(*i)?.text.trim();
+                (!text.is_empty()).then(|| (header.clone(), text.to_string()))
+            })
+            .collect();
         let row = Row {
             line: raw.number,
             time,
             samples,
             time_went_back,
+            time_repeated,
+            notes,
         };
         let mut bad = bad.into_iter();
         match bad.next() {

@@ -17,8 +17,12 @@
 //!   lines carry metadata, before the header row.
 //! * The header row is `time` then one column per channel,
 //!   `<channel> [<unit>]`; the unit says whether the channel is a pressure or a
-//!   temperature. Columns whose unit is neither (`[m]`, `[1/m3]` …) are derived
-//!   values, written for convenience and recomputed by readers.
+//!   temperature. Columns with a derived-column unit (`[1/m3]`, `[m]`,
+//!   `[1/(m2 s)]`, `[s]`, `[1]`) are derived values, written for convenience
+//!   and recomputed by readers; any other unit is a located error.
+//! * A row whose time is earlier than, or equal to, the row before's is read
+//!   and counted (`times_went_back`, `times_repeated`) for the caller to
+//!   report.
 //! * Times are RFC 3339 UTC with milliseconds.
 //! * A cell holds a number (shortest exact form, so no digit is lost), a status
 //!   word (`over-range`, `sensor-off` … — a bad reading is never written as a
@@ -70,6 +74,8 @@ pub trait LogSource: Iterator<Item = Result<Row, LogError>> + Send {
     }
     /// How many rows so far had a time earlier than the row before.
     fn times_went_back(&self) -> u64;
+    /// How many rows so far had the same time as the row before.
+    fn times_repeated(&self) -> u64;
     /// How many rows so far had an ambiguous local time (foreign logs in a
     /// zone with daylight-saving time).
     fn ambiguous_times(&self) -> u64 {
@@ -93,6 +99,9 @@ impl<R: BufRead + Send> LogSource for LogReader<R> {
     fn times_went_back(&self) -> u64 {
         LogReader::times_went_back(self)
     }
+    fn times_repeated(&self) -> u64 {
+        LogReader::times_repeated(self)
+    }
 }
 
 impl<R: BufRead + Send> LogSource for ForeignReader<R> {
@@ -107,6 +116,9 @@ impl<R: BufRead + Send> LogSource for ForeignReader<R> {
     }
     fn times_went_back(&self) -> u64 {
         ForeignReader::times_went_back(self)
+    }
+    fn times_repeated(&self) -> u64 {
+        ForeignReader::times_repeated(self)
     }
     fn ambiguous_times(&self) -> u64 {
         ForeignReader::ambiguous_times(self)

@@ -82,7 +82,18 @@ pub struct Row {
     /// The time is earlier than the previous row's (a clock jump): not an
     /// error, but worth a warning.
     pub time_went_back: bool,
+    /// The time equals the previous row's (a stuck clock or a row written
+    /// twice): not an error, but worth a warning.
+    pub time_repeated: bool,
+    /// Operator notes: (column, text) for each non-empty text column the
+    /// reader was told to keep (foreign logs' `[log] notes`), as read —
+    /// escape the text before showing it.
+    pub notes: Vec<(String, String)>,
 }
+
+/// Derived-column units the recorder writes (see `record::derived`); a
+/// header unit that is neither one of these nor a channel unit is an error.
+pub const DERIVED_UNITS: [&str; 5] = ["1/m3", "m", "1/(m2 s)", "s", "1"];
 
 /// Shortens and escapes text taken from a file for a message.
 pub(crate) fn show(text: &str) -> String {
@@ -115,6 +126,7 @@ pub struct LogReader<R> {
     warnings: Vec<LogError>,
     last_time: Option<DateTime<Utc>>,
     went_back: u64,
+    repeated: u64,
 }
 
 impl<R: BufRead> LogReader<R> {
@@ -129,6 +141,7 @@ impl<R: BufRead> LogReader<R> {
             warnings: Vec::new(),
             last_time: None,
             went_back: 0,
+            repeated: 0,
         };
         r.read_magic()?;
         loop {
@@ -174,6 +187,11 @@ impl<R: BufRead> LogReader<R> {
     /// How many rows so far had a time earlier than the row before.
     pub fn times_went_back(&self) -> u64 {
         self.went_back
+    }
+
+    /// How many rows so far had the same time as the row before.
+    pub fn times_repeated(&self) -> u64 {
+        self.repeated
     }
 
     /// The next line as text, header-block style: errors are fatal.
@@ -377,16 +395,17 @@ impl<R: BufRead> LogReader<R> {
                 }
             }
         }
-        let time_went_back = self.last_time.is_some_and(|last| time < last);
-        if time_went_back {
-            self.went_back += 1;
-        }
+        let (time_went_back, time_repeated) = time_order(self.last_time, time);
+        self.went_back += u64::from(time_went_back);
+        self.repeated += u64::from(time_repeated);
         self.last_time = Some(time);
         let row = Row {
             line: raw.number,
             time,
             samples,
             time_went_back,
+            time_repeated,
+            notes: Vec::new(),
         };
         let mut bad = bad.into_iter();
         match bad.next() {
@@ -420,6 +439,14 @@ impl<R: BufRead> Iterator for LogReader<R> {
                 return Some(item);
             }
         }
+    }
+}
+
+/// Whether `time` is earlier than, or the same as, the row before's.
+pub(crate) fn time_order(last: Option<DateTime<Utc>>, time: DateTime<Utc>) -> (bool, bool) {
+    match last {
+        Some(last) => (time < last, time == last),
+        None => (false, false),
     }
 }
 
@@ -524,7 +551,20 @@ fn header_row(name: &str, number: u64, text: &str) -> Result<Vec<Column>, LogErr
         }
         let kind = match ChannelUnit::parse(unit) {
             Some(u) => ColumnKind::Channel(u),
-            None => ColumnKind::Derived(unit.to_string()),
+            None if DERIVED_UNITS.contains(&unit) => ColumnKind::Derived(unit.to_string()),
+            None => {
+                // Not silently a derived column: a misspelt channel unit
+                // would lose the channel.
+                return Err(at(
+                    col,
+                    format!(
+                        "unknown unit \"{}\" in header cell \"{}\"; expected a pressure or temperature unit (mbar, Torr, Pa, C, K …) or a derived-column unit ({})",
+                        show(unit),
+                        show(t),
+                        DERIVED_UNITS.join(", ")
+                    ),
+                ));
+            }
         };
         columns.push(Column {
             name: column_name.to_string(),

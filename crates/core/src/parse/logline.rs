@@ -4,6 +4,11 @@
 //! [`AutoDecoder`] reads the plain format until a line starts a v1 log
 //! (`# rarefy log v1`), then reads v1 until another such line starts a new
 //! log (a rotated file) — so a source can carry either.
+//!
+//! Every line is counted once: a row with a bad cell is a row (the cell kept
+//! as an `unparsed` reading) plus a located `Error` report, never also an
+//! `unparsed` line. A row whose time is earlier than, or equal to, the row
+//! before's is kept and reported as an `Error` with the running count.
 
 use std::io::Cursor;
 
@@ -25,6 +30,44 @@ struct V1 {
     header_lines: u64,
     rows: u64,
     channels: Vec<ChannelInfo>,
+    /// The last row's time, and how many rows went back or repeated it.
+    last_time: Option<DateTime<Utc>>,
+    went_back: u64,
+    repeated: u64,
+}
+
+impl V1 {
+    /// Checks a row's time against the row before's: a time that goes back
+    /// or repeats is counted and reported.
+    fn order(&mut self, source: &str, line_no: u64, time: DateTime<Utc>) -> Vec<SourceEvent> {
+        let last = self.last_time.replace(time);
+        let Some(last) = last else {
+            return Vec::new();
+        };
+        let stamp = |t: DateTime<Utc>| t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true);
+        let message = if time < last {
+            self.went_back += 1;
+            format!(
+                "log line {line_no}: time {} is earlier than the row before ({}); times went back {} time(s) so far",
+                stamp(time),
+                stamp(last),
+                self.went_back
+            )
+        } else if time == last {
+            self.repeated += 1;
+            format!(
+                "log line {line_no}: time {} repeats the row before's; times repeated {} time(s) so far",
+                stamp(time),
+                self.repeated
+            )
+        } else {
+            return Vec::new();
+        };
+        vec![SourceEvent::Error {
+            source: source.to_string(),
+            message,
+        }]
+    }
 }
 
 /// The plain format, switching to log v1 when a log starts.
@@ -100,19 +143,32 @@ impl Decoder for AutoDecoder {
         doc.push('\n');
         let line_no = v1.header_lines + v1.rows;
         match LogReader::new(Cursor::new(doc.into_bytes()), source).map(|mut r| r.next()) {
-            Ok(Some(Ok(row))) => vec![SourceEvent::Samples(row.samples)],
+            Ok(Some(Ok(row))) => {
+                let mut out = v1.order(source, line_no, row.time);
+                out.insert(0, SourceEvent::Samples(row.samples));
+                out
+            }
             Ok(Some(Err(e))) => {
-                // Keep the row's good cells; report the bad ones.
-                let mut out = Vec::new();
-                if let Some(row) = e.row.clone() {
-                    out.push(SourceEvent::Samples(row.samples));
-                }
                 let msg = escape_bytes(e.message.as_bytes());
-                out.extend(Self::unparsed(
-                    source,
-                    received,
-                    format!("{}  (log line {line_no}: {msg})", escape_bytes(line)),
-                ));
+                let Some(row) = e.row else {
+                    // No row at all (bad time, wrong width): an unparsed line.
+                    return Self::unparsed(
+                        source,
+                        received,
+                        format!("{}  (log line {line_no}: {msg})", escape_bytes(line)),
+                    );
+                };
+                // A row: its good cells, its bad ones as `unparsed` readings,
+                // and where they are — counted as a row, not as unparsed.
+                let mut out = vec![SourceEvent::Samples(row.samples)];
+                out.push(SourceEvent::Error {
+                    source: source.to_string(),
+                    message: format!(
+                        "log line {line_no}, cell {}: {msg}; recorded as unparsed",
+                        e.column.unwrap_or(1)
+                    ),
+                });
+                out.extend(v1.order(source, line_no, row.time));
                 out
             }
             Ok(None) => Vec::new(),
@@ -159,6 +215,9 @@ mod tests {
                         )
                     })),
                     SourceEvent::Unparsed { text, .. } => unparsed.push(text),
+                    SourceEvent::Error { message, .. } => {
+                        unparsed.push(format!("error: {message}"))
+                    }
                     other => panic!("{other:?}"),
                 }
             }
@@ -204,13 +263,33 @@ mod tests {
         let text = "# rarefy log v1\ntime,a [mbar],b [mbar]\n2026-01-01T00:00:01.000Z,2e-6,1.2.3\n";
         let (s, u) = feed(&mut d, text);
         assert_eq!(s[0].1, Some(2e-6));
+        assert_eq!(s[1].2, Status::Unparsed);
+        // A row, reported as an error and not also as an unparsed line.
         assert_eq!(u.len(), 1);
-        assert!(u[0].contains("log line 3"), "{u:?}");
+        assert!(u[0].starts_with("error: log line 3, cell 3:"), "{u:?}");
         let mut d = AutoDecoder::new(PlainDecoder::new(
             "p",
             ChannelUnit::Pressure(PressureUnit::Mbar),
         ));
         let (_, u) = feed(&mut d, "# rarefy log v1\ntime,a\n");
         assert!(u[0].contains("bad log header"), "{u:?}");
+    }
+
+    #[test]
+    fn times_going_back_or_repeating_are_reported_with_a_count() {
+        let mut d = AutoDecoder::new(PlainDecoder::new(
+            "p",
+            ChannelUnit::Pressure(PressureUnit::Mbar),
+        ));
+        let text = "# rarefy log v1\ntime,a [mbar]\n2026-01-01T00:00:02.000Z,1\n\
+                    2026-01-01T00:00:01.000Z,2\n2026-01-01T00:00:01.000Z,3\n\
+                    2026-01-01T00:00:00.000Z,4\n2026-01-01T00:00:05.000Z,5\n";
+        let (s, u) = feed(&mut d, text);
+        assert_eq!(s.len(), 5, "every row is kept");
+        assert_eq!(u.len(), 3, "{u:?}");
+        assert!(u[0].contains("log line 4: time 2026-01-01T00:00:01.000Z is earlier"));
+        assert!(u[0].ends_with("went back 1 time(s) so far"), "{u:?}");
+        assert!(u[1].contains("log line 5: time 2026-01-01T00:00:01.000Z repeats"));
+        assert!(u[2].ends_with("went back 2 time(s) so far"), "{u:?}");
     }
 }

@@ -1066,6 +1066,34 @@ fn status_line(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
                 look.alarm,
             ));
         }
+        // Rows out of time order are read, and said.
+        if r.times_went_back > 0 {
+            parts.push(Span::styled(
+                format!("time went back {}×  ", r.times_went_back),
+                look.alarm,
+            ));
+        }
+        if r.times_repeated > 0 {
+            parts.push(Span::styled(
+                format!("time repeated {}×  ", r.times_repeated),
+                look.alarm,
+            ));
+        }
+        // The latest operator note at the playhead, escaped and shortened.
+        if let Some((t, column, text)) = &app.note {
+            let text: String = crate::sample::escape_bytes(text.as_bytes())
+                .chars()
+                .take(60)
+                .collect();
+            let column: String = crate::sample::escape_bytes(column.as_bytes())
+                .chars()
+                .take(20)
+                .collect();
+            parts.push(Span::raw(format!(
+                "note {} {column}: {text}  ",
+                t.format("%H:%M:%S")
+            )));
+        }
     }
     if app.replay.is_none() {
         parts.push(Span::raw(format!(

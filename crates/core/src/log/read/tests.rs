@@ -514,6 +514,40 @@ fn times_going_back_are_flagged_not_errors() {
         .collect();
     assert_eq!(flags, [false, true, false, false, true]);
     assert_eq!(r.times_went_back(), 2);
+    assert_eq!(r.times_repeated(), 1);
+}
+
+#[test]
+fn repeated_times_are_flagged_and_counted() {
+    let text = format!(
+        "{MAGIC}\ntime,a [mbar]\n2026-12-01T19:00:00Z,1\n2026-12-01T19:00:00Z,2\n\
+         2026-12-01T19:00:01Z,3\n2026-12-01T19:00:01.000Z,4\n"
+    );
+    let mut r = reader(&text);
+    let flags: Vec<(bool, bool)> = r
+        .by_ref()
+        .map(|x| {
+            x.map(|row| (row.time_went_back, row.time_repeated))
+                .unwrap_or_else(|e| panic!("{e}"))
+        })
+        .collect();
+    assert_eq!(
+        flags,
+        [(false, false), (false, true), (false, false), (false, true)]
+    );
+    assert_eq!((r.times_went_back(), r.times_repeated()), (0, 2));
+}
+
+#[test]
+fn a_header_unit_that_is_neither_channel_nor_derived_is_located() {
+    let text = format!("{MAGIC}\ntime,a [mbar],b [mbr]\n2026-12-01T19:00:00Z,1,2\n");
+    let e = match LogReader::new(text.as_bytes(), "run.csv") {
+        Ok(_) => panic!("an unknown header unit was read as a derived column"),
+        Err(e) => e,
+    };
+    assert_eq!((e.line, e.column), (Some(2), Some(3)), "{e}");
+    assert!(e.message.contains("unknown unit \"mbr\""), "{e}");
+    assert!(e.message.contains("1/m3"), "{e}");
 }
 
 #[test]
