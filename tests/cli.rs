@@ -313,6 +313,11 @@ fn invalid_configs_are_located() {
         ),
         ("gate_bad_condition.toml", ":3:15:", "is not of the form"),
         (
+            "alarm_enable_deadband.toml",
+            ":4:10:",
+            "an enabling condition takes no deadband",
+        ),
+        (
             "alarm_crosses_not_neighbours.toml",
             ":16:11:",
             "not neighbours",
