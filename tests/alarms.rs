@@ -384,3 +384,92 @@ fn failing_and_hanging_actions_are_reported_and_do_not_stall_ingest() {
         "{outcomes:?}"
     );
 }
+
+#[test]
+fn gate_wait_times_out_with_3_while_a_source_retries_and_no_data_came() {
+    // Nothing listens on a port just freed: the source keeps retrying.
+    let port = std::net::TcpListener::bind("127.0.0.1:0")
+        .and_then(|l| l.local_addr())
+        .expect("port")
+        .port();
+    let o = rarefy(&[
+        "gate",
+        "wait",
+        "deposition-ready",
+        "--config",
+        "config/demo.toml",
+        "--source",
+        &format!("tcp://127.0.0.1:{port}"),
+        "--timeout",
+        "2 s",
+    ]);
+    assert_eq!(o.status.code(), Some(3), "{}", stderr(&o));
+    assert!(stderr(&o).contains("giving up"), "{}", stderr(&o));
+}
+
+#[test]
+fn gate_wait_json_lines_and_progress_only_on_change_or_every_few_seconds() {
+    let started = Instant::now();
+    let o = rarefy(&[
+        "gate",
+        "wait",
+        "deposition-ready",
+        "--config",
+        "config/demo.toml",
+        "--source",
+        "sim:demo?rate=max",
+        "--timeout",
+        "30 min",
+        "--json",
+    ]);
+    let wall = started.elapsed().as_secs_f64();
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let lines: Vec<Value> = String::from_utf8_lossy(&o.stdout)
+        .lines()
+        .map(|l| serde_json::from_str(l).expect("a JSON line"))
+        .collect();
+    assert!(lines.len() >= 2, "{lines:?}");
+    for l in &lines {
+        assert_eq!(l["gate"], "deposition-ready");
+        assert!(l["state"] == "ready" || l["state"] == "not-ready", "{l}");
+        assert!(
+            l.get("reason").is_some() && l.get("time_left_s").is_some(),
+            "{l}"
+        );
+        assert!(
+            l["data_time"].is_string() || l["data_time"].is_null(),
+            "{l}"
+        );
+    }
+    let last = lines.last().expect("lines");
+    assert_eq!(
+        (&last["state"], &last["outcome"]),
+        (&"ready".into(), &"ready".into())
+    );
+    assert_eq!(last["time_left_s"], 0.0);
+    assert!(
+        lines.iter().any(|l| l["time_left_s"]
+            .as_f64()
+            .is_some_and(|t| t > 0.0 && t <= 120.0)),
+        "the hold's time left is given: {lines:?}"
+    );
+    // Two minutes of holding pass in data time: the time left and the
+    // failing value are not repeated for every reading, only when the state
+    // or the failing condition changes, or after 5 s of wall time.
+    let kind = |l: &Value| {
+        let reason = l["reason"].as_str().unwrap_or("");
+        let cut = reason
+            .find(':')
+            .or(reason.find(';'))
+            .unwrap_or(reason.len());
+        (l["state"].clone(), reason[..cut].to_string())
+    };
+    let repeats = lines
+        .windows(2)
+        .filter(|w| w[1].get("outcome").is_none() && kind(&w[0]) == kind(&w[1]))
+        .count();
+    assert!(
+        repeats as f64 <= 1.0 + wall / 5.0,
+        "{repeats} repeated lines in {wall:.1} s: {lines:?}"
+    );
+}

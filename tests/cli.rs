@@ -333,6 +333,11 @@ fn invalid_configs_are_located() {
         ("gas_step_unknown_gas.toml", ":7:11:", "Argn"),
         ("gas_step_bad_window.toml", ":5:9:", "is not a data time"),
         (
+            "alarm_enable_deadband.toml",
+            ":4:10:",
+            "an enabling condition takes no deadband",
+        ),
+        (
             "alarm_crosses_not_neighbours.toml",
             ":16:11:",
             "not neighbours",

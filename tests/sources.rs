@@ -102,14 +102,16 @@ impl Probe {
 }
 
 fn controller_template() -> Box<dyn Decoder> {
-    // An invented controller: "<status>,<value>" for two gauges, then CR LF.
+    // The project's own invented readout: "VX G1 <value> <word> G2 <value>
+    // <word>", then CR LF.
     let spec = TemplateSpec {
-        pattern: r"^(?P<a_status>\d),(?P<a>[^,]+),(?P<b_status>\d),(?P<b>[^,]+)$".into(),
+        pattern: r"^VX G1 (?P<a>\S+) (?P<a_status>[A-Z]+) G2 (?P<b>\S+) (?P<b_status>[A-Z]+)$"
+            .into(),
         unit: Some(MBAR),
         status: [
-            ("0", Status::Ok),
-            ("1", Status::UnderRange),
-            ("2", Status::OverRange),
+            ("GOOD", Status::Ok),
+            ("UNDR", Status::UnderRange),
+            ("OVER", Status::OverRange),
         ]
         .into_iter()
         .map(|(k, v)| (k.to_string(), v))
@@ -162,14 +164,14 @@ async fn serial_port_through_a_pty_with_unplug_and_replug() {
 
     // Lines in the template, one split across writes, garbage and invalid
     // UTF-8, and a very long line.
-    port.send(b"0,1.00E-06,0,2.00E-03\r\n");
-    port.send(b"0,1.10E-0");
+    port.send(b"VX G1 +1.00E-06 GOOD G2 +2.00E-03 GOOD\r\n");
+    port.send(b"VX G1 +1.10E-0");
     tokio::time::sleep(Duration::from_millis(50)).await;
-    port.send(b"6,2,9.99E+02\r\n");
+    port.send(b"6 GOOD G2 +9.99E+02 OVER\r\n");
     port.send(b"\x1b[2J\xff\xfe garbage\r\n");
     let long = vec![b'7'; 20_000];
     port.send(&long);
-    port.send(b"\r\n0,1.20E-06,1,1.00E-04\r\n");
+    port.send(b"\r\nVX G1 +1.20E-06 GOOD G2 +1.00E-04 UNDR\r\n");
     p.until("three records", |s| s.values.len() >= 6).await;
     p.until("two unparsed", |s| s.unparsed.len() >= 2).await;
     assert_eq!(p.values(), [1.0e-6, 2.0e-3, 1.1e-6, 1.2e-6]);
@@ -206,7 +208,7 @@ async fn serial_port_through_a_pty_with_unplug_and_replug() {
     p.connected(2).await;
     let before = p.seen.values.len();
     for i in 0..200 {
-        port.send(format!("0,{i}.5E-07,0,1.0E-03\r\n").as_bytes());
+        port.send(format!("VX G1 +{i}.5E-07 GOOD G2 +1.0E-03 GOOD\r\n").as_bytes());
     }
     p.until("200 records after replug", |s| {
         s.values.len() >= before + 400

@@ -2,13 +2,15 @@
 //! scripts that run a process step.
 
 use std::path::PathBuf;
+
+use chrono::{DateTime, Utc};
 use std::time::{Duration, Instant};
 
 use clap::Subcommand;
 
 use super::record::live_pipeline;
 use super::{CliError, ExitCode, load_config};
-use crate::alarm::GateState;
+use crate::alarm::{GateMachine, GateState};
 use crate::pipeline::sinks::say;
 use crate::pipeline::{DataClock, Nowhere, Pipeline, start};
 use crate::sample::{SourceEvent, SourceState};
@@ -17,9 +19,10 @@ use crate::units::{self, TimeUnit};
 /// `rarefy gate` subcommands.
 #[derive(Debug, Subcommand)]
 pub enum GateCommand {
-    /// Wait until gate NAME is ready: exit 0 when it is, 3 on timeout, 1 when
-    /// the sources fail. Progress (the failing condition, the time left) goes
-    /// to stderr.
+    /// Wait until gate NAME is ready: exit 0 when it is, 3 on timeout (also
+    /// while a source is retrying or before any data), 1 when every source
+    /// has ended or failed first. Progress goes to stderr when the state or
+    /// the failing condition changes, and at most every 5 s otherwise.
     Wait {
         /// The gate's id in the config.
         name: String,
@@ -33,6 +36,11 @@ pub enum GateCommand {
         /// comes first), e.g. "30 min". Default: wait for ever.
         #[arg(long, value_parser = duration)]
         timeout: Option<f64>,
+        /// Also print the progress to stdout as JSON lines (`gate`, `state`,
+        /// `reason`, `time_left_s`, `data_time`; the last line adds
+        /// `outcome`: ready, timeout or sources-ended).
+        #[arg(long)]
+        json: bool,
     },
 }
 
@@ -51,6 +59,7 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
         config,
         source,
         timeout,
+        json,
     } = command;
     let loaded = load_config(config.as_ref())?;
     let config = &loaded.config;
@@ -83,14 +92,14 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
         let live = |clock: &DataClock| (!started.finite).then(|| clock.now());
         let mut ended = 0;
         let total = started.names.len();
-        let mut last_said = String::new();
+        let mut progress = Progress::new(name, *json);
         let mut tick = tokio::time::interval(Duration::from_millis(500));
-        let gate_state = |p: &Pipeline| {
+        let gate_of = |p: &Pipeline| -> Option<GateMachine> {
             p.monitor()
                 .gates()
                 .iter()
                 .find(|g| &g.gate.id == name)
-                .map(|g| (g.state(), g.reason().map(str::to_string)))
+                .cloned()
         };
         let code = loop {
             tokio::select! {
@@ -112,7 +121,7 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
                         SourceEvent::Unparsed { .. } => {}
                     }
                     pipeline.feed(&ev, live(&clock), &mut Nowhere);
-                    if ended == total && gate_state(&pipeline).is_none_or(|g| g.0 != GateState::Ready) {
+                    if ended == total && gate_of(&pipeline).is_none_or(|g| g.state() != GateState::Ready) {
                         break ExitCode::Runtime;
                     }
                 },
@@ -122,32 +131,28 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
                     }
                 }
             }
-            if let Some((state, reason)) = gate_state(&pipeline) {
-                if state == GateState::Ready {
-                    say(&format!("gate {name}: ready"));
+            let data_now = pipeline.monitor().now();
+            if let Some(g) = gate_of(&pipeline) {
+                progress.report(&g, data_now)?;
+                if g.state() == GateState::Ready {
                     break ExitCode::Ok;
-                }
-                let text = reason.unwrap_or_default();
-                if text != last_said {
-                    say(&format!("gate {name}: not ready: {text}"));
-                    last_said = text;
                 }
             }
             if let Some(limit) = timeout {
-                let data_elapsed = match (first_data, pipeline.monitor().now()) {
+                let data_elapsed = match (first_data, data_now) {
                     (Some(a), Some(b)) => (b - a).num_milliseconds() as f64 / 1000.0,
                     _ => 0.0,
                 };
                 if data_elapsed >= *limit || wall_start.elapsed().as_secs_f64() >= *limit {
                     say(&format!("gate {name}: not ready after {limit} s: giving up"));
-                    break if first_data.is_some() {
-                        ExitCode::Trip
-                    } else {
-                        ExitCode::Runtime
-                    };
+                    break ExitCode::Trip;
                 }
             }
         };
+        let data_now = pipeline.monitor().now();
+        if let Some(g) = gate_of(&pipeline) {
+            progress.finish(&g, data_now, code)?;
+        }
         started.stop();
         Ok::<ExitCode, CliError>(code)
     });
@@ -159,4 +164,102 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
         ));
     }
     Ok(result)
+}
+
+/// What `gate wait` says about the gate: on every change of state or of the
+/// failing condition, and otherwise at most every [`Progress::EVERY`].
+struct Progress<'a> {
+    name: &'a str,
+    json: bool,
+    last_key: Option<(GateState, Option<usize>)>,
+    last_at: Instant,
+}
+
+impl<'a> Progress<'a> {
+    /// The longest a wait stays silent while nothing changes.
+    const EVERY: Duration = Duration::from_secs(5);
+
+    fn new(name: &'a str, json: bool) -> Self {
+        Progress {
+            name,
+            json,
+            last_key: None,
+            last_at: Instant::now(),
+        }
+    }
+
+    /// The reason and time left of `g` at data time `now`.
+    fn describe(g: &GateMachine, now: Option<DateTime<Utc>>) -> (Option<String>, Option<f64>) {
+        let left = now.and_then(|n| g.time_left_at(n)).or(g.time_left_s());
+        match (g.state(), g.failing(), left) {
+            (GateState::Ready, ..) => (None, Some(0.0)),
+            (_, None, Some(left)) => (
+                Some(format!(
+                    "all conditions hold; {:.0} s of {:.0} s to go",
+                    left.ceil(),
+                    g.gate.hold_s
+                )),
+                Some(left),
+            ),
+            _ => (g.reason().map(str::to_string), None),
+        }
+    }
+
+    fn report(&mut self, g: &GateMachine, now: Option<DateTime<Utc>>) -> Result<(), CliError> {
+        let key = (g.state(), g.failing());
+        if self.last_key == Some(key) && self.last_at.elapsed() < Self::EVERY {
+            return Ok(());
+        }
+        self.last_key = Some(key);
+        self.last_at = Instant::now();
+        self.write(g, now, None)
+    }
+
+    fn finish(
+        &mut self,
+        g: &GateMachine,
+        now: Option<DateTime<Utc>>,
+        code: ExitCode,
+    ) -> Result<(), CliError> {
+        if !self.json {
+            return Ok(());
+        }
+        let outcome = match code {
+            ExitCode::Ok => "ready",
+            ExitCode::Trip => "timeout",
+            _ => "sources-ended",
+        };
+        self.write(g, now, Some(outcome))
+    }
+
+    fn write(
+        &self,
+        g: &GateMachine,
+        now: Option<DateTime<Utc>>,
+        outcome: Option<&str>,
+    ) -> Result<(), CliError> {
+        let (reason, left) = Self::describe(g, now);
+        let name = self.name;
+        if outcome.is_none() {
+            match (&reason, g.state()) {
+                (_, GateState::Ready) => say(&format!("gate {name}: ready")),
+                (Some(r), _) => say(&format!("gate {name}: not ready: {r}")),
+                (None, _) => say(&format!("gate {name}: not ready")),
+            }
+        }
+        if self.json {
+            let mut line = serde_json::json!({
+                "gate": name,
+                "state": g.state().as_str(),
+                "reason": reason,
+                "time_left_s": left,
+                "data_time": now.map(|t| t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true)),
+            });
+            if let Some(o) = outcome {
+                line["outcome"] = o.into();
+            }
+            super::print_json(&format!("{line}\n"))?;
+        }
+        Ok(())
+    }
 }

@@ -13,17 +13,24 @@ mod watch;
 use std::io::Write;
 use std::path::PathBuf;
 
-use clap::{Parser, Subcommand};
+use clap::{CommandFactory, Parser, Subcommand};
 
 use crate::config::{self, Config, ConfigErrors};
 
 pub use rarefy_core::CAUTION;
+
+const LONG_ABOUT: &str = "Gas kinetics, alarms and run diagnoses from vacuum-gauge readings.
+
+The configuration file is --config FILE, else $RAREFY_CONFIG, else ./rarefy.toml, \
+else $XDG_CONFIG_HOME/rarefy/rarefy.toml (~/.config/rarefy/rarefy.toml); without \
+one the built-in defaults apply. Each command names the file it used on stderr.";
 
 #[derive(Debug, Parser)]
 #[command(
     name = "rarefy",
     version,
     about = "Gas kinetics, alarms and run diagnoses from vacuum-gauge readings",
+    long_about = LONG_ABOUT,
     after_help = CAUTION,
 )]
 struct Cli {
@@ -56,6 +63,53 @@ enum Command {
         #[command(subcommand)]
         command: config_cmd::ConfigCommand,
     },
+    /// Print a shell completion script to stdout, e.g.
+    /// `rarefy completions bash > ~/.local/share/bash-completion/completions/rarefy`.
+    Completions {
+        /// The shell: bash, zsh, fish, elvish or powershell.
+        shell: clap_complete::Shell,
+    },
+    /// Print the manual page (roff) to stdout, e.g. `rarefy man | man -l -`.
+    Man,
+}
+
+/// Writes the completion script for `shell` to stdout.
+fn completions(shell: clap_complete::Shell) -> Result<ExitCode, CliError> {
+    let mut out = Vec::new();
+    clap_complete::generate(shell, &mut Cli::command(), "rarefy", &mut out);
+    write_out(&String::from_utf8_lossy(&out))?;
+    Ok(ExitCode::Ok)
+}
+
+/// Writes the manual page, made from the argument definitions, to stdout:
+/// the command with every subcommand's own section.
+fn man_page() -> Result<ExitCode, CliError> {
+    let cmd = Cli::command();
+    let mut out = Vec::new();
+    clap_mangen::Man::new(cmd.clone()).render(&mut out)?;
+    for sub in cmd.get_subcommands().filter(|s| s.get_name() != "help") {
+        render_sub(&mut out, sub, "rarefy")?;
+    }
+    write_out(&String::from_utf8_lossy(&out))?;
+    Ok(ExitCode::Ok)
+}
+
+/// Appends a subcommand's (and its subcommands') synopsis, description
+/// and options to the page under a `rarefy-NAME` heading.
+fn render_sub(out: &mut Vec<u8>, cmd: &clap::Command, parent: &str) -> std::io::Result<()> {
+    let name = format!("{parent}-{}", cmd.get_name());
+    let cmd = cmd.clone().bin_name(name.replace('-', " "));
+    let man = clap_mangen::Man::new(cmd.clone());
+    writeln!(out, ".SH \"{}\"", name.to_uppercase())?;
+    man.render_description_section(out)?;
+    man.render_synopsis_section(out)?;
+    man.render_options_section(out)?;
+    if cmd.has_subcommands() {
+        for sub in cmd.get_subcommands().filter(|s| s.get_name() != "help") {
+            render_sub(out, sub, &name)?;
+        }
+    }
+    Ok(())
 }
 
 /// A failed command, with the exit code it maps to.
@@ -116,15 +170,69 @@ pub(crate) struct LoadedConfig {
     pub file: Option<(PathBuf, String)>,
 }
 
-/// Loads `--config F`, or the built-in defaults without one. The file is
+/// Where a configuration file was found, in the order they are tried.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum ConfigFrom {
+    /// `--config F`.
+    Flag,
+    /// The `RAREFY_CONFIG` environment variable.
+    Env,
+    /// `./rarefy.toml` in the working directory.
+    WorkingDir,
+    /// `$XDG_CONFIG_HOME/rarefy/rarefy.toml` (or `~/.config/rarefy/rarefy.toml`).
+    UserDir,
+}
+
+impl ConfigFrom {
+    /// How the file was found, for messages.
+    pub(crate) fn as_str(self) -> &'static str {
+        match self {
+            ConfigFrom::Flag => "--config",
+            ConfigFrom::Env => "RAREFY_CONFIG",
+            ConfigFrom::WorkingDir => "the working directory",
+            ConfigFrom::UserDir => "the user config directory",
+        }
+    }
+}
+
+/// Finds the configuration file: `--config`, then `RAREFY_CONFIG`, then
+/// `./rarefy.toml`, then `$XDG_CONFIG_HOME/rarefy/rarefy.toml` (when
+/// `XDG_CONFIG_HOME` is unset or not absolute,
+/// `$HOME/.config/rarefy/rarefy.toml`). The first two are used as given
+/// (a missing file is an error); the others only when the file exists.
+/// `None`: no file, the built-in defaults.
+pub(crate) fn find_config(flag: Option<&PathBuf>) -> Option<(PathBuf, ConfigFrom)> {
+    if let Some(p) = flag {
+        return Some((p.clone(), ConfigFrom::Flag));
+    }
+    let var = |name: &str| std::env::var_os(name).filter(|v| !v.is_empty());
+    if let Some(p) = var("RAREFY_CONFIG") {
+        return Some((PathBuf::from(p), ConfigFrom::Env));
+    }
+    let here = PathBuf::from("rarefy.toml");
+    if here.is_file() {
+        return Some((here, ConfigFrom::WorkingDir));
+    }
+    let base = var("XDG_CONFIG_HOME")
+        .map(PathBuf::from)
+        .filter(|p| p.is_absolute())
+        .or_else(|| var("HOME").map(|h| PathBuf::from(h).join(".config")))?;
+    let user = base.join("rarefy").join("rarefy.toml");
+    user.is_file().then_some((user, ConfigFrom::UserDir))
+}
+
+/// Loads the configuration file [`find_config`] finds, or the built-in
+/// defaults without one, and says on stderr which file it used. The file is
 /// read once: what is resolved is exactly the text a recording keeps.
 fn load_config(path: Option<&PathBuf>) -> Result<LoadedConfig, CliError> {
-    match path {
-        Some(p) => {
-            let text = config::read_text(p)?;
+    match find_config(path) {
+        Some((p, from)) => {
+            let text = config::read_text(&p)?;
+            let config = config::parse(&text, &p)?;
+            say_config(&p, from);
             Ok(LoadedConfig {
-                config: config::parse(&text, p)?,
-                file: Some((p.clone(), text)),
+                config,
+                file: Some((p, text)),
             })
         }
         None => Ok(LoadedConfig {
@@ -132,6 +240,15 @@ fn load_config(path: Option<&PathBuf>) -> Result<LoadedConfig, CliError> {
             file: None,
         }),
     }
+}
+
+/// The stderr line naming the configuration file in use.
+fn say_config(path: &std::path::Path, from: ConfigFrom) {
+    crate::pipeline::sinks::say(&format!(
+        "config: {} (from {})",
+        path.display(),
+        from.as_str()
+    ));
 }
 
 /// With no source named (no `--source`, no `[[source]]`), a live command
@@ -207,6 +324,8 @@ pub fn main() -> std::process::ExitCode {
         Command::Simulate(args) => simulate::run(&args),
         Command::Config { command } => config_cmd::run(&command),
         Command::Gate { command } => gate::run(&command),
+        Command::Completions { shell } => completions(shell),
+        Command::Man => man_page(),
     };
     match result {
         Ok(code) => code.into(),

@@ -111,6 +111,13 @@ pub fn watch(args: &WatchArgs) -> Result<ExitCode, CliError> {
         (None, false) => load_config(None)?,
     };
     let config = &loaded.config;
+    // The file in use (none for the built-in demo config), for the status
+    // line, saving edits and the recording directory.
+    let found = if args.demo && args.config.is_none() {
+        None
+    } else {
+        super::find_config(args.config.as_ref())
+    };
     let mut sources_cli = args.source.clone();
     if args.demo && sources_cli.is_empty() {
         sources_cli.push(DEMO_SOURCE.into());
@@ -140,7 +147,7 @@ pub fn watch(args: &WatchArgs) -> Result<ExitCode, CliError> {
         let record_dir =
             args.record
                 .clone()
-                .or(config.record.dir.clone().filter(|_| args.config.is_some()));
+                .or(config.record.dir.clone().filter(|_| found.is_some()));
         let (mut notes, mut recording, mut outcomes) = (None, None, None);
         if let Some(dir) = record_dir.clone() {
             let plan = RecordPlan {
@@ -162,7 +169,14 @@ pub fn watch(args: &WatchArgs) -> Result<ExitCode, CliError> {
         let mut app = App::with_pipeline(title, pipeline, gauges(config));
         app.user = local_user();
         styled(&mut app, args.ascii, config);
-        app.config_path = args.config.clone();
+        if let Some((path, from)) = &found {
+            app.config_path = Some(path.clone());
+            app.message = Some(format!(
+                "config: {} (from {})",
+                path.display(),
+                from.as_str()
+            ));
+        }
         app.log_file = record_dir;
         let rx = std::mem::replace(&mut started.rx, tokio::sync::mpsc::channel(1).1);
         let out = run::live(
@@ -199,7 +213,12 @@ fn from_time(text: &str, start: DateTime<Utc>) -> Result<DateTime<Utc>, CliError
 
 /// Runs `rarefy replay`.
 pub fn replay(args: &ReplayArgs) -> Result<ExitCode, CliError> {
-    let mut config = load_config(args.config.as_ref())?.config;
+    // The log keeps the config it was recorded with: only --config replaces
+    // it, never a config file found elsewhere.
+    let mut config = match &args.config {
+        Some(p) => load_config(Some(p))?.config,
+        None => crate::config::Config::default(),
+    };
     let meta = open_log(&args.log, config.log.as_ref())
         .map_err(|e| CliError::Runtime(e.to_string()))?
         .meta()

@@ -172,6 +172,13 @@ pub(super) fn resolve(
         let Some(rule) = rule else { continue };
         let enable = match &a.enable {
             Some(c) => match syntax::condition(c.get_ref(), &length_of) {
+                Ok(cond) if cond.deadband != Deadband::None => {
+                    errs.err(
+                        c.span(),
+                        "an enabling condition takes no deadband; give the alarm one (`deadband = \"…\"`) or use a gate",
+                    );
+                    continue;
+                }
                 Ok(c) => Some(c),
                 Err(e) => {
                     errs.err(c.span(), e);

@@ -166,7 +166,7 @@ pub struct AlarmsSection {
 pub struct SourceSection {
     /// `serial:///dev/ttyUSB0?baud=9600`, `tcp://host:port`, `file:///…`, `stdin:`, `sim:`.
     pub uri: Spanned<String>,
-    /// A request sent every `poll_interval`, with escapes (`"PR1\\r\\n"`).
+    /// A request sent every `poll_interval`, with escapes (`":VX GET\\r"`).
     pub poll: Option<Spanned<String>>,
     /// How often to send `poll` (default 1 s).
     pub poll_interval: Option<Spanned<Duration>>,

@@ -79,6 +79,7 @@ pub struct GateMachine {
     held_since: Option<DateTime<Utc>>,
     reason: Option<String>,
     last_time: Option<DateTime<Utc>>,
+    holding: Vec<bool>,
 }
 
 impl GateMachine {
@@ -90,6 +91,7 @@ impl GateMachine {
             held_since: None,
             reason: Some("no data yet".into()),
             last_time: None,
+            holding: Vec::new(),
         }
     }
 
@@ -123,6 +125,19 @@ impl GateMachine {
         Some((self.gate.hold_s - (now - since).num_milliseconds() as f64 / 1000.0).max(0.0))
     }
 
+    /// The index of the first condition that failed (or could not be
+    /// judged) at the last evaluation; `None` when all held or before any.
+    pub fn failing(&self) -> Option<usize> {
+        self.holding.iter().position(|h| !h)
+    }
+
+    /// Whether condition `index` held at the last evaluation: a condition
+    /// with a deadband then keeps holding until its value is past the
+    /// threshold by more than the deadband.
+    pub fn was_holding(&self, index: usize) -> bool {
+        self.holding.get(index).copied().unwrap_or(false)
+    }
+
     /// Forgets how long the conditions have held (the clock it ran on was
     /// replaced); the hold starts again at the next evaluation.
     pub fn restart_hold(&mut self) {
@@ -141,6 +156,7 @@ impl GateMachine {
     /// Feeds the checks of every condition (in order) at data time `time`.
     pub fn update(&mut self, time: DateTime<Utc>, checks: &[Check]) -> Option<GateTransition> {
         self.last_time = Some(time);
+        self.holding = checks.iter().map(|c| *c == Check::Holds).collect();
         let failing = checks
             .iter()
             .zip(&self.gate.conditions)

@@ -966,7 +966,9 @@ impl Monitor {
         v.map_or(Input::Unusable, Input::Value)
     }
 
-    fn check(&self, c: &Condition, now: DateTime<Utc>) -> Check {
+    /// Judges condition `c` at `now`; `held` says it held at the last
+    /// evaluation, so its deadband applies.
+    fn check(&self, c: &Condition, now: DateTime<Utc>, held: bool) -> Check {
         let named = c
             .gauge
             .as_deref()
@@ -986,28 +988,31 @@ impl Monitor {
         let gauge = source.as_ref().map_or(named, |s| s.gauge.as_str());
         let input = self.input(gauge, &c.quantity, now);
         let shown = self.input_text(&c.quantity, input).unwrap_or_default();
-        let holds =
-            match (&c.test, input) {
-                (CondTest::Above(t), Input::Value(v)) => v > *t,
-                (CondTest::Below(t), Input::Value(v)) => v < *t,
-                (CondTest::Above(_), Input::OverRange)
-                | (CondTest::Below(_), Input::UnderRange) => true,
-                (CondTest::Above(_), Input::UnderRange)
-                | (CondTest::Below(_), Input::OverRange) => false,
-                (CondTest::Is(k), Input::Class(v)) => v == *k,
-                (CondTest::IsNot(k), Input::Class(v)) => v != *k,
-                (_, Input::Disabled) => {
-                    return Check::Unknown(format!("{shown_name} is switched off"));
-                }
-                _ => {
-                    let why = match self.tracks.get(gauge) {
-                        None => "no reading yet".to_string(),
-                        Some(t) if self.stale(t, now) => "reading is stale".to_string(),
-                        Some(t) => format!("reading is {}", t.status),
-                    };
-                    return Check::Unknown(format!("{shown_name} {why}"));
-                }
-            };
+        let holds = match (&c.test, input) {
+            (CondTest::Above(t), Input::Value(v)) if held => v > c.deadband.clear_level(*t, true),
+            (CondTest::Below(t), Input::Value(v)) if held => v < c.deadband.clear_level(*t, false),
+            (CondTest::Above(t), Input::Value(v)) => v > *t,
+            (CondTest::Below(t), Input::Value(v)) => v < *t,
+            (CondTest::Above(_), Input::OverRange) | (CondTest::Below(_), Input::UnderRange) => {
+                true
+            }
+            (CondTest::Above(_), Input::UnderRange) | (CondTest::Below(_), Input::OverRange) => {
+                false
+            }
+            (CondTest::Is(k), Input::Class(v)) => v == *k,
+            (CondTest::IsNot(k), Input::Class(v)) => v != *k,
+            (_, Input::Disabled) => {
+                return Check::Unknown(format!("{shown_name} is switched off"));
+            }
+            _ => {
+                let why = match self.tracks.get(gauge) {
+                    None => "no reading yet".to_string(),
+                    Some(t) if self.stale(t, now) => "reading is stale".to_string(),
+                    Some(t) => format!("reading is {}", t.status),
+                };
+                return Check::Unknown(format!("{shown_name} {why}"));
+            }
+        };
         if holds {
             Check::Holds
         } else {
@@ -1087,7 +1092,9 @@ impl Monitor {
         // Rules.
         for i in 0..self.rules.len() {
             let (rule, enable) = (&self.rules[i].0.rule, &self.rules[i].1);
-            let enabled = enable.as_ref().map_or(Check::Holds, |c| self.check(c, now));
+            let enabled = enable
+                .as_ref()
+                .map_or(Check::Holds, |c| self.check(c, now, false));
             let input = match enabled {
                 Check::Holds => self.input(&rule.gauge, &rule.quantity, now),
                 Check::Fails(_) => Input::Disabled,
@@ -1162,7 +1169,8 @@ impl Monitor {
                 .gate
                 .conditions
                 .iter()
-                .map(|c| self.check(c, now))
+                .enumerate()
+                .map(|(j, c)| self.check(c, now, self.gates[i].was_holding(j)))
                 .collect();
             if let Some(t) = self.gates[i].update(now, &checks) {
                 let g = &self.gates[i].gate;

@@ -146,8 +146,9 @@ impl Deadband {
         Ok(Deadband::Absolute(v))
     }
 
-    /// The value at which an alarm on `threshold` clears.
-    fn clear_level(self, threshold: f64, above: bool) -> f64 {
+    /// The value at which an alarm on `threshold` clears (and a gate
+    /// condition that holds stops holding).
+    pub fn clear_level(self, threshold: f64, above: bool) -> f64 {
         let sign = if above { -1.0 } else { 1.0 };
         match self {
             Deadband::None => threshold,

@@ -2,7 +2,7 @@
 //! conditions and one-off alarms on the command line.
 //!
 //! ```text
-//! condition := [GAUGE] QUANTITY[(LENGTH)] TEST
+//! condition := [GAUGE] QUANTITY[(LENGTH)] TEST [deadband VALUE]
 //! TEST      := above VALUE | below VALUE | is CLASS | is not CLASS
 //! VALUE     := NUMBER [UNIT] | NUMBER x LENGTH        (a multiple of a named length)
 //! QUANTITY  := pressure | mean_free_path | mean free path | …   (spaces for '_' allowed)
@@ -44,6 +44,9 @@ pub struct Condition {
     pub quantity: Quantity,
     /// Test.
     pub test: CondTest,
+    /// Once the condition holds, it keeps holding until the value is past
+    /// the threshold by more than this (`deadband 0.1 decade`, as alarms).
+    pub deadband: Deadband,
 }
 
 /// A condition's test; thresholds in SI.
@@ -240,14 +243,32 @@ pub fn deadband(
     Deadband::parse(text, |s| value(quantity, s, lengths))
 }
 
-/// Parses a gate or enabling condition.
+/// Parses a gate or enabling condition, with an optional trailing
+/// `deadband VALUE` (read as an alarm's deadband).
 pub fn condition(text: &str, lengths: &dyn Fn(&str) -> Option<f64>) -> Result<Condition, String> {
     let h = head(text, lengths)?;
+    let ws = words(h.rest);
+    let (rest, band_text) = match ws.iter().position(|&(a, b)| &h.rest[a..b] == "deadband") {
+        Some(i) => {
+            let band = h.rest[ws[i].1..].trim();
+            if band.is_empty() {
+                return Err(format!(
+                    "\"{}\": no value after `deadband`, e.g. \"deadband 0.1 decade\"",
+                    text.trim()
+                ));
+            }
+            (h.rest[..ws[i].0].trim(), Some(band))
+        }
+        None => (h.rest, None),
+    };
+    if rest.is_empty() {
+        return Err(format!("\"{}\": no value after `{}`", text.trim(), h.op));
+    }
     let test = match (h.op.as_str(), h.quantity.is_class()) {
-        ("above", false) => CondTest::Above(value(&h.quantity, h.rest, lengths)?),
-        ("below", false) => CondTest::Below(value(&h.quantity, h.rest, lengths)?),
-        ("is", true) => CondTest::Is(Class::parse(&h.quantity, h.rest)?),
-        ("is not", true) => CondTest::IsNot(Class::parse(&h.quantity, h.rest)?),
+        ("above", false) => CondTest::Above(value(&h.quantity, rest, lengths)?),
+        ("below", false) => CondTest::Below(value(&h.quantity, rest, lengths)?),
+        ("is", true) => CondTest::Is(Class::parse(&h.quantity, rest)?),
+        ("is not", true) => CondTest::IsNot(Class::parse(&h.quantity, rest)?),
         ("above" | "below", true) => {
             return Err(format!("{} is a class; use is or is not", h.quantity));
         }
@@ -260,11 +281,17 @@ pub fn condition(text: &str, lengths: &dyn Fn(&str) -> Option<f64>) -> Result<Co
             ));
         }
     };
+    let quantity = rate_kind(h.quantity, rest);
+    let deadband = match band_text {
+        Some(b) => deadband(&quantity, b, lengths)?,
+        None => Deadband::None,
+    };
     Ok(Condition {
         text: text.trim().to_string(),
         gauge: h.gauge,
-        quantity: rate_kind(h.quantity, h.rest),
+        quantity,
         test,
+        deadband,
     })
 }
 
@@ -416,6 +443,26 @@ mod tests {
         assert_eq!(c.test, CondTest::IsNot(Class::Regime(FlowRegime::Viscous)));
         let c = condition("knudsen(pumping line) above 0.5", &lengths).expect("valid");
         assert_eq!(c.quantity, Quantity::Knudsen("pumping line".into()));
+    }
+
+    #[test]
+    fn conditions_take_a_deadband() {
+        let c = condition(
+            "chamber pressure below 5e-6 mbar deadband 0.1 decade",
+            &lengths,
+        )
+        .expect("valid");
+        assert_eq!(c.deadband, Deadband::Decades(0.1));
+        assert!(matches!(c.test, CondTest::Below(t) if (t - 5e-4).abs() < 1e-15));
+        let c = condition("pressure above 1 mbar deadband 10 %", &lengths).expect("valid");
+        assert_eq!(c.deadband, Deadband::Fraction(0.1));
+        let c = condition("pressure above 1 mbar", &lengths).expect("valid");
+        assert_eq!(c.deadband, Deadband::None);
+        let e = |s: &str| condition(s, &lengths).expect_err(s);
+        assert!(e("pressure below 1 mbar deadband").contains("no value after `deadband`"));
+        assert!(e("pressure below deadband 1 %").contains("no value after `below`"));
+        assert!(e("regime(pumping line) is viscous deadband 10 %").contains("no deadband"));
+        assert!(e("pressure below 1 mbar deadband 5 m").contains("deadband"));
     }
 
     #[test]

@@ -819,3 +819,43 @@ fn exposure_counts_from_below_the_threshold_and_says_since_when() {
     assert_eq!(g.exposure_since(), Some(t(70.0)));
     assert!((g.exposure.pa_s() - 0.05).abs() < 1e-12);
 }
+
+#[test]
+fn a_gate_condition_with_a_deadband_keeps_holding_inside_it() {
+    let gate = |text: &str| Gate {
+        id: "ready".into(),
+        label: "Ready".into(),
+        conditions: vec![syntax::condition(text, &|_| None).expect("valid")],
+        hold_s: 3.0,
+    };
+    let run = |text: &str| {
+        let mut m = Monitor::new(setup(vec![], vec![gate(text)]));
+        // Below 5e-6 mbar, then a wobble to 5.5e-6 (inside 0.1 decade:
+        // 6.3e-6), then out by more than the deadband.
+        let mut states = Vec::new();
+        for (s, p) in [
+            (0.0, 4e-6),
+            (1.0, 5.5e-6),
+            (2.0, 4.5e-6),
+            (3.0, 6e-6),
+            (4.0, 6.0e-6),
+        ] {
+            m.push(&[Sample::ok(t(s), "g", p, MBAR)]);
+            states.push(m.gates()[0].state());
+        }
+        m.push(&[Sample::ok(t(5.0), "g", 6.5e-6, MBAR)]);
+        states.push(m.gates()[0].state());
+        states
+    };
+    use GateState::{NotReady as N, Ready as R};
+    assert_eq!(
+        run("g pressure below 5e-6 mbar deadband 0.1 decade"),
+        [N, N, N, R, R, N],
+        "held through the wobble, ready at 3 s, broken past 6.3e-6"
+    );
+    assert_eq!(
+        run("g pressure below 5e-6 mbar"),
+        [N, N, N, N, N, N],
+        "without a deadband the wobble restarts the hold"
+    );
+}
