@@ -561,7 +561,7 @@ impl Monitor {
                     && step
                         .when
                         .iter()
-                        .all(|c| matches!(self.check(c, now), Check::Holds))
+                        .all(|c| matches!(self.check(c, now, false), Check::Holds))
             })
             .map_or((self.setup.mixture.clone(), GasOrigin::Base), |step| {
                 (step.mixture.clone(), GasOrigin::Step(step.id.clone()))
