@@ -42,6 +42,7 @@ fn demo_app(config_path: Option<PathBuf>) -> (App, ReplaySetup) {
         file: root().join("sample-logs/demo.csv"),
         foreign: None,
         monitor: cfg.monitor_setup(Vec::new()),
+        gases: cfg.gases.clone(),
     };
     let mut app = App::new("demo", Monitor::new(setup.monitor.clone()), Vec::new());
     app.color = false;

@@ -152,6 +152,7 @@ fn replay_paused_with_timeline() {
         file: root().join("sample-logs/demo.csv"),
         foreign: None,
         monitor: cfg.monitor_setup(Vec::new()),
+        gases: cfg.gases.clone(),
     };
     let mut replay = index(&setup).expect("index");
     replay.paused = true;
@@ -324,6 +325,7 @@ fn the_replay_footer_keeps_quit_at_80_columns() {
         file: root().join("sample-logs/demo.csv"),
         foreign: None,
         monitor: cfg.monitor_setup(Vec::new()),
+        gases: cfg.gases.clone(),
     };
     let mut app = app_at(Some("09:31:30"));
     app.replay = Some(index(&setup).expect("index"));
@@ -376,6 +378,7 @@ fn replay_app(file: &Path, config_text: &str, until: &str) -> App {
         file: file.to_path_buf(),
         foreign: cfg.log.clone(),
         monitor: cfg.monitor_setup(Vec::new()),
+        gases: cfg.gases.clone(),
     };
     let mut replay = index(&setup).expect("index");
     replay.paused = true;

@@ -11,9 +11,9 @@ use std::sync::{Arc, Mutex};
 use chrono::{DateTime, Utc};
 use rarefy::alarm::{Event, Monitor};
 use rarefy::config;
+use rarefy::log::row_events;
 use rarefy::logfile::open_log;
 use rarefy::pipeline::{Item, Nowhere, Pipeline, Sink};
-use rarefy::sample::SourceEvent;
 use rarefy::ui::app::{App, Replay, Speed};
 use rarefy::ui::run::{self, Player, ReplaySetup};
 
@@ -62,13 +62,16 @@ fn setup(log: &Path) -> ReplaySetup {
         file: log.to_path_buf(),
         foreign: None,
         monitor: cfg.monitor_setup(Vec::new()),
+        gases: cfg.gases.clone(),
     }
 }
 
 /// The pipeline fed one row at a time, nothing else.
 fn row_by_row(setup: &ReplaySetup) -> Vec<Key> {
     let mut p = Pipeline::new(Monitor::new(setup.monitor.clone()));
+    p.set_gases(setup.gases.clone());
     let mut out = Vec::new();
+    let mut gas = None;
     for row in open_log(&setup.file, None).expect("log") {
         let row = match row {
             Ok(r) => r,
@@ -77,7 +80,9 @@ fn row_by_row(setup: &ReplaySetup) -> Vec<Key> {
                 None => continue,
             },
         };
-        out.extend(p.feed(&SourceEvent::Samples(row.samples), None, &mut Nowhere));
+        for ev in row_events(row, &mut gas) {
+            out.extend(p.feed(&ev, None, &mut Nowhere));
+        }
     }
     keys(&out)
 }
@@ -212,4 +217,40 @@ fn a_log_with_gaps_and_a_dropout_gives_the_same_events_every_way() {
         "gaps and the dropout raise input alarms: {reference:?}"
     );
     check(&log, "gaps");
+}
+
+#[test]
+fn a_log_with_a_gas_column_gives_the_same_gas_changes_every_way() {
+    // process.csv with a `gas` column: Ar written from 07:20 to 07:40, empty
+    // otherwise (the config's gas steps decide there).
+    let text = std::fs::read_to_string(root().join("sample-logs/process.csv")).expect("log");
+    let mut out = String::new();
+    for line in text.lines() {
+        if line.starts_with("time,") {
+            out.push_str(line);
+            out.push_str(",gas\n");
+            continue;
+        }
+        out.push_str(line);
+        if line.starts_with("2026-") {
+            let t = line.get(11..19).unwrap_or("");
+            out.push_str(if ("07:20:00".."07:40:00").contains(&t) {
+                ",Ar"
+            } else {
+                ","
+            });
+        }
+        out.push('\n');
+    }
+    let dir = tempdir("gas-column");
+    let log = dir.join("gas.csv");
+    std::fs::write(&log, out).expect("write");
+    let reference = row_by_row(&setup(&log));
+    let gas: Vec<&Key> = reference.iter().filter(|k| k.0 == "gas").collect();
+    assert!(
+        gas.iter()
+            .any(|k| k.1 == "Ar" && k.2.format("%H:%M:%S").to_string() == "07:20:00"),
+        "the column's Ar is an event at its row: {gas:?}"
+    );
+    check(&log, "gas-column");
 }

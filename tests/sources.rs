@@ -70,6 +70,8 @@ impl Probe {
             SourceEvent::Unparsed { text, .. } => self.seen.unparsed.push(text),
             SourceEvent::Status { state, .. } => self.seen.states.push(state),
             SourceEvent::Error { message, .. } => self.seen.errors.push(message),
+            // None of these sources reads a log with a gas column.
+            SourceEvent::Gas { .. } => {}
         }
     }
 

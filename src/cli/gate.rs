@@ -118,7 +118,7 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
                         }
                         SourceEvent::Status { source, state } => say(&format!("{source}: {state}")),
                         SourceEvent::Error { source, message } => say(&format!("{source}: {message}")),
-                        SourceEvent::Unparsed { .. } => {}
+                        SourceEvent::Unparsed { .. } | SourceEvent::Gas { .. } => {}
                     }
                     pipeline.feed(&ev, live(&clock), &mut Nowhere);
                     if ended == total && gate_of(&pipeline).is_none_or(|g| g.state() != GateState::Ready) {

@@ -194,6 +194,7 @@ pub(crate) fn live_pipeline(
         monitor.expect_channel(&c.id);
     }
     let mut pipeline = Pipeline::new(monitor);
+    pipeline.set_gases(loaded.config.gases.clone());
     if !started.finite {
         for name in &started.names {
             pipeline.watch_link(name);

@@ -290,6 +290,7 @@ pub fn replay(args: &ReplayArgs) -> Result<ExitCode, CliError> {
         file: args.log.clone(),
         foreign: config.log.clone(),
         monitor: config.monitor_setup(rules),
+        gases: config.gases.clone(),
     };
     let mut replay = run::index(&setup).map_err(CliError::Runtime)?;
     replay.speed = args.speed;
@@ -308,6 +309,7 @@ pub fn replay(args: &ReplayArgs) -> Result<ExitCode, CliError> {
         crate::alarm::Monitor::new(setup.monitor.clone()),
         gauges(&config),
     );
+    app.pipeline.set_gases(config.gases.clone());
     styled(&mut app, args.ascii, &config);
     app.config_path = config_path;
     app.message = note;

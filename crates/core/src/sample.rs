@@ -399,6 +399,16 @@ pub enum SourceEvent {
         /// The line, with control characters and invalid UTF-8 escaped.
         text: String,
     },
+    /// The log's `gas` column changed at this row: the gas or mixture in
+    /// the chamber from `time` on, as written (`None`: the column is empty
+    /// from here, and the configuration decides again). Sent before the
+    /// row's readings.
+    Gas {
+        /// Data time of the row.
+        time: DateTime<Utc>,
+        /// The cell's text, e.g. `Ar` or `Ar=0.9,N2=0.1`.
+        text: Option<String>,
+    },
     /// A problem the source reports and survives (a cell it cannot read …).
     Error {
         /// Source name.

@@ -481,7 +481,7 @@ impl Sink for View<'_> {
             Item::Source(SourceEvent::Error { message, .. }) => {
                 *self.source_error = Some(crate::sample::escape_bytes(message.as_bytes()));
             }
-            Item::Source(SourceEvent::Samples(_)) => {}
+            Item::Source(SourceEvent::Samples(_) | SourceEvent::Gas { .. }) => {}
         }
     }
 }

@@ -19,4 +19,4 @@ pub use app::App;
 
 // The core's and the app crate's modules, reachable as `crate::…` here.
 use rarefy_app::{config, record};
-use rarefy_core::{alarm, engine, log, sample, units};
+use rarefy_core::{alarm, engine, gas, log, sample, units};

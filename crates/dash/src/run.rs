@@ -283,6 +283,8 @@ pub struct ReplaySetup {
     pub foreign: Option<crate::log::ForeignLogSpec>,
     /// The monitor's setup.
     pub monitor: MonitorSetup,
+    /// Gases the log's `gas` column may name (the config's table).
+    pub gases: crate::gas::GasTable,
 }
 
 /// Reads the whole log once through the pipeline (see
@@ -296,7 +298,12 @@ pub fn index(setup: &ReplaySetup) -> Result<Replay, String> {
 
 /// [`index`], and every event of the log.
 pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String> {
-    let ix = replay::index(&setup.file, setup.foreign.as_ref(), &setup.monitor)?;
+    let ix = replay::index(
+        &setup.file,
+        setup.foreign.as_ref(),
+        &setup.monitor,
+        &setup.gases,
+    )?;
     let marks = ix
         .events
         .iter()
@@ -324,6 +331,8 @@ pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String>
 /// A replay in progress: the log's rows, fed to the app.
 pub struct Player {
     rows: Rows,
+    /// The last row's `gas` cell.
+    gas: Option<String>,
 }
 
 impl Player {
@@ -331,6 +340,7 @@ impl Player {
     pub fn open(setup: &ReplaySetup) -> Result<Player, String> {
         Ok(Player {
             rows: Rows::open(&setup.file, setup.foreign.as_ref())?,
+            gas: None,
         })
     }
 
@@ -349,7 +359,9 @@ impl Player {
             if let Some((column, text)) = row.notes.last() {
                 app.note = Some((row.time, column.clone(), text.clone()));
             }
-            app.ingest(&SourceEvent::Samples(row.samples), None);
+            for ev in &crate::log::row_events(row, &mut self.gas) {
+                app.ingest(ev, None);
+            }
             n += 1;
         }
         n
@@ -359,6 +371,7 @@ impl Player {
 /// Starts the app over at the beginning of the log (for seeking back).
 pub fn rewind(app: &mut App, setup: &ReplaySetup) -> Result<Player, String> {
     app.pipeline.reset(Monitor::new(setup.monitor.clone()));
+    app.pipeline.set_gases(setup.gases.clone());
     app.history = super::history::History::default();
     app.origin = None;
     app.events.clear();

@@ -23,6 +23,8 @@ pub mod start;
 use chrono::{DateTime, Utc};
 
 use crate::alarm::{Actor, Event, Monitor};
+use crate::engine::mixture::Mixture;
+use crate::gas::GasTable;
 use crate::sample::{Sample, SourceEvent, SourceState};
 
 pub use clock::DataClock;
@@ -96,6 +98,9 @@ pub struct Pipeline {
     /// Source name → the id of its link alarm (live sources only).
     links: Vec<(String, String)>,
     counts: Counts,
+    /// Gases a log's `gas` column may name (the built-in table and the
+    /// config's own).
+    gases: GasTable,
 }
 
 impl Pipeline {
@@ -106,7 +111,13 @@ impl Pipeline {
             sinks: Vec::new(),
             links: Vec::new(),
             counts: Counts::default(),
+            gases: GasTable::builtin(),
         }
+    }
+
+    /// The gases a log's `gas` column may name: the config's table.
+    pub fn set_gases(&mut self, gases: GasTable) {
+        self.gases = gases;
     }
 
     /// Adds a sink; items go to sinks in the order they were added.
@@ -197,6 +208,34 @@ impl Pipeline {
                 }
                 self.dispatch_source(ev, also);
                 self.dispatch_events_also(&events, also);
+                events
+            }
+            SourceEvent::Gas { time, text } => {
+                let mut events = self.monitor.advance_to(*time);
+                self.dispatch_events_also(&events, also);
+                let mixture = match text.as_deref().map(|t| Mixture::parse(t, &self.gases)) {
+                    None => None,
+                    Some(Ok(m)) => Some(m),
+                    Some(Err(e)) => {
+                        // Not a gas: said, and the gas in force stays.
+                        let bad = SourceEvent::Error {
+                            source: "log".into(),
+                            message: format!(
+                                "gas column at {}: \"{}\" is not a gas or mixture: {e}",
+                                crate::timefmt::write_rfc3339(*time),
+                                crate::sample::escape_bytes(
+                                    text.as_deref().unwrap_or_default().as_bytes()
+                                )
+                            ),
+                        };
+                        self.dispatch_source(&bad, also);
+                        return events;
+                    }
+                };
+                let changed = self.monitor.set_log_gas(mixture, *time);
+                self.dispatch_source(ev, also);
+                self.dispatch_events_also(&changed, also);
+                events.extend(changed);
                 events
             }
             SourceEvent::Unparsed { .. } => {

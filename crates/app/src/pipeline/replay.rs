@@ -10,9 +10,9 @@ use chrono::{DateTime, Utc};
 use super::Pipeline;
 use super::sinks::Collect;
 use crate::alarm::{Event, Monitor, MonitorSetup};
+use crate::gas::GasTable;
 use crate::log::{ForeignLogSpec, LogSource, Row};
 use crate::logfile::open_log;
-use crate::sample::SourceEvent;
 
 /// A log's rows, one ahead.
 pub struct Rows {
@@ -110,9 +110,12 @@ pub fn index(
     file: &Path,
     foreign: Option<&ForeignLogSpec>,
     setup: &MonitorSetup,
+    gases: &GasTable,
 ) -> Result<LogIndex, String> {
     let mut rows = Rows::open(file, foreign)?;
     let mut pipeline = Pipeline::new(Monitor::new(setup.clone()));
+    pipeline.set_gases(gases.clone());
+    let mut gas = None;
     let mut events = Collect::default();
     let mut start = None;
     let mut end: Option<DateTime<Utc>> = None;
@@ -133,7 +136,9 @@ pub fn index(
             }
         }
         end = Some(end.map_or(row.time, |e| e.max(row.time)));
-        pipeline.feed(&SourceEvent::Samples(row.samples), None, &mut events);
+        for ev in crate::log::row_events(row, &mut gas) {
+            pipeline.feed(&ev, None, &mut events);
+        }
     }
     let (Some(start), Some(end)) = (start, end) else {
         return Err(format!("{}: the log has no rows", file.display()));

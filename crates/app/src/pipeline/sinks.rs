@@ -316,7 +316,7 @@ impl Sink for JsonLines {
                 say(&format!("{source}: {message}"));
                 emit(json!({"event": "source-error", "source": source, "message": message}));
             }
-            Item::Source(SourceEvent::Samples(_)) => {}
+            Item::Source(SourceEvent::Samples(_) | SourceEvent::Gas { .. }) => {}
         }
     }
 }

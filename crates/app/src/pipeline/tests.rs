@@ -230,3 +230,35 @@ fn a_live_source_link_follows_the_data_clock() {
     q.watch_link("file:///x.csv");
     assert!(q.feed(&retry, None, &mut Nowhere).is_empty());
 }
+
+#[test]
+fn a_logs_gas_column_changes_the_gas_and_a_bad_one_is_said() {
+    let seen = Seen::default();
+    let mut p = Pipeline::new(monitor()).with_sink(Box::new(seen.clone()));
+    p.feed(&row(0.0, 1e-5), None, &mut Nowhere);
+    let to_ar = SourceEvent::Gas {
+        time: t(1.0),
+        text: Some("Ar".into()),
+    };
+    let ev = p.feed(&to_ar, None, &mut Nowhere);
+    assert_eq!(ev.len(), 1, "{ev:?}");
+    assert_eq!((ev[0].id.as_str(), ev[0].to_text()), ("gas", "Ar"));
+    assert_eq!(ev[0].value_text.as_deref(), Some("log"));
+    let bad = SourceEvent::Gas {
+        time: t(2.0),
+        text: Some("unobtainium".into()),
+    };
+    assert!(p.feed(&bad, None, &mut Nowhere).is_empty());
+    assert!(
+        seen.words().iter().any(|w| w == "source"),
+        "the bad gas is reported: {:?}",
+        seen.words()
+    );
+    // An empty cell: the configuration decides again.
+    let back = SourceEvent::Gas {
+        time: t(3.0),
+        text: None,
+    };
+    let ev = p.feed(&back, None, &mut Nowhere);
+    assert_eq!(ev[0].to_text(), "N2");
+}

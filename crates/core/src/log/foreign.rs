@@ -969,6 +969,7 @@ impl<R: BufRead> ForeignReader<R> {
             time_went_back,
             time_repeated,
             notes,
+            gas: None,
         };
         let mut bad = bad.into_iter();
         match bad.next() {

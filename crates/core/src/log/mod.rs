@@ -161,3 +161,20 @@ pub fn open_log_from<R: BufRead + Send + 'static>(
         ),
     ))
 }
+
+/// What a log row gives the pipeline, in order: a [`SourceEvent::Gas`] when
+/// the row's `gas` column differs from the last row's (`last`), then the
+/// row's readings. One place, so every way of reading a log (replay, its
+/// index, `record --source file://`) sees the same gas changes.
+pub fn row_events(row: Row, last: &mut Option<String>) -> Vec<crate::sample::SourceEvent> {
+    let mut out = Vec::with_capacity(2);
+    if row.gas != *last {
+        last.clone_from(&row.gas);
+        out.push(crate::sample::SourceEvent::Gas {
+            time: row.time,
+            text: row.gas,
+        });
+    }
+    out.push(crate::sample::SourceEvent::Samples(row.samples));
+    out
+}

@@ -89,6 +89,8 @@ pub struct Row {
     /// reader was told to keep (foreign logs' `[log] notes`), as read —
     /// escape the text before showing it.
     pub notes: Vec<(String, String)>,
+    /// The `gas` column's cell, when the log has one and it is not empty.
+    pub gas: Option<String>,
 }
 
 /// Derived-column units the recorder writes (see `record::derived`); a
@@ -376,8 +378,14 @@ impl<R: BufRead> LogReader<R> {
             Err(msg) => return Some(Err(at(1, msg))),
         };
         let mut samples = Vec::new();
+        let mut gas = None;
         let mut bad: Vec<(usize, String)> = Vec::new();
         for (i, (cell, column)) in cells[1..].iter().zip(&self.columns).enumerate() {
+            if column.kind == ColumnKind::Gas {
+                let g = cell.text.trim();
+                gas = (!g.is_empty()).then(|| g.to_string());
+                continue;
+            }
             let ColumnKind::Channel(unit) = column.kind else {
                 continue;
             };
@@ -406,6 +414,7 @@ impl<R: BufRead> LogReader<R> {
             time_went_back,
             time_repeated,
             notes: Vec::new(),
+            gas,
         };
         let mut bad = bad.into_iter();
         match bad.next() {
@@ -456,7 +465,7 @@ pub(crate) fn channels_of(columns: &[Column]) -> Vec<ChannelInfo> {
         .iter()
         .filter_map(|c| match c.kind {
             ColumnKind::Channel(u) => Some(ChannelInfo::new(c.name.clone(), u)),
-            ColumnKind::Derived(_) => None,
+            ColumnKind::Derived(_) | ColumnKind::Gas => None,
         })
         .collect()
 }
@@ -516,6 +525,19 @@ fn header_row(name: &str, number: u64, text: &str) -> Result<Vec<Column>, LogErr
     for (i, cell) in cells.iter().enumerate().skip(1) {
         let col = i + 1;
         let t = cell.text.trim();
+        if t == super::v1::GAS_COLUMN {
+            if columns.iter().any(|c| c.kind == ColumnKind::Gas) {
+                return Err(at(
+                    col,
+                    "the `gas` column appears twice in the header".into(),
+                ));
+            }
+            columns.push(Column {
+                name: t.to_string(),
+                kind: ColumnKind::Gas,
+            });
+            continue;
+        }
         let (Some(open), true) = (t.rfind('['), t.ends_with(']')) else {
             return Err(at(
                 col,

@@ -34,7 +34,13 @@ pub enum ColumnKind {
     Channel(ChannelUnit),
     /// A derived value with its unit symbol, ignored by readers.
     Derived(String),
+    /// The gas or mixture in the chamber, as text (header cell `gas`, no
+    /// unit): a change of gas during the run.
+    Gas,
 }
+
+/// The header cell of the gas column.
+pub const GAS_COLUMN: &str = "gas";
 
 /// One column after `time`.
 #[derive(Debug, Clone, PartialEq)]
@@ -59,6 +65,7 @@ impl Column {
         let unit = match &self.kind {
             ColumnKind::Channel(u) => u.symbol().to_string(),
             ColumnKind::Derived(u) => u.clone(),
+            ColumnKind::Gas => return GAS_COLUMN.to_string(),
         };
         format!("{} [{unit}]", self.name)
     }

@@ -34,6 +34,8 @@ struct V1 {
     last_time: Option<DateTime<Utc>>,
     went_back: u64,
     repeated: u64,
+    /// The last row's `gas` cell, to send a change of gas once.
+    gas: Option<String>,
 }
 
 impl V1 {
@@ -144,8 +146,9 @@ impl Decoder for AutoDecoder {
         let line_no = v1.header_lines + v1.rows;
         match LogReader::new(Cursor::new(doc.into_bytes()), source).map(|mut r| r.next()) {
             Ok(Some(Ok(row))) => {
-                let mut out = v1.order(source, line_no, row.time);
-                out.insert(0, SourceEvent::Samples(row.samples));
+                let time = row.time;
+                let mut out = crate::log::row_events(row, &mut v1.gas);
+                out.extend(v1.order(source, line_no, time));
                 out
             }
             Ok(Some(Err(e))) => {
@@ -160,7 +163,8 @@ impl Decoder for AutoDecoder {
                 };
                 // A row: its good cells, its bad ones as `unparsed` readings,
                 // and where they are — counted as a row, not as unparsed.
-                let mut out = vec![SourceEvent::Samples(row.samples)];
+                let time = row.time;
+                let mut out = crate::log::row_events(*row, &mut v1.gas);
                 out.push(SourceEvent::Error {
                     source: source.to_string(),
                     message: format!(
@@ -168,7 +172,7 @@ impl Decoder for AutoDecoder {
                         e.column.unwrap_or(1)
                     ),
                 });
-                out.extend(v1.order(source, line_no, row.time));
+                out.extend(v1.order(source, line_no, time));
                 out
             }
             Ok(None) => Vec::new(),

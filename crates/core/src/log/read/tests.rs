@@ -590,3 +590,38 @@ fn read_errors_end_the_iteration() {
         "{e}"
     );
 }
+
+#[test]
+fn a_gas_column_gives_each_rows_gas_and_changes_once() {
+    let text = "# rarefy log v1\ntime,chamber [mbar],gas\n\
+        2026-12-01T10:00:00.000Z,1e-3,\n\
+        2026-12-01T10:00:01.000Z,1e-3,Ar\n\
+        2026-12-01T10:00:02.000Z,1e-3,Ar\n\
+        2026-12-01T10:00:03.000Z,1e-3,\"Ar=0.9,N2=0.1\"\n\
+        2026-12-01T10:00:04.000Z,1e-3,\n";
+    let r = reader(text);
+    assert_eq!(r.channels().len(), 1, "the gas column is not a channel");
+    let rows: Vec<Row> = r.map(|x| x.expect("row")).collect();
+    let gases: Vec<Option<&str>> = rows.iter().map(|r| r.gas.as_deref()).collect();
+    assert_eq!(
+        gases,
+        [None, Some("Ar"), Some("Ar"), Some("Ar=0.9,N2=0.1"), None]
+    );
+    // A change of gas is sent once, before the row's readings.
+    let mut last = None;
+    let sent: Vec<Option<String>> = rows
+        .into_iter()
+        .flat_map(|row| crate::log::row_events(row, &mut last))
+        .filter_map(|e| match e {
+            crate::sample::SourceEvent::Gas { text, .. } => Some(text),
+            _ => None,
+        })
+        .collect();
+    assert_eq!(
+        sent,
+        [Some("Ar".into()), Some("Ar=0.9,N2=0.1".into()), None]
+    );
+    let e = open_error(b"# rarefy log v1\ntime,gas,chamber [mbar],gas\n");
+    assert_eq!((e.line, e.column), (Some(2), Some(4)), "{e}");
+    assert!(e.message.contains("`gas` column appears twice"), "{e}");
+}
