@@ -379,3 +379,80 @@ fn a_log_row_with_a_bad_cell_is_one_row_not_also_an_unparsed_line() {
     );
     assert!(stderr.contains("earlier than the row before"), "{stderr}");
 }
+
+#[test]
+fn derived_columns_follow_the_gas_in_force() {
+    // process.csv with the demo config: its argon step puts Ar in force at
+    // 07:25, where the capacitance gauge reads 5e-3 mbar.
+    let dir = tempdir("derived-gas");
+    let log = format!(
+        "file://{}/sample-logs/process.csv",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    let out = Command::new(bin())
+        .args([
+            "record",
+            "--config",
+            "config/demo.toml",
+            "--derived",
+            "--source",
+            &log,
+            "--out",
+        ])
+        .arg(&dir)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .expect("run");
+    assert!(
+        matches!(out.status.code(), Some(0 | 3)),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text: String = std::fs::read_dir(&dir)
+        .expect("dir")
+        .map(|e| e.expect("entry").path())
+        .filter(|p| p.extension().is_some_and(|e| e == "csv"))
+        .map(|p| std::fs::read_to_string(p).expect("read"))
+        .collect();
+    let header: Vec<&str> = text
+        .lines()
+        .find(|l| l.starts_with("time,"))
+        .expect("header")
+        .split(',')
+        .collect();
+    let row: Vec<&str> = text
+        .lines()
+        .find(|l| l.starts_with("2026-11-05T07:25:00.000Z"))
+        .expect("the 07:25 row")
+        .split(',')
+        .collect();
+    let cell = |name: &str| {
+        let i = header
+            .iter()
+            .position(|h| h.starts_with(name))
+            .unwrap_or_else(|| panic!("no column {name} in {header:?}"));
+        row[i]
+    };
+    // λ of Ar at 5e-3 mbar and the wall's 21.9 C, from the engine itself.
+    let ar = rarefy::engine::mixture::Mixture::pure(
+        rarefy::gas::GasTable::builtin()
+            .get("Ar")
+            .expect("Ar")
+            .clone(),
+    );
+    let expect = rarefy::engine::derive(
+        &rarefy::engine::Conditions::new(0.5, 273.15 + 21.9),
+        &ar,
+        &[],
+        &rarefy::engine::Physics::default(),
+    )
+    .mean_free_path_m;
+    let got: f64 = cell("cdg.mean_free_path").parse().expect("a number");
+    assert!(
+        (got - expect).abs() / expect < 1e-3,
+        "{got} vs {expect} (Ar)"
+    );
+    // The combined gauge has no thermal factor for Ar: no number at all.
+    assert_eq!(cell("chamber.mean_free_path"), "", "{row:?}");
+    let _ = std::fs::remove_dir_all(&dir);
+}

@@ -16,6 +16,7 @@ use tokio::sync::mpsc;
 use super::{Item, Sink};
 use crate::action::ActionRunner;
 use crate::alarm::{Event, EventKind, Monitor};
+use crate::engine::Derived;
 use crate::log::v1::format_time;
 use crate::record::{RecordEvent, Recorder};
 use crate::sample::{Sample, SourceEvent, SourceState};
@@ -25,7 +26,9 @@ use crate::sample::{Sample, SourceEvent, SourceState};
 const QUEUE: usize = 8192;
 
 enum Msg {
-    Row(Vec<Sample>),
+    /// A row, with the monitor's kinetics of its pressure readings when the
+    /// log has derived columns.
+    Row(Vec<Sample>, Option<Vec<(String, Derived)>>),
     Event(Box<Event>),
     Flush,
 }
@@ -76,11 +79,13 @@ pub struct Recording {
     thread: Option<JoinHandle<RecordingSummary>>,
     state: Arc<Mutex<RecordingState>>,
     summary: Option<RecordingSummary>,
+    derived: bool,
 }
 
 impl Recording {
     /// Starts the writing thread. Notes arrive on the returned receiver.
     pub fn start(recorder: Recorder) -> (Recording, mpsc::UnboundedReceiver<RecordingNote>) {
+        let derived = recorder.has_derived();
         let (tx, rx) = sync::sync_channel::<Msg>(QUEUE);
         let (notes_tx, notes_rx) = mpsc::unbounded_channel();
         let state = Arc::new(Mutex::new(RecordingState::default()));
@@ -95,6 +100,7 @@ impl Recording {
                 thread,
                 state,
                 summary: None,
+                derived,
             },
             notes_rx,
         )
@@ -133,9 +139,27 @@ impl Recording {
 }
 
 impl Sink for Recording {
-    fn accept(&mut self, item: Item<'_>, _: &Monitor) {
+    fn accept(&mut self, item: Item<'_>, monitor: &Monitor) {
         match item {
-            Item::Row(samples) => self.send(Msg::Row(samples.to_vec())),
+            Item::Row(samples) => {
+                // Derived columns use the monitor's kinetics of this row's
+                // readings: the gas in force, the corrections for it, and
+                // nothing for a reading it could not correct.
+                let kinetics = self.derived.then(|| {
+                    samples
+                        .iter()
+                        .filter(|s| s.unit.is_pressure() && s.si().is_some())
+                        .filter_map(|s| {
+                            let t = monitor.track(&s.channel)?;
+                            if t.uncorrectable || t.last_time != Some(s.time) {
+                                return None;
+                            }
+                            Some((s.channel.clone(), t.derived.clone()?))
+                        })
+                        .collect()
+                });
+                self.send(Msg::Row(samples.to_vec(), kinetics));
+            }
             Item::Event(e) => self.send(Msg::Event(Box::new(e.clone()))),
             Item::Source(_) => {}
         }
@@ -185,8 +209,8 @@ fn write_loop(
     };
     while let Ok(msg) = rx.recv() {
         match msg {
-            Msg::Row(samples) => {
-                if recorder.push_row(&samples) {
+            Msg::Row(samples, kinetics) => {
+                if recorder.push_row_with(&samples, kinetics.as_deref()) {
                     recorder.flush();
                     publish(&mut recorder, &events);
                 }

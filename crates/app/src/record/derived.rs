@@ -2,7 +2,7 @@
 //! computed by the engine from the same configuration as the dashboard.
 
 use crate::engine::mixture::Mixture;
-use crate::engine::{Conditions, GaugeModel, NamedLength, Physics, derive};
+use crate::engine::{Conditions, Derived, GaugeModel, NamedLength, Physics, derive};
 use crate::log::v1::{Cell, Column, ColumnKind};
 use crate::sample::{ChannelInfo, ChannelUnit};
 
@@ -57,6 +57,40 @@ impl Deriver {
                     name: format!("{}.knudsen.{}", c.id, l.name),
                     kind: ColumnKind::Derived("1".into()),
                 });
+            }
+        }
+        out
+    }
+
+    /// Derived cells for one row from kinetics already computed (by the
+    /// monitor, with the gas in force and the gauge corrections for it): a
+    /// pressure channel without an entry gets empty cells.
+    pub fn from_kinetics(
+        &self,
+        channels: &[ChannelInfo],
+        kinetics: &[(String, Derived)],
+    ) -> Vec<Cell> {
+        let per_channel = QUANTITIES.len() + self.lengths.len();
+        let mut out = Vec::new();
+        for c in channels.iter().filter(|c| c.unit.is_pressure()) {
+            match kinetics.iter().find(|(id, _)| id == &c.id) {
+                Some((_, d)) => {
+                    let cell = Cell::Derived;
+                    out.push(cell(d.number_density_per_m3));
+                    out.push(cell(d.mean_free_path_m));
+                    out.push(cell(d.impingement_per_m2_s));
+                    out.push(cell(d.monolayer_time_s));
+                    // Kn per configured length, in the configured order.
+                    for l in &self.lengths {
+                        let kn = d
+                            .lengths
+                            .iter()
+                            .find(|x| x.name == l.name)
+                            .map(|x| x.knudsen);
+                        out.push(kn.map_or(Cell::Empty, cell));
+                    }
+                }
+                None => out.extend(std::iter::repeat_n(Cell::Empty, per_channel)),
             }
         }
         out

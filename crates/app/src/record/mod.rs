@@ -240,6 +240,22 @@ impl Recorder {
     /// Records the samples of one line or record as one row. Returns `true`
     /// when enough is waiting that the caller should [`flush`](Self::flush).
     pub fn push_row(&mut self, samples: &[Sample]) -> bool {
+        self.push_row_with(samples, None)
+    }
+
+    /// Whether derived columns are written.
+    pub fn has_derived(&self) -> bool {
+        self.deriver.is_some()
+    }
+
+    /// [`Recorder::push_row`] with the row's kinetics already computed (by
+    /// the monitor, with the gas in force): the derived columns take them
+    /// instead of computing their own.
+    pub fn push_row_with(
+        &mut self,
+        samples: &[Sample],
+        kinetics: Option<&[(String, crate::engine::Derived)]>,
+    ) -> bool {
         let Some(first) = samples.first() else {
             return false;
         };
@@ -267,7 +283,10 @@ impl Recorder {
             }
         }
         if let Some(d) = &mut self.deriver {
-            row.derived = d.derive(&self.channels, &row.cells);
+            row.derived = match kinetics {
+                Some(k) => d.from_kinetics(&self.channels, k),
+                None => d.derive(&self.channels, &row.cells),
+            };
         }
         self.queue(row);
         self.pending.len() >= 1024
