@@ -777,3 +777,29 @@ fn templates_and_log_sections_read_time_formats_alike() {
     assert_eq!(t.message, l.message);
     assert!(t.message.contains("did you mean \"Europe/Vienna\"?"), "{t}");
 }
+
+#[test]
+fn a_gas_column_is_read_by_its_header_text() {
+    let s = spec(&section("gas = \"Process gas\"", ""));
+    let rows: Vec<Row> = read_all(
+        &s,
+        b"Time;P;Process gas\n2026-12-01 10:00:00;1e-3;\n2026-12-01 10:00:01;2e-3; Ar \n",
+    )
+    .into_iter()
+    .map(|r| r.expect("row"))
+    .collect();
+    let gases: Vec<Option<&str>> = rows.iter().map(|r| r.gas.as_deref()).collect();
+    assert_eq!(gases, [None, Some("Ar")]);
+    // The gas column cannot also be the time, a gauge or a note.
+    let s = spec(&section("gas = \"P\"", ""));
+    let e = open_error(&s, b"Time;P\n2026-12-01 10:00:00;1e-3\n");
+    assert!(e.to_string().contains("is the [log] gas column"), "{e}");
+    let e = config_error(&section("notes = [\"Remark\"]\ngas = \"Remark\"", ""));
+    assert!(e.to_string().contains("already a notes column"), "{e}");
+    let errs = config_errors(&section("header = false\ngas = \"G\"", ""));
+    assert!(
+        errs.iter()
+            .any(|e| e.to_string().contains("gas names a header cell")),
+        "{errs:?}"
+    );
+}

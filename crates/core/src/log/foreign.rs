@@ -76,6 +76,9 @@ pub struct LogSection {
     /// text: `notes = ["Event"]`.
     #[serde(default)]
     pub notes: Vec<Spanned<String>>,
+    /// A text column holding the gas or mixture in the chamber, by header
+    /// cell text: `gas = "Process gas"`.
+    pub gas: Option<Spanned<String>>,
 }
 
 /// `time = { column = "Timestamp", format = "…", timezone = "…" }`
@@ -173,6 +176,8 @@ pub struct ForeignLogSpec {
     pub columns: Vec<ForeignColumn>,
     /// Text columns kept as row notes (operator remarks).
     pub notes: Vec<ColumnRef>,
+    /// The column that holds the gas in the chamber.
+    pub gas: Option<ColumnRef>,
 }
 
 impl ForeignLogSpec {
@@ -520,6 +525,31 @@ impl LogSection {
             }
         }
 
+        // The gas column, like notes, by its header text.
+        let mut gas = None;
+        if let Some(g) = &self.gas {
+            let text = g.get_ref().trim();
+            if !header {
+                err(
+                    g.span(),
+                    "gas names a header cell, but header = false: this log has no column-name row"
+                        .to_string(),
+                );
+            } else if text.is_empty() {
+                err(
+                    g.span(),
+                    "the gas column needs its header cell text".to_string(),
+                );
+            } else if notes.contains(&ColumnRef::Name(text.to_string())) {
+                err(
+                    g.span(),
+                    format!("column \"{}\" is already a notes column", show(text)),
+                );
+            } else {
+                gas = Some(ColumnRef::Name(text.to_string()));
+            }
+        }
+
         match (time_ref, format) {
             (Some(column), Some(format)) if errors.is_empty() => Ok(ForeignLogSpec {
                 delimiter,
@@ -534,6 +564,7 @@ impl LogSection {
                 },
                 columns,
                 notes,
+                gas,
             }),
             _ => Err(errors),
         }
@@ -573,6 +604,8 @@ pub struct ForeignReader<R> {
     ambiguous: u64,
     /// (cell index, header text) per `notes` column.
     note_cells: Vec<(usize, String)>,
+    /// Cell index of the gas column.
+    gas_cell: Option<usize>,
 }
 
 impl<R: BufRead> ForeignReader<R> {
@@ -745,6 +778,25 @@ impl<R: BufRead> ForeignReader<R> {
             }
             note_cells.push((i, header_text(i)));
         }
+        let gas_cell = match &spec.gas {
+            None => None,
+            Some(g) => {
+                let i = find(g)?;
+                if i == time_cell || cells.iter().chain(&note_cells).any(|&(j, _)| j == i) {
+                    return Err(LogError::at(
+                        name,
+                        header_line,
+                        Some(i + 1),
+                        format!(
+                            "column \"{}\" (cell {}) is the [log] gas column and read as time, a gauge or a note",
+                            show(&header_text(i)),
+                            i + 1
+                        ),
+                    ));
+                }
+                Some(i)
+            }
+        };
         let columns = spec
             .columns
             .iter()
@@ -767,6 +819,7 @@ impl<R: BufRead> ForeignReader<R> {
             repeated: 0,
             ambiguous: 0,
             note_cells,
+            gas_cell,
         })
     }
 
@@ -969,7 +1022,11 @@ impl<R: BufRead> ForeignReader<R> {
             time_went_back,
             time_repeated,
             notes,
-            gas: None,
+            gas: self
+                .gas_cell
+                .and_then(|i| cells.get(i))
+                .map(|c| c.text.trim().to_string())
+                .filter(|g| !g.is_empty()),
         };
         let mut bad = bad.into_iter();
         match bad.next() {
