@@ -445,3 +445,28 @@ unit = "mbar"
     assert!(s.contains("time repeated 1×"), "{status}");
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+#[test]
+fn at_80x24_the_event_list_takes_the_trends_place_on_v() {
+    let cfg = config::load(&root().join("config/demo.toml")).expect("config");
+    let setup = ReplaySetup {
+        file: root().join("sample-logs/demo.csv"),
+        foreign: None,
+        monitor: cfg.monitor_setup(Vec::new()),
+        gases: cfg.gases.clone(),
+    };
+    let (replay, _) = rarefy::ui::run::index_events(&setup).expect("index");
+    let mut app = app_at(Some("09:31:30"));
+    app.replay = Some(replay);
+    let s = screen(&app, 80, 24);
+    assert!(!s.contains("reached"), "no event list at first:\n{s}");
+    rarefy::ui::keys::handle(
+        &mut app,
+        crossterm::event::KeyEvent::from(crossterm::event::KeyCode::Char('v')),
+    );
+    let s = screen(&app, 80, 24);
+    assert!(s.contains("events · "), "{s}");
+    assert!(s.contains("reached"), "{s}");
+    assert!(s.contains("ion-high"), "{s}");
+    assert!(!s.contains("log pressure"), "the trend gave way:\n{s}");
+}

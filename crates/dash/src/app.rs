@@ -189,6 +189,8 @@ pub struct App {
     /// Replay: the latest operator note at or before the playhead — its row
     /// time, column and text (as read; escape before showing).
     pub note: Option<(DateTime<Utc>, String, String)>,
+    /// Show the event list where the trend is (small screens; key `v`).
+    pub show_events: bool,
     /// Recent events, newest last.
     pub events: VecDeque<Event>,
     /// A new alarm asks for the bell.
@@ -265,6 +267,7 @@ impl App {
             message: None,
             last_unparsed: None,
             note: None,
+            show_events: false,
             events: VecDeque::new(),
             bell: false,
             bell_enabled: true,

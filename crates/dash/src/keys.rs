@@ -16,7 +16,7 @@ pub const FOOTER_LIVE: &str =
 pub const FOOTER_REPLAY: &str = "?:help  space:pause  n/p:event  t:time  r:step  </>:speed  ←/→:10s  [/]:1min  {/}:10min  q:quit";
 
 /// Every key, for the help overlay: (keys, what).
-pub const HELP: [(&str, &str); 25] = [
+pub const HELP: [(&str, &str); 26] = [
     ("? h F1", "this help (Esc closes)"),
     ("q", "quit (recording stops cleanly)"),
     ("↑ ↓ j k", "select an alarm or gate"),
@@ -31,6 +31,10 @@ pub const HELP: [(&str, &str); 25] = [
     ("u", "next pressure unit"),
     ("w W", "longer / shorter trend window"),
     ("f", "freeze the display (data keeps recording)"),
+    (
+        "v",
+        "event list in place of the trend, and back (small screens)",
+    ),
     ("x", "start the exposure again from zero"),
     (
         "c",
@@ -230,6 +234,14 @@ pub fn handle(app: &mut App, key: KeyEvent) -> Effect {
         KeyCode::Char('W') => {
             let i = WINDOWS.iter().position(|w| *w >= app.window_s).unwrap_or(0);
             app.window_s = WINDOWS[i.saturating_sub(1)];
+        }
+        KeyCode::Char('v') => {
+            app.show_events = !app.show_events;
+            app.message = Some(if app.show_events {
+                "event list shown (v: trend)".into()
+            } else {
+                "trend shown (v: event list)".into()
+            });
         }
         KeyCode::Char('f') => {
             let was = app.frozen.take();

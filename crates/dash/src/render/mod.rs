@@ -343,7 +343,9 @@ pub fn draw_into(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         } else {
             alarms(app, look, v2[1], buf);
         }
-        if trend_fits {
+        if trend_fits && app.show_events {
+            events_panel(app, look, v2[2], buf);
+        } else if trend_fits {
             trend_panel(app, look, v2[2], buf);
         }
     }
