@@ -965,28 +965,7 @@ fn kinetics_follow_the_chamber_pressure_and_c_picks_a_gauge() {
     });
     // λ shown is the engine's for the combined gauge's reading and the
     // measured wall temperature as shown (3 significant digits each).
-    let (p, unit) = chamber_reading(&s).expect("chamber reading");
-    assert_eq!(unit, "mbar");
-    let p_pa: f64 = p.parse::<f64>().expect("number") * 100.0;
-    let t_c: f64 = Regex::new(r"wall\s+(-?\d+\.\d) C")
-        .expect("regex")
-        .captures(&s)
-        .expect("wall temperature")[1]
-        .parse()
-        .expect("number");
-    let n2 = rarefy::engine::mixture::Mixture::pure(
-        rarefy::gas::GasTable::builtin()
-            .get("N2")
-            .expect("N2")
-            .clone(),
-    );
-    let want = rarefy::engine::derive(
-        &rarefy::engine::Conditions::new(p_pa, t_c + 273.15),
-        &n2,
-        &[],
-        &rarefy::engine::Physics::default(),
-    )
-    .mean_free_path_m;
+    let (p, want) = engine_mean_free_path(&s, "chamber", "N2");
     let shown = shown_mean_free_path(&s).expect("λ line");
     assert!(
         (shown / want - 1.0).abs() < 0.01,
@@ -1037,32 +1016,7 @@ fn replay_argon_step_shows_ar_and_m_changes_the_gas() {
         s.contains("PAUSED") && s.contains("gas kinetics · auto: cdg")
     });
     assert!(s.contains("Ar (step argon)"), "{s}");
-    let (p, unit) = readings(&s)
-        .into_iter()
-        .find(|r| r.0 == "cdg")
-        .map(|r| (r.1, r.2))
-        .expect("cdg reading");
-    assert_eq!(unit, "mbar");
-    let p_pa: f64 = p.parse::<f64>().expect("number") * 100.0;
-    let t_c: f64 = Regex::new(r"wall\s+(-?\d+\.\d) C")
-        .expect("regex")
-        .captures(&s)
-        .expect("wall temperature")[1]
-        .parse()
-        .expect("number");
-    let ar = rarefy::engine::mixture::Mixture::pure(
-        rarefy::gas::GasTable::builtin()
-            .get("Ar")
-            .expect("Ar")
-            .clone(),
-    );
-    let want = rarefy::engine::derive(
-        &rarefy::engine::Conditions::new(p_pa, t_c + 273.15),
-        &ar,
-        &[],
-        &rarefy::engine::Physics::default(),
-    )
-    .mean_free_path_m;
+    let (p, want) = engine_mean_free_path(&s, "cdg", "Ar");
     let shown = shown_mean_free_path(&s).expect("λ line");
     assert!(
         (shown / want - 1.0).abs() < 0.01,
@@ -1079,4 +1033,37 @@ fn replay_argon_step_shows_ar_and_m_changes_the_gas() {
     d.wait_text("Ar (step argon)");
     d.send(b"q");
     d.assert_clean_exit();
+}
+
+/// The engine's mean free path in `gas` at `gauge`'s reading and the wall
+/// temperature, both as the screen shows them (mbar, C): the shown reading
+/// and the expected λ in metres.
+fn engine_mean_free_path(screen: &str, gauge: &str, gas: &str) -> (String, f64) {
+    let (p, unit) = readings(screen)
+        .into_iter()
+        .find(|r| r.0 == gauge)
+        .map(|r| (r.1, r.2))
+        .unwrap_or_else(|| panic!("no {gauge} reading:\n{screen}"));
+    assert_eq!(unit, "mbar");
+    let p_pa: f64 = p.parse::<f64>().expect("number") * 100.0;
+    let t_c: f64 = Regex::new(r"wall\s+(-?\d+\.\d) C")
+        .expect("regex")
+        .captures(screen)
+        .expect("wall temperature")[1]
+        .parse()
+        .expect("number");
+    let mixture = rarefy::engine::mixture::Mixture::pure(
+        rarefy::gas::GasTable::builtin()
+            .get(gas)
+            .unwrap_or_else(|e| panic!("no gas {gas}: {e}"))
+            .clone(),
+    );
+    let want = rarefy::engine::derive(
+        &rarefy::engine::Conditions::new(p_pa, t_c + 273.15),
+        &mixture,
+        &[],
+        &rarefy::engine::Physics::default(),
+    )
+    .mean_free_path_m;
+    (p, want)
 }

@@ -500,55 +500,39 @@ impl LogSection {
             }
         }
 
-        // Note columns are chosen by their header text.
+        // Note and gas columns are chosen by their header text: a name,
+        // in a log that has a column-name row, not taken already.
+        let mut by_name = |key: &Spanned<String>, what: &str, taken: &[ColumnRef]| {
+            let text = key.get_ref().trim();
+            let problem = if !header {
+                Some(format!(
+                    "{what} names a header cell, but header = false: this log has no column-name row"
+                ))
+            } else if text.is_empty() {
+                Some(format!("the {what} column needs its header cell text"))
+            } else if taken.contains(&ColumnRef::Name(text.to_string())) {
+                Some(format!(
+                    "column \"{}\" is already a notes column",
+                    show(text)
+                ))
+            } else {
+                None
+            };
+            match problem {
+                Some(p) => {
+                    err(key.span(), p);
+                    None
+                }
+                None => Some(ColumnRef::Name(text.to_string())),
+            }
+        };
         let mut notes = Vec::new();
         for n in &self.notes {
-            let text = n.get_ref().trim();
-            if !header {
-                err(
-                    n.span(),
-                    "notes name header cells, but header = false: this log has no column-name row"
-                        .to_string(),
-                );
-            } else if text.is_empty() {
-                err(
-                    n.span(),
-                    "a notes column needs its header cell text".to_string(),
-                );
-            } else if notes.contains(&ColumnRef::Name(text.to_string())) {
-                err(
-                    n.span(),
-                    format!("notes column \"{}\" is given twice", show(text)),
-                );
-            } else {
-                notes.push(ColumnRef::Name(text.to_string()));
+            if let Some(c) = by_name(n, "notes", &notes) {
+                notes.push(c);
             }
         }
-
-        // The gas column, like notes, by its header text.
-        let mut gas = None;
-        if let Some(g) = &self.gas {
-            let text = g.get_ref().trim();
-            if !header {
-                err(
-                    g.span(),
-                    "gas names a header cell, but header = false: this log has no column-name row"
-                        .to_string(),
-                );
-            } else if text.is_empty() {
-                err(
-                    g.span(),
-                    "the gas column needs its header cell text".to_string(),
-                );
-            } else if notes.contains(&ColumnRef::Name(text.to_string())) {
-                err(
-                    g.span(),
-                    format!("column \"{}\" is already a notes column", show(text)),
-                );
-            } else {
-                gas = Some(ColumnRef::Name(text.to_string()));
-            }
-        }
+        let gas = self.gas.as_ref().and_then(|g| by_name(g, "gas", &notes));
 
         match (time_ref, format) {
             (Some(column), Some(format)) if errors.is_empty() => Ok(ForeignLogSpec {
