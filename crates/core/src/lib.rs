@@ -36,6 +36,7 @@ site's procedures, local codes and the equipment manuals, and defer to \
 qualified staff.";
 
 pub mod alarm;
+pub mod analysis;
 pub mod engine;
 pub mod gas;
 pub mod log;
