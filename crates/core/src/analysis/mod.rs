@@ -1,5 +1,7 @@
 //! Analysis of one gauge's pressure series for the run report: rate-of-rise
-//! segments (leak rate and a leak/outgassing verdict) and pump-downs.
+//! segments (leak rate and a leak/outgassing verdict, [`rise`]) and
+//! pump-downs (roughing τ and S = V/τ, the tail's p ∝ t^−α, time to a
+//! target, [`pumpdown`]).
 //!
 //! Streaming: feed `(t_s, p_pa)` points in time order to an [`Analyzer`],
 //! then call [`Analyzer::finish`]. Memory stays bounded whatever the length
@@ -23,11 +25,13 @@
 //! ```
 
 pub mod fit;
+pub mod pumpdown;
 pub mod rise;
 
 #[cfg(test)]
 mod tests;
 
+pub use pumpdown::{PumpDown, PumpDownFinder, PumpDownOptions, Roughing, Tail, Target};
 pub use rise::{
     LeakRate, MBAR_L_PER_S, Origin, RateOfRise, RiseFinder, RiseOptions, Shape, Verdict,
 };
@@ -39,6 +43,8 @@ pub struct AnalysisOptions {
     pub volume_m3: Option<f64>,
     /// Rate-of-rise detection and verdict.
     pub rise: RiseOptions,
+    /// Pump-down detection, fits and target.
+    pub pumpdown: PumpDownOptions,
 }
 
 /// Everything found in one gauge's series.
@@ -46,6 +52,8 @@ pub struct AnalysisOptions {
 pub struct Analysis {
     /// Rate-of-rise segments: given ranges first, then found ones.
     pub rises: Vec<RateOfRise>,
+    /// Pump-downs, in time order.
+    pub pumpdowns: Vec<PumpDown>,
     /// Points accepted.
     pub points: usize,
     /// Points ignored (not finite, not positive, or earlier than the last).
@@ -56,6 +64,7 @@ pub struct Analysis {
 #[derive(Debug, Clone)]
 pub struct Analyzer {
     rise: RiseFinder,
+    pumpdown: PumpDownFinder,
     last_t: Option<f64>,
     points: usize,
     ignored: usize,
@@ -66,6 +75,7 @@ impl Analyzer {
     pub fn new(opts: AnalysisOptions) -> Self {
         Analyzer {
             rise: RiseFinder::new(opts.rise, opts.volume_m3),
+            pumpdown: PumpDownFinder::new(opts.pumpdown, opts.volume_m3),
             last_t: None,
             points: 0,
             ignored: 0,
@@ -84,12 +94,14 @@ impl Analyzer {
         self.last_t = Some(t_s);
         self.points += 1;
         self.rise.push(t_s, p_pa);
+        self.pumpdown.push(t_s, p_pa);
     }
 
     /// The results.
     pub fn finish(self) -> Analysis {
         Analysis {
             rises: self.rise.finish(),
+            pumpdowns: self.pumpdown.finish(),
             points: self.points,
             ignored: self.ignored,
         }
