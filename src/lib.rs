@@ -24,5 +24,7 @@
 pub mod cli;
 
 pub use rarefy_app::{action, config, logfile, operator, pipeline, record, source};
-pub use rarefy_core::{alarm, engine, gas, log, parse, sample, sim, suggest, timefmt, units};
+pub use rarefy_core::{
+    alarm, engine, gas, log, parse, report, sample, sim, suggest, timefmt, units,
+};
 pub use rarefy_dash as ui;

@@ -7,6 +7,7 @@ mod config_cmd;
 mod gases;
 mod gate;
 mod record;
+mod report;
 mod simulate;
 mod watch;
 
@@ -51,6 +52,8 @@ enum Command {
     Gases(gases::GasesArgs),
     /// Headless ingest and recording: the log goes to --out DIR, events to stdout as JSON lines.
     Record(Box<record::RecordArgs>),
+    /// The diagnosis of a finished run: per gauge, time in each range and regime, thresholds, gaps, events.
+    Report(Box<report::ReportArgs>),
     /// Write a log of the simulated chamber (log format v1), as fast as it computes.
     Simulate(Box<simulate::SimulateArgs>),
     /// Readiness gates, for scripts.
@@ -321,6 +324,7 @@ pub fn main() -> std::process::ExitCode {
         Command::Replay(args) => watch::replay(&args),
         Command::Gases(args) => gases::run(&args),
         Command::Record(args) => record::run(&args),
+        Command::Report(args) => report::run(&args),
         Command::Simulate(args) => simulate::run(&args),
         Command::Config { command } => config_cmd::run(&command),
         Command::Gate { command } => gate::run(&command),

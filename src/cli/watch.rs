@@ -211,15 +211,32 @@ fn from_time(text: &str, start: DateTime<Utc>) -> Result<DateTime<Utc>, CliError
     crate::ui::keys::parse_time(text, start).map_err(|e| CliError::Usage(format!("--from: {e}")))
 }
 
-/// Runs `rarefy replay`.
-pub fn replay(args: &ReplayArgs) -> Result<ExitCode, CliError> {
+/// The configuration a log is replayed (and reported) with: `--config`,
+/// else the config text recorded in the log's header, else the file the log
+/// names, else the defaults (with the log's gas and chamber name).
+pub(crate) struct LogConfig {
+    /// The resolved configuration.
+    pub config: Config,
+    /// What was used, for the user.
+    pub note: Option<String>,
+    /// The config file, when one exists.
+    pub path: Option<PathBuf>,
+    /// The rules: the config's and the log's one-off alarms.
+    pub rules: Vec<crate::alarm::Rule>,
+}
+
+/// Resolves [`LogConfig`] for `log`.
+pub(crate) fn log_config(
+    log: &std::path::Path,
+    flag: Option<&PathBuf>,
+) -> Result<LogConfig, CliError> {
     // The log keeps the config it was recorded with: only --config replaces
     // it, never a config file found elsewhere.
-    let mut config = match &args.config {
+    let mut config = match flag {
         Some(p) => load_config(Some(p))?.config,
         None => crate::config::Config::default(),
     };
-    let meta = open_log(&args.log, config.log.as_ref())
+    let meta = open_log(log, config.log.as_ref())
         .map_err(|e| CliError::Runtime(e.to_string()))?
         .meta()
         .clone();
@@ -233,22 +250,19 @@ pub fn replay(args: &ReplayArgs) -> Result<ExitCode, CliError> {
     // in the header, so editing the file since cannot change what the replay
     // rebuilds; older logs only name the file.
     let mut note = None;
-    let mut config_path = args.config.clone();
+    let mut config_path = flag.cloned();
     let kept = start::recorded_config(&meta);
-    if args.config.is_none()
+    if flag.is_none()
         && let Some(text) = kept
     {
-        let name = PathBuf::from(format!(
-            "{} (config recorded in the log)",
-            args.log.display()
-        ));
+        let name = PathBuf::from(format!("{} (config recorded in the log)", log.display()));
         config = config::parse(&text, &name)?;
         let named = recorded("config").unwrap_or_default();
         note = Some(format!(
             "config named in the log, as recorded in it: {named}"
         ));
         config_path = Some(PathBuf::from(named)).filter(|p| p.is_file());
-    } else if args.config.is_none()
+    } else if flag.is_none()
         && let Some(p) = recorded("config").map(PathBuf::from)
     {
         match config::load(&p) {
@@ -282,10 +296,26 @@ pub fn replay(args: &ReplayArgs) -> Result<ExitCode, CliError> {
             config.chamber.name = crate::sample::escape_bytes(c.as_bytes());
         }
     }
-    let channels: Vec<crate::sample::ChannelInfo> = open_log(&args.log, config.log.as_ref())
+    let channels: Vec<crate::sample::ChannelInfo> = open_log(log, config.log.as_ref())
         .map(|l| l.channels())
         .unwrap_or_default();
     let rules = start::cli_rules(&one_offs, &config, &channels).map_err(CliError::Usage)?;
+    Ok(LogConfig {
+        config,
+        note,
+        path: config_path,
+        rules,
+    })
+}
+
+/// Runs `rarefy replay`.
+pub fn replay(args: &ReplayArgs) -> Result<ExitCode, CliError> {
+    let LogConfig {
+        config,
+        note,
+        path: config_path,
+        rules,
+    } = log_config(&args.log, args.config.as_ref())?;
     let setup = ReplaySetup {
         file: args.log.clone(),
         foreign: config.log.clone(),

@@ -13,4 +13,4 @@ pub mod record;
 pub mod source;
 
 // The core's modules, reachable as `crate::…` inside this crate.
-use rarefy_core::{alarm, engine, gas, log, parse, sample, sim, suggest, timefmt, units};
+use rarefy_core::{alarm, engine, gas, log, parse, report, sample, sim, suggest, timefmt, units};

@@ -41,6 +41,7 @@ pub mod engine;
 pub mod gas;
 pub mod log;
 pub mod parse;
+pub mod report;
 pub mod sample;
 pub mod sim;
 pub mod suggest;

@@ -17,6 +17,7 @@
 
 mod clock;
 pub mod replay;
+pub mod report;
 pub mod sinks;
 pub mod start;
 

@@ -1,0 +1,135 @@
+use chrono::TimeZone;
+
+use super::*;
+use crate::engine::regime::IsoEdition;
+
+fn at(s: i64) -> DateTime<Utc> {
+    Utc.timestamp_opt(1_800_000_000 + s, 0)
+        .single()
+        .expect("time")
+}
+
+fn obs(s: i64, p: Option<f64>) -> Observation {
+    let range = p.map(|p| IsoEdition::Ed2019.classify(p));
+    Observation {
+        time: at(s),
+        status: if p.is_some() {
+            Status::Ok
+        } else {
+            Status::OverRange
+        },
+        pressure_pa: p,
+        range,
+        regimes: p
+            .map(|p| {
+                let r = if p > 100.0 {
+                    FlowRegime::Viscous
+                } else {
+                    FlowRegime::Molecular
+                };
+                vec![("line".to_string(), r)]
+            })
+            .unwrap_or_default(),
+        exposure_langmuir: None,
+    }
+}
+
+fn range_s(s: &GaugeSummary, r: VacuumRange) -> f64 {
+    s.time_in_range_s
+        .iter()
+        .find(|(x, _)| *x == r)
+        .map_or(-1.0, |(_, v)| *v)
+}
+
+#[test]
+fn three_readings_by_hand() {
+    // 5e4 Pa (low vacuum, ISO 3529-1:2019: below atmosphere down to 100 Pa)
+    // for 10 s, 50 Pa (medium: 100 … 0.1 Pa) for 10 s, then 0.05 Pa (high)
+    // at the end, which holds for no time.
+    let thresholds = vec![
+        Threshold {
+            pa: 100.0,
+            source: "a".into(),
+        },
+        Threshold {
+            pa: 1e-3,
+            source: "b".into(),
+        },
+    ];
+    let mut g = GaugeAccumulator::new("chamber", thresholds, None);
+    for (t, p) in [(0, 5e4), (10, 50.0), (20, 0.05)] {
+        g.add(obs(t, Some(p)));
+    }
+    let s = g.summary();
+    assert_eq!(s.samples, 3);
+    assert_eq!(s.duration_s, 20.0);
+    assert_eq!(range_s(&s, VacuumRange::Low), 10.0);
+    assert_eq!(range_s(&s, VacuumRange::Medium), 10.0);
+    assert_eq!(range_s(&s, VacuumRange::High), 0.0);
+    assert_eq!(s.thresholds[0].1, Some(at(10)));
+    assert_eq!(s.thresholds[1].1, None);
+    assert_eq!(s.min_pa, Some(0.05));
+    assert_eq!(s.max_pa, Some(5e4));
+    let median = s.median_pa.expect("median");
+    assert!((median - 50.0).abs() < 1e-9, "{median}");
+    assert_eq!(
+        s.time_in_regime_s,
+        vec![(
+            "line".to_string(),
+            vec![
+                (FlowRegime::Viscous, 10.0),
+                (FlowRegime::Transitional, 0.0),
+                (FlowRegime::Molecular, 10.0)
+            ]
+        )]
+    );
+    assert_eq!(s.gap_count, 0);
+    assert_eq!(s.accounted_s(), s.duration_s);
+}
+
+#[test]
+fn a_long_interval_is_a_gap_in_no_class() {
+    let mut g = GaugeAccumulator::new("g", Vec::new(), None);
+    for t in [0, 1, 2, 3, 100, 101] {
+        g.add(obs(t, Some(50.0)));
+    }
+    let s = g.summary();
+    assert_eq!(s.gap_count, 1);
+    assert_eq!(s.gap_s, 97.0);
+    assert_eq!(s.gaps, vec![(at(3), at(100))]);
+    assert_eq!(range_s(&s, VacuumRange::Medium), 4.0);
+    assert_eq!(s.accounted_s(), 101.0);
+    assert_eq!(s.gap_after_s, Some(5.0));
+}
+
+#[test]
+fn bad_readings_and_times_going_back_keep_the_sum() {
+    let mut g = GaugeAccumulator::new("g", Vec::new(), Some(1000.0));
+    g.add(obs(0, Some(50.0)));
+    g.add(obs(10, None));
+    g.add(obs(5, Some(50.0)));
+    g.add(obs(10, Some(50.0)));
+    g.add(obs(30, Some(5e4)));
+    let s = g.summary();
+    assert_eq!(s.time_without_pressure_s, 0.0);
+    assert_eq!(range_s(&s, VacuumRange::Medium), 30.0);
+    assert_eq!(
+        s.statuses,
+        vec![("ok".to_string(), 4), ("over-range".to_string(), 1)]
+    );
+    assert_eq!(s.accounted_s(), s.duration_s);
+    let mut g = GaugeAccumulator::new("g", Vec::new(), Some(1000.0));
+    g.add(obs(0, None));
+    g.add(obs(7, Some(50.0)));
+    assert_eq!(g.summary().time_without_pressure_s, 7.0);
+}
+
+#[test]
+fn unusable_rows_count_by_cause() {
+    let mut u = Unusable::default();
+    u.count("x");
+    u.count("x");
+    u.count("y");
+    assert_eq!(u.total(), 3);
+    assert_eq!(u.causes.get("x"), Some(&2));
+}

@@ -1,0 +1,386 @@
+//! `rarefy report`: the diagnosis of a finished run, from one pass of its
+//! log(s) through the one pipeline (SPEC §7). Pump-down and rate-of-rise
+//! analysis are not part of it yet: their JSON arrays are empty.
+
+use std::io::Write;
+use std::path::PathBuf;
+
+use chrono::{DateTime, Utc};
+use clap::{Args, ValueEnum};
+use serde_json::{Value, json};
+
+use super::watch::log_config;
+use super::{CliError, ExitCode};
+use crate::pipeline::report::{ReportOptions, ReportSink, WalkOutcome, walk};
+use crate::report::GaugeSummary;
+use crate::timefmt::write_rfc3339;
+use crate::units::{PressureUnit, format_pressure};
+
+/// Output formats.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum Format {
+    /// For a person.
+    Text,
+    /// One JSON document.
+    Json,
+    /// Every reading with its derived columns.
+    Csv,
+}
+
+/// `rarefy report` arguments.
+#[derive(Debug, Args)]
+pub struct ReportArgs {
+    /// The log(s): several files of a rotated recording are read as one run,
+    /// in the order of their first row's time.
+    #[arg(required = true)]
+    logs: Vec<PathBuf>,
+    /// Configuration file (alarms, lengths, gas; [log] for foreign logs);
+    /// default: the config recorded in the log, else the built-in defaults.
+    #[arg(long, short = 'c')]
+    config: Option<PathBuf>,
+    /// Report only this gauge.
+    #[arg(long)]
+    gauge: Option<String>,
+    /// Count readings from this time (RFC 3339, or HH:MM:SS on the first day).
+    #[arg(long)]
+    from: Option<String>,
+    /// Count readings up to this time (RFC 3339, or HH:MM:SS on the first day).
+    #[arg(long)]
+    to: Option<String>,
+    /// A pressure to reach, e.g. "1e-5 mbar": the first time below it.
+    #[arg(long)]
+    target: Option<String>,
+    /// Intervals longer than this are gaps, e.g. "30 s" (default: 5 × the
+    /// median interval).
+    #[arg(long)]
+    gap: Option<String>,
+    /// Output format.
+    #[arg(long, value_enum, default_value = "text")]
+    format: Format,
+    /// Write to this file instead of stdout.
+    #[arg(long, short = 'o')]
+    out: Option<PathBuf>,
+}
+
+/// A writer for `--out` or stdout.
+fn output(out: Option<&PathBuf>) -> Result<Box<dyn Write + Send>, CliError> {
+    match out {
+        Some(p) => std::fs::File::create(p)
+            .map(|f| Box::new(std::io::BufWriter::new(f)) as Box<dyn Write + Send>)
+            .map_err(|e| CliError::Runtime(format!("--out {}: {e}", p.display()))),
+        None => Ok(Box::new(std::io::stdout())),
+    }
+}
+
+/// First row time of the first file that has one (for HH:MM:SS times).
+fn first_time(
+    logs: &[PathBuf],
+    foreign: Option<&rarefy_core::log::ForeignLogSpec>,
+) -> Option<DateTime<Utc>> {
+    logs.iter()
+        .filter_map(|p| {
+            let mut log = crate::logfile::open_log(p, foreign).ok()?;
+            log.by_ref().find_map(|r| match r {
+                Ok(row) => Some(row.time),
+                Err(e) => e.row.map(|r| r.time),
+            })
+        })
+        .min()
+}
+
+/// Runs `rarefy report`.
+pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
+    // The config as replay finds it, from the first log that opens.
+    let probe = args.logs.iter().find_map(|l| {
+        let foreign = args
+            .config
+            .as_ref()
+            .and_then(|c| crate::config::load(c).ok())
+            .and_then(|c| c.log);
+        crate::logfile::open_log(l, foreign.as_ref())
+            .ok()
+            .map(|_| l)
+    });
+    let Some(first) = probe else {
+        // Nothing opens: say where each fails; nothing usable is exit 2.
+        let config = match &args.config {
+            Some(c) => crate::config::load(c)?,
+            None => crate::config::Config::default(),
+        };
+        for l in &args.logs {
+            if let Err(e) = crate::logfile::open_log(l, config.log.as_ref()) {
+                eprintln!(
+                    "rarefy: {}",
+                    rarefy_core::parse::terminal_text(&e.to_string())
+                );
+            }
+        }
+        return Err(CliError::Usage("no usable rows in the log(s)".into()));
+    };
+    let lc = log_config(first, args.config.as_ref())?;
+    if let Some(n) = &lc.note {
+        crate::pipeline::sinks::say(n);
+    }
+    let config = lc.config;
+    let start = first_time(&args.logs, config.log.as_ref());
+    let time = |flag: &str, t: &Option<String>| -> Result<Option<DateTime<Utc>>, CliError> {
+        match (t, start) {
+            (Some(t), Some(s)) => crate::ui::keys::parse_time(t, s)
+                .map(Some)
+                .map_err(|e| CliError::Usage(format!("{flag}: {e}"))),
+            _ => Ok(None),
+        }
+    };
+    let target_pa = args
+        .target
+        .as_deref()
+        .map(|t| {
+            crate::units::parse::<PressureUnit>(t)
+                .map(|q| q.si)
+                .map_err(|e| CliError::Usage(format!("--target: {e}")))
+        })
+        .transpose()?;
+    let gap_after_s = args
+        .gap
+        .as_deref()
+        .map(|t| {
+            crate::units::parse_duration(t)
+                .map(|d| d.si)
+                .map_err(|e| CliError::Usage(format!("--gap: {e}")))
+        })
+        .transpose()?;
+    let options = ReportOptions {
+        gauge: args.gauge.clone(),
+        from: time("--from", &args.from)?,
+        to: time("--to", &args.to)?,
+        target_pa,
+        gap_after_s,
+    };
+    let csv = match args.format {
+        Format::Csv => Some(output(args.out.as_ref())?),
+        _ => None,
+    };
+    let mut sink = ReportSink::new(options, csv);
+    let setup = config.monitor_setup(lc.rules);
+    let outcome = walk(
+        &args.logs,
+        config.log.as_ref(),
+        &setup,
+        &config.gases,
+        &mut sink,
+    );
+    for m in outcome.messages.iter().chain(sink.notes()) {
+        eprintln!("rarefy: {}", rarefy_core::parse::terminal_text(m));
+    }
+    if outcome.message_count > outcome.messages.len() as u64 {
+        eprintln!(
+            "rarefy: … and {} more messages",
+            outcome.message_count - outcome.messages.len() as u64
+        );
+    }
+    if outcome.rows == 0 {
+        return Err(CliError::Usage("no usable rows in the log(s)".into()));
+    }
+    let unit = config.display.pressure_unit;
+    match args.format {
+        Format::Csv => {}
+        Format::Json => {
+            let text = serde_json::to_string_pretty(&to_json(&sink, &outcome))
+                .map_err(|e| CliError::Runtime(e.to_string()))?;
+            write_to(args.out.as_ref(), &format!("{text}\n"))?;
+        }
+        Format::Text => write_to(args.out.as_ref(), &to_text(&sink, &outcome, unit))?,
+    }
+    Ok(if outcome.trip_seen {
+        ExitCode::Trip
+    } else {
+        ExitCode::Ok
+    })
+}
+
+fn write_to(out: Option<&PathBuf>, text: &str) -> Result<(), CliError> {
+    match out {
+        Some(p) => std::fs::write(p, text)
+            .map_err(|e| CliError::Runtime(format!("--out {}: {e}", p.display()))),
+        None => super::print_out(text),
+    }
+}
+
+fn time_json(t: Option<DateTime<Utc>>) -> Value {
+    t.map_or(Value::Null, |t| Value::String(write_rfc3339(t)))
+}
+
+/// The JSON document (SPEC §7, issue shape).
+pub fn to_json(sink: &ReportSink, outcome: &WalkOutcome) -> Value {
+    let gauges: Vec<Value> = sink.summaries().iter().map(gauge_json).collect();
+    let alarms: Vec<Value> = sink
+        .events()
+        .iter()
+        .map(|e| {
+            json!({
+                "time": write_rfc3339(e.time),
+                "kind": e.kind().as_str(),
+                "id": e.id,
+                "from": e.from_text(),
+                "to": e.to_text(),
+                "value": e.value_text.clone().or_else(|| e.value.map(|v| format!("{v:e}"))),
+            })
+        })
+        .collect();
+    json!({
+        "files": outcome.files.iter().map(|f| f.display().to_string()).collect::<Vec<_>>(),
+        "rows": outcome.rows,
+        "unusable_rows": outcome.unusable.causes,
+        "times_went_back": outcome.times_went_back,
+        "times_repeated": outcome.times_repeated,
+        "ambiguous_times": outcome.ambiguous_times,
+        "median_method": "P² streaming estimate (Jain & Chlamtac 1985) on ln p",
+        "gauges": gauges,
+        "alarms": alarms,
+    })
+}
+
+fn gauge_json(g: &GaugeSummary) -> Value {
+    let ranges: serde_json::Map<String, Value> = g
+        .time_in_range_s
+        .iter()
+        .map(|(r, s)| (r.as_str().to_string(), json!(s)))
+        .collect();
+    let regimes: serde_json::Map<String, Value> = g
+        .time_in_regime_s
+        .iter()
+        .map(|(name, m)| {
+            let m: serde_json::Map<String, Value> = m
+                .iter()
+                .map(|(r, s)| (r.as_str().to_string(), json!(s)))
+                .collect();
+            (name.clone(), Value::Object(m))
+        })
+        .collect();
+    json!({
+        "id": g.id,
+        "samples": g.samples,
+        "statuses": g.statuses.iter().map(|(s, n)| (s.clone(), json!(n))).collect::<serde_json::Map<_, _>>(),
+        "start": time_json(g.start),
+        "end": time_json(g.end),
+        "duration_s": g.duration_s,
+        "min_pa": g.min_pa,
+        "max_pa": g.max_pa,
+        "median_pa": g.median_pa,
+        "time_in_range_s": ranges,
+        "time_in_regime_s": regimes,
+        "time_without_pressure_s": g.time_without_pressure_s,
+        "gap_after_s": g.gap_after_s,
+        "gap_count": g.gap_count,
+        "gap_s": g.gap_s,
+        "gaps": g.gaps.iter().map(|(a, b)| json!([write_rfc3339(*a), write_rfc3339(*b)])).collect::<Vec<_>>(),
+        "thresholds": g.thresholds.iter().map(|(t, first)| json!({
+            "pa": t.pa, "source": t.source, "first_below": time_json(*first),
+        })).collect::<Vec<_>>(),
+        "pumpdowns": [],
+        "rate_of_rise": [],
+        "exposure_langmuir": g.exposure_langmuir,
+    })
+}
+
+fn to_text(sink: &ReportSink, outcome: &WalkOutcome, unit: PressureUnit) -> String {
+    use std::fmt::Write as _;
+    let p = |v: Option<f64>| v.map_or("-".to_string(), |v| format_pressure(v, unit));
+    let t = |v: Option<DateTime<Utc>>| v.map_or("never".to_string(), write_rfc3339);
+    let mut s = String::new();
+    let _ = writeln!(s, "Run report");
+    for f in &outcome.files {
+        let _ = writeln!(s, "  file: {}", f.display());
+    }
+    let _ = writeln!(s, "  rows: {}", outcome.rows);
+    for (cause, n) in &outcome.unusable.causes {
+        let _ = writeln!(s, "  rows with problems: {n} × {cause}");
+    }
+    if outcome.times_went_back + outcome.times_repeated > 0 {
+        let _ = writeln!(
+            s,
+            "  rows whose time went back: {}, repeated: {}",
+            outcome.times_went_back, outcome.times_repeated
+        );
+    }
+    for g in sink.summaries() {
+        let _ = writeln!(s, "\nGauge {}", g.id);
+        let _ = writeln!(
+            s,
+            "  {} → {} ({:.0} s), {} readings",
+            t(g.start),
+            t(g.end),
+            g.duration_s,
+            g.samples
+        );
+        let statuses: Vec<String> = g.statuses.iter().map(|(k, n)| format!("{k} {n}")).collect();
+        let _ = writeln!(s, "  statuses: {}", statuses.join(", "));
+        if g.min_pa.is_some() {
+            let _ = writeln!(
+                s,
+                "  pressure: min {}, max {}, median {} (P² estimate)",
+                p(g.min_pa),
+                p(g.max_pa),
+                p(g.median_pa)
+            );
+        }
+        let _ = writeln!(s, "  time in range:");
+        for (r, secs) in g.time_in_range_s.iter().filter(|(_, x)| *x > 0.0) {
+            let _ = writeln!(s, "    {:<18} {secs:>10.0} s", r.as_str());
+        }
+        if g.time_without_pressure_s > 0.0 {
+            let _ = writeln!(
+                s,
+                "    {:<18} {:>10.0} s",
+                "no valid pressure", g.time_without_pressure_s
+            );
+        }
+        for (name, m) in &g.time_in_regime_s {
+            let parts: Vec<String> = m
+                .iter()
+                .map(|(r, x)| format!("{} {x:.0} s", r.as_str()))
+                .collect();
+            let _ = writeln!(s, "  regime ({name}): {}", parts.join(", "));
+        }
+        let _ = writeln!(
+            s,
+            "  gaps: {} ({:.0} s; longer than {})",
+            g.gap_count,
+            g.gap_s,
+            g.gap_after_s
+                .map_or("-".to_string(), |x| format!("{x:.1} s"))
+        );
+        for (a, b) in &g.gaps {
+            let _ = writeln!(s, "    {} → {}", write_rfc3339(*a), write_rfc3339(*b));
+        }
+        for (th, first) in &g.thresholds {
+            let _ = writeln!(
+                s,
+                "  first below {} ({}): {}",
+                p(Some(th.pa)),
+                th.source,
+                t(*first)
+            );
+        }
+        if let Some(e) = g.exposure_langmuir {
+            let _ = writeln!(s, "  exposure: {e:.3e} L");
+        }
+    }
+    let _ = writeln!(s, "\nEvents ({})", sink.events().len());
+    for e in sink.events() {
+        let _ = writeln!(
+            s,
+            "  {} {} {} → {} {}",
+            write_rfc3339(e.time),
+            e.id,
+            e.from_text(),
+            e.to_text(),
+            e.value_text.clone().unwrap_or_default()
+        );
+    }
+    let _ = writeln!(
+        s,
+        "\nMedian: P² streaming estimate (Jain & Chlamtac 1985) on ln p. Pump-down and rate-of-rise analysis: not yet."
+    );
+    s
+}

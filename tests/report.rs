@@ -1,0 +1,254 @@
+//! `rarefy report` on real logs: the binary's outputs and exit codes, and
+//! the report sink against the replay index.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use rarefy::config;
+use rarefy::pipeline::replay::index;
+use rarefy::pipeline::report::{ReportOptions, ReportSink, walk};
+use serde_json::Value;
+
+fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+fn report(args: &[&str]) -> (i32, String, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_rarefy"))
+        .arg("report")
+        .args(args)
+        .current_dir(root())
+        .output()
+        .expect("run");
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+fn json(args: &[&str]) -> Value {
+    let mut a = args.to_vec();
+    a.extend(["--format", "json"]);
+    let (code, out, err) = report(&a);
+    assert!(code == 0 || code == 3, "exit {code}: {err}");
+    serde_json::from_str(&out).expect("json")
+}
+
+fn temp(name: &str, text: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("rarefy-report-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("dir");
+    let p = dir.join(name);
+    std::fs::write(&p, text).expect("write");
+    p
+}
+
+fn sums_hold(v: &Value) {
+    for g in v["gauges"].as_array().expect("gauges") {
+        let ranges: f64 = g["time_in_range_s"]
+            .as_object()
+            .expect("ranges")
+            .values()
+            .map(|x| x.as_f64().expect("s"))
+            .sum();
+        let total = ranges
+            + g["time_without_pressure_s"].as_f64().expect("s")
+            + g["gap_s"].as_f64().expect("s");
+        let d = g["duration_s"].as_f64().expect("d");
+        assert!((total - d).abs() < 1e-6, "{}: {total} vs {d}", g["id"]);
+    }
+}
+
+#[test]
+fn time_in_range_sums_to_the_duration_on_every_sample_log() {
+    for f in std::fs::read_dir(root().join("sample-logs")).expect("dir") {
+        let p = f.expect("entry").path();
+        if p.extension().is_some_and(|e| e == "csv") {
+            let v = json(&[p.to_str().expect("path"), "--config", "config/demo.toml"]);
+            sums_hold(&v);
+        }
+    }
+    let v = json(&[
+        "sample-logs/foreign/marrowgate-ml3.csv",
+        "--config",
+        "sample-logs/foreign/marrowgate-ml3.toml",
+    ]);
+    assert!(!v["gauges"].as_array().expect("gauges").is_empty());
+    sums_hold(&v);
+}
+
+#[test]
+fn json_has_the_issue_shape() {
+    let v = json(&[
+        "sample-logs/demo.csv",
+        "--config",
+        "config/demo.toml",
+        "--target",
+        "1e-5 mbar",
+    ]);
+    for k in ["files", "gauges", "alarms"] {
+        assert!(v.get(k).is_some(), "{k}");
+    }
+    let g = &v["gauges"][1];
+    for k in [
+        "id",
+        "samples",
+        "start",
+        "end",
+        "min_pa",
+        "max_pa",
+        "median_pa",
+        "time_in_range_s",
+        "time_in_regime_s",
+        "thresholds",
+        "pumpdowns",
+        "rate_of_rise",
+        "exposure_langmuir",
+    ] {
+        assert!(g.get(k).is_some(), "{k}");
+    }
+    for r in ["low", "medium", "high", "ultra-high", "extreme-high"] {
+        assert!(g["time_in_range_s"].get(r).is_some(), "{r}");
+    }
+    let t = g["thresholds"].as_array().expect("thresholds");
+    assert!(t.iter().any(|t| t["source"] == "--target"));
+    for a in v["alarms"].as_array().expect("alarms") {
+        for k in ["time", "id", "from", "to", "value"] {
+            assert!(a.get(k).is_some(), "{k}");
+        }
+    }
+}
+
+#[test]
+fn events_equal_the_replay_index() {
+    let cfg = config::load(&root().join("config/demo.toml")).expect("config");
+    let setup = cfg.monitor_setup(Vec::new());
+    for name in ["demo.csv", "leak-check.csv"] {
+        let log = root().join("sample-logs").join(name);
+        let idx = index(&log, None, &setup, &cfg.gases).expect("index");
+        let mut sink = ReportSink::new(ReportOptions::default(), None);
+        let out = walk(
+            std::slice::from_ref(&log),
+            None,
+            &setup,
+            &cfg.gases,
+            &mut sink,
+        );
+        assert!(out.rows > 0);
+        assert_eq!(sink.events(), idx.events.as_slice(), "{name}");
+        assert!(!sink.events().is_empty());
+    }
+}
+
+fn split_log(src: &Path) -> (String, String) {
+    let text = std::fs::read_to_string(src).expect("log");
+    let lines: Vec<&str> = text.lines().collect();
+    let header_end = lines
+        .iter()
+        .position(|l| l.starts_with("time,"))
+        .expect("header")
+        + 1;
+    let mid = header_end + (lines.len() - header_end) / 2;
+    let head = lines[..header_end].join("\n");
+    let a = format!("{}\n", lines[..mid].join("\n"));
+    let b = format!("{head}\n{}\n", lines[mid..].join("\n"));
+    (a, b)
+}
+
+#[test]
+fn a_rotated_recording_reports_as_one_file() {
+    let log = root().join("sample-logs/demo.csv");
+    let (a, b) = split_log(&log);
+    // Named so that the later half sorts first by name.
+    let pa = temp("z-part1.csv", &a);
+    let pb = temp("a-part2.csv", &b);
+    let mut one = json(&[log.to_str().expect("p"), "--config", "config/demo.toml"]);
+    let mut two = json(&[
+        pb.to_str().expect("p"),
+        pa.to_str().expect("p"),
+        "--config",
+        "config/demo.toml",
+    ]);
+    assert_eq!(two["files"][0], pa.to_str().expect("p"));
+    one["files"] = Value::Null;
+    two["files"] = Value::Null;
+    assert_eq!(one, two);
+}
+
+const THREE: &str = "# rarefy log v1
+time,chamber [Pa]
+2026-01-01T00:00:00.000Z,5e4
+2026-01-01T00:00:10.000Z,5e1
+2026-01-01T00:00:20.000Z,5e-2
+";
+
+#[test]
+fn three_rows_by_hand() {
+    // 5e4 Pa is low vacuum for 10 s, 50 Pa medium for 10 s, 0.05 Pa high at
+    // the end (ISO 3529-1:2019); 1e-1 Pa is first undercut at the third row.
+    let p = temp("three.csv", THREE);
+    let v = json(&[p.to_str().expect("p"), "--target", "0.1 Pa"]);
+    let g = &v["gauges"][0];
+    assert_eq!(g["samples"], 3);
+    assert_eq!(g["duration_s"], 20.0);
+    assert_eq!(g["time_in_range_s"]["low"], 10.0);
+    assert_eq!(g["time_in_range_s"]["medium"], 10.0);
+    assert_eq!(g["time_in_range_s"]["high"], 0.0);
+    assert_eq!(
+        g["thresholds"][0]["first_below"],
+        "2026-01-01T00:00:20.000Z"
+    );
+    assert_eq!(g["min_pa"], 0.05);
+    assert_eq!(g["max_pa"], 5e4);
+    assert_eq!(g["pumpdowns"], Value::Array(Vec::new()));
+}
+
+#[test]
+fn an_empty_file_is_exit_2_and_located() {
+    let p = temp("empty.csv", "");
+    let (code, _, err) = report(&[p.to_str().expect("p")]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains(&format!("{}:", p.display())), "{err}");
+}
+
+#[test]
+fn a_cut_off_last_line_is_counted() {
+    let p = temp("cut.csv", &format!("{THREE}2026-01-01T00:00:3"));
+    let (code, out, err) = report(&[p.to_str().expect("p"), "--format", "json"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(err.contains(&format!("{}:6", p.display())), "{err}");
+    let v: Value = serde_json::from_str(&out).expect("json");
+    let total: u64 = v["unusable_rows"]
+        .as_object()
+        .expect("causes")
+        .values()
+        .map(|n| n.as_u64().expect("n"))
+        .sum();
+    assert_eq!(total, 1);
+    assert_eq!(v["gauges"][0]["samples"], 3);
+}
+
+#[test]
+fn text_and_csv_outputs() {
+    let (code, out, _) = report(&["sample-logs/demo.csv", "--config", "config/demo.toml"]);
+    assert!(code == 0 || code == 3, "{code}");
+    assert!(out.contains("Gauge chamber") && out.contains("P²"), "{out}");
+    let p = temp("three-in.csv", THREE);
+    let csv = temp("three-out.csv", "");
+    let (code, _, err) = report(&[
+        p.to_str().expect("p"),
+        "--format",
+        "csv",
+        "--out",
+        csv.to_str().expect("p"),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let text = std::fs::read_to_string(&csv).expect("csv");
+    let lines: Vec<&str> = text.lines().collect();
+    assert_eq!(lines.len(), 4, "{text}");
+    assert!(
+        lines[0]
+            .starts_with("time,gauge,status,pressure_pa,number_density_per_m3,mean_free_path_m")
+    );
+    assert!(lines[1].ends_with(",low"), "{}", lines[1]);
+}
