@@ -2,6 +2,7 @@
 //! log(s) through the one pipeline (SPEC §7). Pump-down and rate-of-rise
 //! analysis are not part of it yet: their JSON arrays are empty.
 
+use rarefy_core::analysis::{Analysis, Target};
 use std::io::Write;
 use std::path::PathBuf;
 
@@ -50,6 +51,10 @@ pub struct ReportArgs {
     /// A pressure to reach, e.g. "1e-5 mbar": the first time below it.
     #[arg(long)]
     target: Option<String>,
+    /// Chamber volume, e.g. "85 L", for pumping speeds and leak rates
+    /// (default: the config's, else the log header's).
+    #[arg(long)]
+    volume: Option<String>,
     /// Intervals longer than this are gaps, e.g. "30 s" (default: 5 × the
     /// median interval).
     #[arg(long)]
@@ -149,12 +154,25 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
                 .map_err(|e| CliError::Usage(format!("--gap: {e}")))
         })
         .transpose()?;
+    let volume_m3 = match args.volume.as_deref() {
+        Some(v) => Some(
+            crate::units::parse::<crate::units::VolumeUnit>(v)
+                .map(|q| q.si)
+                .map_err(|e| CliError::Usage(format!("--volume: {e}")))?,
+        ),
+        None => config.chamber.volume_m3.or_else(|| {
+            crate::logfile::open_log(first, config.log.as_ref())
+                .ok()
+                .and_then(|l| l.meta().volume_m3)
+        }),
+    };
     let options = ReportOptions {
         gauge: args.gauge.clone(),
         from: time("--from", &args.from)?,
         to: time("--to", &args.to)?,
         target_pa,
         gap_after_s,
+        volume_m3,
     };
     let csv = match args.format {
         Format::Csv => Some(output(args.out.as_ref())?),
@@ -212,7 +230,14 @@ fn time_json(t: Option<DateTime<Utc>>) -> Value {
 
 /// The JSON document (SPEC §7, issue shape).
 pub fn to_json(sink: &ReportSink, outcome: &WalkOutcome) -> Value {
-    let gauges: Vec<Value> = sink.summaries().iter().map(gauge_json).collect();
+    let analyses = sink.analyses();
+    let origin = sink.origin();
+    let gauges: Vec<Value> = sink
+        .summaries()
+        .iter()
+        .zip(&analyses)
+        .map(|(g, a)| gauge_json(g, a, origin))
+        .collect();
     let alarms: Vec<Value> = sink
         .events()
         .iter()
@@ -240,7 +265,72 @@ pub fn to_json(sink: &ReportSink, outcome: &WalkOutcome) -> Value {
     })
 }
 
-fn gauge_json(g: &GaugeSummary) -> Value {
+/// Seconds on the analyses' origin as an RFC 3339 time.
+fn at(origin: Option<DateTime<Utc>>, s: f64) -> Value {
+    time_json(origin.map(|o| o + chrono::Duration::milliseconds((s * 1000.0).round() as i64)))
+}
+
+fn pumpdowns_json(a: &Analysis, origin: Option<DateTime<Utc>>) -> Vec<Value> {
+    a.pumpdowns
+        .iter()
+        .map(|p| {
+            let (reached, predicted, band) = match &p.target {
+                Some(Target::Reached { at_s, .. }) => (at(origin, *at_s), Value::Null, Value::Null),
+                Some(Target::Predicted {
+                    after_s,
+                    after_low_s,
+                    after_high_s,
+                    ..
+                }) => (
+                    Value::Null,
+                    at(origin, p.start_s + after_s),
+                    json!([at(origin, p.start_s + after_low_s), at(origin, p.start_s + after_high_s)]),
+                ),
+                Some(Target::NotPredictable { reason }) => {
+                    (Value::Null, Value::Null, json!(format!("not predictable: {reason}")))
+                }
+                None => (Value::Null, Value::Null, Value::Null),
+            };
+            json!({
+                "start": at(origin, p.start_s),
+                "start_pa": p.start_pa,
+                "min_pa": p.min_pa,
+                "tau_s": p.roughing.as_ref().map(|r| r.tau_s),
+                "tau_r2": p.roughing.as_ref().map(|r| r.r2),
+                "pumping_speed_m3_per_s": p.roughing.as_ref().and_then(|r| r.pumping_speed_m3_per_s),
+                "tail_alpha": p.tail.as_ref().map(|t| t.alpha),
+                "tail_r2": p.tail.as_ref().map(|t| t.r2),
+                "target_reached": reached,
+                "target_predicted": predicted,
+                "target_band": band,
+                "notes": p.notes,
+            })
+        })
+        .collect()
+}
+
+fn rises_json(a: &Analysis, origin: Option<DateTime<Utc>>) -> Vec<Value> {
+    a.rises
+        .iter()
+        .map(|r| {
+            json!({
+                "start": at(origin, r.from_s),
+                "end": at(origin, r.to_s),
+                "start_pa": r.start_pa,
+                "end_pa": r.end_pa,
+                "dp_dt_pa_per_s": r.dp_dt_pa_per_s,
+                "r2": r.r2,
+                "leak_rate_pa_m3_per_s": r.leak_rate.as_ref().map(|l| l.pa_m3_per_s),
+                "leak_rate_mbar_l_per_s": r.leak_rate.as_ref().map(|l| l.mbar_l_per_s),
+                "verdict": r.verdict.as_str(),
+                "slope_ratio_last_to_first": r.shape.as_ref().map(|s| s.ratio),
+                "notes": r.notes,
+            })
+        })
+        .collect()
+}
+
+fn gauge_json(g: &GaugeSummary, a: &Analysis, origin: Option<DateTime<Utc>>) -> Value {
     let ranges: serde_json::Map<String, Value> = g
         .time_in_range_s
         .iter()
@@ -277,8 +367,8 @@ fn gauge_json(g: &GaugeSummary) -> Value {
         "thresholds": g.thresholds.iter().map(|(t, first)| json!({
             "pa": t.pa, "source": t.source, "first_below": time_json(*first),
         })).collect::<Vec<_>>(),
-        "pumpdowns": [],
-        "rate_of_rise": [],
+        "pumpdowns": pumpdowns_json(a, origin),
+        "rate_of_rise": rises_json(a, origin),
         "exposure_langmuir": g.exposure_langmuir,
     })
 }
@@ -303,7 +393,14 @@ fn to_text(sink: &ReportSink, outcome: &WalkOutcome, unit: PressureUnit) -> Stri
             outcome.times_went_back, outcome.times_repeated
         );
     }
-    for g in sink.summaries() {
+    let analyses = sink.analyses();
+    let origin = sink.origin();
+    let when = |secs: f64| {
+        origin.map_or("-".to_string(), |o| {
+            write_rfc3339(o + chrono::Duration::milliseconds((secs * 1000.0).round() as i64))
+        })
+    };
+    for (g, a) in sink.summaries().iter().zip(&analyses) {
         let _ = writeln!(s, "\nGauge {}", g.id);
         let _ = writeln!(
             s,
@@ -364,6 +461,70 @@ fn to_text(sink: &ReportSink, outcome: &WalkOutcome, unit: PressureUnit) -> Stri
         }
         if let Some(e) = g.exposure_langmuir {
             let _ = writeln!(s, "  exposure: {e:.3e} L");
+        }
+        for pd in &a.pumpdowns {
+            let _ = write!(
+                s,
+                "  pump-down from {} at {}",
+                p(Some(pd.start_pa)),
+                when(pd.start_s)
+            );
+            if let Some(r) = &pd.roughing {
+                let _ = write!(s, ": roughing τ {:.1} s (R² {:.4})", r.tau_s, r.r2);
+                if let Some(sp) = r.pumping_speed_m3_per_s {
+                    let _ = write!(s, ", pumping speed {:.3} L/s", sp * 1000.0);
+                }
+            }
+            if let Some(tl) = &pd.tail {
+                let _ = write!(s, "; tail p ∝ t^-{:.2} (R² {:.3})", tl.alpha, tl.r2);
+            }
+            match &pd.target {
+                Some(Target::Reached { at_s, .. }) => {
+                    let _ = write!(s, "; target reached {}", when(*at_s));
+                }
+                Some(Target::Predicted {
+                    after_s,
+                    after_low_s,
+                    after_high_s,
+                    ..
+                }) => {
+                    let _ = write!(
+                        s,
+                        "; target predicted {} ({} to {})",
+                        when(pd.start_s + after_s),
+                        when(pd.start_s + after_low_s),
+                        when(pd.start_s + after_high_s)
+                    );
+                }
+                Some(Target::NotPredictable { reason }) => {
+                    let _ = write!(s, "; target not predictable: {reason}");
+                }
+                None => {}
+            }
+            let _ = writeln!(s);
+        }
+        for r in &a.rises {
+            let _ = write!(s, "  rate of rise {} → {}: ", when(r.from_s), when(r.to_s));
+            if let Some(d) = r.dp_dt_pa_per_s {
+                let _ = write!(s, "dp/dt {d:.3e} Pa/s");
+            }
+            match &r.leak_rate {
+                Some(l) => {
+                    let _ = write!(
+                        s,
+                        ", Q {:.3e} Pa·m³/s = {:.3e} mbar·L/s",
+                        l.pa_m3_per_s, l.mbar_l_per_s
+                    );
+                }
+                None => {
+                    let _ = write!(s, " (give --volume for the leak rate)");
+                }
+            }
+            let _ = write!(s, "; verdict {}", r.verdict.as_str());
+            if let Some(sh) = &r.shape {
+                let _ = write!(s, " (late/early slope {:.2})", sh.ratio);
+            }
+            let _ = writeln!(s);
         }
     }
     let _ = writeln!(s, "\nEvents ({})", sink.events().len());

@@ -20,6 +20,7 @@ use crate::log::{ForeignLogSpec, LogError, LogSource};
 use crate::logfile::open_log;
 use crate::report::{GaugeAccumulator, GaugeSummary, Observation, Threshold, Unusable};
 use crate::sample::{SourceEvent, Status};
+use rarefy_core::analysis::{Analysis, AnalysisOptions, Analyzer, PumpDownOptions};
 
 /// How many reader messages a report keeps to show (all are counted).
 pub const MESSAGES_KEPT: usize = 50;
@@ -37,6 +38,8 @@ pub struct ReportOptions {
     pub target_pa: Option<f64>,
     /// Intervals longer than this are gaps, s (default: 5 × the median).
     pub gap_after_s: Option<f64>,
+    /// Chamber volume, m³, for pumping speeds and leak rates.
+    pub volume_m3: Option<f64>,
 }
 
 /// The pipeline's report sink: per-gauge accumulators, the events, and
@@ -44,6 +47,10 @@ pub struct ReportOptions {
 pub struct ReportSink {
     options: ReportOptions,
     gauges: Vec<GaugeAccumulator>,
+    /// Pump-down and rate-of-rise analysis per gauge (same order).
+    analyzers: Vec<Analyzer>,
+    /// Time origin of the analyses' seconds: the first reading.
+    origin: Option<DateTime<Utc>>,
     index: BTreeMap<String, usize>,
     events: Vec<Event>,
     notes: Vec<String>,
@@ -59,6 +66,8 @@ impl ReportSink {
         ReportSink {
             options,
             gauges: Vec::new(),
+            analyzers: Vec::new(),
+            origin: None,
             index: BTreeMap::new(),
             events: Vec::new(),
             notes: Vec::new(),
@@ -150,6 +159,21 @@ impl ReportSink {
         self.gauges.iter().map(|g| g.summary()).collect()
     }
 
+    /// Each gauge's pump-downs and rate-of-rise segments so far, in the
+    /// order of [`ReportSink::summaries`].
+    pub fn analyses(&self) -> Vec<Analysis> {
+        self.analyzers
+            .iter()
+            .cloned()
+            .map(Analyzer::finish)
+            .collect()
+    }
+
+    /// The data time the analyses' seconds count from.
+    pub fn origin(&self) -> Option<DateTime<Utc>> {
+        self.origin
+    }
+
     /// The events the pipeline gave (alarms, gates, gas changes) within the
     /// window.
     pub fn events(&self) -> &[Event] {
@@ -214,10 +238,24 @@ impl Sink for ReportSink {
                                 th,
                                 self.options.gap_after_s,
                             ));
+                            self.analyzers.push(Analyzer::new(AnalysisOptions {
+                                volume_m3: self.options.volume_m3,
+                                pumpdown: PumpDownOptions {
+                                    target_pa: self.options.target_pa,
+                                    ..PumpDownOptions::default()
+                                },
+                                ..AnalysisOptions::default()
+                            }));
                             self.index.insert(s.channel.clone(), self.gauges.len() - 1);
                             self.gauges.len() - 1
                         }
                     };
+                    // The gauge's true pressure, on seconds from the first
+                    // reading, to the pump-down and rate-of-rise analysis.
+                    let origin = *self.origin.get_or_insert(s.time);
+                    if let (Some(p), Some(a)) = (pressure_pa, self.analyzers.get_mut(i)) {
+                        a.push((s.time - origin).num_milliseconds() as f64 / 1000.0, p);
+                    }
                     if let Some(g) = self.gauges.get_mut(i) {
                         g.add(obs);
                     }
