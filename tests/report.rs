@@ -316,3 +316,24 @@ fn an_outgassing_rise_is_called_outgassing_and_no_volume_asks_for_one() {
     let (_, out, _) = report(&[log.to_str().expect("utf-8"), "--volume", "85 L"]);
     assert!(out.contains("mbar·L/s; verdict leak"), "{out}");
 }
+
+#[test]
+fn a_log_that_starts_mid_fall_still_has_its_pump_down() {
+    // pumpdown.csv starts at 445 mbar, already falling. Same roughing plant
+    // as the leak-check: τ = V/S_eff ≈ 12.25 s (derived in
+    // crates/core/src/analysis/tests.rs).
+    let v = json(&[
+        "sample-logs/pumpdown.csv",
+        "--config",
+        "config/demo.toml",
+        "--target",
+        "1e-5 mbar",
+    ]);
+    let pd = gauge(&v, "chamber")["pumpdowns"]
+        .as_array()
+        .expect("pump-downs");
+    assert_eq!(pd.len(), 1, "{pd:?}");
+    let tau = pd[0]["tau_s"].as_f64().expect("tau");
+    assert!((tau / 12.25 - 1.0).abs() < 0.05, "τ {tau} s");
+    assert!(pd[0]["target_reached"].is_string(), "{pd:?}");
+}

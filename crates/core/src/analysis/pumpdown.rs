@@ -10,8 +10,8 @@ pub const TAIL_BUFFER: usize = 2048;
 /// How pump-downs are found and characterised.
 #[derive(Debug, Clone, PartialEq)]
 pub struct PumpDownOptions {
-    /// A pump-down starts from at or above this pressure, Pa (default 5e4 Pa,
-    /// half an atmosphere).
+    /// A pump-down starts from at or above this pressure, Pa (default 1e4 Pa,
+    /// a tenth of an atmosphere, so a log that starts mid-fall still counts).
     pub start_pa: f64,
     /// It counts once the pressure has fallen below this, Pa (default 1e3 Pa).
     pub sustain_pa: f64,
@@ -31,7 +31,7 @@ pub struct PumpDownOptions {
 impl Default for PumpDownOptions {
     fn default() -> Self {
         PumpDownOptions {
-            start_pa: 5e4,
+            start_pa: 1e4,
             sustain_pa: 1e3,
             roughing_span_pa: (1e3, 5e4),
             tail_below_pa: 1e-2,
