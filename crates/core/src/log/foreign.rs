@@ -1012,22 +1012,9 @@ impl<R: BufRead> ForeignReader<R> {
                 .map(|c| c.text.trim().to_string())
                 .filter(|g| !g.is_empty()),
         };
-        let mut bad = bad.into_iter();
-        match bad.next() {
-            None => Some(Ok(row)),
-            Some((col, mut msg)) => {
-                let more = bad.count();
-                if more > 0 {
-                    msg.push_str(&format!(
-                        " (and {more} more bad cell{} in this row)",
-                        if more == 1 { "" } else { "s" }
-                    ));
-                }
-                let mut e = at(&self.name, Some(col), msg);
-                e.row = Some(Box::new(row));
-                Some(Err(e))
-            }
-        }
+        Some(super::read::row_result(row, bad, |col, msg| {
+            at(&self.name, Some(col), msg)
+        }))
     }
 }
 

@@ -341,6 +341,17 @@ impl<R: BufRead> LogReader<R> {
         }
     }
 
+    /// Reads one data row given as text, with its line number (a log
+    /// arriving line by line): the same checks as reading the file. `None`
+    /// for a blank line.
+    pub fn read_row(&mut self, number: u64, text: &str) -> Option<Result<Row, LogError>> {
+        self.row(&RawLine {
+            number,
+            bytes: text.as_bytes().to_vec(),
+            too_long: false,
+        })
+    }
+
     fn row(&mut self, raw: &RawLine) -> Option<Result<Row, LogError>> {
         let name = self.name.as_str();
         let text = match text_of(name, raw, ',') {
@@ -416,23 +427,32 @@ impl<R: BufRead> LogReader<R> {
             notes: Vec::new(),
             gas,
         };
-        let mut bad = bad.into_iter();
-        match bad.next() {
-            None => Some(Ok(row)),
-            Some((col, mut msg)) => {
-                let more = bad.count();
-                if more > 0 {
-                    msg.push_str(&format!(
-                        " (and {more} more bad cell{} in this row)",
-                        if more == 1 { "" } else { "s" }
-                    ));
-                }
-                let mut e = at(col, msg);
-                e.row = Some(Box::new(row));
-                Some(Err(e))
-            }
-        }
+        Some(row_result(row, bad, at))
     }
+}
+
+/// A row, or, when cells of it were bad, an error located at the first bad
+/// cell (naming how many more there are) that still carries the row, so its
+/// good readings are kept. Both log readers end a row here.
+pub(crate) fn row_result(
+    row: Row,
+    bad: Vec<(usize, String)>,
+    at: impl Fn(usize, String) -> LogError,
+) -> Result<Row, LogError> {
+    let mut bad = bad.into_iter();
+    let Some((col, mut msg)) = bad.next() else {
+        return Ok(row);
+    };
+    let more = bad.count();
+    if more > 0 {
+        msg.push_str(&format!(
+            " (and {more} more bad cell{} in this row)",
+            if more == 1 { "" } else { "s" }
+        ));
+    }
+    let mut e = at(col, msg);
+    e.row = Some(Box::new(row));
+    Err(e)
 }
 
 impl<R: BufRead> Iterator for LogReader<R> {

@@ -20,7 +20,7 @@ use crate::log::LogReader;
 use crate::sample::{ChannelInfo, SourceEvent, escape_bytes};
 
 /// The v1 part: the header lines seen so far, then the data rows.
-#[derive(Debug, Clone, Default)]
+#[derive(Default)]
 struct V1 {
     /// Magic, metadata and (once seen) the header row, each with `\n`.
     header: String,
@@ -36,6 +36,9 @@ struct V1 {
     repeated: u64,
     /// The last row's `gas` cell, to send a change of gas once.
     gas: Option<String>,
+    /// The reader of the header, once complete: each row is read by it
+    /// (the header is parsed once, not again for every row).
+    reader: Option<Box<LogReader<Cursor<Vec<u8>>>>>,
 }
 
 impl V1 {
@@ -73,7 +76,7 @@ impl V1 {
 }
 
 /// The plain format, switching to log v1 when a log starts.
-#[derive(Debug, Clone)]
+// Not Clone: the v1 part holds a log reader.
 pub struct AutoDecoder {
     plain: PlainDecoder,
     v1: Option<V1>,
@@ -127,6 +130,7 @@ impl Decoder for AutoDecoder {
                 Ok(r) => {
                     v1.channels = r.channels();
                     v1.complete = true;
+                    v1.reader = Some(Box::new(r));
                     Vec::new()
                 }
                 Err(e) => {
@@ -140,11 +144,17 @@ impl Decoder for AutoDecoder {
             };
         }
         v1.rows += 1;
-        let mut doc = v1.header.clone();
-        doc.push_str(text);
-        doc.push('\n');
         let line_no = v1.header_lines + v1.rows;
-        match LogReader::new(Cursor::new(doc.into_bytes()), source).map(|mut r| r.next()) {
+        let parsed = match v1.reader.as_mut() {
+            Some(reader) => Ok(reader.read_row(line_no, text)),
+            None => {
+                let mut doc = v1.header.clone();
+                doc.push_str(text);
+                doc.push('\n');
+                LogReader::new(Cursor::new(doc.into_bytes()), source).map(|mut r| r.next())
+            }
+        };
+        match parsed {
             Ok(Some(Ok(row))) => {
                 let time = row.time;
                 let mut out = crate::log::row_events(row, &mut v1.gas);
