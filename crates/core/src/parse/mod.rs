@@ -348,7 +348,7 @@ mod tests {
 
     #[test]
     fn poll_string_escapes() {
-        assert_eq!(unescape("PR1\\r\\n"), Ok(b"PR1\r\n".to_vec()));
+        assert_eq!(unescape(":VX GET\\r\\n"), Ok(b":VX GET\r\n".to_vec()));
         assert_eq!(unescape("\\x05\\\\"), Ok(vec![5, b'\\']));
         assert!(unescape("bad\\q").is_err());
         assert!(unescape("\\x5").is_err());
