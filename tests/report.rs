@@ -337,3 +337,95 @@ fn a_log_that_starts_mid_fall_still_has_its_pump_down() {
     assert!((tau / 12.25 - 1.0).abs() < 0.05, "τ {tau} s");
     assert!(pd[0]["target_reached"].is_string(), "{pd:?}");
 }
+
+#[test]
+fn given_rate_of_rise_ranges_and_the_gauge_behind_each_number() {
+    // The leak-check's isolation starts at 09:00 (2 h after 07:00); its
+    // real leak is 2e-4 Pa·m³/s in 85 L (crates/core/src/sim/scenario.rs).
+    let v = json(&[
+        "sample-logs/leak-check.csv",
+        "--config",
+        "config/demo.toml",
+        "--rate-of-rise",
+        "09:02:00..09:09:00",
+    ]);
+    let given = &gauge(&v, "cdg")["rate_of_rise"][0];
+    assert_eq!(given["origin"], "given");
+    assert_eq!(given["gauge"], "cdg");
+    assert_eq!(given["start"], "2026-11-03T09:02:00.000Z");
+    assert_eq!(given["end"], "2026-11-03T09:09:00.000Z");
+    assert_eq!(given["verdict"], "leak");
+    let q = given["leak_rate_pa_m3_per_s"].as_f64().expect("Q");
+    assert!((q / 2e-4 - 1.0).abs() < 0.05, "Q {q}");
+    // The combined gauge: roughing on its thermal element, the tail on its
+    // ionization element, and a found rise split where the elements hand
+    // over (1e-3 mbar).
+    let chamber = gauge(&v, "chamber");
+    let pd = &chamber["pumpdowns"][0];
+    assert_eq!(pd["tau_gauge"], "chamber (thermal)");
+    assert_eq!(pd["tail_gauge"], "chamber (ionization)");
+    let found: Vec<&Value> = chamber["rate_of_rise"]
+        .as_array()
+        .expect("rises")
+        .iter()
+        .filter(|r| r["origin"] == "found")
+        .collect();
+    assert!(found.len() >= 2, "{found:?}");
+    for pair in found.windows(2) {
+        assert_ne!(pair[0]["gauge"], pair[1]["gauge"], "{found:?}");
+    }
+    // The chamber pressure's analysis: the capacitance gauge comes first
+    // whenever it is in range, so the isolation is fitted on it.
+    let cp = &v["chamber"];
+    assert_eq!(cp["rate_of_rise"][0]["origin"], "given");
+    assert_eq!(cp["rate_of_rise"][0]["gauge"], "cdg");
+    let last = cp["rate_of_rise"]
+        .as_array()
+        .and_then(|r| r.last())
+        .expect("a found rise");
+    assert_eq!(last["gauge"], "cdg");
+    assert_eq!(last["verdict"], "leak");
+    assert!(
+        cp["gauges_used"]
+            .as_array()
+            .expect("list")
+            .iter()
+            .any(|g| g == "cdg")
+    );
+}
+
+#[test]
+fn a_given_range_across_an_element_change_is_fitted_on_one_element() {
+    // The combined gauge hands over from ionization to thermal at 1e-3 mbar
+    // shortly after 09:00:40 in this log.
+    let v = json(&[
+        "sample-logs/leak-check.csv",
+        "--config",
+        "config/demo.toml",
+        "--rate-of-rise",
+        "09:00:00..09:09:00",
+    ]);
+    let r = &gauge(&v, "chamber")["rate_of_rise"][0];
+    assert_eq!(r["origin"], "given");
+    assert_eq!(r["gauge"], "chamber (thermal)", "{r}");
+    assert!(r["points_left_out"].as_u64().expect("n") > 0, "{r}");
+    assert!(
+        r["notes"].as_array().expect("notes").iter().any(|n| n
+            .as_str()
+            .is_some_and(|n| n.contains("from chamber (ionization)"))),
+        "{r}"
+    );
+}
+
+#[test]
+fn a_bad_rate_of_rise_range_is_a_usage_error() {
+    for (arg, says) in [
+        ("09:02:00", "two times joined by"),
+        ("09:09:00..09:02:00", "end must be later"),
+        ("09:02:00..soon", "--rate-of-rise"),
+    ] {
+        let (code, _, err) = report(&["sample-logs/leak-check.csv", "--rate-of-rise", arg]);
+        assert_eq!(code, 2, "{arg}: {err}");
+        assert!(err.contains(says), "{arg}: {err}");
+    }
+}

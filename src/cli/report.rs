@@ -1,8 +1,9 @@
 //! `rarefy report`: the diagnosis of a finished run, from one pass of its
-//! log(s) through the one pipeline (SPEC §7). Pump-down and rate-of-rise
-//! analysis are not part of it yet: their JSON arrays are empty.
+//! log(s) through the one pipeline (SPEC §7): per-gauge statistics, time in
+//! range and regime, thresholds, gaps, exposure, pump-downs and rate-of-rise
+//! segments, and the events.
 
-use rarefy_core::analysis::{Analysis, Target};
+use rarefy_core::analysis::{Analysis, Origin, Target};
 use std::io::Write;
 use std::path::PathBuf;
 
@@ -55,6 +56,11 @@ pub struct ReportArgs {
     /// (default: the config's, else the log header's).
     #[arg(long)]
     volume: Option<String>,
+    /// Analyse this time range as a rate-of-rise segment, e.g.
+    /// "10:02:00..10:12:00" (RFC 3339, or HH:MM:SS on the first day);
+    /// repeatable.
+    #[arg(long = "rate-of-rise", value_name = "T1..T2")]
+    rate_of_rise: Vec<String>,
     /// Intervals longer than this are gaps, e.g. "30 s" (default: 5 × the
     /// median interval).
     #[arg(long)]
@@ -166,6 +172,26 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
                 .and_then(|l| l.meta().volume_m3)
         }),
     };
+    let mut rise_ranges = Vec::new();
+    for r in &args.rate_of_rise {
+        let Some((a, b)) = r.split_once("..") else {
+            return Err(CliError::Usage(format!(
+                "--rate-of-rise {r:?}: expected two times joined by \"..\", e.g. 10:02:00..10:12:00"
+            )));
+        };
+        let (Some(a), Some(b)) = (
+            time("--rate-of-rise", &Some(a.trim().to_string()))?,
+            time("--rate-of-rise", &Some(b.trim().to_string()))?,
+        ) else {
+            continue;
+        };
+        if b <= a {
+            return Err(CliError::Usage(format!(
+                "--rate-of-rise {r:?}: the end must be later than the start"
+            )));
+        }
+        rise_ranges.push((a, b));
+    }
     let options = ReportOptions {
         gauge: args.gauge.clone(),
         from: time("--from", &args.from)?,
@@ -173,6 +199,8 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
         target_pa,
         gap_after_s,
         volume_m3,
+        origin: start,
+        rise_ranges,
     };
     let csv = match args.format {
         Format::Csv => Some(output(args.out.as_ref())?),
@@ -252,6 +280,27 @@ pub fn to_json(sink: &ReportSink, outcome: &WalkOutcome) -> Value {
             })
         })
         .collect();
+    let chamber = sink.chamber_analysis().map(|a| {
+        let mut used: Vec<&str> = a
+            .rises
+            .iter()
+            .map(|r| r.source.as_str())
+            .chain(a.pumpdowns.iter().flat_map(|p| {
+                p.roughing
+                    .iter()
+                    .map(|r| r.source.as_str())
+                    .chain(p.tail.iter().map(|t| t.source.as_str()))
+            }))
+            .collect();
+        used.sort_unstable();
+        used.dedup();
+        json!({
+            "method": "the best gauge in its range at each reading; no fit spans two gauges or elements",
+            "gauges_used": used,
+            "pumpdowns": pumpdowns_json(&a, origin),
+            "rate_of_rise": rises_json(&a, origin),
+        })
+    });
     json!({
         "files": outcome.files.iter().map(|f| f.display().to_string()).collect::<Vec<_>>(),
         "rows": outcome.rows,
@@ -261,6 +310,7 @@ pub fn to_json(sink: &ReportSink, outcome: &WalkOutcome) -> Value {
         "ambiguous_times": outcome.ambiguous_times,
         "median_method": "P² streaming estimate (Jain & Chlamtac 1985) on ln p",
         "gauges": gauges,
+        "chamber": chamber,
         "alarms": alarms,
     })
 }
@@ -296,10 +346,12 @@ fn pumpdowns_json(a: &Analysis, origin: Option<DateTime<Utc>>) -> Vec<Value> {
                 "start_pa": p.start_pa,
                 "min_pa": p.min_pa,
                 "tau_s": p.roughing.as_ref().map(|r| r.tau_s),
+                "tau_gauge": p.roughing.as_ref().map(|r| r.source.clone()),
                 "tau_r2": p.roughing.as_ref().map(|r| r.r2),
                 "pumping_speed_m3_per_s": p.roughing.as_ref().and_then(|r| r.pumping_speed_m3_per_s),
                 "tail_alpha": p.tail.as_ref().map(|t| t.alpha),
                 "tail_r2": p.tail.as_ref().map(|t| t.r2),
+                "tail_gauge": p.tail.as_ref().map(|t| t.source.clone()),
                 "target_reached": reached,
                 "target_predicted": predicted,
                 "target_band": band,
@@ -314,6 +366,10 @@ fn rises_json(a: &Analysis, origin: Option<DateTime<Utc>>) -> Vec<Value> {
         .iter()
         .map(|r| {
             json!({
+                "origin": match r.origin { Origin::Given => "given", Origin::Found => "found" },
+                "gauge": r.source,
+                "points": r.points,
+                "points_left_out": r.left_out,
                 "start": at(origin, r.from_s),
                 "end": at(origin, r.to_s),
                 "start_pa": r.start_pa,
@@ -371,6 +427,123 @@ fn gauge_json(g: &GaugeSummary, a: &Analysis, origin: Option<DateTime<Utc>>) -> 
         "rate_of_rise": rises_json(a, origin),
         "exposure_langmuir": g.exposure_langmuir,
     })
+}
+
+/// ", from GAUGE" when the fit names its gauge.
+fn from_gauge(source: &str) -> String {
+    if source.is_empty() {
+        String::new()
+    } else {
+        format!(", from {source}")
+    }
+}
+
+/// Pump-downs and rate-of-rise segments as text lines, each number with
+/// the gauge it came from.
+fn analysis_text(
+    s: &mut String,
+    a: &Analysis,
+    when: &dyn Fn(f64) -> String,
+    p: &dyn Fn(Option<f64>) -> String,
+) {
+    use std::fmt::Write as _;
+    for pd in &a.pumpdowns {
+        let _ = write!(
+            s,
+            "  pump-down from {} at {}",
+            p(Some(pd.start_pa)),
+            when(pd.start_s)
+        );
+        if let Some(r) = &pd.roughing {
+            let _ = write!(
+                s,
+                ": roughing τ {:.1} s (R² {:.4}{})",
+                r.tau_s,
+                r.r2,
+                from_gauge(&r.source)
+            );
+            if let Some(sp) = r.pumping_speed_m3_per_s {
+                let _ = write!(s, ", pumping speed {:.3} L/s", sp * 1000.0);
+            }
+        }
+        if let Some(tl) = &pd.tail {
+            let _ = write!(
+                s,
+                "; tail p ∝ t^-{:.2} (R² {:.3}{})",
+                tl.alpha,
+                tl.r2,
+                from_gauge(&tl.source)
+            );
+        }
+        match &pd.target {
+            Some(Target::Reached { at_s, .. }) => {
+                let _ = write!(s, "; target reached {}", when(*at_s));
+            }
+            Some(Target::Predicted {
+                after_s,
+                after_low_s,
+                after_high_s,
+                ..
+            }) => {
+                let _ = write!(
+                    s,
+                    "; target predicted {} ({} to {})",
+                    when(pd.start_s + after_s),
+                    when(pd.start_s + after_low_s),
+                    when(pd.start_s + after_high_s)
+                );
+            }
+            Some(Target::NotPredictable { reason }) => {
+                let _ = write!(s, "; target not predictable: {reason}");
+            }
+            None => {}
+        }
+        let _ = writeln!(s);
+        for n in &pd.notes {
+            let _ = writeln!(s, "    note: {n}");
+        }
+    }
+    for r in &a.rises {
+        let _ = write!(
+            s,
+            "  rate of rise {} → {}{}{}: ",
+            when(r.from_s),
+            when(r.to_s),
+            if r.origin == Origin::Given {
+                " (given)"
+            } else {
+                ""
+            },
+            if r.source.is_empty() {
+                String::new()
+            } else {
+                format!(" on {}", r.source)
+            }
+        );
+        if let Some(d) = r.dp_dt_pa_per_s {
+            let _ = write!(s, "dp/dt {d:.3e} Pa/s");
+        }
+        match &r.leak_rate {
+            Some(l) => {
+                let _ = write!(
+                    s,
+                    ", Q {:.3e} Pa·m³/s = {:.3e} mbar·L/s",
+                    l.pa_m3_per_s, l.mbar_l_per_s
+                );
+            }
+            None => {
+                let _ = write!(s, " (give --volume for the leak rate)");
+            }
+        }
+        let _ = write!(s, "; verdict {}", r.verdict.as_str());
+        if let Some(sh) = &r.shape {
+            let _ = write!(s, " (late/early slope {:.2})", sh.ratio);
+        }
+        let _ = writeln!(s);
+        for n in r.notes.iter().filter(|n| n.starts_with("fitted on")) {
+            let _ = writeln!(s, "    note: {n}");
+        }
+    }
 }
 
 fn to_text(sink: &ReportSink, outcome: &WalkOutcome, unit: PressureUnit) -> String {
@@ -462,70 +635,14 @@ fn to_text(sink: &ReportSink, outcome: &WalkOutcome, unit: PressureUnit) -> Stri
         if let Some(e) = g.exposure_langmuir {
             let _ = writeln!(s, "  exposure: {e:.3e} L");
         }
-        for pd in &a.pumpdowns {
-            let _ = write!(
-                s,
-                "  pump-down from {} at {}",
-                p(Some(pd.start_pa)),
-                when(pd.start_s)
-            );
-            if let Some(r) = &pd.roughing {
-                let _ = write!(s, ": roughing τ {:.1} s (R² {:.4})", r.tau_s, r.r2);
-                if let Some(sp) = r.pumping_speed_m3_per_s {
-                    let _ = write!(s, ", pumping speed {:.3} L/s", sp * 1000.0);
-                }
-            }
-            if let Some(tl) = &pd.tail {
-                let _ = write!(s, "; tail p ∝ t^-{:.2} (R² {:.3})", tl.alpha, tl.r2);
-            }
-            match &pd.target {
-                Some(Target::Reached { at_s, .. }) => {
-                    let _ = write!(s, "; target reached {}", when(*at_s));
-                }
-                Some(Target::Predicted {
-                    after_s,
-                    after_low_s,
-                    after_high_s,
-                    ..
-                }) => {
-                    let _ = write!(
-                        s,
-                        "; target predicted {} ({} to {})",
-                        when(pd.start_s + after_s),
-                        when(pd.start_s + after_low_s),
-                        when(pd.start_s + after_high_s)
-                    );
-                }
-                Some(Target::NotPredictable { reason }) => {
-                    let _ = write!(s, "; target not predictable: {reason}");
-                }
-                None => {}
-            }
-            let _ = writeln!(s);
-        }
-        for r in &a.rises {
-            let _ = write!(s, "  rate of rise {} → {}: ", when(r.from_s), when(r.to_s));
-            if let Some(d) = r.dp_dt_pa_per_s {
-                let _ = write!(s, "dp/dt {d:.3e} Pa/s");
-            }
-            match &r.leak_rate {
-                Some(l) => {
-                    let _ = write!(
-                        s,
-                        ", Q {:.3e} Pa·m³/s = {:.3e} mbar·L/s",
-                        l.pa_m3_per_s, l.mbar_l_per_s
-                    );
-                }
-                None => {
-                    let _ = write!(s, " (give --volume for the leak rate)");
-                }
-            }
-            let _ = write!(s, "; verdict {}", r.verdict.as_str());
-            if let Some(sh) = &r.shape {
-                let _ = write!(s, " (late/early slope {:.2})", sh.ratio);
-            }
-            let _ = writeln!(s);
-        }
+        analysis_text(&mut s, a, &when, &p);
+    }
+    if let Some(a) = sink.chamber_analysis() {
+        let _ = writeln!(
+            s,
+            "\nChamber pressure (the best gauge in range at each reading; no fit spans two gauges)"
+        );
+        analysis_text(&mut s, &a, &when, &p);
     }
     let _ = writeln!(s, "\nEvents ({})", sink.events().len());
     for e in sink.events() {
@@ -541,7 +658,7 @@ fn to_text(sink: &ReportSink, outcome: &WalkOutcome, unit: PressureUnit) -> Stri
     }
     let _ = writeln!(
         s,
-        "\nMedian: P² streaming estimate (Jain & Chlamtac 1985) on ln p. Pump-down and rate-of-rise analysis: not yet."
+        "\nMedian: P² streaming estimate (Jain & Chlamtac 1985) on ln p."
     );
     s
 }

@@ -20,7 +20,8 @@ use crate::log::{ForeignLogSpec, LogError, LogSource};
 use crate::logfile::open_log;
 use crate::report::{GaugeAccumulator, GaugeSummary, Observation, Threshold, Unusable};
 use crate::sample::{SourceEvent, Status};
-use rarefy_core::analysis::{Analysis, AnalysisOptions, Analyzer, PumpDownOptions};
+use rarefy_core::analysis::{Analysis, AnalysisOptions, Analyzer, PumpDownOptions, RiseOptions};
+use rarefy_core::engine::gauge::GaugeKind;
 
 /// How many reader messages a report keeps to show (all are counted).
 pub const MESSAGES_KEPT: usize = 50;
@@ -40,6 +41,12 @@ pub struct ReportOptions {
     pub gap_after_s: Option<f64>,
     /// Chamber volume, m³, for pumping speeds and leak rates.
     pub volume_m3: Option<f64>,
+    /// Time the analyses' seconds count from (default: the first reading
+    /// counted).
+    pub origin: Option<DateTime<Utc>>,
+    /// Time ranges to analyse as rate-of-rise segments, whatever the
+    /// pressure does.
+    pub rise_ranges: Vec<(DateTime<Utc>, DateTime<Utc>)>,
 }
 
 /// The pipeline's report sink: per-gauge accumulators, the events, and
@@ -49,6 +56,11 @@ pub struct ReportSink {
     gauges: Vec<GaugeAccumulator>,
     /// Pump-down and rate-of-rise analysis per gauge (same order).
     analyzers: Vec<Analyzer>,
+    /// The same analysis of the chamber pressure: at each reading, the best
+    /// gauge in its range ([`crate::alarm::chamber`]).
+    chamber: Option<Analyzer>,
+    /// Pressure gauges seen.
+    pressure_gauges: usize,
     /// Time origin of the analyses' seconds: the first reading.
     origin: Option<DateTime<Utc>>,
     index: BTreeMap<String, usize>,
@@ -64,10 +76,12 @@ impl ReportSink {
     /// derived columns.
     pub fn new(options: ReportOptions, csv: Option<Box<dyn Write + Send>>) -> Self {
         ReportSink {
+            origin: options.origin,
             options,
             gauges: Vec::new(),
             analyzers: Vec::new(),
-            origin: None,
+            chamber: None,
+            pressure_gauges: 0,
             index: BTreeMap::new(),
             events: Vec::new(),
             notes: Vec::new(),
@@ -169,6 +183,39 @@ impl ReportSink {
             .collect()
     }
 
+    /// The analysis of the chamber pressure (the best gauge in range at
+    /// each reading, no fit spanning two gauges), when the log has more than
+    /// one pressure gauge.
+    pub fn chamber_analysis(&self) -> Option<Analysis> {
+        self.chamber
+            .clone()
+            .filter(|_| self.pressure_gauges > 1)
+            .map(Analyzer::finish)
+    }
+
+    /// A new analyzer with the report's options (the origin is known).
+    fn analyzer(&self) -> Analyzer {
+        let origin = self.origin;
+        let secs =
+            |t: DateTime<Utc>| origin.map_or(0.0, |o| (t - o).num_milliseconds() as f64 / 1000.0);
+        Analyzer::new(AnalysisOptions {
+            volume_m3: self.options.volume_m3,
+            pumpdown: PumpDownOptions {
+                target_pa: self.options.target_pa,
+                ..PumpDownOptions::default()
+            },
+            rise: RiseOptions {
+                ranges: self
+                    .options
+                    .rise_ranges
+                    .iter()
+                    .map(|(a, b)| (secs(*a), secs(*b)))
+                    .collect(),
+                ..RiseOptions::default()
+            },
+        })
+    }
+
     /// The data time the analyses' seconds count from.
     pub fn origin(&self) -> Option<DateTime<Utc>> {
         self.origin
@@ -183,6 +230,48 @@ impl ReportSink {
     /// Problems the pipeline reported (a gas column naming no gas …).
     pub fn notes(&self) -> &[String] {
         &self.notes
+    }
+}
+
+impl ReportSink {
+    /// Feeds the chamber pressure to its analysis when this row holds a
+    /// reading of the gauge it comes from now.
+    fn push_chamber(&mut self, samples: &[crate::sample::Sample], monitor: &Monitor) {
+        let Some((source, track)) = monitor.chamber_track(&Quantity::Pressure) else {
+            return;
+        };
+        let Some(s) = samples.iter().find(|s| s.channel == source.gauge) else {
+            return;
+        };
+        let (Some(p), Some(origin)) = (track.pressure_pa, self.origin) else {
+            return;
+        };
+        if !self.in_window(s.time) || track.uncorrectable {
+            return;
+        }
+        if self.chamber.is_none() {
+            self.chamber = Some(self.analyzer());
+        }
+        if let Some(a) = self.chamber.as_mut() {
+            let src = a.source(&source_name(&s.channel, monitor));
+            a.push_from((s.time - origin).num_milliseconds() as f64 / 1000.0, p, src);
+        }
+    }
+}
+
+/// The name a gauge's readings carry in the analysis: its id, and for a
+/// combined gauge the element that read (its two elements step where they
+/// hand over, so no fit may span them).
+fn source_name(id: &str, monitor: &Monitor) -> String {
+    let kind = monitor
+        .setup()
+        .gauges
+        .iter()
+        .find(|g| g.id == id)
+        .map(|g| g.model.kind);
+    match (kind, monitor.track(id).and_then(|t| t.indicated)) {
+        (Some(k @ GaugeKind::Combined), Some(v)) => format!("{id} ({})", k.element(v)),
+        _ => id.to_string(),
     }
 }
 
@@ -238,14 +327,12 @@ impl Sink for ReportSink {
                                 th,
                                 self.options.gap_after_s,
                             ));
-                            self.analyzers.push(Analyzer::new(AnalysisOptions {
-                                volume_m3: self.options.volume_m3,
-                                pumpdown: PumpDownOptions {
-                                    target_pa: self.options.target_pa,
-                                    ..PumpDownOptions::default()
-                                },
-                                ..AnalysisOptions::default()
-                            }));
+                            self.origin.get_or_insert(s.time);
+                            let a = self.analyzer();
+                            self.analyzers.push(a);
+                            if track.is_some_and(|t| t.is_pressure) {
+                                self.pressure_gauges += 1;
+                            }
                             self.index.insert(s.channel.clone(), self.gauges.len() - 1);
                             self.gauges.len() - 1
                         }
@@ -253,13 +340,16 @@ impl Sink for ReportSink {
                     // The gauge's true pressure, on seconds from the first
                     // reading, to the pump-down and rate-of-rise analysis.
                     let origin = *self.origin.get_or_insert(s.time);
+                    let t_s = (s.time - origin).num_milliseconds() as f64 / 1000.0;
                     if let (Some(p), Some(a)) = (pressure_pa, self.analyzers.get_mut(i)) {
-                        a.push((s.time - origin).num_milliseconds() as f64 / 1000.0, p);
+                        let src = a.source(&source_name(&s.channel, monitor));
+                        a.push_from(t_s, p, src);
                     }
                     if let Some(g) = self.gauges.get_mut(i) {
                         g.add(obs);
                     }
                 }
+                self.push_chamber(samples, monitor);
             }
             Item::Event(e) => {
                 if self.in_window(e.time) {

@@ -185,6 +185,11 @@ impl Thinned {
         &self.points
     }
 
+    /// Points offered so far (kept or not).
+    pub fn seen(&self) -> u64 {
+        self.seen
+    }
+
     /// Forgets every point.
     pub fn clear(&mut self) {
         self.stride = 1;

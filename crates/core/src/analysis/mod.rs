@@ -4,7 +4,16 @@
 //! target, [`pumpdown`]).
 //!
 //! Streaming: feed `(t_s, p_pa)` points in time order to an [`Analyzer`],
-//! then call [`Analyzer::finish`]. Memory stays bounded whatever the length
+//! then call [`Analyzer::finish`].
+//!
+//! A series may be made of several gauges, or of a combined gauge's two
+//! elements: at the change the readings step, and that step is not physics.
+//! So each point may carry its source ([`Analyzer::source`],
+//! [`Analyzer::push_from`]); no fit spans two sources. A rate-of-rise
+//! segment ends where the source changes; a given range, the roughing fit
+//! and the tail are fitted on the one source with the most points (for the
+//! tail: the source of its lowest readings), and every result names the
+//! source it came from. Memory stays bounded whatever the length
 //! of the series: straight-line fits keep running sums, and the only stored
 //! points are, per open segment, a [`fit::Thinned`] buffer of at most a few
 //! thousand points that halves its density whenever it fills.
@@ -47,6 +56,10 @@ pub struct AnalysisOptions {
     pub pumpdown: PumpDownOptions,
 }
 
+/// The number an [`Analyzer`] gives a source of points (see
+/// [`Analyzer::source`]).
+pub type SourceId = u32;
+
 /// Everything found in one gauge's series.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Analysis {
@@ -68,6 +81,7 @@ pub struct Analyzer {
     last_t: Option<f64>,
     points: usize,
     ignored: usize,
+    sources: Vec<String>,
 }
 
 impl Analyzer {
@@ -79,6 +93,21 @@ impl Analyzer {
             last_t: None,
             points: 0,
             ignored: 0,
+            sources: vec![String::new()],
+        }
+    }
+
+    /// The id of the source named `name` (a gauge, or a gauge's element),
+    /// numbered on first use. Source 0 is the unnamed one [`Analyzer::push`]
+    /// uses.
+    pub fn source(&mut self, name: &str) -> SourceId {
+        match self.sources.iter().position(|s| s == name) {
+            Some(i) => i as SourceId,
+            None => {
+                self.sources.push(name.to_string());
+                self.pumpdown.add_source(name);
+                (self.sources.len() - 1) as SourceId
+            }
         }
     }
 
@@ -86,6 +115,11 @@ impl Analyzer {
     /// that are not finite, not positive, or not later than the previous one
     /// are counted and ignored.
     pub fn push(&mut self, t_s: f64, p_pa: f64) {
+        self.push_from(t_s, p_pa, 0);
+    }
+
+    /// Feeds one reading from source `src` (see [`Analyzer::source`]).
+    pub fn push_from(&mut self, t_s: f64, p_pa: f64, src: SourceId) {
         let in_order = self.last_t.is_none_or(|last| t_s > last);
         if !t_s.is_finite() || !p_pa.is_finite() || p_pa <= 0.0 || !in_order {
             self.ignored += 1;
@@ -93,14 +127,14 @@ impl Analyzer {
         }
         self.last_t = Some(t_s);
         self.points += 1;
-        self.rise.push(t_s, p_pa);
-        self.pumpdown.push(t_s, p_pa);
+        self.rise.push(t_s, p_pa, src);
+        self.pumpdown.push(t_s, p_pa, src);
     }
 
     /// The results.
     pub fn finish(self) -> Analysis {
         Analysis {
-            rises: self.rise.finish(),
+            rises: self.rise.finish(&self.sources),
             pumpdowns: self.pumpdown.finish(),
             points: self.points,
             ignored: self.ignored,

@@ -2,6 +2,7 @@
 //! high-vacuum tail's power law and when a target pressure is (or will be)
 //! reached.
 
+use super::SourceId;
 use super::fit::{Line, LineSums, Thinned};
 
 /// Points kept per pump-down for the tail fit (see [`super::fit::Thinned`]).
@@ -44,7 +45,7 @@ impl Default for PumpDownOptions {
 /// The exponential roughing phase: ln p = a − (t − t₀)/τ, so τ = −1/b with
 /// SE(τ) = SE(b)/b², and the effective pumping speed S = V/τ (from
 /// V dp/dt = −S p with a negligible gas load).
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct Roughing {
     /// τ, s.
     pub tau_s: f64,
@@ -56,12 +57,15 @@ pub struct Roughing {
     pub points: usize,
     /// S = V/τ, m³/s, when the volume is known.
     pub pumping_speed_m3_per_s: Option<f64>,
+    /// The source the fit's points came from (the one with the most points
+    /// in the span; empty when the caller named none).
+    pub source: String,
 }
 
 /// The high-vacuum tail p = c·(t − t₀)^(−α), fitted as
 /// ln p = ln c − α ln(t − t₀) over its last decade of elapsed time (the
 /// points with t − t₀ ≥ one tenth of the last elapsed time).
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct Tail {
     /// α.
     pub alpha: f64,
@@ -73,6 +77,9 @@ pub struct Tail {
     pub points: usize,
     /// First and last elapsed time in the fit, s.
     pub span_s: (f64, f64),
+    /// The source of the tail's points: the source of its last readings
+    /// (the tail restarts where the source changes).
+    pub source: String,
 }
 
 /// Whether and when the target pressure is reached.
@@ -133,8 +140,12 @@ struct Current {
     confirmed: bool,
     below_rough: bool,
     min_pa: f64,
-    rough: LineSums,
+    /// Roughing sums per source.
+    rough: Vec<(SourceId, LineSums)>,
     tail: Thinned,
+    tail_source: Option<SourceId>,
+    /// Tail points dropped at changes of source.
+    tail_dropped: usize,
     tail_min: f64,
     tail_ended: bool,
     reached: Option<f64>,
@@ -147,6 +158,8 @@ pub struct PumpDownFinder {
     volume_m3: Option<f64>,
     current: Option<Current>,
     done: Vec<PumpDown>,
+    /// Names of the sources by id (id 0: unnamed).
+    names: Vec<String>,
 }
 
 impl PumpDownFinder {
@@ -157,11 +170,17 @@ impl PumpDownFinder {
             volume_m3: volume_m3.filter(|v| v.is_finite() && *v > 0.0),
             current: None,
             done: Vec::new(),
+            names: vec![String::new()],
         }
     }
 
-    /// Feeds one point, in time order.
-    pub fn push(&mut self, t: f64, p: f64) {
+    /// Names the next source id (ids count from 1; 0 is unnamed).
+    pub fn add_source(&mut self, name: &str) {
+        self.names.push(name.to_string());
+    }
+
+    /// Feeds one point from source `src`, in time order.
+    pub fn push(&mut self, t: f64, p: f64, src: SourceId) {
         let o = &self.opts;
         if p >= o.start_pa {
             match self.current.as_mut() {
@@ -187,8 +206,10 @@ impl PumpDownFinder {
                         confirmed: false,
                         below_rough: false,
                         min_pa: p,
-                        rough: LineSums::new(),
+                        rough: Vec::new(),
                         tail: Thinned::new(TAIL_BUFFER),
+                        tail_source: None,
+                        tail_dropped: 0,
                         tail_min: f64::INFINITY,
                         tail_ended: false,
                         reached: None,
@@ -206,7 +227,14 @@ impl PumpDownFinder {
         if p < lo {
             c.below_rough = true;
         } else if p < hi && !c.below_rough {
-            c.rough.push(t - c.t0, p.ln());
+            match c.rough.iter_mut().find(|(s, _)| *s == src) {
+                Some((_, sums)) => sums.push(t - c.t0, p.ln()),
+                None => {
+                    let mut sums = LineSums::new();
+                    sums.push(t - c.t0, p.ln());
+                    c.rough.push((src, sums));
+                }
+            }
         }
         if p < o.sustain_pa {
             c.confirmed = true;
@@ -221,14 +249,36 @@ impl PumpDownFinder {
             if p > 3.0 * c.tail_min {
                 c.tail_ended = true;
             } else if p <= o.tail_below_pa && t > c.t0 {
+                if c.tail_source.is_some_and(|s| s != src) {
+                    // A change of gauge or element: the fit restarts.
+                    c.tail_dropped += c.tail.seen() as usize;
+                    c.tail.clear();
+                }
+                c.tail_source = Some(src);
                 c.tail.push((t - c.t0).ln(), p.ln());
             }
         }
     }
 
     fn close(&self, c: Current) -> PumpDown {
+        let name = |id: SourceId| self.names.get(id as usize).cloned().unwrap_or_default();
         let mut notes = Vec::new();
-        let roughing = match c.rough.fit() {
+        let best = c.rough.iter().max_by_key(|(_, s)| s.len());
+        let rough_source = best.map(|(s, _)| name(*s)).unwrap_or_default();
+        let rough = best.map(|(_, s)| *s).unwrap_or_default();
+        let others: Vec<String> = c
+            .rough
+            .iter()
+            .filter(|(s, _)| best.is_some_and(|(b, _)| b != s))
+            .map(|(s, sums)| format!("{} from {}", sums.len(), name(*s)))
+            .collect();
+        if !others.is_empty() {
+            notes.push(format!(
+                "roughing fitted on {rough_source} only; left out {}",
+                others.join(", ")
+            ));
+        }
+        let roughing = match rough.fit() {
             Some(l) if l.slope < 0.0 => {
                 let tau = -1.0 / l.slope;
                 Some(Roughing {
@@ -237,12 +287,13 @@ impl PumpDownFinder {
                     r2: l.r2,
                     points: l.n,
                     pumping_speed_m3_per_s: self.volume_m3.map(|v| v / tau),
+                    source: rough_source.clone(),
                 })
             }
             _ => {
                 notes.push(format!(
                     "roughing time constant not measurable: {} points between {:.0e} and {:.0e} Pa",
-                    c.rough.len(),
+                    rough.len(),
                     self.opts.roughing_span_pa.0,
                     self.opts.roughing_span_pa.1
                 ));
@@ -267,7 +318,15 @@ impl PumpDownFinder {
                 late.first().map(|p| p.0.exp()).unwrap_or(f64::NAN),
                 late.last().map(|p| p.0.exp()).unwrap_or(f64::NAN),
             ),
+            source: c.tail_source.map(name).unwrap_or_default(),
         });
+        if c.tail_dropped > 0 {
+            notes.push(format!(
+                "tail fitted on {} only, after the last change of gauge or element ({} earlier points left out)",
+                c.tail_source.map(name).unwrap_or_default(),
+                c.tail_dropped
+            ));
+        }
         if tail.is_none() {
             notes.push(format!(
                 "no high-vacuum tail: fewer than 3 points at or below {:.0e} Pa",

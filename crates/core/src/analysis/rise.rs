@@ -1,6 +1,7 @@
 //! Rate of rise: an isolated chamber's pressure rise, its slope, the gas load
 //! it means and whether it looks like a leak or like outgassing.
 
+use super::SourceId;
 use super::fit::{Line, LineSums, Thinned};
 
 /// One mbar·L/s in Pa·m³/s: 100 Pa × 1e-3 m³ = 0.1 Pa·m³/s (by definition of
@@ -139,6 +140,12 @@ impl LeakRate {
 pub struct RateOfRise {
     /// Found or given.
     pub origin: Origin,
+    /// The source every point of the fit came from (a gauge, or a gauge's
+    /// element; empty when the caller named none).
+    pub source: String,
+    /// Points in the time range left out because they came from other
+    /// sources (given ranges only).
+    pub left_out: usize,
     /// Time of the first point, s.
     pub from_s: f64,
     /// Time of the last point, s.
@@ -169,6 +176,7 @@ pub struct RateOfRise {
 #[derive(Debug, Clone)]
 struct Segment {
     origin: Origin,
+    source: SourceId,
     t0: f64,
     first: (f64, f64),
     last: (f64, f64),
@@ -178,9 +186,10 @@ struct Segment {
 }
 
 impl Segment {
-    fn new(origin: Origin, t: f64, p: f64) -> Self {
+    fn new(origin: Origin, source: SourceId, t: f64, p: f64) -> Self {
         let mut s = Segment {
             origin,
+            source,
             t0: t,
             first: (t, p),
             last: (t, p),
@@ -214,14 +223,15 @@ pub struct RiseFinder {
     opts: RiseOptions,
     volume_m3: Option<f64>,
     candidate: Option<Segment>,
-    given: Vec<Option<Segment>>,
-    done: Vec<RateOfRise>,
+    /// Per given range, a segment per source seen in it.
+    given: Vec<Vec<Segment>>,
+    done: Vec<(SourceId, RateOfRise)>,
 }
 
 impl RiseFinder {
     /// A finder with these options; `volume_m3` turns slopes into gas loads.
     pub fn new(opts: RiseOptions, volume_m3: Option<f64>) -> Self {
-        let given = vec![None; opts.ranges.len()];
+        let given = vec![Vec::new(); opts.ranges.len()];
         RiseFinder {
             opts,
             volume_m3: volume_m3.filter(|v| v.is_finite() && *v > 0.0),
@@ -231,13 +241,14 @@ impl RiseFinder {
         }
     }
 
-    /// Feeds one point (time order; others are ignored by the caller).
-    pub fn push(&mut self, t: f64, p: f64) {
-        for (range, slot) in self.opts.ranges.iter().zip(self.given.iter_mut()) {
+    /// Feeds one point from source `src` (time order; others are ignored
+    /// by the caller). A found segment ends where the source changes.
+    pub fn push(&mut self, t: f64, p: f64, src: SourceId) {
+        for (range, segs) in self.opts.ranges.iter().zip(self.given.iter_mut()) {
             if t >= range.0 && t <= range.1 {
-                match slot {
+                match segs.iter_mut().find(|s| s.source == src) {
                     Some(seg) => seg.push(t, p),
-                    None => *slot = Some(Segment::new(Origin::Given, t, p)),
+                    None => segs.push(Segment::new(Origin::Given, src, t, p)),
                 }
             }
         }
@@ -247,7 +258,8 @@ impl RiseFinder {
         let restart = match &self.candidate {
             None => true,
             Some(seg) => {
-                t - seg.last.0 > self.opts.max_gap_s
+                seg.source != src
+                    || t - seg.last.0 > self.opts.max_gap_s
                     || p < seg.first.1
                     || p < seg.max_pa * (1.0 - self.opts.dip_tolerance)
             }
@@ -257,7 +269,7 @@ impl RiseFinder {
                 self.close_candidate(seg);
             }
             if p <= self.opts.max_start_pa {
-                self.candidate = Some(Segment::new(Origin::Found, t, p));
+                self.candidate = Some(Segment::new(Origin::Found, src, t, p));
             }
         } else if let Some(seg) = self.candidate.as_mut() {
             seg.push(t, p);
@@ -271,23 +283,48 @@ impl RiseFinder {
         if long_enough && rose {
             let r = analyse(&seg, self.volume_m3, self.opts.linear_band);
             if r.dp_dt_pa_per_s.is_some_and(|b| b > 0.0) {
-                self.done.push(r);
+                self.done.push((seg.source, r));
             }
         }
     }
 
     /// Closes any open segment and returns every segment, given ranges first
-    /// (in the order given), then found ones in time order.
-    pub fn finish(mut self) -> Vec<RateOfRise> {
+    /// (in the order given), then found ones in time order. `names`: the
+    /// sources' names by id.
+    pub fn finish(mut self, names: &[String]) -> Vec<RateOfRise> {
         if let Some(seg) = self.candidate.take() {
             self.close_candidate(seg);
         }
+        let name = |id: SourceId| names.get(id as usize).cloned().unwrap_or_default();
         let mut out = Vec::new();
-        for (range, slot) in self.opts.ranges.iter().zip(&self.given) {
-            match slot {
-                Some(seg) => out.push(analyse(seg, self.volume_m3, self.opts.linear_band)),
+        for (range, segs) in self.opts.ranges.iter().zip(&self.given) {
+            // The best source for the span: the one with the most points.
+            let best = segs.iter().max_by_key(|s| s.sums.len());
+            match best {
+                Some(seg) => {
+                    let mut r = analyse(seg, self.volume_m3, self.opts.linear_band);
+                    r.source = name(seg.source);
+                    let others: Vec<&Segment> =
+                        segs.iter().filter(|s| s.source != seg.source).collect();
+                    r.left_out = others.iter().map(|s| s.sums.len()).sum();
+                    if !others.is_empty() {
+                        let list: Vec<String> = others
+                            .iter()
+                            .map(|s| format!("{} from {}", s.sums.len(), name(s.source)))
+                            .collect();
+                        r.notes.push(format!(
+                            "fitted on {} only; left out {} (a change of gauge or element \
+                             steps the readings, which is not physics)",
+                            r.source,
+                            list.join(", ")
+                        ));
+                    }
+                    out.push(r);
+                }
                 None => out.push(RateOfRise {
                     origin: Origin::Given,
+                    source: String::new(),
+                    left_out: 0,
                     from_s: range.0,
                     to_s: range.1,
                     points: 0,
@@ -303,7 +340,10 @@ impl RiseFinder {
                 }),
             }
         }
-        out.append(&mut self.done);
+        out.extend(self.done.into_iter().map(|(src, mut r)| {
+            r.source = name(src);
+            r
+        }));
         out
     }
 }
@@ -390,6 +430,8 @@ fn analyse(seg: &Segment, volume_m3: Option<f64>, band: f64) -> RateOfRise {
     };
     RateOfRise {
         origin: seg.origin,
+        source: String::new(),
+        left_out: 0,
         from_s: seg.first.0,
         to_s: seg.last.0,
         points: seg.sums.len(),
