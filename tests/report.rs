@@ -429,3 +429,57 @@ fn a_bad_rate_of_rise_range_is_a_usage_error() {
         assert!(err.contains(says), "{arg}: {err}");
     }
 }
+
+#[test]
+fn operator_actions_from_the_event_log_stand_beside_the_events() {
+    // A live run's event log beside its recording: an acknowledgement and a
+    // threshold change inside the run, one action after it (another run),
+    // and a line that is not an event. Lines as `rarefy record` writes
+    // them (docs/event.schema.json).
+    let log = std::fs::read_to_string(root().join("sample-logs/leak-check.csv")).expect("log");
+    let dir = std::env::temp_dir().join(format!("rarefy-report-ops-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("dir");
+    let path = dir.join("leak-check.csv");
+    std::fs::write(&path, log).expect("write");
+    let events = [
+        r#"{"v":1,"time":"2026-11-03T09:04:00.000Z","wall_time":"2026-11-03T09:04:01.250Z","kind":"alarm","from":"unacknowledged","to":"acknowledged","id":"cdg-rise","label":"Leak-check rise","operation":"acknowledge","user":"tamsin","text":"acknowledged by tamsin"}"#,
+        "not an event",
+        r#"{"v":1,"time":"2026-11-03T09:06:30.000Z","wall_time":"2026-11-03T09:06:31.000Z","kind":"setting","from":"5.00e-3 mbar","to":"8.00e-3 mbar","id":"cdg-rise","label":"Leak-check rise","operation":"set-threshold","user":"tamsin","text":"threshold changed"}"#,
+        r#"{"v":1,"time":"2026-11-04T10:00:00.000Z","kind":"setting","from":"1 h","to":"2 h","id":"g","label":"g","operation":"set-hold","user":"ines","text":"later run"}"#,
+    ];
+    for e in [events[0], events[2], events[3]] {
+        rarefy::alarm::Event::from_json(e).expect("a real event line");
+    }
+    let ev_path = dir.join("events-20261103T090400Z.jsonl");
+    std::fs::write(&ev_path, events.join("\n") + "\n").expect("write");
+    let p = path.to_str().expect("utf-8");
+    let (code, out, err) = report(&[p, "--config", "config/demo.toml", "--format", "json"]);
+    assert!(code == 0 || code == 3, "{err}");
+    assert!(
+        err.contains("events-20261103T090400Z.jsonl:2: expected an event"),
+        "{err}"
+    );
+    let v: Value = serde_json::from_str(&out).expect("json");
+    let ops = v["operator_actions"].as_array().expect("actions");
+    assert_eq!(ops.len(), 2, "{ops:?}");
+    assert_eq!(ops[0]["operation"], "acknowledge");
+    assert_eq!(ops[0]["user"], "tamsin");
+    assert_eq!(ops[1]["operation"], "set-threshold");
+    assert_eq!(ops[1]["to"], "8.00e-3 mbar");
+    // Text: the actions in the event list, in time order.
+    let (_, out, _) = report(&[p, "--config", "config/demo.toml"]);
+    let ack = out
+        .find("operator tamsin: acknowledge cdg-rise")
+        .expect(&out);
+    let set = out
+        .find("operator tamsin: set-threshold cdg-rise")
+        .expect(&out);
+    assert!(ack < set);
+    assert!(!out.contains("operator ines"), "{out}");
+    // --events names the log explicitly; one that does not exist is said.
+    let (_, _, err) = report(&[p, "--events", "no-such-events.jsonl"]);
+    assert!(
+        err.contains("no-such-events.jsonl: cannot open the event log"),
+        "{err}"
+    );
+}

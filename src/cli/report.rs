@@ -13,7 +13,10 @@ use serde_json::{Value, json};
 
 use super::watch::log_config;
 use super::{CliError, ExitCode};
-use crate::pipeline::report::{ReportOptions, ReportSink, WalkOutcome, walk};
+use crate::pipeline::report::{
+    OperatorActions, ReportOptions, ReportSink, WalkOutcome, event_logs_beside, operator_actions,
+    walk,
+};
 use crate::report::GaugeSummary;
 use crate::timefmt::write_rfc3339;
 use crate::units::{PressureUnit, format_pressure};
@@ -65,6 +68,10 @@ pub struct ReportArgs {
     /// median interval).
     #[arg(long)]
     gap: Option<String>,
+    /// Event log(s) of the live run, for the operator actions beside the
+    /// events (default: the `events-*.jsonl` beside the log(s)); repeatable.
+    #[arg(long = "events", value_name = "F.jsonl")]
+    events: Vec<PathBuf>,
     /// Output format.
     #[arg(long, value_enum, default_value = "text")]
     format: Format,
@@ -227,21 +234,42 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
     if outcome.rows == 0 {
         return Err(CliError::Usage("no usable rows in the log(s)".into()));
     }
+    let ops = actions(args, &sink);
+    for m in &ops.messages {
+        eprintln!("rarefy: {}", rarefy_core::parse::terminal_text(m));
+    }
     let unit = config.display.pressure_unit;
     match args.format {
         Format::Csv => {}
         Format::Json => {
-            let text = serde_json::to_string_pretty(&to_json(&sink, &outcome))
+            let text = serde_json::to_string_pretty(&to_json(&sink, &outcome, &ops))
                 .map_err(|e| CliError::Runtime(e.to_string()))?;
             write_to(args.out.as_ref(), &format!("{text}\n"))?;
         }
-        Format::Text => write_to(args.out.as_ref(), &to_text(&sink, &outcome, unit))?,
+        Format::Text => write_to(args.out.as_ref(), &to_text(&sink, &outcome, &ops, unit))?,
     }
     Ok(if outcome.trip_seen {
         ExitCode::Trip
     } else {
         ExitCode::Ok
     })
+}
+
+/// The operator actions of the run's span (and the --from/--to window).
+fn actions(args: &ReportArgs, sink: &ReportSink) -> OperatorActions {
+    let summaries = sink.summaries();
+    let (Some(start), Some(end)) = (
+        summaries.iter().filter_map(|g| g.start).min(),
+        summaries.iter().filter_map(|g| g.end).max(),
+    ) else {
+        return OperatorActions::default();
+    };
+    let files = if args.events.is_empty() {
+        event_logs_beside(&args.logs)
+    } else {
+        args.events.clone()
+    };
+    operator_actions(&files, start, end)
 }
 
 fn write_to(out: Option<&PathBuf>, text: &str) -> Result<(), CliError> {
@@ -257,7 +285,7 @@ fn time_json(t: Option<DateTime<Utc>>) -> Value {
 }
 
 /// The JSON document (SPEC §7, issue shape).
-pub fn to_json(sink: &ReportSink, outcome: &WalkOutcome) -> Value {
+pub fn to_json(sink: &ReportSink, outcome: &WalkOutcome, ops: &OperatorActions) -> Value {
     let analyses = sink.analyses();
     let origin = sink.origin();
     let gauges: Vec<Value> = sink
@@ -312,6 +340,17 @@ pub fn to_json(sink: &ReportSink, outcome: &WalkOutcome) -> Value {
         "gauges": gauges,
         "chamber": chamber,
         "alarms": alarms,
+        "event_logs": ops.files.iter().map(|f| f.display().to_string()).collect::<Vec<_>>(),
+        "operator_actions": ops.actions.iter().map(|(f, e)| json!({
+            "time": write_rfc3339(e.time),
+            "wall_time": time_json(e.wall_time),
+            "user": e.user,
+            "operation": e.operation.map(|o| o.as_str()),
+            "id": e.id,
+            "from": e.from_text(),
+            "to": e.to_text(),
+            "file": f.display().to_string(),
+        })).collect::<Vec<_>>(),
     })
 }
 
@@ -427,6 +466,21 @@ fn gauge_json(g: &GaugeSummary, a: &Analysis, origin: Option<DateTime<Utc>>) -> 
         "rate_of_rise": rises_json(a, origin),
         "exposure_langmuir": g.exposure_langmuir,
     })
+}
+
+/// One operator action in the event list.
+fn action_line(s: &mut String, a: &crate::alarm::Event) {
+    use std::fmt::Write as _;
+    let _ = writeln!(
+        s,
+        "  {} operator {}: {} {} ({} → {})",
+        write_rfc3339(a.time),
+        a.user.as_deref().unwrap_or("?"),
+        a.operation.map_or("?", |o| o.as_str()),
+        a.id,
+        a.from_text(),
+        a.to_text()
+    );
 }
 
 /// ", from GAUGE" when the fit names its gauge.
@@ -546,7 +600,12 @@ fn analysis_text(
     }
 }
 
-fn to_text(sink: &ReportSink, outcome: &WalkOutcome, unit: PressureUnit) -> String {
+fn to_text(
+    sink: &ReportSink,
+    outcome: &WalkOutcome,
+    ops: &OperatorActions,
+    unit: PressureUnit,
+) -> String {
     use std::fmt::Write as _;
     let p = |v: Option<f64>| v.map_or("-".to_string(), |v| format_pressure(v, unit));
     let t = |v: Option<DateTime<Utc>>| v.map_or("never".to_string(), write_rfc3339);
@@ -644,8 +703,19 @@ fn to_text(sink: &ReportSink, outcome: &WalkOutcome, unit: PressureUnit) -> Stri
         );
         analysis_text(&mut s, &a, &when, &p);
     }
-    let _ = writeln!(s, "\nEvents ({})", sink.events().len());
+    // The replay's events and the operators' actions, merged in time order
+    // (an action first when both have the same time).
+    let _ = writeln!(
+        s,
+        "\nEvents ({}, from the rules replayed over the log; operator actions: {})",
+        sink.events().len(),
+        ops.actions.len()
+    );
+    let mut actions = ops.actions.iter().map(|(_, e)| e).peekable();
     for e in sink.events() {
+        while let Some(a) = actions.next_if(|a| a.time <= e.time) {
+            action_line(&mut s, a);
+        }
         let _ = writeln!(
             s,
             "  {} {} {} → {} {}",
@@ -655,6 +725,13 @@ fn to_text(sink: &ReportSink, outcome: &WalkOutcome, unit: PressureUnit) -> Stri
             e.to_text(),
             e.value_text.clone().unwrap_or_default()
         );
+    }
+    for a in actions {
+        action_line(&mut s, a);
+    }
+    if !ops.files.is_empty() {
+        let names: Vec<String> = ops.files.iter().map(|f| f.display().to_string()).collect();
+        let _ = writeln!(s, "  (operator actions from {})", names.join(", "));
     }
     let _ = writeln!(
         s,

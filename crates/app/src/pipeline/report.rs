@@ -510,3 +510,82 @@ fn read_one(
     out.times_repeated += log.times_repeated();
     out.ambiguous_times += log.ambiguous_times();
 }
+
+/// Operator actions (acknowledge, shelve, threshold and gas changes …) read
+/// from the event logs a live run wrote: replay re-runs the rules but not
+/// what people did, so the report lists these beside the events.
+#[derive(Debug, Clone, Default)]
+pub struct OperatorActions {
+    /// The event logs read.
+    pub files: Vec<PathBuf>,
+    /// Each action within the span, with the file it came from, in time
+    /// order.
+    pub actions: Vec<(PathBuf, Event)>,
+    /// Located messages about lines that are not events.
+    pub messages: Vec<String>,
+}
+
+/// The event logs (`events-*.jsonl`) in the directories of `logs`, where a
+/// recording writes them, sorted by name.
+pub fn event_logs_beside(logs: &[PathBuf]) -> Vec<PathBuf> {
+    let mut dirs: Vec<PathBuf> = logs
+        .iter()
+        .map(|l| match l.parent() {
+            Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
+            _ => PathBuf::from("."),
+        })
+        .collect();
+    dirs.sort();
+    dirs.dedup();
+    let mut out: Vec<PathBuf> = dirs
+        .iter()
+        .filter_map(|d| std::fs::read_dir(d).ok())
+        .flatten()
+        .filter_map(Result::ok)
+        .map(|e| e.path())
+        .filter(|p| {
+            p.file_name()
+                .and_then(|n| n.to_str())
+                .is_some_and(|n| n.starts_with("events-") && n.ends_with(".jsonl"))
+        })
+        .collect();
+    out.sort();
+    out
+}
+
+/// Reads the operator actions in `files` whose data time lies in
+/// `from ..= to`.
+pub fn operator_actions(
+    files: &[PathBuf],
+    from: DateTime<Utc>,
+    to: DateTime<Utc>,
+) -> OperatorActions {
+    let mut out = OperatorActions::default();
+    for f in files {
+        let file = match std::fs::File::open(f) {
+            Ok(file) => file,
+            Err(e) => {
+                out.messages
+                    .push(format!("{}: cannot open the event log: {e}", f.display()));
+                continue;
+            }
+        };
+        out.files.push(f.clone());
+        let reader = std::io::BufReader::new(file);
+        for r in crate::alarm::event::read_event_log(reader) {
+            match r {
+                Ok(e) if e.is_operator_action() && e.time >= from && e.time <= to => {
+                    out.actions.push((f.clone(), e));
+                }
+                Ok(_) => {}
+                Err((line, msg)) => {
+                    if out.messages.len() < MESSAGES_KEPT {
+                        out.messages.push(format!("{}:{line}: {msg}", f.display()));
+                    }
+                }
+            }
+        }
+    }
+    out.actions.sort_by_key(|(_, e)| e.time);
+    out
+}

@@ -284,6 +284,11 @@ impl Event {
         serde_json::from_str(line).map_err(|e| e.to_string())
     }
 
+    /// Whether an operator's action caused this event.
+    pub fn is_operator_action(&self) -> bool {
+        self.operation.is_some()
+    }
+
     /// The event without what differs between runs of the same data (the
     /// wall-clock time): for comparing event lists.
     pub fn on_data_time(&self) -> Event {
@@ -292,4 +297,23 @@ impl Event {
             ..self.clone()
         }
     }
+}
+
+/// Reads an event log (`events-*.jsonl`): every line an [`Event`], blank
+/// lines skipped. A line that is not an event is an error naming its line
+/// number and what was expected; reading goes on after it.
+pub fn read_event_log(
+    reader: impl std::io::BufRead,
+) -> impl Iterator<Item = Result<Event, (u64, String)>> {
+    reader.lines().enumerate().filter_map(|(i, line)| {
+        let n = i as u64 + 1;
+        match line {
+            Err(e) => Some(Err((n, format!("cannot read the line: {e}")))),
+            Ok(l) if l.trim().is_empty() => None,
+            Ok(l) => Some(
+                Event::from_json(&l)
+                    .map_err(|e| (n, format!("expected an event as one JSON object ({e})"))),
+            ),
+        }
+    })
 }

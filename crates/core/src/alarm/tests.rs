@@ -746,6 +746,20 @@ fn operator_actions_are_events_with_who_and_when() {
     let back = crate::alarm::Event::from_json(&e.to_json()).expect("reads back");
     assert_eq!(back, e);
     assert_eq!(back.v, crate::alarm::EVENT_VERSION);
+    assert!(back.is_operator_action());
+    // An event log with a blank line and a line that is not an event.
+    let log = format!(
+        "{}\n\n{{\"v\":1,\"time\":\"soon\"}}\n{}\n",
+        e.to_json(),
+        e.to_json()
+    );
+    let read: Vec<_> = crate::alarm::event::read_event_log(log.as_bytes()).collect();
+    assert_eq!(read.len(), 3);
+    assert_eq!(read[0].as_ref().ok(), Some(&e));
+    let (line, msg) = read[1].clone().expect_err("not an event");
+    assert_eq!(line, 3);
+    assert!(msg.starts_with("expected an event"), "{msg}");
+    assert_eq!(read[2].as_ref().ok(), Some(&e));
     let ev = m.reset_exposure(&ana, t(3.0));
     assert_eq!(ev.len(), 1);
     assert_eq!(ev[0].id, "g.exposure");
