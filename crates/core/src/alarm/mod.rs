@@ -19,6 +19,7 @@ pub mod gas_step;
 pub mod gate;
 pub mod monitor;
 pub mod quantity;
+pub mod rate_window;
 pub mod rule;
 pub mod syntax;
 

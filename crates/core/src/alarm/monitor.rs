@@ -2,7 +2,7 @@
 //! kinetics, exposure, rate of change), drives the alarm rules and gates from
 //! it, and turns their transitions into [`Event`]s. Pure: data time only.
 
-use std::collections::{BTreeMap, VecDeque};
+use std::collections::BTreeMap;
 
 use chrono::{DateTime, Utc};
 
@@ -11,6 +11,7 @@ use super::event::{Actor, Change, EVENT_VERSION, Event, Operation};
 use super::gas_step::{GasChoice, GasOrigin, GasStep};
 use super::gate::{Check, Gate, GateMachine, GateState};
 use super::quantity::{Class, Quantity};
+use super::rate_window::RateWindow;
 use super::rule::{
     AlarmState, Deadband, Input, Rule, RuleMachine, Severity, Test, Transition, after,
 };
@@ -110,7 +111,7 @@ pub struct GaugeTrack {
     pub dpdt: Option<f64>,
     /// d log10 p/dt, decades per minute.
     pub decades_per_min: Option<f64>,
-    window: VecDeque<(f64, f64)>,
+    window: RateWindow,
     t0: Option<DateTime<Utc>>,
 }
 
@@ -135,41 +136,15 @@ impl GaugeTrack {
             exposure: Exposure::with_start(60.0, exposure),
             dpdt: None,
             decades_per_min: None,
-            window: VecDeque::new(),
+            window: RateWindow::default(),
             t0: None,
         }
     }
 
-    fn fit_rates(&mut self, window_s: f64) {
-        let Some(&(t_last, _)) = self.window.back() else {
-            return;
-        };
-        while self
-            .window
-            .front()
-            .is_some_and(|&(t, _)| t_last - t > window_s)
-        {
-            self.window.pop_front();
-        }
-        let n = self.window.len() as f64;
-        let span = t_last - self.window.front().map_or(t_last, |w| w.0);
-        if self.window.len() < 2 || span < 1.0 {
-            self.dpdt = None;
-            self.decades_per_min = None;
-            return;
-        }
-        // Least squares slopes of p(t) and log10 p(t).
-        let mt = self.window.iter().map(|w| w.0).sum::<f64>() / n;
-        let mp = self.window.iter().map(|w| w.1).sum::<f64>() / n;
-        let ml = self.window.iter().map(|w| w.1.log10()).sum::<f64>() / n;
-        let (mut stt, mut stp, mut stl) = (0.0, 0.0, 0.0);
-        for &(t, p) in &self.window {
-            stt += (t - mt) * (t - mt);
-            stp += (t - mt) * (p - mp);
-            stl += (t - mt) * (p.log10() - ml);
-        }
-        self.dpdt = Some(stp / stt);
-        self.decades_per_min = Some(stl / stt * 60.0);
+    fn fit_rates(&mut self) {
+        let slopes = self.window.slopes();
+        self.dpdt = slopes.map(|s| s.0);
+        self.decades_per_min = slopes.map(|s| s.1);
     }
 }
 
@@ -814,8 +789,8 @@ impl Monitor {
         let t0 = *track.t0.get_or_insert(s.time);
         let ts = (s.time - t0).num_milliseconds() as f64 / 1000.0;
         track.exposure.add(ts, p);
-        track.window.push_back((ts, p));
-        track.fit_rates(self.setup.rate_window_s);
+        track.window.push(ts, p, self.setup.rate_window_s);
+        track.fit_rates();
     }
 
     /// Where the chamber pressure of quantity `q` comes from at the
