@@ -230,6 +230,10 @@ fn a_cut_off_last_line_is_counted() {
         .map(|n| n.as_u64().expect("n"))
         .sum();
     assert_eq!(total, 1);
+    assert_eq!(
+        v["unusable_rows"]["fewer cells than the header (a cut-off line?)"],
+        1
+    );
     assert_eq!(v["gauges"][0]["samples"], 3);
 }
 
@@ -482,4 +486,340 @@ fn operator_actions_from_the_event_log_stand_beside_the_events() {
         err.contains("no-such-events.jsonl: cannot open the event log"),
         "{err}"
     );
+// ---- The rate-of-rise fit against a reference library ----
+
+fn close(got: f64, want: f64, tol: f64, what: &str) {
+    let err = ((got - want) / want).abs();
+    assert!(err <= tol, "{what}: {got:e} vs {want:e} (relative {err:e})");
+}
+
+#[test]
+fn the_rate_of_rise_fit_equals_scipy_linregress_on_the_reference_fixture() {
+    // tests/fixtures/ror_reference.csv is a seeded noisy, slightly
+    // flattening rise from 1e-2 Pa; ror_reference.json holds the least-
+    // squares line scipy.stats.linregress (scipy 1.17.1) fits to its rows,
+    // both written by tests/reference/check_rate_of_rise.py, which .ci/run
+    // also runs against the binary.
+    let want: Value = serde_json::from_str(
+        &std::fs::read_to_string(root().join("tests/fixtures/ror_reference.json"))
+            .expect("fixture numbers"),
+    )
+    .expect("json");
+    let num = |k: &str| want[k].as_f64().unwrap_or_else(|| panic!("{k}"));
+    let log = root().join("tests/fixtures/ror_reference.csv");
+    let volume = want["volume"].as_str().expect("volume");
+    let v = json(&[log.to_str().expect("path"), "--volume", volume]);
+    let rises = v["gauges"][0]["rate_of_rise"].as_array().expect("rises");
+    assert_eq!(rises.len(), 1, "{rises:?}");
+    let r = &rises[0];
+    assert_eq!(r["start"], want["segment_start"]);
+    assert_eq!(r["end"], want["segment_end"]);
+    assert_eq!(r["start_pa"], want["start_pa"]);
+    assert_eq!(r["end_pa"], want["end_pa"]);
+    let got = |k: &str| r[k].as_f64().unwrap_or_else(|| panic!("{k}: {r}"));
+    close(got("dp_dt_pa_per_s"), num("slope_pa_per_s"), 1e-9, "dp/dt");
+    close(got("r2"), num("r2"), 1e-9, "R²");
+    let q = got("leak_rate_pa_m3_per_s");
+    close(
+        q,
+        num("volume_m3") * num("slope_pa_per_s"),
+        1e-9,
+        "Q = V·dp/dt",
+    );
+    close(q, num("leak_rate_pa_m3_per_s"), 1e-9, "Q");
+    // 1 mbar·L/s = 100 Pa × 1e-3 m³/s = 0.1 Pa·m³/s (definitions of the units).
+    close(
+        got("leak_rate_mbar_l_per_s"),
+        q / 0.1,
+        1e-12,
+        "Q in mbar·L/s",
+    );
+    close(
+        got("leak_rate_mbar_l_per_s"),
+        num("leak_rate_mbar_l_per_s"),
+        1e-9,
+        "Q in mbar·L/s",
+    );
+    // The core's line over the same points, on seconds from the first row,
+    // also gives linregress's intercept and standard errors.
+    let file = std::fs::File::open(&log).expect("fixture log");
+    let reader = rarefy::log::LogReader::new(std::io::BufReader::new(file), "ror_reference.csv")
+        .expect("v1 log");
+    let mut points = Vec::new();
+    let mut t0 = None;
+    for row in reader {
+        let row = row.expect("row");
+        let t0 = *t0.get_or_insert(row.time);
+        let x = (row.time - t0).num_milliseconds() as f64 / 1000.0;
+        points.push((x, row.samples[0].value().expect("pressure")));
+    }
+    assert_eq!(
+        points.len() as u64,
+        want["points"].as_u64().expect("points")
+    );
+    let line = rarefy_core::analysis::fit::Line::of(&points).expect("a line");
+    close(line.slope, num("slope_pa_per_s"), 1e-9, "slope");
+    close(line.intercept, num("intercept_pa"), 1e-9, "intercept");
+    close(
+        line.slope_se,
+        num("slope_stderr_pa_per_s"),
+        1e-9,
+        "SE(slope)",
+    );
+    close(
+        line.intercept_se,
+        num("intercept_stderr_pa"),
+        1e-9,
+        "SE(intercept)",
+    );
+    close(line.r2, num("r2"), 1e-9, "R²");
+}
+
+// ---- Bad logs: each problem located, unusable rows counted by cause ----
+
+/// Runs `report LOG… --format json`: exit code, the JSON (when any) and
+/// stderr.
+fn bad(files: &[&Path]) -> (i32, Value, String) {
+    let mut args: Vec<&str> = files.iter().map(|p| p.to_str().expect("path")).collect();
+    args.extend(["--format", "json"]);
+    let (code, out, err) = report(&args);
+    let v = if out.trim().is_empty() {
+        Value::Null
+    } else {
+        serde_json::from_str(&out).expect("json")
+    };
+    (code, v, err)
+}
+
+/// Whether stderr locates a message at `path:line` containing `text`.
+fn located(err: &str, path: &Path, line: u64, text: &str) -> bool {
+    let at = format!("{}:{line}", path.display());
+    err.lines()
+        .any(|l| l.contains(&format!("{at}:")) && l.contains(text))
+}
+
+const RISE: &str = "# rarefy log v1
+time,chamber [Pa]
+";
+
+#[test]
+fn a_row_with_more_cells_than_the_header_is_located_and_counted() {
+    // The header names one channel; a logger that gained a column writes
+    // two from line 5 on.
+    let p = temp(
+        "more-cells.csv",
+        &format!(
+            "{RISE}2026-01-01T00:00:00.000Z,5e1\n2026-01-01T00:00:10.000Z,4e1\n\
+             2026-01-01T00:00:20.000Z,3e1,2.1e1\n2026-01-01T00:00:30.000Z,2e1,2.1e1\n"
+        ),
+    );
+    let (code, v, err) = bad(&[&p]);
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        located(&err, &p, 5, "row has 3 cells; the header has 2"),
+        "{err}"
+    );
+    assert!(located(&err, &p, 6, "row has 3 cells"), "{err}");
+    assert_eq!(
+        v["unusable_rows"]["more cells than the header (a header that does not match the rows?)"],
+        2,
+        "{v}"
+    );
+    assert_eq!(v["rows"], 2);
+}
+
+#[test]
+fn a_header_with_an_unknown_unit_is_located_and_its_rows_counted() {
+    let unknown = temp(
+        "unknown-unit.csv",
+        "# rarefy log v1\ntime,chamber [Pa],foreline [mbr]\n\
+         2026-01-01T00:00:00.000Z,5e1,1\n2026-01-01T00:00:10.000Z,4e1,1\n",
+    );
+    let good = temp(
+        "after-unknown-unit.csv",
+        &format!("{RISE}2026-01-01T00:01:00.000Z,5e1\n2026-01-01T00:01:10.000Z,4e1\n"),
+    );
+    // Alone: nothing usable, exit 2, the header cell located.
+    let (code, _, err) = bad(&[&unknown]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        located(
+            &err,
+            &unknown,
+            2,
+            "unknown unit \"mbr\" in header cell \"foreline [mbr]\""
+        ) && err.contains("did you mean \"mbar\"?"),
+        "{err}"
+    );
+    // Beside a good file: the good one is reported, the other's two rows
+    // are counted, not silently dropped.
+    let (code, v, err) = bad(&[&unknown, &good]);
+    assert_eq!(code, 0, "{err}");
+    assert!(located(&err, &unknown, 2, "unknown unit"), "{err}");
+    assert_eq!(
+        v["unusable_rows"]["in a file whose header could not be read (file skipped)"], 2,
+        "{v}"
+    );
+    assert_eq!(v["rows"], 2);
+    assert_eq!(
+        v["files"],
+        serde_json::json!([good.to_str().expect("path")])
+    );
+    // A header row that does not start with `time`: the same.
+    let stamp = temp(
+        "no-time-header.csv",
+        "# rarefy log v1\nstamp,chamber [Pa]\n2026-01-01T00:00:00.000Z,5e1\n",
+    );
+    let (code, _, err) = bad(&[&stamp]);
+    assert_eq!(code, 2, "{err}");
+    assert!(located(&err, &stamp, 2, "must start with `time`"), "{err}");
+}
+
+#[test]
+fn times_that_go_back_or_repeat_are_located_and_counted() {
+    let p = temp(
+        "clock.csv",
+        &format!(
+            "{RISE}2026-01-01T00:00:00.000Z,5e1\n2026-01-01T00:00:10.000Z,4e1\n\
+             2026-01-01T00:00:05.000Z,3e1\n2026-01-01T00:00:05.000Z,3e1\n\
+             2026-01-01T00:00:20.000Z,2e1\n"
+        ),
+    );
+    let (code, v, err) = bad(&[&p]);
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        located(
+            &err,
+            &p,
+            5,
+            "time 2026-01-01T00:00:05.000Z is earlier than the row before's \
+             (2026-01-01T00:00:10.000Z, line 4)"
+        ),
+        "{err}"
+    );
+    assert!(located(&err, &p, 6, "repeats the row before's"), "{err}");
+    assert_eq!(v["times_went_back"], 1);
+    assert_eq!(v["times_repeated"], 1);
+    // Both rows are used (their readings count) but add no time.
+    assert_eq!(v["rows"], 5);
+    assert_eq!(v["gauges"][0]["samples"], 5);
+    assert_eq!(v["gauges"][0]["duration_s"], 20.0);
+    assert_eq!(v["unusable_rows"], serde_json::json!({}));
+}
+
+#[test]
+fn mixed_utc_offsets_are_read_as_utc_located_and_counted() {
+    // One clock, 10 s a row: written at +01:00, then +02:00 (a daylight-
+    // saving switch), then Z, then +05:30. In UTC the rows stay 10 s apart.
+    let p = temp(
+        "offsets.csv",
+        &format!(
+            "{RISE}2026-03-29T01:59:40.000+01:00,5e1\n2026-03-29T01:59:50+01:00,4e1\n\
+             2026-03-29T03:00:00+02:00,3e1\n2026-03-29T03:00:10+02:00,2e1\n\
+             2026-03-29T01:00:20Z,1e1\n2026-03-29T06:30:30+05:30,5e0\n"
+        ),
+    );
+    let (code, v, err) = bad(&[&p]);
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        located(&err, &p, 5, "UTC offset changes from +01:00 to +02:00"),
+        "{err}"
+    );
+    assert!(
+        located(&err, &p, 7, "UTC offset changes from +02:00 to +00:00"),
+        "{err}"
+    );
+    assert!(
+        located(&err, &p, 8, "UTC offset changes from +00:00 to +05:30"),
+        "{err}"
+    );
+    assert_eq!(v["time_offset_changes"], 3);
+    assert_eq!(v["rows"], 6);
+    assert_eq!(v["times_went_back"], 0);
+    assert_eq!(v["unusable_rows"], serde_json::json!({}));
+    let g = &v["gauges"][0];
+    assert_eq!(g["start"], "2026-03-29T00:59:40.000Z");
+    assert_eq!(g["end"], "2026-03-29T01:00:30.000Z");
+    assert_eq!(g["duration_s"], 50.0);
+    assert_eq!(g["gap_count"], 0);
+    // The text report says it too.
+    let (_, out, _) = report(&[p.to_str().expect("path")]);
+    assert!(
+        out.contains("rows whose time's UTC offset changed: 3"),
+        "{out}"
+    );
+}
+
+#[test]
+fn a_time_without_an_offset_among_offset_times_is_located_and_counted() {
+    let p = temp(
+        "no-offset.csv",
+        &format!(
+            "{RISE}2026-01-01T01:00:00+01:00,5e1\n2026-01-01T01:00:10,4e1\n\
+             2026-01-01T01:00:20+01:00,3e1\n2026-01-01 01:00:30,2e1\n"
+        ),
+    );
+    let (code, v, err) = bad(&[&p]);
+    assert_eq!(code, 0, "{err}");
+    for line in [4, 6] {
+        assert!(
+            located(
+                &err,
+                &p,
+                line,
+                "has no UTC offset, unlike the times before it (at +01:00)"
+            ),
+            "{err}"
+        );
+    }
+    assert_eq!(v["unusable_rows"]["time without a UTC offset"], 2, "{v}");
+    assert_eq!(v["rows"], 2);
+    assert_eq!(v["time_offset_changes"], 0);
+    // No time with an offset at all: nothing usable.
+    let p = temp(
+        "no-offsets.csv",
+        &format!("{RISE}2026-01-01T01:00:00,5e1\n2026-01-01T01:00:10,4e1\n"),
+    );
+    let (code, _, err) = bad(&[&p]);
+    assert_eq!(code, 2, "{err}");
+    assert!(located(&err, &p, 3, "has no UTC offset"), "{err}");
+    assert!(located(&err, &p, 4, "has no UTC offset"), "{err}");
+}
+
+#[test]
+fn a_log_with_only_a_header_is_exit_2_and_located() {
+    let p = temp(
+        "header-only.csv",
+        "# rarefy log v1\n# gas: N2\ntime,chamber [Pa]\n\n",
+    );
+    let (code, v, err) = bad(&[&p]);
+    assert_eq!(code, 2, "{err}");
+    assert_eq!(v, Value::Null);
+    assert!(
+        located(&err, &p, 3, "no data rows after its header row"),
+        "{err}"
+    );
+    // Beside a log with rows: reported, exit 0.
+    let good = temp(
+        "beside-header-only.csv",
+        &format!("{RISE}2026-01-01T00:00:00.000Z,5e1\n2026-01-01T00:00:10.000Z,4e1\n"),
+    );
+    let (code, v, err) = bad(&[&p, &good]);
+    assert_eq!(code, 0, "{err}");
+    assert!(located(&err, &p, 3, "no data rows"), "{err}");
+    assert_eq!(v["rows"], 2);
+}
+
+#[test]
+fn an_empty_file_beside_a_good_one_is_located_and_the_rest_reported() {
+    let empty = temp("empty-beside.csv", "");
+    let good = temp(
+        "beside-empty.csv",
+        &format!("{RISE}2026-01-01T00:00:00.000Z,5e1\n2026-01-01T00:00:10.000Z,4e1\n"),
+    );
+    let (code, v, err) = bad(&[&empty, &good]);
+    assert_eq!(code, 0, "{err}");
+    assert!(located(&err, &empty, 1, "the file is empty"), "{err}");
+    assert_eq!(v["rows"], 2);
+    assert_eq!(v["unusable_rows"], serde_json::json!({}));
 }

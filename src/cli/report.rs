@@ -336,6 +336,7 @@ pub fn to_json(sink: &ReportSink, outcome: &WalkOutcome, ops: &OperatorActions) 
         "times_went_back": outcome.times_went_back,
         "times_repeated": outcome.times_repeated,
         "ambiguous_times": outcome.ambiguous_times,
+        "time_offset_changes": outcome.time_offset_changes,
         "median_method": "P² streaming estimate (Jain & Chlamtac 1985) on ln p",
         "gauges": gauges,
         "chamber": chamber,
@@ -623,6 +624,20 @@ fn to_text(
             s,
             "  rows whose time went back: {}, repeated: {}",
             outcome.times_went_back, outcome.times_repeated
+        );
+    }
+    if outcome.ambiguous_times > 0 {
+        let _ = writeln!(
+            s,
+            "  rows with an ambiguous local time: {}",
+            outcome.ambiguous_times
+        );
+    }
+    if outcome.time_offset_changes > 0 {
+        let _ = writeln!(
+            s,
+            "  rows whose time's UTC offset changed: {}",
+            outcome.time_offset_changes
         );
     }
     let analyses = sink.analyses();

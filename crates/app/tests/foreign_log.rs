@@ -803,3 +803,69 @@ fn a_gas_column_is_read_by_its_header_text() {
         "{errs:?}"
     );
 }
+
+#[test]
+fn a_change_of_utc_offset_is_flagged_and_a_time_without_one_refused() {
+    // RFC 3339 times that carry their own offset: a logger switched from
+    // +01:00 to +02:00 mid-run, writing the same clock; the times read as
+    // UTC stay one minute apart and the change is counted.
+    let s = spec(&section("", "").replace("%Y-%m-%d %H:%M:%S\", timezone = \"UTC\"", "rfc3339\""));
+    let mut r = ForeignReader::new(
+        &b"Time;P\n2026-03-29T01:58:00+01:00;1\n2026-03-29T01:59:00+01:00;1\n\
+           2026-03-29T03:00:00+02:00;1\n2026-03-29T03:01:00;1\n2026-03-29T03:02:00+02:00;1\n"[..],
+        "x.csv",
+        &s,
+    )
+    .expect("header");
+    let items: Vec<_> = r.by_ref().collect();
+    assert_eq!(items.len(), 5, "{items:?}");
+    let row = |i: usize| items[i].as_ref().unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(row(2).time, utc("2026-03-29T01:00:00Z"));
+    let c = row(2).offset_change.expect("a change");
+    assert_eq!(
+        (c.from.to_string(), c.to.to_string()),
+        ("+01:00".into(), "+02:00".into())
+    );
+    assert_eq!(row(1).offset_change, None);
+    assert_eq!(row(4).offset_change, None);
+    let e = items[3].as_ref().expect_err("no offset");
+    assert_eq!(e.line, Some(5));
+    assert!(
+        e.to_string().starts_with(
+            "x.csv:5:1: time \"2026-03-29T03:01:00\" in column \"Time\" has no UTC offset, \
+             unlike the times before it (at +02:00)"
+        ),
+        "{e}"
+    );
+    assert_eq!(r.time_offset_changes(), 1);
+    assert_eq!(r.header_line(), Some(1));
+    // A pattern with %z: the same.
+    let s = spec(&section("", "").replace("%S\", timezone = \"UTC\"", "%S %z\""));
+    let mut r = ForeignReader::new(
+        &b"Time;P\n2026-01-01 01:00:00 +0100;1\n2026-01-01 05:30:01 +0530;1\n"[..],
+        "x.csv",
+        &s,
+    )
+    .expect("header");
+    let rows: Vec<Row> = r
+        .by_ref()
+        .map(|x| x.unwrap_or_else(|e| panic!("{e}")))
+        .collect();
+    assert_eq!(rows[1].time, utc("2026-01-01T00:00:01Z"));
+    assert!(rows[1].offset_change.is_some());
+    assert_eq!(r.time_offset_changes(), 1);
+    // Local times in a named zone change offset at daylight saving by
+    // design: no offset is carried, so nothing is counted.
+    let s = spec(&section("", "").replace("\"UTC\"", "\"Europe/Vienna\""));
+    let mut r = ForeignReader::new(
+        &b"Time;P\n2026-03-29 01:59:00;1\n2026-03-29 03:00:00;1\n"[..],
+        "x.csv",
+        &s,
+    )
+    .expect("header");
+    assert!(
+        r.by_ref()
+            .all(|x| x.is_ok_and(|row| row.offset_change.is_none()))
+    );
+    assert_eq!(r.time_offset_changes(), 0);
+}

@@ -63,6 +63,28 @@ pub struct Read {
     pub time: DateTime<Utc>,
     /// The local time occurred twice in its zone (see the module docs).
     pub ambiguous: bool,
+    /// The UTC offset the text carried (RFC 3339, or a pattern with `%z`
+    /// …); `None` for epoch numbers and local times read in a zone.
+    pub offset: Option<FixedOffset>,
+}
+
+/// Whether `text` is an RFC 3339 date and time but for its missing UTC
+/// offset (`2026-03-29T01:30:00`): a time that could be in any zone.
+pub fn lacks_offset(text: &str) -> bool {
+    let t = text.trim();
+    !t.is_empty() && DateTime::parse_from_rfc3339(&format!("{t}Z")).is_ok()
+}
+
+/// Why a time without a UTC offset is not used (to follow the quoted
+/// time), naming the offset of the times before it when there were some.
+pub fn missing_offset(before: Option<FixedOffset>) -> String {
+    let others = before
+        .map(|o| format!(", unlike the times before it (at {o})"))
+        .unwrap_or_default();
+    format!(
+        "has no UTC offset{others}: the zone it was written in is unknown, so the row is not used \
+         (RFC 3339 times end in Z or an offset such as +01:00)"
+    )
 }
 
 impl TimeFormat {
@@ -121,25 +143,37 @@ impl TimeFormat {
         previous: Option<DateTime<Utc>>,
     ) -> Result<Read, String> {
         let text = text.trim();
-        let absolute = |time: DateTime<Utc>| Read {
+        let epoch = |time: DateTime<Utc>| Read {
             time,
             ambiguous: false,
+            offset: None,
+        };
+        let absolute = |t: DateTime<FixedOffset>| Read {
+            time: t.with_timezone(&Utc),
+            ambiguous: false,
+            offset: Some(t.offset().fix()),
         };
         match self {
             TimeFormat::Rfc3339 => DateTime::parse_from_rfc3339(text)
-                .map(|t| absolute(t.with_timezone(&Utc)))
-                .map_err(|e| format!("is not RFC 3339, e.g. 2026-10-25T01:20:00+02:00 ({e})")),
-            TimeFormat::EpochSeconds => parse_epoch(text, 1_000_000_000)
                 .map(absolute)
+                .map_err(|e| {
+                    if lacks_offset(text) {
+                        missing_offset(None)
+                    } else {
+                        format!("is not RFC 3339, e.g. 2026-10-25T01:20:00+02:00 ({e})")
+                    }
+                }),
+            TimeFormat::EpochSeconds => parse_epoch(text, 1_000_000_000)
+                .map(epoch)
                 .ok_or_else(|| "is not a number of seconds since 1970-01-01 UTC".to_string()),
             TimeFormat::EpochMillis => parse_epoch(text, 1_000_000)
-                .map(absolute)
+                .map(epoch)
                 .ok_or_else(|| "is not a number of milliseconds since 1970-01-01 UTC".to_string()),
             TimeFormat::Pattern {
                 pattern,
                 absolute: true,
             } => DateTime::parse_from_str(text, pattern)
-                .map(|t| absolute(t.with_timezone(&Utc)))
+                .map(absolute)
                 .map_err(|e| format!("does not match format \"{pattern}\" ({e})")),
             TimeFormat::Pattern {
                 pattern,
@@ -148,7 +182,11 @@ impl TimeFormat {
                 let naive = NaiveDateTime::parse_from_str(text, pattern)
                     .map_err(|e| format!("does not match format \"{pattern}\" ({e})"))?;
                 let zone = zone.unwrap_or(Zone::Fixed(Utc.fix()));
-                localize(naive, zone, previous).map(|(time, ambiguous)| Read { time, ambiguous })
+                localize(naive, zone, previous).map(|(time, ambiguous)| Read {
+                    time,
+                    ambiguous,
+                    offset: None,
+                })
             }
         }
     }
@@ -454,6 +492,44 @@ mod tests {
             .read("2026-10-25 02:10:00", z, Some(first.time))
             .expect("valid");
         assert_eq!(next.time, utc("2026-10-25T01:10:00Z"));
+    }
+
+    #[test]
+    fn offsets_are_kept_and_a_missing_one_is_named() {
+        let f = TimeFormat::Rfc3339;
+        let r = f
+            .read("2026-01-01T05:30:00+05:30", None, None)
+            .expect("valid");
+        assert_eq!(r.time, utc("2026-01-01T00:00:00Z"));
+        assert_eq!(r.offset.map(|o| o.to_string()), Some("+05:30".to_string()));
+        let z = f.read("2026-01-01T00:00:00Z", None, None).expect("valid");
+        assert_eq!(z.offset, FixedOffset::east_opt(0));
+        let e = f
+            .read("2026-01-01T00:00:00", None, None)
+            .expect_err("no offset");
+        assert!(e.starts_with("has no UTC offset: the zone"), "{e}");
+        let local = TimeFormat::parse("%Y-%m-%d %H:%M:%S").expect("valid");
+        let r = local
+            .read("2026-01-01 00:00:00", None, None)
+            .expect("valid");
+        assert_eq!(r.offset, None);
+        let r = TimeFormat::EpochSeconds
+            .read("0", None, None)
+            .expect("valid");
+        assert_eq!(r.offset, None);
+        for (text, lacks) in [
+            ("2026-01-01T00:00:00", true),
+            ("2026-01-01 00:00:00.250", true),
+            ("2026-01-01T00:00:00Z", false),
+            ("2026-01-01T00:00:00+01:00", false),
+            ("2026-01-01T00:00", false),
+            ("", false),
+            ("yesterday", false),
+        ] {
+            assert_eq!(lacks_offset(text), lacks, "{text:?}");
+        }
+        let o = FixedOffset::east_opt(-3600);
+        assert!(missing_offset(o).contains("unlike the times before it (at -01:00)"));
     }
 
     #[test]

@@ -398,6 +398,9 @@ pub struct WalkOutcome {
     pub times_repeated: u64,
     /// Rows used whose local time was ambiguous.
     pub ambiguous_times: u64,
+    /// Rows used whose time carried a different UTC offset from the row
+    /// before's.
+    pub time_offset_changes: u64,
     /// Located messages from the readers (the first [`MESSAGES_KEPT`]).
     pub messages: Vec<String>,
     /// Messages in all.
@@ -420,17 +423,73 @@ fn cause_of(e: &LogError) -> &'static str {
     let m = e.message.as_str();
     if e.row.is_some() {
         "a cell could not be read (row used without it)"
-    } else if m.contains("cells; the header has") {
-        "wrong number of cells (a cut-off line?)"
+    } else if let Some((n, header)) = cell_counts(m) {
+        if n < header {
+            "fewer cells than the header (a cut-off line?)"
+        } else {
+            "more cells than the header (a header that does not match the rows?)"
+        }
     } else if m.contains("longer than") {
         "line too long"
     } else if m.contains("UTF-8") || m.contains("encoding") {
         "not in the file's encoding"
-    } else if e.column == Some(1) {
+    } else if m.contains("has no UTC offset") {
+        "time without a UTC offset"
+    } else if e.column == Some(1) || m.starts_with("time \"") {
         "time could not be read"
     } else {
         "row could not be read"
     }
+}
+
+/// The row's and the header's cell counts from a v1 reader's message
+/// "row has N cells; the header has M (…)".
+fn cell_counts(message: &str) -> Option<(usize, usize)> {
+    let rest = message.strip_prefix("row has ")?;
+    let (n, rest) = rest.split_once(" cells; the header has ")?;
+    let header = rest.split_whitespace().next()?;
+    Some((n.parse().ok()?, header.parse().ok()?))
+}
+
+/// The cause the lines of a file that could not be opened as a log are
+/// counted under.
+const FILE_SKIPPED: &str = "in a file whose header could not be read (file skipped)";
+
+/// The lines of a file that could not be opened as a log that may have held
+/// rows: those after the line the error is on that are neither blank nor
+/// `#` lines. 0 when the file cannot be read. Streams the file in the
+/// reader's buffer, whatever the length of its lines.
+fn lines_after(path: &Path, line: Option<u64>) -> u64 {
+    use std::io::BufRead;
+    let Ok(file) = std::fs::File::open(path) else {
+        return 0;
+    };
+    let after = line.unwrap_or(0);
+    let mut reader = std::io::BufReader::new(file);
+    let (mut n, mut number) = (0, 1u64);
+    // The first byte of the line that is not white space.
+    let mut first: Option<u8> = None;
+    let counts = |number: u64, first: Option<u8>| {
+        u64::from(number > after && first.is_some_and(|c| c != b'#'))
+    };
+    loop {
+        let buf = match reader.fill_buf() {
+            Ok(b) if !b.is_empty() => b,
+            _ => break,
+        };
+        for &b in buf {
+            if b == b'\n' {
+                n += counts(number, first);
+                number += 1;
+                first = None;
+            } else if first.is_none() && !b.is_ascii_whitespace() {
+                first = Some(b);
+            }
+        }
+        let used = buf.len();
+        reader.consume(used);
+    }
+    n + counts(number, first)
 }
 
 /// Walks `files` as one run through a pipeline with `setup`'s monitor,
@@ -455,7 +514,12 @@ pub fn walk(
                 });
                 order.push((first, i));
             }
-            Err(e) => out.say(&e),
+            Err(e) => {
+                out.say(&e);
+                for _ in 0..lines_after(f, e.line) {
+                    out.unusable.count(FILE_SKIPPED);
+                }
+            }
         }
     }
     order.sort_by_key(|(t, i)| (*t, *i));
@@ -489,7 +553,12 @@ fn read_one(
     for w in log.warnings().to_vec() {
         out.say(&w);
     }
+    let name = path.display().to_string();
+    let mut items = 0u64;
+    // The row before's line and time, for the messages.
+    let mut before: Option<(u64, DateTime<Utc>)> = None;
     for row in log.by_ref() {
+        items += 1;
         let row = match row {
             Ok(r) => r,
             Err(e) => {
@@ -501,14 +570,120 @@ fn read_one(
                 }
             }
         };
+        say_time_order(&name, &row, before, out);
+        before = Some((row.line, row.time));
         out.rows += 1;
         for ev in crate::log::row_events(row, gas) {
             pipeline.feed(&ev, None, sink);
         }
     }
+    if items == 0 {
+        let e = match log.header_line() {
+            Some(h) => LogError::at(
+                &name,
+                h,
+                None,
+                "the log has no data rows after its header row",
+            ),
+            None => LogError::file(&name, "the log has no data rows"),
+        };
+        out.say(&e);
+    }
     out.times_went_back += log.times_went_back();
     out.times_repeated += log.times_repeated();
     out.ambiguous_times += log.ambiguous_times();
+    out.time_offset_changes += log.time_offset_changes();
+}
+
+/// Located messages for a row used whose time went back or repeated, or
+/// whose UTC offset changed (each also counted by the reader).
+fn say_time_order(
+    name: &str,
+    row: &crate::log::Row,
+    before: Option<(u64, DateTime<Utc>)>,
+    out: &mut WalkOutcome,
+) {
+    let t = crate::timefmt::write_rfc3339;
+    let prev = before.map_or_else(String::new, |(line, time)| {
+        format!(" ({}, line {line})", t(time))
+    });
+    if row.time_went_back {
+        out.say(&LogError::at(
+            name,
+            row.line,
+            None,
+            format!(
+                "time {} is earlier than the row before's{prev}: the clock went back; \
+                 the row is used but adds no time (counted in times_went_back)",
+                t(row.time)
+            ),
+        ));
+    }
+    if row.time_repeated {
+        out.say(&LogError::at(
+            name,
+            row.line,
+            None,
+            format!(
+                "time {} repeats the row before's{prev}: a stuck clock or a row written twice; \
+                 the row is used but adds no time (counted in times_repeated)",
+                t(row.time)
+            ),
+        ));
+    }
+    if let Some(c) = row.offset_change {
+        out.say(&LogError::at(
+            name,
+            row.line,
+            None,
+            format!(
+                "the times' UTC offset changes from {} to {} (a logger's clock or its \
+                 daylight-saving setting changed mid-run?); times are read as UTC, so the row \
+                 is used (counted in time_offset_changes)",
+                c.from, c.to
+            ),
+        ));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_lines_of_a_skipped_file_are_counted_after_its_error() {
+        let dir = std::env::temp_dir().join(format!("rarefy-skipped-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let p = dir.join("skipped.csv");
+        std::fs::write(
+            &p,
+            "# rarefy log v1\r\ntime,a [furlong]\r\n1,2\r\n\r\n  \r\n# late\r\n3,4\r\n5,6",
+        )
+        .expect("write");
+        assert_eq!(lines_after(&p, Some(2)), 3);
+        assert_eq!(lines_after(&p, Some(7)), 1);
+        assert_eq!(lines_after(&p, None), 4);
+        assert_eq!(lines_after(&dir.join("missing.csv"), Some(1)), 0);
+        std::fs::write(&p, "").expect("write");
+        assert_eq!(lines_after(&p, Some(1)), 0);
+        let _ = std::fs::remove_dir_all(&dir);
+    }
+
+    #[test]
+    fn causes_tell_a_cut_off_line_from_a_header_that_does_not_match() {
+        let e = |m: &str, col| LogError::at("x.csv", 3, Some(col), m);
+        let few = e("row has 1 cells; the header has 2 (time and 1 columns)", 2);
+        assert_eq!(
+            cause_of(&few),
+            "fewer cells than the header (a cut-off line?)"
+        );
+        let more = e("row has 3 cells; the header has 2 (time and 1 columns)", 3);
+        assert!(cause_of(&more).starts_with("more cells than the header"));
+        let no_offset = e("time \"2026-01-01T00:00:00\" has no UTC offset: …", 1);
+        assert_eq!(cause_of(&no_offset), "time without a UTC offset");
+        let foreign_time = e("time \"x\" in column \"T\" does not match format", 3);
+        assert_eq!(cause_of(&foreign_time), "time could not be read");
+    }
 }
 
 /// Operator actions (acknowledge, shelve, threshold and gas changes …) read

@@ -34,7 +34,7 @@
 //! ([`Row::notes`]), non-empty cells only. Other columns not named in the
 //! configuration are ignored.
 
-use chrono::{DateTime, Utc};
+use chrono::{DateTime, FixedOffset, Utc};
 use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::fmt;
@@ -586,6 +586,10 @@ pub struct ForeignReader<R> {
     went_back: u64,
     repeated: u64,
     ambiguous: u64,
+    last_offset: Option<FixedOffset>,
+    offset_changes: u64,
+    /// The column-name row's line, when there is one.
+    header_line: Option<u64>,
     /// (cell index, header text) per `notes` column.
     note_cells: Vec<(usize, String)>,
     /// Cell index of the gas column.
@@ -802,6 +806,9 @@ impl<R: BufRead> ForeignReader<R> {
             went_back: 0,
             repeated: 0,
             ambiguous: 0,
+            last_offset: None,
+            offset_changes: 0,
+            header_line: spec.header.then_some(header_line),
             note_cells,
             gas_cell,
         })
@@ -838,7 +845,18 @@ impl<R: BufRead> ForeignReader<R> {
         self.ambiguous
     }
 
-    fn parse_time(&mut self, text: &str) -> Result<DateTime<Utc>, String> {
+    /// How many rows so far had a time with a different UTC offset from the
+    /// row before's (times that carry their own offset).
+    pub fn time_offset_changes(&self) -> u64 {
+        self.offset_changes
+    }
+
+    /// The line number of the column-name row, when the log has one.
+    pub fn header_line(&self) -> Option<u64> {
+        self.header_line
+    }
+
+    fn parse_time(&mut self, text: &str) -> Result<(DateTime<Utc>, Option<FixedOffset>), String> {
         let bad = |why: String| {
             format!(
                 "time \"{}\" in column \"{}\" {why}",
@@ -858,13 +876,16 @@ impl<R: BufRead> ForeignReader<R> {
         };
         let format = &self.spec.time.format;
         let text = if format.is_epoch() { text_num } else { text };
+        if *format == TimeFormat::Rfc3339 && crate::timefmt::lacks_offset(text) {
+            return Err(bad(crate::timefmt::missing_offset(self.last_offset)));
+        }
         let read = format
             .read(text, self.spec.time.zone, self.last_time)
             .map_err(bad)?;
         if read.ambiguous {
             self.ambiguous += 1;
         }
-        Ok(read.time)
+        Ok((read.time, read.offset))
     }
 
     fn cell(&self, k: usize, text: &str) -> Result<Option<Reading>, String> {
@@ -952,7 +973,7 @@ impl<R: BufRead> ForeignReader<R> {
                 ),
             )));
         };
-        let time = match self.parse_time(&time_text.text) {
+        let (time, offset) = match self.parse_time(&time_text.text) {
             Ok(t) => t,
             Err(msg) => return Some(Err(at(&self.name, Some(self.time_cell + 1), msg))),
         };
@@ -991,6 +1012,8 @@ impl<R: BufRead> ForeignReader<R> {
         self.went_back += u64::from(time_went_back);
         self.repeated += u64::from(time_repeated);
         self.last_time = Some(time);
+        let offset_change = super::read::offset_order(&mut self.last_offset, offset);
+        self.offset_changes += u64::from(offset_change.is_some());
         let notes = self
             .note_cells
             .iter()
@@ -1005,6 +1028,7 @@ impl<R: BufRead> ForeignReader<R> {
             samples,
             time_went_back,
             time_repeated,
+            offset_change,
             notes,
             gas: self
                 .gas_cell

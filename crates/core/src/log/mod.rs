@@ -23,7 +23,12 @@
 //! * A row whose time is earlier than, or equal to, the row before's is read
 //!   and counted (`times_went_back`, `times_repeated`) for the caller to
 //!   report.
-//! * Times are RFC 3339 UTC with milliseconds.
+//! * Times are written RFC 3339 UTC with milliseconds. Readers take any UTC
+//!   offset and convert to UTC; a row whose offset differs from the row
+//!   before's (a logger's clock or daylight-saving setting changed mid-run)
+//!   is read, flagged ([`Row::offset_change`]) and counted
+//!   (`time_offset_changes`). A time without an offset is a located error
+//!   for its row: the zone it was written in is unknown.
 //! * A cell holds a number (shortest exact form, so no digit is lost), a status
 //!   word (`over-range`, `sensor-off` … — a bad reading is never written as a
 //!   number), or nothing (no reading of that channel at that time).
@@ -41,7 +46,7 @@ use std::io::BufRead;
 
 pub use foreign::{ForeignLogSpec, ForeignReader, LogSection};
 pub use lines::{Encoding, MAX_LINE_BYTES};
-pub use read::{LogError, LogReader, Row};
+pub use read::{LogError, LogReader, OffsetChange, Row};
 pub use v1::{Column, ColumnKind, LogMeta, MAGIC};
 
 use crate::sample::ChannelInfo;
@@ -81,6 +86,11 @@ pub trait LogSource: Iterator<Item = Result<Row, LogError>> + Send {
     fn ambiguous_times(&self) -> u64 {
         0
     }
+    /// How many rows so far had a time with a different UTC offset from the
+    /// row before's (times that carry their own offset).
+    fn time_offset_changes(&self) -> u64;
+    /// The line of the header (column-name) row, when the log has one.
+    fn header_line(&self) -> Option<u64>;
 }
 
 impl<R: BufRead + Send> LogSource for LogReader<R> {
@@ -102,6 +112,12 @@ impl<R: BufRead + Send> LogSource for LogReader<R> {
     fn times_repeated(&self) -> u64 {
         LogReader::times_repeated(self)
     }
+    fn time_offset_changes(&self) -> u64 {
+        LogReader::time_offset_changes(self)
+    }
+    fn header_line(&self) -> Option<u64> {
+        Some(LogReader::header_line(self))
+    }
 }
 
 impl<R: BufRead + Send> LogSource for ForeignReader<R> {
@@ -122,6 +138,12 @@ impl<R: BufRead + Send> LogSource for ForeignReader<R> {
     }
     fn ambiguous_times(&self) -> u64 {
         ForeignReader::ambiguous_times(self)
+    }
+    fn time_offset_changes(&self) -> u64 {
+        ForeignReader::time_offset_changes(self)
+    }
+    fn header_line(&self) -> Option<u64> {
+        ForeignReader::header_line(self)
     }
 }
 

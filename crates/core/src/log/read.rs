@@ -6,7 +6,7 @@
 //! located [`LogError`] and the iterator goes on with the next line; the
 //! caller decides whether to stop. An I/O error ends the iteration.
 
-use chrono::{DateTime, Utc};
+use chrono::{DateTime, FixedOffset, Offset, Utc};
 use std::fmt;
 use std::io::BufRead;
 
@@ -85,12 +85,40 @@ pub struct Row {
     /// The time equals the previous row's (a stuck clock or a row written
     /// twice): not an error, but worth a warning.
     pub time_repeated: bool,
+    /// The time carries a different UTC offset from the previous row's (a
+    /// logger's clock or daylight-saving setting changed mid-run): read as
+    /// UTC, so not an error, but worth a warning.
+    pub offset_change: Option<OffsetChange>,
     /// Operator notes: (column, text) for each non-empty text column the
     /// reader was told to keep (foreign logs' `[log] notes`), as read —
     /// escape the text before showing it.
     pub notes: Vec<(String, String)>,
     /// The `gas` column's cell, when the log has one and it is not empty.
     pub gas: Option<String>,
+}
+
+/// A change of the UTC offset the times are written with, between a row
+/// and the row before it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct OffsetChange {
+    /// The offset of the row before.
+    pub from: FixedOffset,
+    /// This row's offset.
+    pub to: FixedOffset,
+}
+
+/// Compares a row's UTC offset with the last one seen, updating it:
+/// `Some` when both are known and differ.
+pub(crate) fn offset_order(
+    last: &mut Option<FixedOffset>,
+    offset: Option<FixedOffset>,
+) -> Option<OffsetChange> {
+    let offset = offset?;
+    let change = last
+        .filter(|from| *from != offset)
+        .map(|from| OffsetChange { from, to: offset });
+    *last = Some(offset);
+    change
 }
 
 /// Derived-column units the recorder writes (see `record::derived`); a
@@ -129,6 +157,9 @@ pub struct LogReader<R> {
     last_time: Option<DateTime<Utc>>,
     went_back: u64,
     repeated: u64,
+    last_offset: Option<FixedOffset>,
+    offset_changes: u64,
+    header_line: u64,
 }
 
 impl<R: BufRead> LogReader<R> {
@@ -144,6 +175,9 @@ impl<R: BufRead> LogReader<R> {
             last_time: None,
             went_back: 0,
             repeated: 0,
+            last_offset: None,
+            offset_changes: 0,
+            header_line: 0,
         };
         r.read_magic()?;
         loop {
@@ -161,6 +195,7 @@ impl<R: BufRead> LogReader<R> {
                 continue;
             }
             r.columns = header_row(name, number, &text)?;
+            r.header_line = number;
             return Ok(r);
         }
     }
@@ -194,6 +229,17 @@ impl<R: BufRead> LogReader<R> {
     /// How many rows so far had the same time as the row before.
     pub fn times_repeated(&self) -> u64 {
         self.repeated
+    }
+
+    /// How many rows so far had a time with a different UTC offset from the
+    /// row before's.
+    pub fn time_offset_changes(&self) -> u64 {
+        self.offset_changes
+    }
+
+    /// The line number of the header row.
+    pub fn header_line(&self) -> u64 {
+        self.header_line
     }
 
     /// The next line as text, header-block style: errors are fatal.
@@ -384,8 +430,8 @@ impl<R: BufRead> LogReader<R> {
                 ),
             )));
         }
-        let time = match parse_time(&cells[0].text) {
-            Ok(t) => t,
+        let (time, offset) = match parse_time(&cells[0].text, self.last_offset) {
+            Ok(t) => (t.with_timezone(&Utc), t.offset().fix()),
             Err(msg) => return Some(Err(at(1, msg))),
         };
         let mut samples = Vec::new();
@@ -418,12 +464,15 @@ impl<R: BufRead> LogReader<R> {
         self.went_back += u64::from(time_went_back);
         self.repeated += u64::from(time_repeated);
         self.last_time = Some(time);
+        let offset_change = offset_order(&mut self.last_offset, Some(offset));
+        self.offset_changes += u64::from(offset_change.is_some());
         let row = Row {
             line: raw.number,
             time,
             samples,
             time_went_back,
             time_repeated,
+            offset_change,
             notes: Vec::new(),
             gas,
         };
@@ -597,10 +646,18 @@ fn header_row(name: &str, number: u64, text: &str) -> Result<Vec<Column>, LogErr
             None => {
                 // Not silently a derived column: a misspelt channel unit
                 // would lose the channel.
+                use crate::units::{PressureUnit, TemperatureUnit, UnitKind};
+                let symbols = PressureUnit::ALL
+                    .iter()
+                    .map(|u| u.symbol())
+                    .chain(TemperatureUnit::ALL.iter().map(|u| u.symbol()));
+                let hint = crate::suggest::nearest(unit, symbols)
+                    .map(|s| format!("; did you mean \"{s}\"?"))
+                    .unwrap_or_default();
                 return Err(at(
                     col,
                     format!(
-                        "unknown unit \"{}\" in header cell \"{}\"; expected a pressure or temperature unit (mbar, Torr, Pa, C, K …) or a derived-column unit ({})",
+                        "unknown unit \"{}\" in header cell \"{}\"; expected a pressure or temperature unit (mbar, Torr, Pa, C, K …) or a derived-column unit ({}){hint}",
                         show(unit),
                         show(t),
                         DERIVED_UNITS.join(", ")
@@ -616,20 +673,28 @@ fn header_row(name: &str, number: u64, text: &str) -> Result<Vec<Column>, LogErr
     Ok(columns)
 }
 
-/// Parses a row time: RFC 3339, any offset (converted to UTC), with or
-/// without fractional seconds.
-fn parse_time(text: &str) -> Result<DateTime<Utc>, String> {
+/// Parses a row time: RFC 3339 with any UTC offset (the caller converts to
+/// UTC), with or without fractional seconds. A time without an offset is
+/// refused with its own message (`before`: the offset of the times before
+/// it, to name).
+fn parse_time(text: &str, before: Option<FixedOffset>) -> Result<DateTime<FixedOffset>, String> {
     if text.is_empty() {
         return Err("the time cell is empty".into());
     }
-    DateTime::parse_from_rfc3339(text)
-        .map(|t| t.with_timezone(&Utc))
-        .map_err(|e| {
+    DateTime::parse_from_rfc3339(text).map_err(|e| {
+        if crate::timefmt::lacks_offset(text) {
+            format!(
+                "time \"{}\" {}",
+                show(text),
+                crate::timefmt::missing_offset(before)
+            )
+        } else {
             format!(
                 "time \"{}\" is not an RFC 3339 time such as 2026-12-01T19:00:00.000Z ({e})",
                 show(text)
             )
-        })
+        }
+    })
 }
 
 /// A cell: `None` when empty, else its reading (a value or a fault); `Err`

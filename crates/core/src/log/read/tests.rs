@@ -548,6 +548,7 @@ fn a_header_unit_that_is_neither_channel_nor_derived_is_located() {
     assert_eq!((e.line, e.column), (Some(2), Some(3)), "{e}");
     assert!(e.message.contains("unknown unit \"mbr\""), "{e}");
     assert!(e.message.contains("1/m3"), "{e}");
+    assert!(e.message.ends_with("; did you mean \"mbar\"?"), "{e}");
 }
 
 #[test]
@@ -624,4 +625,85 @@ fn a_gas_column_gives_each_rows_gas_and_changes_once() {
     let e = open_error(b"# rarefy log v1\ntime,gas,chamber [mbar],gas\n");
     assert_eq!((e.line, e.column), (Some(2), Some(4)), "{e}");
     assert!(e.message.contains("`gas` column appears twice"), "{e}");
+}
+
+#[test]
+fn a_change_of_utc_offset_is_flagged_and_counted() {
+    // The same clock, written at UTC, then +05:30, then +01:00: every time
+    // is read as UTC, one second apart; each change of offset is flagged on
+    // its row and counted. `Z` and `+00:00` are the same offset.
+    let text = format!(
+        "{MAGIC}\ntime,a [mbar]\n2026-12-01T19:00:00Z,1\n2026-12-02T00:30:01+05:30,1\n\
+         2026-12-02T00:30:02.000+05:30,1\n2026-12-01T20:00:03+01:00,1\n\
+         2026-12-01T19:00:04+00:00,1\n2026-12-01T19:00:05Z,1\n"
+    );
+    let mut r = reader(&text);
+    let rows: Vec<Row> = r
+        .by_ref()
+        .map(|x| x.unwrap_or_else(|e| panic!("{e}")))
+        .collect();
+    for (i, row) in rows.iter().enumerate() {
+        assert_eq!(
+            row.time,
+            time("2026-12-01T19:00:00Z") + chrono::Duration::seconds(i as i64)
+        );
+        assert!(!row.time_went_back && !row.time_repeated);
+    }
+    let offset = |s: i32| FixedOffset::east_opt(s).expect("offset");
+    let changes: Vec<Option<OffsetChange>> = rows.iter().map(|r| r.offset_change).collect();
+    let change = |from, to| {
+        Some(OffsetChange {
+            from: offset(from),
+            to: offset(to),
+        })
+    };
+    assert_eq!(
+        changes,
+        [
+            None,
+            change(0, 19_800),
+            None,
+            change(19_800, 3_600),
+            change(3_600, 0),
+            None
+        ]
+    );
+    assert_eq!(r.time_offset_changes(), 3);
+    assert_eq!(
+        change(19_800, 3_600).map(|c| (c.from.to_string(), c.to.to_string())),
+        Some(("+05:30".to_string(), "+01:00".to_string()))
+    );
+}
+
+#[test]
+fn a_time_without_an_offset_is_a_located_error_naming_the_offset_before() {
+    let items = rows(
+        "2026-12-01T20:00:00+01:00,1,\n2026-12-01T20:00:01,1,\n2026-12-01 20:00:02.5,1,\n\
+         2026-12-01T20:00:03+01:00,1,\n",
+    );
+    assert_eq!(items.len(), 4, "{items:?}");
+    for (i, line) in [(1, 4), (2, 5)] {
+        let e = items[i].as_ref().expect_err("no offset");
+        assert_eq!((e.line, e.column), (Some(line), Some(1)), "{e}");
+        assert!(e.row.is_none(), "the row is not used");
+        assert!(
+            e.message
+                .contains("has no UTC offset, unlike the times before it (at +01:00)"),
+            "{e}"
+        );
+    }
+    // The refused rows change nothing: the next row's offset is the one
+    // before them.
+    let last = items[3].as_ref().expect("row");
+    assert_eq!(last.offset_change, None);
+    assert_eq!(last.time, time("2026-12-01T19:00:03Z"));
+    // With no time before it, the message names no offset.
+    let e = one_row_error("2026-12-01T19:00:00.000,1,\n");
+    assert!(
+        e.to_string().starts_with(
+            "run.csv:3:1: time \"2026-12-01T19:00:00.000\" has no UTC offset: the zone it was \
+             written in is unknown, so the row is not used"
+        ),
+        "{e}"
+    );
 }
