@@ -486,6 +486,8 @@ fn operator_actions_from_the_event_log_stand_beside_the_events() {
         err.contains("no-such-events.jsonl: cannot open the event log"),
         "{err}"
     );
+}
+
 // ---- The rate-of-rise fit against a reference library ----
 
 fn close(got: f64, want: f64, tol: f64, what: &str) {
