@@ -11,6 +11,7 @@ use std::path::{Path, PathBuf};
 
 use chrono::{DateTime, Utc};
 
+use super::plot::PlotData;
 use super::{Item, Pipeline, Sink};
 use crate::alarm::quantity::Quantity;
 use crate::alarm::rule::Test;
@@ -40,6 +41,9 @@ pub struct ReportOptions {
     pub gap_after_s: Option<f64>,
     /// Chamber volume, m³, for pumping speeds and leak rates.
     pub volume_m3: Option<f64>,
+    /// Keep a thinned copy of each gauge's pressure for a plot
+    /// ([`super::plot`]); its memory does not grow with the log.
+    pub plot: bool,
 }
 
 /// The pipeline's report sink: per-gauge accumulators, the events, and
@@ -57,6 +61,7 @@ pub struct ReportSink {
     csv: Option<Box<dyn Write + Send>>,
     csv_header: bool,
     csv_error: Option<String>,
+    plot: Option<PlotData>,
 }
 
 impl ReportSink {
@@ -64,7 +69,6 @@ impl ReportSink {
     /// derived columns.
     pub fn new(options: ReportOptions, csv: Option<Box<dyn Write + Send>>) -> Self {
         ReportSink {
-            options,
             gauges: Vec::new(),
             analyzers: Vec::new(),
             origin: None,
@@ -74,6 +78,8 @@ impl ReportSink {
             csv,
             csv_header: false,
             csv_error: None,
+            plot: options.plot.then(PlotData::default),
+            options,
         }
     }
 
@@ -180,6 +186,11 @@ impl ReportSink {
         &self.events
     }
 
+    /// What was kept for the plot, when [`ReportOptions::plot`] asked.
+    pub fn plot_data(&self) -> Option<&PlotData> {
+        self.plot.as_ref()
+    }
+
     /// Problems the pipeline reported (a gas column naming no gas …).
     pub fn notes(&self) -> &[String] {
         &self.notes
@@ -246,6 +257,9 @@ impl Sink for ReportSink {
                                 },
                                 ..AnalysisOptions::default()
                             }));
+                            if let Some(plot) = self.plot.as_mut() {
+                                plot.add_gauge(monitor.setup());
+                            }
                             self.index.insert(s.channel.clone(), self.gauges.len() - 1);
                             self.gauges.len() - 1
                         }
@@ -253,8 +267,12 @@ impl Sink for ReportSink {
                     // The gauge's true pressure, on seconds from the first
                     // reading, to the pump-down and rate-of-rise analysis.
                     let origin = *self.origin.get_or_insert(s.time);
+                    let t_s = (s.time - origin).num_milliseconds() as f64 / 1000.0;
                     if let (Some(p), Some(a)) = (pressure_pa, self.analyzers.get_mut(i)) {
-                        a.push((s.time - origin).num_milliseconds() as f64 / 1000.0, p);
+                        a.push(t_s, p);
+                    }
+                    if let (Some(p), Some(plot)) = (pressure_pa, self.plot.as_mut()) {
+                        plot.push(i, t_s, p, derived.map(|d| d.mean_free_path_m * p));
                     }
                     if let Some(g) = self.gauges.get_mut(i) {
                         g.add(obs);
