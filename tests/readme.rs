@@ -255,7 +255,7 @@ fn every_readme_command_names_existing_files_and_runs_or_parses() {
         // Outputs go to a temporary directory, never into the clone.
         let mut args = ex.args.clone();
         for i in 1..args.len() {
-            if matches!(args[i - 1].as_str(), "--out" | "-o" | "--record") {
+            if matches!(args[i - 1].as_str(), "--out" | "-o" | "--record" | "--plot") {
                 args[i] = out
                     .join(format!("{n}-{}", args[i].replace('/', "_")))
                     .display()

@@ -825,3 +825,206 @@ fn an_empty_file_beside_a_good_one_is_located_and_the_rest_reported() {
     assert_eq!(v["rows"], 2);
     assert_eq!(v["unusable_rows"], serde_json::json!({}));
 }
+
+mod plot {
+    use super::*;
+    use rarefy::pipeline::plot::{
+        CLEAR_COLOUR, GAUGE_COLOURS, RAISE_COLOUR, RANGE_FILLS, REGIME_FILLS, RISE_COLOUR,
+        THRESHOLD_COLOUR, hex,
+    };
+    use rarefy::report::decimate::PLOT_BUCKETS;
+
+    /// The SVG's elements named `tag`.
+    fn elements<'a>(doc: &'a roxmltree::Document<'a>, tag: &str) -> Vec<roxmltree::Node<'a, 'a>> {
+        doc.descendants().filter(|n| n.has_tag_name(tag)).collect()
+    }
+
+    fn texts(doc: &roxmltree::Document<'_>) -> Vec<String> {
+        elements(doc, "text")
+            .iter()
+            .filter_map(|n| n.text())
+            .map(|t| t.trim().to_string())
+            .collect()
+    }
+
+    fn strokes<'a>(doc: &'a roxmltree::Document<'a>, colour: &str) -> Vec<roxmltree::Node<'a, 'a>> {
+        elements(doc, "polyline")
+            .into_iter()
+            .filter(|n| n.attribute("stroke") == Some(colour))
+            .collect()
+    }
+
+    fn points(n: &roxmltree::Node<'_, '_>) -> Vec<(i32, i32)> {
+        n.attribute("points")
+            .unwrap_or_default()
+            .split_whitespace()
+            .map(|p| {
+                let (x, y) = p.split_once(',').expect("x,y");
+                (x.parse().expect("x"), y.parse().expect("y"))
+            })
+            .collect()
+    }
+
+    #[test]
+    fn the_plot_is_valid_svg_with_every_mark() {
+        let svg = temp("leak-plot.svg", "");
+        let (code, out, err) = report(&[
+            "sample-logs/leak-check.csv",
+            "--config",
+            "config/demo.toml",
+            "--target",
+            "1e-5 mbar",
+            "--plot",
+            svg.to_str().expect("p"),
+        ]);
+        assert!(code == 0 || code == 3, "exit {code}: {err}");
+        assert!(out.contains("Run report"), "the text report still goes out");
+        let text = std::fs::read_to_string(&svg).expect("svg");
+        let doc = roxmltree::Document::parse(&text).expect("the plot is well-formed XML");
+        let root = doc.root_element();
+        assert!(root.has_tag_name("svg"), "{:?}", root.tag_name());
+        assert_eq!(
+            root.tag_name().namespace(),
+            Some("http://www.w3.org/2000/svg")
+        );
+
+        // Each pressure gauge (cdg, chamber, ion; not the wall thermometer)
+        // is a line in its colour.
+        for c in &GAUGE_COLOURS[..3] {
+            let lines = strokes(&doc, &hex(*c));
+            assert!(
+                lines.iter().any(|l| points(l).len() > 100),
+                "a pressure series in {}",
+                hex(*c)
+            );
+        }
+        assert!(strokes(&doc, &hex(GAUGE_COLOURS[3])).is_empty());
+
+        let texts = texts(&doc);
+        let has = |t: &str| texts.iter().any(|x| x == t);
+        let contains = |t: &str| texts.iter().any(|x| x.contains(t));
+        // A label per decade, 1e-6 to 1e3 mbar.
+        for d in ["1e-6", "1e-5", "1e-3", "1e0", "1e3"] {
+            assert!(has(d), "decade label {d}: {texts:?}");
+        }
+        assert!(contains("pressure, mbar"), "{texts:?}");
+        // ISO 3529-1 range bands: filled rectangles, named.
+        let bands = elements(&doc, "rect")
+            .into_iter()
+            .filter(|r| {
+                RANGE_FILLS
+                    .iter()
+                    .any(|c| r.attribute("fill") == Some(&*hex(*c)))
+            })
+            .count();
+        assert!(bands >= 3, "{bands} range bands");
+        for r in ["low vacuum", "medium vacuum", "high vacuum"] {
+            assert!(has(r), "{r}: {texts:?}");
+        }
+        // Regime columns for the named lengths.
+        let regimes = elements(&doc, "rect")
+            .into_iter()
+            .filter(|r| {
+                REGIME_FILLS
+                    .iter()
+                    .any(|c| r.attribute("fill") == Some(&*hex(*c)))
+            })
+            .count();
+        assert_eq!(regimes, 9, "three regimes for each of three lengths");
+        assert!(has("chamber bore") && has("viscous") && has("molecular"));
+        // Thresholds: dashed lines, labelled with the rule and the pressure.
+        assert!(strokes(&doc, &hex(THRESHOLD_COLOUR)).len() > 10, "dashes");
+        assert!(has("ion-high 5.00e-5 mbar"), "{texts:?}");
+        assert!(has("--target 1.00e-5 mbar"), "{texts:?}");
+        // Alarm marks: raised and cleared, with the rule ids.
+        assert!(!strokes(&doc, &hex(RAISE_COLOUR)).is_empty());
+        assert!(!strokes(&doc, &hex(CLEAR_COLOUR)).is_empty());
+        assert!(has("fast-rise") && has("line-regime"), "{texts:?}");
+        // The capacitance gauge's rate of rise and its verdict.
+        assert!(!strokes(&doc, &hex(RISE_COLOUR)).is_empty());
+        assert!(contains("cdg: rate of rise, leak, Q 2.0"), "{texts:?}");
+        assert!(has("target reached"), "{texts:?}");
+        for t in ["alarm raised", "alarm cleared", "threshold", "rate of rise"] {
+            assert!(has(t), "legend {t}");
+        }
+    }
+
+    #[test]
+    fn a_plot_that_cannot_be_written_names_its_path_and_keeps_the_report() {
+        let (code, out, err) = report(&[
+            "sample-logs/pumpdown.csv",
+            "--config",
+            "config/demo.toml",
+            "--plot",
+            "/nonexistent/dir/x.svg",
+        ]);
+        assert_eq!(code, 1, "{err}");
+        assert!(err.contains("--plot /nonexistent/dir/x.svg"), "{err}");
+        assert!(
+            out.contains("Run report") && out.contains("pump-down"),
+            "{out}"
+        );
+        // JSON too.
+        let (code, out, _) = report(&[
+            "sample-logs/pumpdown.csv",
+            "--format",
+            "json",
+            "--plot",
+            "/nonexistent/dir/x.svg",
+        ]);
+        assert_eq!(code, 1);
+        let v: Value = serde_json::from_str(&out).expect("the JSON report is whole");
+        assert!(v["rows"].as_u64().expect("rows") > 0);
+    }
+
+    #[test]
+    fn a_long_log_draws_in_bounded_points_and_keeps_its_spike() {
+        // 40 000 readings at 1 s; one reading of 500 Pa in a run near 1e-4 Pa.
+        let mut log = String::from("# rarefy log v1\ntime,chamber [Pa]\n");
+        for i in 0..40_000u32 {
+            let (d, r) = (1 + i / 86_400, i % 86_400);
+            let p = if i == 23_456 {
+                500.0
+            } else {
+                1e-4 * (1.0 + 0.2 * (f64::from(i) * 0.01).sin())
+            };
+            log.push_str(&format!(
+                "2026-01-{d:02}T{:02}:{:02}:{:02}.000Z,{p:e}\n",
+                r / 3600,
+                r / 60 % 60,
+                r % 60
+            ));
+        }
+        let p = temp("long.csv", &log);
+        let svg = temp("long.svg", "");
+        let (code, _, err) = report(&[
+            p.to_str().expect("p"),
+            "--format",
+            "json",
+            "--plot",
+            svg.to_str().expect("p"),
+        ]);
+        assert_eq!(code, 0, "{err}");
+        let text = std::fs::read_to_string(&svg).expect("svg");
+        let doc = roxmltree::Document::parse(&text).expect("xml");
+        // The line (the legend's sample is a polyline of two points).
+        let series: Vec<(i32, i32)> = strokes(&doc, &hex(GAUGE_COLOURS[0]))
+            .iter()
+            .map(points)
+            .filter(|p| p.len() > 2)
+            .flatten()
+            .collect();
+        assert!(series.len() > 1000, "{}", series.len());
+        assert!(
+            series.len() <= 4 * PLOT_BUCKETS,
+            "{} points for 40 000 readings",
+            series.len()
+        );
+        assert!(series.windows(2).all(|w| w[0].0 <= w[1].0), "time order");
+        // The spike is still drawn: far above the rest of the line.
+        let mut ys: Vec<i32> = series.iter().map(|p| p.1).collect();
+        ys.sort_unstable();
+        let median = ys[ys.len() / 2];
+        assert!(ys[0] < median - 300, "spike at {} vs {median}", ys[0]);
+    }
+}

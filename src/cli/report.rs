@@ -78,6 +78,11 @@ pub struct ReportArgs {
     /// Write to this file instead of stdout.
     #[arg(long, short = 'o')]
     out: Option<PathBuf>,
+    /// Also draw the run as SVG: log pressure against time over the ISO
+    /// 3529-1 ranges and flow regimes, thresholds, alarms, rate-of-rise
+    /// segments and targets. With any --format.
+    #[arg(long, value_name = "F.svg")]
+    plot: Option<PathBuf>,
 }
 
 /// A writer for `--out` or stdout.
@@ -208,6 +213,7 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
         volume_m3,
         origin: start,
         rise_ranges,
+        plot: args.plot.is_some(),
     };
     let csv = match args.format {
         Format::Csv => Some(output(args.out.as_ref())?),
@@ -248,6 +254,10 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
         }
         Format::Text => write_to(args.out.as_ref(), &to_text(&sink, &outcome, &ops, unit))?,
     }
+    // After the report, so that a plot that cannot be written loses none of it.
+    if let Some(path) = &args.plot {
+        write_plot(path, &sink, &outcome, unit)?;
+    }
     Ok(if outcome.trip_seen {
         ExitCode::Trip
     } else {
@@ -270,6 +280,34 @@ fn actions(args: &ReportArgs, sink: &ReportSink) -> OperatorActions {
         args.events.clone()
     };
     operator_actions(&files, start, end)
+}
+
+/// Draws the run and writes it to `path`; errors name the path.
+fn write_plot(
+    path: &std::path::Path,
+    sink: &ReportSink,
+    outcome: &WalkOutcome,
+    unit: PressureUnit,
+) -> Result<(), CliError> {
+    let names: Vec<String> = outcome
+        .files
+        .iter()
+        .map(|f| {
+            f.file_name().map_or_else(
+                || f.display().to_string(),
+                |n| n.to_string_lossy().into_owned(),
+            )
+        })
+        .collect();
+    let title = match names.as_slice() {
+        [] => "rarefy report".to_string(),
+        [one] => format!("rarefy report: {one}"),
+        [first, rest @ ..] => format!("rarefy report: {first} and {} more", rest.len()),
+    };
+    let svg = crate::pipeline::plot::render(sink, unit, &title)
+        .map_err(|e| CliError::Runtime(format!("--plot {}: {e}", path.display())))?;
+    std::fs::write(path, svg)
+        .map_err(|e| CliError::Runtime(format!("--plot {}: {e}", path.display())))
 }
 
 fn write_to(out: Option<&PathBuf>, text: &str) -> Result<(), CliError> {

@@ -16,6 +16,7 @@
 //! [`DataClock`], as "no data has arrived by now".
 
 mod clock;
+pub mod plot;
 pub mod replay;
 pub mod report;
 pub mod sinks;

@@ -11,6 +11,7 @@ use std::path::{Path, PathBuf};
 
 use chrono::{DateTime, Utc};
 
+use super::plot::PlotData;
 use super::{Item, Pipeline, Sink};
 use crate::alarm::quantity::Quantity;
 use crate::alarm::rule::Test;
@@ -47,6 +48,9 @@ pub struct ReportOptions {
     /// Time ranges to analyse as rate-of-rise segments, whatever the
     /// pressure does.
     pub rise_ranges: Vec<(DateTime<Utc>, DateTime<Utc>)>,
+    /// Keep a thinned copy of each gauge's pressure for a plot
+    /// ([`super::plot`]); its memory does not grow with the log.
+    pub plot: bool,
 }
 
 /// The pipeline's report sink: per-gauge accumulators, the events, and
@@ -69,6 +73,7 @@ pub struct ReportSink {
     csv: Option<Box<dyn Write + Send>>,
     csv_header: bool,
     csv_error: Option<String>,
+    plot: Option<PlotData>,
 }
 
 impl ReportSink {
@@ -77,7 +82,6 @@ impl ReportSink {
     pub fn new(options: ReportOptions, csv: Option<Box<dyn Write + Send>>) -> Self {
         ReportSink {
             origin: options.origin,
-            options,
             gauges: Vec::new(),
             analyzers: Vec::new(),
             chamber: None,
@@ -88,6 +92,8 @@ impl ReportSink {
             csv,
             csv_header: false,
             csv_error: None,
+            plot: options.plot.then(PlotData::default),
+            options,
         }
     }
 
@@ -227,6 +233,11 @@ impl ReportSink {
         &self.events
     }
 
+    /// What was kept for the plot, when [`ReportOptions::plot`] asked.
+    pub fn plot_data(&self) -> Option<&PlotData> {
+        self.plot.as_ref()
+    }
+
     /// Problems the pipeline reported (a gas column naming no gas …).
     pub fn notes(&self) -> &[String] {
         &self.notes
@@ -333,6 +344,9 @@ impl Sink for ReportSink {
                             if track.is_some_and(|t| t.is_pressure) {
                                 self.pressure_gauges += 1;
                             }
+                            if let Some(plot) = self.plot.as_mut() {
+                                plot.add_gauge(monitor.setup());
+                            }
                             self.index.insert(s.channel.clone(), self.gauges.len() - 1);
                             self.gauges.len() - 1
                         }
@@ -344,6 +358,9 @@ impl Sink for ReportSink {
                     if let (Some(p), Some(a)) = (pressure_pa, self.analyzers.get_mut(i)) {
                         let src = a.source(&source_name(&s.channel, monitor));
                         a.push_from(t_s, p, src);
+                    }
+                    if let (Some(p), Some(plot)) = (pressure_pa, self.plot.as_mut()) {
+                        plot.push(i, t_s, p, derived.map(|d| d.mean_free_path_m * p));
                     }
                     if let Some(g) = self.gauges.get_mut(i) {
                         g.add(obs);

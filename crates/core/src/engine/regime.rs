@@ -80,6 +80,22 @@ impl RegimeBounds {
             FlowRegime::Transitional
         }
     }
+
+    /// The pressures, Pa, where the flow in a length of `length_m` turns
+    /// from viscous to transitional (Kn = lower bound) and from transitional
+    /// to molecular (Kn = upper bound), for a gas whose mean free path times
+    /// pressure is `lambda_p_m_pa` (m·Pa; constant for a gas at one
+    /// temperature, since λ ∝ 1/p). `None` when either is not a positive
+    /// number.
+    pub fn pressures(&self, lambda_p_m_pa: f64, length_m: f64) -> Option<(f64, f64)> {
+        let ok = |x: f64| x.is_finite() && x > 0.0;
+        if !ok(lambda_p_m_pa) || !ok(length_m) {
+            return None;
+        }
+        // Kn = λ(p)/L = (λ·p)/(p·L) = bound  ⇔  p = (λ·p)/(bound·L).
+        let at = |kn: f64| lambda_p_m_pa / (kn * length_m);
+        Some((at(self.viscous_below), at(self.molecular_above)))
+    }
 }
 
 /// Knudsen number Kn = λ/L.
@@ -250,6 +266,28 @@ mod tests {
             .validate()
             .is_err()
         );
+    }
+
+    #[test]
+    fn regime_pressures_classify_as_their_bounds() {
+        // Source: REFERENCES.md (b): air at 293.15 K has Kn = 0.01 at
+        // p·L = 0.674 Pa·m and Kn = 0.5 at 0.0135 Pa·m, so λ·p = 6.74e-3 m·Pa.
+        let b = RegimeBounds::default();
+        let (visc, mol) = b.pressures(6.74e-3, 1.0).expect("pressures");
+        assert!((visc - 0.674).abs() < 1e-12, "{visc}");
+        assert!((mol - 0.01348).abs() < 1e-12, "{mol}");
+        // Just above the viscous bound's pressure the flow is viscous, just
+        // below the molecular bound's it is molecular.
+        let lp = 6.6e-3;
+        let l = 0.04;
+        let (visc, mol) = b.pressures(lp, l).expect("pressures");
+        let kn = |p: f64| knudsen(lp / p, l);
+        assert_eq!(b.classify(kn(visc * 1.001)), FlowRegime::Viscous);
+        assert_eq!(b.classify(kn(visc * 0.999)), FlowRegime::Transitional);
+        assert_eq!(b.classify(kn(mol * 1.001)), FlowRegime::Transitional);
+        assert_eq!(b.classify(kn(mol * 0.999)), FlowRegime::Molecular);
+        assert_eq!(b.pressures(0.0, 1.0), None);
+        assert_eq!(b.pressures(1e-2, f64::NAN), None);
     }
 
     #[test]

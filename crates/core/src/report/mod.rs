@@ -16,6 +16,7 @@
 //! estimate (within about half a decade in the tests), on values without a
 //! trend within a few per cent.
 
+pub mod decimate;
 mod p2;
 
 use std::collections::BTreeMap;
@@ -23,6 +24,7 @@ use std::collections::BTreeMap;
 use chrono::{DateTime, Utc};
 use serde::Serialize;
 
+pub use decimate::Decimator;
 pub use p2::P2Quantile;
 
 use crate::engine::regime::{FlowRegime, VacuumRange};
