@@ -316,14 +316,7 @@ impl Sink for ReportSink {
                         status,
                         pressure_pa,
                         range: derived.map(|d| d.vacuum_range),
-                        regimes: derived
-                            .map(|d| {
-                                d.lengths
-                                    .iter()
-                                    .map(|l| (l.name.clone(), l.regime))
-                                    .collect()
-                            })
-                            .unwrap_or_default(),
+                        regimes: derived.map_or(&[], |d| d.lengths.as_slice()),
                         exposure_langmuir: track
                             .filter(|t| t.is_pressure)
                             .map(|t| t.exposure.langmuir()),

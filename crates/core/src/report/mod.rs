@@ -27,6 +27,7 @@ use serde::Serialize;
 pub use decimate::Decimator;
 pub use p2::P2Quantile;
 
+use crate::engine::LengthDerived;
 use crate::engine::regime::{FlowRegime, VacuumRange};
 use crate::sample::Status;
 
@@ -72,7 +73,7 @@ pub struct Threshold {
 /// One reading of a gauge as the report takes it: the monitor's view after
 /// the reading.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Observation {
+pub struct Observation<'a> {
     /// Data time.
     pub time: DateTime<Utc>,
     /// The reading's status.
@@ -81,8 +82,8 @@ pub struct Observation {
     pub pressure_pa: Option<f64>,
     /// Its ISO 3529-1 range.
     pub range: Option<VacuumRange>,
-    /// Its flow regime per named length.
-    pub regimes: Vec<(String, FlowRegime)>,
+    /// Its flow regime per named length (the engine's per-length results).
+    pub regimes: &'a [LengthDerived],
     /// The gauge's cumulative exposure after it, langmuir.
     pub exposure_langmuir: Option<f64>,
 }
@@ -91,7 +92,8 @@ pub struct Observation {
 #[derive(Debug, Clone, PartialEq)]
 struct Held {
     range: Option<VacuumRange>,
-    regimes: Vec<(String, FlowRegime)>,
+    /// (index into `in_regime`, regime).
+    regimes: Vec<(usize, FlowRegime)>,
 }
 
 /// One gauge's report, accumulated reading by reading.
@@ -107,8 +109,11 @@ pub struct GaugeAccumulator {
     max: Option<f64>,
     median: P2Quantile,
     intervals: Vec<f64>,
+    /// The gap limit once [`INTERVALS_KEPT`] intervals are in.
+    gap_limit_fixed: Option<f64>,
     in_range: BTreeMap<VacuumRange, f64>,
-    in_regime: BTreeMap<String, BTreeMap<FlowRegime, f64>>,
+    /// Per named length (first-seen order): seconds in each of [`REGIMES`].
+    in_regime: Vec<(String, [f64; REGIMES.len()])>,
     no_pressure_s: f64,
     gap_s: f64,
     gap_count: u64,
@@ -135,8 +140,9 @@ impl GaugeAccumulator {
             max: None,
             median: P2Quantile::new(0.5),
             intervals: Vec::new(),
+            gap_limit_fixed: None,
             in_range: BTreeMap::new(),
-            in_regime: BTreeMap::new(),
+            in_regime: Vec::new(),
             no_pressure_s: 0.0,
             gap_s: 0.0,
             gap_count: 0,
@@ -149,7 +155,20 @@ impl GaugeAccumulator {
 
     /// The interval beyond which there is a gap, s, given the intervals so
     /// far (and this one when it is the first).
-    fn gap_limit(&self, dt: f64) -> f64 {
+    fn gap_limit(&mut self, dt: f64) -> f64 {
+        if let Some(g) = self.gap_limit_fixed {
+            return g;
+        }
+        let limit = self.median_limit(dt);
+        if self.gap_after_s.is_none() && self.intervals.len() >= INTERVALS_KEPT {
+            // Every interval the median rests on is in: it is final.
+            self.gap_limit_fixed = Some(limit);
+        }
+        limit
+    }
+
+    /// [`GaugeAccumulator::gap_limit`] without the cache.
+    fn median_limit(&self, dt: f64) -> f64 {
         if let Some(g) = self.gap_after_s {
             return g;
         }
@@ -163,7 +182,7 @@ impl GaugeAccumulator {
     }
 
     /// Adds one reading.
-    pub fn add(&mut self, obs: Observation) {
+    pub fn add(&mut self, obs: Observation<'_>) {
         self.samples += 1;
         if let Some(i) = Status::ALL.iter().position(|s| *s == obs.status) {
             self.statuses[i] += 1;
@@ -189,13 +208,13 @@ impl GaugeAccumulator {
                         Some(r) => *self.in_range.entry(r).or_default() += dt,
                         None => self.no_pressure_s += dt,
                     }
-                    for (name, regime) in &held.regimes {
-                        *self
-                            .in_regime
-                            .entry(name.clone())
-                            .or_default()
-                            .entry(*regime)
-                            .or_default() += dt;
+                    for &(i, regime) in &held.regimes {
+                        if let (Some((_, secs)), Some(k)) = (
+                            self.in_regime.get_mut(i),
+                            REGIMES.iter().position(|r| *r == regime),
+                        ) {
+                            secs[k] += dt;
+                        }
                     }
                 }
                 self.end = Some(obs.time);
@@ -217,10 +236,30 @@ impl GaugeAccumulator {
         if obs.exposure_langmuir.is_some() {
             self.exposure = obs.exposure_langmuir;
         }
-        self.held = Some(Held {
-            range: if p.is_some() { obs.range } else { None },
-            regimes: if p.is_some() { obs.regimes } else { Vec::new() },
+        let mut held = self.held.take().unwrap_or(Held {
+            range: None,
+            regimes: Vec::new(),
         });
+        held.range = if p.is_some() { obs.range } else { None };
+        held.regimes.clear();
+        if p.is_some() {
+            for (j, l) in obs.regimes.iter().enumerate() {
+                // Lengths come in the same order every time: look there
+                // first.
+                let i = match self.in_regime.get(j) {
+                    Some((name, _)) if *name == l.name => j,
+                    _ => match self.in_regime.iter().position(|(n, _)| *n == l.name) {
+                        Some(i) => i,
+                        None => {
+                            self.in_regime.push((l.name.clone(), [0.0; REGIMES.len()]));
+                            self.in_regime.len() - 1
+                        }
+                    },
+                };
+                held.regimes.push((i, l.regime));
+            }
+        }
+        self.held = Some(held);
     }
 
     /// The report so far.
@@ -248,23 +287,24 @@ impl GaugeAccumulator {
                 .iter()
                 .map(|r| (*r, self.in_range.get(r).copied().unwrap_or(0.0)))
                 .collect(),
-            time_in_regime_s: self
-                .in_regime
-                .iter()
-                .map(|(name, m)| {
-                    (
-                        name.clone(),
-                        REGIMES
-                            .iter()
-                            .map(|r| (*r, m.get(r).copied().unwrap_or(0.0)))
-                            .collect(),
-                    )
-                })
-                .collect(),
+            time_in_regime_s: {
+                let mut v: Vec<(String, Vec<(FlowRegime, f64)>)> = self
+                    .in_regime
+                    .iter()
+                    .map(|(name, secs)| {
+                        (
+                            name.clone(),
+                            REGIMES.iter().copied().zip(secs.iter().copied()).collect(),
+                        )
+                    })
+                    .collect();
+                v.sort_by(|a, b| a.0.cmp(&b.0));
+                v
+            },
             time_without_pressure_s: self.no_pressure_s,
             gap_after_s: self
                 .gap_after_s
-                .or_else(|| (!self.intervals.is_empty()).then(|| self.gap_limit(0.0))),
+                .or_else(|| (!self.intervals.is_empty()).then(|| self.median_limit(0.0))),
             gap_count: self.gap_count,
             gap_s: self.gap_s,
             gaps: self.gaps.clone(),

@@ -9,8 +9,17 @@ fn at(s: i64) -> DateTime<Utc> {
         .expect("time")
 }
 
-fn obs(s: i64, p: Option<f64>) -> Observation {
+fn obs(s: i64, p: Option<f64>) -> Observation<'static> {
     let range = p.map(|p| IsoEdition::Ed2019.classify(p));
+    // Leaked: a test's few observations borrow them for 'static.
+    let one = |regime, knudsen| -> &'static [LengthDerived] {
+        Box::leak(Box::new([LengthDerived {
+            name: "line".into(),
+            length_m: 0.1,
+            knudsen,
+            regime,
+        }]))
+    };
     Observation {
         time: at(s),
         status: if p.is_some() {
@@ -20,16 +29,11 @@ fn obs(s: i64, p: Option<f64>) -> Observation {
         },
         pressure_pa: p,
         range,
-        regimes: p
-            .map(|p| {
-                let r = if p > 100.0 {
-                    FlowRegime::Viscous
-                } else {
-                    FlowRegime::Molecular
-                };
-                vec![("line".to_string(), r)]
-            })
-            .unwrap_or_default(),
+        regimes: match p {
+            Some(p) if p > 100.0 => one(FlowRegime::Viscous, 1e-3),
+            Some(_) => one(FlowRegime::Molecular, 10.0),
+            None => &[],
+        },
         exposure_langmuir: None,
     }
 }
