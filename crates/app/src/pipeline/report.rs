@@ -273,7 +273,7 @@ impl ReportSink {
 /// The name a gauge's readings carry in the analysis: its id, and for a
 /// combined gauge the element that read (its two elements step where they
 /// hand over, so no fit may span them).
-fn source_name(id: &str, monitor: &Monitor) -> String {
+fn source_name<'a>(id: &'a str, monitor: &Monitor) -> std::borrow::Cow<'a, str> {
     let kind = monitor
         .setup()
         .gauges
@@ -281,8 +281,8 @@ fn source_name(id: &str, monitor: &Monitor) -> String {
         .find(|g| g.id == id)
         .map(|g| g.model.kind);
     match (kind, monitor.track(id).and_then(|t| t.indicated)) {
-        (Some(k @ GaugeKind::Combined), Some(v)) => format!("{id} ({})", k.element(v)),
-        _ => id.to_string(),
+        (Some(k @ GaugeKind::Combined), Some(v)) => format!("{id} ({})", k.element(v)).into(),
+        _ => id.into(),
     }
 }
 

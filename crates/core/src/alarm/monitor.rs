@@ -123,6 +123,24 @@ impl GaugeTrack {
         Some(self.t0? + chrono::Duration::milliseconds(since_ms))
     }
 
+    /// A copy of the track for [`GaugeTrack::restore`], but for its rate
+    /// window, which keeps an undo log from now on instead.
+    fn save(&mut self) -> GaugeTrack {
+        let window = std::mem::take(&mut self.window);
+        let copy = self.clone();
+        self.window = window;
+        self.window.checkpoint();
+        copy
+    }
+
+    /// Returns to the state [`GaugeTrack::save`] gave.
+    fn restore(&mut self, saved: GaugeTrack) {
+        let mut window = std::mem::take(&mut self.window);
+        window.rollback();
+        *self = saved;
+        self.window = window;
+    }
+
     fn new(exposure: ExposureStart) -> Self {
         GaugeTrack {
             last_time: None,
@@ -479,14 +497,35 @@ impl Monitor {
         let steps = !self.setup.gas_steps.is_empty()
             && self.gas.choice.0 == GasChoice::Auto
             && self.gas.log.is_none();
-        let saved = steps.then(|| (self.tracks.clone(), self.temperature_k));
+        // Only the row's tracks change; their rate windows keep an undo log
+        // rather than being copied.
+        let saved = steps.then(|| {
+            let mut saved: Vec<(&str, Option<GaugeTrack>)> = Vec::with_capacity(samples.len());
+            for s in samples {
+                if saved.iter().all(|(id, _)| *id != s.channel) {
+                    let t = self.tracks.get_mut(&s.channel).map(GaugeTrack::save);
+                    saved.push((s.channel.as_str(), t));
+                }
+            }
+            (saved, self.temperature_k)
+        });
         for s in samples {
             self.take(s);
         }
-        if let Some((tracks, temperature_k)) = saved {
+        if let Some((saved, temperature_k)) = saved {
             let (mixture, origin) = self.wanted_gas(now);
-            if mixture != self.gas.mixture || origin != self.gas.origin {
-                self.tracks = tracks;
+            let change = mixture != self.gas.mixture || origin != self.gas.origin;
+            for (id, old) in saved {
+                match (self.tracks.get_mut(id), old) {
+                    (Some(t), Some(old)) if change => t.restore(old),
+                    (Some(_), None) if change => {
+                        self.tracks.remove(id);
+                    }
+                    (Some(t), _) => t.window.commit(),
+                    (None, _) => {}
+                }
+            }
+            if change {
                 self.temperature_k = temperature_k;
                 events.push(self.apply_gas(mixture, origin, None, now));
                 for s in samples {
@@ -536,7 +575,7 @@ impl Monitor {
                     && step
                         .when
                         .iter()
-                        .all(|c| matches!(self.check(c, now, false), Check::Holds))
+                        .all(|c| matches!(self.check(c, now, false, false), Check::Holds))
             })
             .map_or((self.setup.mixture.clone(), GasOrigin::Base), |step| {
                 (step.mixture.clone(), GasOrigin::Step(step.id.clone()))
@@ -942,8 +981,9 @@ impl Monitor {
     }
 
     /// Judges condition `c` at `now`; `held` says it held at the last
-    /// evaluation, so its deadband applies.
-    fn check(&self, c: &Condition, now: DateTime<Utc>, held: bool) -> Check {
+    /// evaluation, so its deadband applies. `explain`: whether the caller
+    /// shows why it fails (else the reasons are left empty, unformatted).
+    fn check(&self, c: &Condition, now: DateTime<Utc>, held: bool, explain: bool) -> Check {
         let named = c
             .gauge
             .as_deref()
@@ -954,15 +994,19 @@ impl Monitor {
             .then(|| self.chamber_at(&c.quantity, now))
             .flatten();
         if named == AUTO && source.is_none() {
-            return Check::Unknown("no gauge in range for the chamber pressure".into());
+            return Check::Unknown(if explain {
+                "no gauge in range for the chamber pressure".into()
+            } else {
+                String::new()
+            });
         }
-        let shown_name = match &source {
+        // The texts only when they are said (not on every evaluation).
+        let shown_name = || match &source {
             Some(s) => format!("chamber pressure ({})", s.gauge),
             None => named.to_string(),
         };
         let gauge = source.as_ref().map_or(named, |s| s.gauge.as_str());
         let input = self.input(gauge, &c.quantity, now);
-        let shown = self.input_text(&c.quantity, input).unwrap_or_default();
         let holds = match (&c.test, input) {
             (CondTest::Above(t), Input::Value(v)) if held => v > c.deadband.clear_level(*t, true),
             (CondTest::Below(t), Input::Value(v)) if held => v < c.deadband.clear_level(*t, false),
@@ -976,22 +1020,27 @@ impl Monitor {
             }
             (CondTest::Is(k), Input::Class(v)) => v == *k,
             (CondTest::IsNot(k), Input::Class(v)) => v != *k,
+            (_, Input::Disabled) if !explain => return Check::Unknown(String::new()),
             (_, Input::Disabled) => {
-                return Check::Unknown(format!("{shown_name} is switched off"));
+                return Check::Unknown(format!("{} is switched off", shown_name()));
             }
+            _ if !explain => return Check::Unknown(String::new()),
             _ => {
                 let why = match self.tracks.get(gauge) {
                     None => "no reading yet".to_string(),
                     Some(t) if self.stale(t, now) => "reading is stale".to_string(),
                     Some(t) => format!("reading is {}", t.status),
                 };
-                return Check::Unknown(format!("{shown_name} {why}"));
+                return Check::Unknown(format!("{} {why}", shown_name()));
             }
         };
         if holds {
             Check::Holds
+        } else if !explain {
+            Check::Fails(String::new())
         } else {
-            Check::Fails(format!("{shown_name} is {shown}"))
+            let shown = self.input_text(&c.quantity, input).unwrap_or_default();
+            Check::Fails(format!("{} is {shown}", shown_name()))
         }
     }
 
@@ -1069,7 +1118,7 @@ impl Monitor {
             let (rule, enable) = (&self.rules[i].0.rule, &self.rules[i].1);
             let enabled = enable
                 .as_ref()
-                .map_or(Check::Holds, |c| self.check(c, now, false));
+                .map_or(Check::Holds, |c| self.check(c, now, false, false));
             let input = match enabled {
                 Check::Holds => self.input(&rule.gauge, &rule.quantity, now),
                 Check::Fails(_) => Input::Disabled,
@@ -1145,7 +1194,7 @@ impl Monitor {
                 .conditions
                 .iter()
                 .enumerate()
-                .map(|(j, c)| self.check(c, now, self.gates[i].was_holding(j)))
+                .map(|(j, c)| self.check(c, now, self.gates[i].was_holding(j), true))
                 .collect();
             if let Some(t) = self.gates[i].update(now, &checks) {
                 let g = &self.gates[i].gate;

@@ -59,14 +59,89 @@ pub struct RateWindow {
     points: VecDeque<(f64, f64, f64)>,
     sums: Sums,
     removals: u32,
+    mark: Option<Mark>,
+    /// The undo buffer between checkpoints, kept for its allocation.
+    spare: Vec<(f64, f64, f64)>,
+}
+
+/// What [`RateWindow::rollback`] needs to undo the changes since
+/// [`RateWindow::checkpoint`] without a copy of the points.
+#[derive(Debug, Clone, Default)]
+struct Mark {
+    sums: Sums,
+    removals: u32,
+    pushed: usize,
+    /// Points dropped from the front, oldest last.
+    popped: Vec<(f64, f64, f64)>,
+    /// The points as they were, when the window was cleared.
+    cleared: Option<VecDeque<(f64, f64, f64)>>,
 }
 
 impl RateWindow {
     /// Forgets every point (a bad reading breaks the series).
     pub fn clear(&mut self) {
+        if self.mark.as_ref().is_some_and(|m| m.cleared.is_none()) {
+            // Keep the points as they were at the checkpoint.
+            self.undo_points();
+            if let Some(m) = self.mark.as_mut() {
+                m.cleared = Some(std::mem::take(&mut self.points));
+            }
+        }
         self.points.clear();
         self.sums = Sums::default();
         self.removals = 0;
+    }
+
+    /// Remembers the window as it is, so that [`RateWindow::rollback`] can
+    /// return to it; [`RateWindow::commit`] keeps the changes instead.
+    pub fn checkpoint(&mut self) {
+        let mut popped = std::mem::take(&mut self.spare);
+        popped.clear();
+        self.mark = Some(Mark {
+            sums: self.sums,
+            removals: self.removals,
+            pushed: 0,
+            popped,
+            cleared: None,
+        });
+    }
+
+    /// Returns to the last checkpoint (nothing without one).
+    pub fn rollback(&mut self) {
+        self.undo_points();
+        if let Some(mut m) = self.mark.take() {
+            if let Some(points) = m.cleared.take() {
+                self.points = points;
+            }
+            self.sums = m.sums;
+            self.removals = m.removals;
+            m.popped.clear();
+            self.spare = m.popped;
+        }
+    }
+
+    /// Keeps the changes since the last checkpoint.
+    pub fn commit(&mut self) {
+        if let Some(mut m) = self.mark.take() {
+            m.popped.clear();
+            self.spare = m.popped;
+        }
+    }
+
+    /// Undoes the pushes and drops since the checkpoint on the points (not
+    /// on the sums), unless the window was cleared since.
+    fn undo_points(&mut self) {
+        if let Some(m) = self.mark.as_mut()
+            && m.cleared.is_none()
+        {
+            for _ in 0..m.pushed {
+                self.points.pop_back();
+            }
+            while let Some(p) = m.popped.pop() {
+                self.points.push_front(p);
+            }
+            m.pushed = 0;
+        }
     }
 
     /// Adds a reading (time s, pressure Pa, in time order) and drops those
@@ -75,11 +150,19 @@ impl RateWindow {
         let l = p.log10();
         self.points.push_back((t, p, l));
         self.sums.add(t, p, l);
+        // Under a checkpoint, note what to undo.
+        let mut undo = self.mark.as_mut().filter(|m| m.cleared.is_none());
+        if let Some(m) = undo.as_mut() {
+            m.pushed += 1;
+        }
         while let Some(&(t0, p0, l0)) = self.points.front() {
             if t - t0 <= window_s {
                 break;
             }
             self.points.pop_front();
+            if let Some(m) = undo.as_mut() {
+                m.popped.push((t0, p0, l0));
+            }
             self.sums.remove(t0, p0, l0);
             self.removals += 1;
         }
@@ -167,6 +250,39 @@ mod tests {
                 all.drain(..all.len() - inside.len());
             }
         }
+    }
+
+    #[test]
+    fn rollback_returns_to_the_checkpoint_and_commit_keeps() {
+        let mut w = RateWindow::default();
+        for i in 0..100 {
+            w.push(i as f64, 1.0 + i as f64, 30.0);
+        }
+        let before: Vec<_> = w.points.iter().copied().collect();
+        let slopes = w.slopes();
+        // A push that drops old points, then rolled back.
+        w.checkpoint();
+        w.push(150.0, 7.0, 30.0);
+        assert_eq!(w.len(), 1);
+        w.rollback();
+        assert_eq!(w.points.iter().copied().collect::<Vec<_>>(), before);
+        assert_eq!(w.slopes(), slopes);
+        // Pushes then a clear, rolled back.
+        w.checkpoint();
+        w.push(100.0, 2.0, 30.0);
+        w.clear();
+        w.push(101.0, 3.0, 30.0);
+        w.rollback();
+        assert_eq!(w.points.iter().copied().collect::<Vec<_>>(), before);
+        assert_eq!(w.slopes(), slopes);
+        // Committed: the push stays.
+        w.checkpoint();
+        w.push(100.0, 101.0, 30.0);
+        w.commit();
+        assert_eq!(w.len(), before.len());
+        assert_eq!(w.points.back().map(|p| p.0), Some(100.0));
+        w.rollback();
+        assert_eq!(w.points.back().map(|p| p.0), Some(100.0), "no mark: no-op");
     }
 
     #[test]
