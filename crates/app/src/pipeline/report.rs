@@ -21,7 +21,9 @@ use crate::log::{ForeignLogSpec, LogError, LogSource};
 use crate::logfile::open_log;
 use crate::report::{GaugeAccumulator, GaugeSummary, Observation, Threshold, Unusable};
 use crate::sample::{SourceEvent, Status};
-use rarefy_core::analysis::{Analysis, AnalysisOptions, Analyzer, PumpDownOptions, RiseOptions};
+use rarefy_core::analysis::{
+    Analysis, AnalysisOptions, Analyzer, PumpDownOptions, RiseOptions, SourceId,
+};
 use rarefy_core::engine::gauge::GaugeKind;
 
 /// How many reader messages a report keeps to show (all are counted).
@@ -65,6 +67,8 @@ pub struct ReportSink {
     chamber: Option<Analyzer>,
     /// Pressure gauges seen.
     pressure_gauges: usize,
+    /// Each gauge's source ids in its analyzer (same order).
+    labels: Vec<Labels>,
     /// Time origin of the analyses' seconds: the first reading.
     origin: Option<DateTime<Utc>>,
     index: BTreeMap<String, usize>,
@@ -86,6 +90,7 @@ impl ReportSink {
             analyzers: Vec::new(),
             chamber: None,
             pressure_gauges: 0,
+            labels: Vec::new(),
             index: BTreeMap::new(),
             events: Vec::new(),
             notes: Vec::new(),
@@ -263,8 +268,9 @@ impl ReportSink {
         if self.chamber.is_none() {
             self.chamber = Some(self.analyzer());
         }
+        let name = source_name(&s.channel, monitor);
         if let Some(a) = self.chamber.as_mut() {
-            let src = a.source(&source_name(&s.channel, monitor));
+            let src = a.source(&name);
             a.push_from((s.time - origin).num_milliseconds() as f64 / 1000.0, p, src);
         }
     }
@@ -274,16 +280,34 @@ impl ReportSink {
 /// combined gauge the element that read (its two elements step where they
 /// hand over, so no fit may span them).
 fn source_name<'a>(id: &'a str, monitor: &Monitor) -> std::borrow::Cow<'a, str> {
-    let kind = monitor
+    match (
+        gauge_kind(id, monitor),
+        monitor.track(id).and_then(|t| t.indicated),
+    ) {
+        (Some(k @ GaugeKind::Combined), Some(v)) => format!("{id} ({})", k.element(v)).into(),
+        _ => id.into(),
+    }
+}
+
+fn gauge_kind(id: &str, monitor: &Monitor) -> Option<GaugeKind> {
+    monitor
         .setup()
         .gauges
         .iter()
         .find(|g| g.id == id)
-        .map(|g| g.model.kind);
-    match (kind, monitor.track(id).and_then(|t| t.indicated)) {
-        (Some(k @ GaugeKind::Combined), Some(v)) => format!("{id} ({})", k.element(v)).into(),
-        _ => id.into(),
-    }
+        .map(|g| g.model.kind)
+}
+
+/// A gauge's source ids in its analyzer: one, or one per element of a
+/// combined gauge.
+#[derive(Debug, Clone)]
+enum Labels {
+    Plain(SourceId),
+    Combined {
+        name: String,
+        ion: SourceId,
+        thermal: SourceId,
+    },
 }
 
 /// A CSV cell: quoted when it holds a comma, quote or line break.
@@ -332,8 +356,20 @@ impl Sink for ReportSink {
                                 self.options.gap_after_s,
                             ));
                             self.origin.get_or_insert(s.time);
-                            let a = self.analyzer();
+                            let mut a = self.analyzer();
+                            let labels =
+                                if gauge_kind(&s.channel, monitor) == Some(GaugeKind::Combined) {
+                                    let name = s.channel.clone();
+                                    Labels::Combined {
+                                        ion: a.source(&format!("{name} (ionization)")),
+                                        thermal: a.source(&format!("{name} (thermal)")),
+                                        name,
+                                    }
+                                } else {
+                                    Labels::Plain(a.source(&s.channel))
+                                };
                             self.analyzers.push(a);
+                            self.labels.push(labels);
                             if track.is_some_and(|t| t.is_pressure) {
                                 self.pressure_gauges += 1;
                             }
@@ -349,7 +385,17 @@ impl Sink for ReportSink {
                     let origin = *self.origin.get_or_insert(s.time);
                     let t_s = (s.time - origin).num_milliseconds() as f64 / 1000.0;
                     if let (Some(p), Some(a)) = (pressure_pa, self.analyzers.get_mut(i)) {
-                        let src = a.source(&source_name(&s.channel, monitor));
+                        let src = match self.labels.get(i) {
+                            Some(Labels::Plain(id)) => *id,
+                            Some(Labels::Combined { name, ion, thermal }) => {
+                                let ion_reads =
+                                    monitor.track(name).and_then(|t| t.indicated).is_some_and(
+                                        |v| GaugeKind::Combined.element(v) == GaugeKind::Ionization,
+                                    );
+                                if ion_reads { *ion } else { *thermal }
+                            }
+                            None => 0,
+                        };
                         a.push_from(t_s, p, src);
                     }
                     if let (Some(p), Some(plot)) = (pressure_pa, self.plot.as_mut()) {

@@ -705,7 +705,18 @@ fn parse_cell(text: &str) -> Result<CellValue, String> {
     if text.is_empty() {
         return Ok(None);
     }
-    if let Ok(status) = text.parse::<Status>() {
+    // Numbers are the common case: try them first, before the status words
+    // (none of which parses as a number, nor starts like one).
+    if text
+        .as_bytes()
+        .first()
+        .is_some_and(|b| b.is_ascii_digit() || matches!(b, b'-' | b'+' | b'.'))
+        && let Ok(v) = text.parse::<f64>()
+        && v.is_finite()
+    {
+        return Ok(Some(Reading::Value(v)));
+    }
+    if let Some(status) = Status::ALL.iter().copied().find(|s| s.as_str() == text) {
         let Some(fault) = status.fault() else {
             return Err(
                 "cell \"ok\" has no value; a valid reading is written as its number".into(),
