@@ -19,7 +19,7 @@ use super::syntax::{CondTest, Condition};
 use crate::engine::exposure::{Exposure, ExposureStart};
 use crate::engine::gauge::GaugeSettings;
 use crate::engine::mixture::Mixture;
-use crate::engine::{Conditions, Derived, GaugeModel, NamedLength, Physics, derive};
+use crate::engine::{Derived, GaugeModel, NamedLength, Physics, Precomputed};
 use crate::sample::{Sample, Status};
 use crate::units::{PressureUnit, TemperatureUnit};
 
@@ -166,6 +166,25 @@ impl GaugeTrack {
     }
 }
 
+/// How many gas-and-temperature kinetics the monitor keeps.
+const KINETICS_CACHED: usize = 16;
+
+/// What a cached [`Precomputed`] was worked out for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+struct KineticsKey {
+    /// The gauge whose own (fixed) gas it is; `None`: the chamber's gas.
+    own_gas_of: Option<usize>,
+    /// The chamber gas's generation (0 for a gauge's own gas).
+    generation: u64,
+    temperature_bits: u64,
+}
+
+#[derive(Debug, Clone)]
+struct CachedKinetics {
+    key: KineticsKey,
+    pre: Precomputed,
+}
+
 /// A view of one alarm for displays.
 #[derive(Debug, Clone)]
 pub struct AlarmView<'a> {
@@ -189,6 +208,9 @@ pub struct Monitor {
     setup: MonitorSetup,
     tracks: BTreeMap<String, GaugeTrack>,
     temperature_k: Option<f64>,
+    /// Kinetics per gas and temperature, worked out once
+    /// ([`Precomputed`]).
+    kinetics: Vec<CachedKinetics>,
     rules: Vec<(RuleMachine, Option<Condition>)>,
     inputs: Vec<RuleMachine>,
     gates: Vec<GateMachine>,
@@ -218,6 +240,8 @@ struct GasNow {
     /// Per configured gauge (same order): its model for the gas in force,
     /// `None` when none can be built (its readings are uncorrectable).
     models: Vec<Option<GaugeModel>>,
+    /// Counts the changes of `mixture` (for the kinetics cache).
+    generation: u64,
 }
 
 /// Each gauge's model for `gas`.
@@ -308,12 +332,14 @@ impl Monitor {
             choice: (GasChoice::Auto, String::new()),
             log: None,
             models: setup.gauges.iter().map(|g| Some(g.model.clone())).collect(),
+            generation: 0,
         };
         Monitor {
             gas,
             setup,
             tracks: BTreeMap::new(),
             temperature_k: None,
+            kinetics: Vec::new(),
             rules,
             inputs,
             gates,
@@ -596,6 +622,7 @@ impl Monitor {
         let to = mixture.label();
         self.gas.models = models_for(&self.setup.gauges, &self.setup.mixture, &mixture);
         self.gas.mixture = mixture;
+        self.gas.generation += 1;
         self.gas.origin = origin;
         for g in self
             .setup
@@ -683,8 +710,16 @@ impl Monitor {
     /// `channel` with the gas in force; `None` when it is not a usable
     /// pressure, with whether that is because no correction exists for the
     /// gas (the reading is uncorrectable).
-    fn corrected(&self, channel: &str, v: f64) -> Result<(f64, Derived), bool> {
-        let (p, mixture) = match self.setup.gauges.iter().position(|g| g.id == channel) {
+    fn corrected(&mut self, channel: &str, v: f64) -> Result<(f64, Derived), bool> {
+        let (p, i) = self.corrected_at(channel, v)?;
+        Ok((p, self.kinetics[i].pre.derive(p)))
+    }
+
+    /// The true pressure of reading `v` of `channel`, and the index in the
+    /// kinetics cache of the gas and temperature it is derived with.
+    fn corrected_at(&mut self, channel: &str, v: f64) -> Result<(f64, usize), bool> {
+        let gauge = self.setup.gauges.iter().position(|g| g.id == channel);
+        let (p, mixture) = match gauge {
             Some(i) => {
                 let g = &self.setup.gauges[i];
                 let mixture = if g.settings.is_some() {
@@ -708,13 +743,27 @@ impl Monitor {
         let t = self
             .temperature_k
             .unwrap_or(self.setup.assumed_temperature_k);
-        let d = derive(
-            &Conditions::new(p, t),
-            mixture,
-            &self.setup.lengths,
-            &self.setup.physics,
-        );
-        Ok((p, d))
+        // The gauge's own gas does not change; the chamber's gas is told
+        // apart by its generation.
+        let own = gauge.filter(|i| self.setup.gauges[*i].settings.is_none());
+        let key = KineticsKey {
+            own_gas_of: own,
+            generation: if own.is_some() {
+                0
+            } else {
+                self.gas.generation
+            },
+            temperature_bits: t.to_bits(),
+        };
+        if let Some(i) = self.kinetics.iter().position(|k| k.key == key) {
+            return Ok((p, i));
+        }
+        let pre = Precomputed::new(t, mixture, &self.setup.lengths, &self.setup.physics);
+        if self.kinetics.len() >= KINETICS_CACHED {
+            self.kinetics.clear();
+        }
+        self.kinetics.push(CachedKinetics { key, pre });
+        Ok((p, self.kinetics.len() - 1))
     }
 
     /// Advances data time to `t` without new readings: evaluates at each
@@ -787,12 +836,15 @@ impl Monitor {
         let corrected = s
             .si()
             .filter(|_| s.unit.is_pressure())
-            .map(|v| self.corrected(&s.channel, v));
+            .map(|v| self.corrected_at(&s.channel, v));
         let start = self.setup.physics.exposure_start;
-        let track = self
-            .tracks
-            .entry(s.channel.clone())
-            .or_insert_with(|| GaugeTrack::new(start));
+        if !self.tracks.contains_key(&s.channel) {
+            self.tracks
+                .insert(s.channel.clone(), GaugeTrack::new(start));
+        }
+        let Some(track) = self.tracks.get_mut(&s.channel) else {
+            return;
+        };
         track.last_time = Some(s.time);
         track.status = s.status();
         track.is_pressure = s.unit.is_pressure();
@@ -809,7 +861,7 @@ impl Monitor {
             self.temperature_k = Some(v);
             return;
         }
-        let Some(Ok((p, derived))) = corrected else {
+        let Some(Ok((p, k))) = corrected else {
             track.uncorrectable = corrected == Some(Err(true));
             if track.uncorrectable {
                 // No pressure to count or fit until it can be corrected.
@@ -824,7 +876,13 @@ impl Monitor {
         };
         track.uncorrectable = false;
         track.pressure_pa = Some(p);
-        track.derived = Some(derived);
+        // Into the last result's allocations.
+        if let Some(pre) = self.kinetics.get(k).map(|c| &c.pre) {
+            match track.derived.as_mut() {
+                Some(d) => pre.derive_into(p, d),
+                None => track.derived = Some(pre.derive(p)),
+            }
+        }
         let t0 = *track.t0.get_or_insert(s.time);
         let ts = (s.time - t0).num_milliseconds() as f64 / 1000.0;
         track.exposure.add(ts, p);

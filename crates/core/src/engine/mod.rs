@@ -285,121 +285,200 @@ pub fn diameter(gas: &Gas, model: Model, t_k: f64, warnings: &mut Vec<Warning>) 
 /// Mixtures (per species i, over species j):
 /// λ_i = 1 / Σ_j n_j π d_ij² √(1 + m_i/m_j), d_ij = (d_i + d_j)/2;
 /// Φ_i = p_i/√(2π m_i k_B T); τ = N_s/(s Σ Φ_i).
+///
+/// The same as [`Precomputed::new`] at the temperature, then
+/// [`Precomputed::derive`] at the pressure.
 pub fn derive(
     conditions: &Conditions,
     mixture: &Mixture,
     lengths: &[NamedLength],
     physics: &Physics,
 ) -> Derived {
-    let p = conditions.pressure_pa;
-    let t = conditions.temperature_k;
-    let mut warnings = Vec::new();
-    if p > regime::ABOVE_ATMOSPHERIC_PA {
-        warnings.push(Warning::new(
-            "above-atmospheric",
-            format!("{p:.3e} Pa is above atmospheric pressure: not a vacuum"),
-        ));
-    }
-    let n_total = kinetics::number_density(p, t);
-    let comps = mixture.components();
-    let masses: Vec<f64> = comps
-        .iter()
-        .map(|c| molecular_mass(c.gas.molar_mass_g_mol))
-        .collect();
-    let diameters: Vec<f64> = comps
-        .iter()
-        .map(|c| diameter(&c.gas, physics.model, t, &mut warnings))
-        .collect();
+    Precomputed::new(conditions.temperature_k, mixture, lengths, physics)
+        .derive(conditions.pressure_pa)
+}
 
-    let mut species = Vec::with_capacity(comps.len());
-    for (i, c) in comps.iter().enumerate() {
-        let p_i = p * c.fraction;
-        let inv_mfp: f64 = comps
+/// The kinetics of one gas or mixture at one temperature, worked out once
+/// at 1 Pa. At a fixed temperature every quantity is a power of the
+/// pressure: n, p_i and Φ grow as p; λ and τ as 1/p; the speeds not at all.
+/// So a reading costs a few multiplications (and the range, regime and
+/// pressure warnings), not a new derivation: what the monitor does on every
+/// reading.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Precomputed {
+    temperature_k: f64,
+    /// Everything at 1 Pa; its warnings are those that do not depend on the
+    /// pressure.
+    unit: Derived,
+    /// Per species with a saturation vapour pressure: (index, gas id,
+    /// saturation pressure Pa, its source).
+    saturation: Vec<(usize, String, f64, &'static str)>,
+    bounds: RegimeBounds,
+    edition: IsoEdition,
+}
+
+impl Precomputed {
+    /// The kinetics of `mixture` at `t_k` for these lengths and physics.
+    pub fn new(t_k: f64, mixture: &Mixture, lengths: &[NamedLength], physics: &Physics) -> Self {
+        let t = t_k;
+        let mut warnings = Vec::new();
+        let n_unit = kinetics::number_density(1.0, t);
+        let comps = mixture.components();
+        let masses: Vec<f64> = comps
             .iter()
-            .enumerate()
-            .map(|(j, cj)| {
-                let d_ij = 0.5 * (diameters[i] + diameters[j]);
-                n_total
-                    * cj.fraction
-                    * std::f64::consts::PI
-                    * d_ij
-                    * d_ij
-                    * (1.0 + masses[i] / masses[j]).sqrt()
-            })
-            .sum();
-        if let Some(sat) = vapour::saturation(&c.gas.id, t)
-            && p_i > sat.pressure_pa
-        {
-            warnings.push(Warning::new(
-                "above-saturation",
-                format!(
-                    "{} partial pressure {p_i:.3e} Pa is above its saturation vapour pressure \
-                     {:.3e} Pa at {t:.2} K ({}): it condenses on surfaces at this temperature, \
-                     and the numbers shown assume it stays a gas",
-                    c.gas.id, sat.pressure_pa, sat.source
+            .map(|c| molecular_mass(c.gas.molar_mass_g_mol))
+            .collect();
+        let diameters: Vec<f64> = comps
+            .iter()
+            .map(|c| diameter(&c.gas, physics.model, t, &mut warnings))
+            .collect();
+        let mut saturation = Vec::new();
+        let mut species = Vec::with_capacity(comps.len());
+        for (i, c) in comps.iter().enumerate() {
+            let inv_mfp: f64 = comps
+                .iter()
+                .enumerate()
+                .map(|(j, cj)| {
+                    let d_ij = 0.5 * (diameters[i] + diameters[j]);
+                    n_unit
+                        * cj.fraction
+                        * std::f64::consts::PI
+                        * d_ij
+                        * d_ij
+                        * (1.0 + masses[i] / masses[j]).sqrt()
+                })
+                .sum();
+            if let Some(sat) = vapour::saturation(&c.gas.id, t) {
+                saturation.push((i, c.gas.id.clone(), sat.pressure_pa, sat.source));
+            }
+            let phi = kinetics::impingement_rate(c.fraction, t, masses[i]);
+            species.push(SpeciesDerived {
+                gas: c.gas.id.clone(),
+                fraction: c.fraction,
+                partial_pressure_pa: c.fraction,
+                number_density_per_m3: n_unit * c.fraction,
+                mean_speed_m_per_s: kinetics::mean_speed(t, masses[i]),
+                diameter_m: diameters[i],
+                mean_free_path_m: 1.0 / inv_mfp,
+                impingement_per_m2_s: phi,
+                monolayer_time_s: kinetics::monolayer_time(
+                    physics.sites_per_m2,
+                    physics.sticking,
+                    phi,
                 ),
-            ));
+            });
         }
-        let phi = kinetics::impingement_rate(p_i, t, masses[i]);
-        species.push(SpeciesDerived {
-            gas: c.gas.id.clone(),
-            fraction: c.fraction,
-            partial_pressure_pa: p_i,
-            number_density_per_m3: n_total * c.fraction,
-            mean_speed_m_per_s: kinetics::mean_speed(t, masses[i]),
-            diameter_m: diameters[i],
-            mean_free_path_m: 1.0 / inv_mfp,
-            impingement_per_m2_s: phi,
-            monolayer_time_s: kinetics::monolayer_time(physics.sites_per_m2, physics.sticking, phi),
-        });
-    }
-
-    let weighted = |f: &dyn Fn(usize, &SpeciesDerived) -> f64| -> f64 {
-        species
+        let weighted = |f: &dyn Fn(usize, &SpeciesDerived) -> f64| -> f64 {
+            species
+                .iter()
+                .enumerate()
+                .map(|(i, s)| s.fraction * f(i, s))
+                .sum()
+        };
+        let mean_free_path_m = weighted(&|_, s| s.mean_free_path_m);
+        let mean_speed = weighted(&|_, s| s.mean_speed_m_per_s);
+        let by_number: Vec<(f64, f64)> = comps
             .iter()
-            .enumerate()
-            .map(|(i, s)| s.fraction * f(i, s))
-            .sum()
-    };
-    let mean_free_path_m = weighted(&|_, s| s.mean_free_path_m);
-    let mean_speed = weighted(&|_, s| s.mean_speed_m_per_s);
-    let by_number: Vec<(f64, f64)> = comps
-        .iter()
-        .zip(&masses)
-        .map(|(c, &m)| (c.fraction, m))
-        .collect();
-    let rms_sq = weighted(&|i, _| kinetics::rms_speed(t, masses[i]).powi(2));
-    let impingement: f64 = species.iter().map(|s| s.impingement_per_m2_s).sum();
-
-    let lengths = lengths
-        .iter()
-        .map(|l| {
-            let kn = regime::knudsen(mean_free_path_m, l.length_m);
-            LengthDerived {
+            .zip(&masses)
+            .map(|(c, &m)| (c.fraction, m))
+            .collect();
+        let rms_sq = weighted(&|i, _| kinetics::rms_speed(t, masses[i]).powi(2));
+        let impingement: f64 = species.iter().map(|s| s.impingement_per_m2_s).sum();
+        let lengths = lengths
+            .iter()
+            .map(|l| LengthDerived {
                 name: l.name.clone(),
                 length_m: l.length_m,
-                knudsen: kn,
-                regime: physics.bounds.classify(kn),
-            }
-        })
-        .collect();
+                knudsen: regime::knudsen(mean_free_path_m, l.length_m),
+                regime: physics
+                    .bounds
+                    .classify(regime::knudsen(mean_free_path_m, l.length_m)),
+            })
+            .collect();
+        Precomputed {
+            temperature_k: t,
+            unit: Derived {
+                number_density_per_m3: n_unit,
+                mean_speed_m_per_s: mean_speed,
+                most_probable_speed_m_per_s: kinetics::mixture_most_probable_speed(t, &by_number),
+                rms_speed_m_per_s: rms_sq.sqrt(),
+                mean_free_path_m,
+                impingement_per_m2_s: impingement,
+                monolayer_time_s: kinetics::monolayer_time(
+                    physics.sites_per_m2,
+                    physics.sticking,
+                    impingement,
+                ),
+                vacuum_range: physics.edition.classify(1.0),
+                species,
+                lengths,
+                warnings,
+            },
+            saturation,
+            bounds: physics.bounds,
+            edition: physics.edition,
+        }
+    }
 
-    Derived {
-        number_density_per_m3: n_total,
-        mean_speed_m_per_s: mean_speed,
-        most_probable_speed_m_per_s: kinetics::mixture_most_probable_speed(t, &by_number),
-        rms_speed_m_per_s: rms_sq.sqrt(),
-        mean_free_path_m,
-        impingement_per_m2_s: impingement,
-        monolayer_time_s: kinetics::monolayer_time(
-            physics.sites_per_m2,
-            physics.sticking,
-            impingement,
-        ),
-        vacuum_range: physics.edition.classify(p),
-        species,
-        lengths,
-        warnings,
+    /// The temperature it was worked out for, K.
+    pub fn temperature_k(&self) -> f64 {
+        self.temperature_k
+    }
+
+    /// Every quantity at pressure `p` Pa.
+    pub fn derive(&self, p: f64) -> Derived {
+        let mut d = self.unit.clone();
+        self.derive_into(p, &mut d);
+        d
+    }
+
+    /// [`Precomputed::derive`] into `out`, reusing its allocations (it may
+    /// hold an earlier result of any gas).
+    pub fn derive_into(&self, p: f64, out: &mut Derived) {
+        let u = &self.unit;
+        out.number_density_per_m3 = u.number_density_per_m3 * p;
+        out.mean_speed_m_per_s = u.mean_speed_m_per_s;
+        out.most_probable_speed_m_per_s = u.most_probable_speed_m_per_s;
+        out.rms_speed_m_per_s = u.rms_speed_m_per_s;
+        out.mean_free_path_m = u.mean_free_path_m / p;
+        out.impingement_per_m2_s = u.impingement_per_m2_s * p;
+        out.monolayer_time_s = u.monolayer_time_s / p;
+        out.vacuum_range = self.edition.classify(p);
+        out.species.clone_from(&u.species);
+        for s in &mut out.species {
+            s.partial_pressure_pa *= p;
+            s.number_density_per_m3 *= p;
+            s.mean_free_path_m /= p;
+            s.impingement_per_m2_s *= p;
+            s.monolayer_time_s /= p;
+        }
+        out.lengths.clone_from(&u.lengths);
+        for l in &mut out.lengths {
+            l.knudsen = regime::knudsen(out.mean_free_path_m, l.length_m);
+            l.regime = self.bounds.classify(l.knudsen);
+        }
+        out.warnings.clear();
+        if p > regime::ABOVE_ATMOSPHERIC_PA {
+            out.warnings.push(Warning::new(
+                "above-atmospheric",
+                format!("{p:.3e} Pa is above atmospheric pressure: not a vacuum"),
+            ));
+        }
+        out.warnings.extend(u.warnings.iter().cloned());
+        let t = self.temperature_k;
+        for (i, gas, sat, source) in &self.saturation {
+            let p_i = out.species.get(*i).map_or(0.0, |s| s.partial_pressure_pa);
+            if p_i > *sat {
+                out.warnings.push(Warning::new(
+                    "above-saturation",
+                    format!(
+                        "{gas} partial pressure {p_i:.3e} Pa is above its saturation vapour \
+                         pressure {sat:.3e} Pa at {t:.2} K ({source}): it condenses on surfaces \
+                         at this temperature, and the numbers shown assume it stays a gas"
+                    ),
+                ));
+            }
+        }
     }
 }
 
