@@ -37,6 +37,78 @@ pub fn write_rfc3339(t: DateTime<Utc>) -> String {
     t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
 }
 
+/// Reads an RFC 3339 time in the fixed layout logs are written in —
+/// `YYYY-MM-DDTHH:MM:SS[.f…](Z|±HH:MM)`, 1 to 9 fraction digits — from its
+/// bytes, without the general parser's work. `None` for anything else
+/// (another layout, a leap second, an impossible date): the general parser
+/// then decides, and words any error. Where both read a text, they give
+/// the same instant and offset.
+pub fn parse_rfc3339_fast(text: &str) -> Option<DateTime<FixedOffset>> {
+    let b = text.as_bytes();
+    if b.len() < 20 {
+        return None;
+    }
+    let digits = |from: usize, n: usize| -> Option<u32> {
+        let mut v = 0u32;
+        for &c in b.get(from..from + n)? {
+            if !c.is_ascii_digit() {
+                return None;
+            }
+            v = v * 10 + u32::from(c - b'0');
+        }
+        Some(v)
+    };
+    if b[4] != b'-' || b[7] != b'-' || b[10] != b'T' || b[13] != b':' || b[16] != b':' {
+        return None;
+    }
+    let (year, month, day) = (digits(0, 4)?, digits(5, 2)?, digits(8, 2)?);
+    let (hour, minute, second) = (digits(11, 2)?, digits(14, 2)?, digits(17, 2)?);
+    if hour > 23 || minute > 59 || second > 59 {
+        return None;
+    }
+    let mut i = 19;
+    let mut nanos = 0u32;
+    if b.get(i) == Some(&b'.') {
+        let start = i + 1;
+        let mut end = start;
+        while end < b.len() && b[end].is_ascii_digit() {
+            end += 1;
+        }
+        let n = end - start;
+        if !(1..=9).contains(&n) {
+            return None;
+        }
+        nanos = digits(start, n)? * 10u32.pow(9 - n as u32);
+        i = end;
+    }
+    let offset_s: i32 = match b.get(i..)? {
+        [b'Z' | b'z'] => 0,
+        [sign @ (b'+' | b'-'), _, _, b':', _, _] => {
+            let (h, m) = (digits(i + 1, 2)?, digits(i + 4, 2)?);
+            if h > 23 || m > 59 {
+                return None;
+            }
+            let s = (h * 3600 + m * 60) as i32;
+            if *sign == b'-' { -s } else { s }
+        }
+        _ => return None,
+    };
+    let date = NaiveDate::from_ymd_opt(year as i32, month, day)?;
+    let local = date.and_hms_nano_opt(hour, minute, second, nanos)?;
+    let offset = FixedOffset::east_opt(offset_s)?;
+    let utc = local.checked_sub_offset(offset)?;
+    Some(DateTime::from_naive_utc_and_offset(utc, offset))
+}
+
+/// Reads an RFC 3339 time: the fast path for the fixed layout, else the
+/// general parser.
+pub fn parse_rfc3339(text: &str) -> chrono::ParseResult<DateTime<FixedOffset>> {
+    match parse_rfc3339_fast(text) {
+        Some(t) => Ok(t),
+        None => DateTime::parse_from_rfc3339(text),
+    }
+}
+
 /// How times are written.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum TimeFormat {
@@ -154,15 +226,13 @@ impl TimeFormat {
             offset: Some(t.offset().fix()),
         };
         match self {
-            TimeFormat::Rfc3339 => DateTime::parse_from_rfc3339(text)
-                .map(absolute)
-                .map_err(|e| {
-                    if lacks_offset(text) {
-                        missing_offset(None)
-                    } else {
-                        format!("is not RFC 3339, e.g. 2026-10-25T01:20:00+02:00 ({e})")
-                    }
-                }),
+            TimeFormat::Rfc3339 => parse_rfc3339(text).map(absolute).map_err(|e| {
+                if lacks_offset(text) {
+                    missing_offset(None)
+                } else {
+                    format!("is not RFC 3339, e.g. 2026-10-25T01:20:00+02:00 ({e})")
+                }
+            }),
             TimeFormat::EpochSeconds => parse_epoch(text, 1_000_000_000)
                 .map(epoch)
                 .ok_or_else(|| "is not a number of seconds since 1970-01-01 UTC".to_string()),
@@ -406,6 +476,76 @@ fn parse_epoch(text: &str, scale: i128) -> Option<DateTime<Utc>> {
     let secs = i64::try_from(nanos.div_euclid(1_000_000_000)).ok()?;
     let sub = u32::try_from(nanos.rem_euclid(1_000_000_000)).ok()?;
     DateTime::from_timestamp(secs, sub)
+}
+
+#[cfg(test)]
+mod fast_tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    fn same(text: &str) {
+        let general = DateTime::parse_from_rfc3339(text).ok();
+        match parse_rfc3339_fast(text) {
+            Some(fast) => {
+                assert_eq!(Some(fast), general, "{text}");
+                assert_eq!(
+                    Some(fast.offset().fix()),
+                    general.map(|g| g.offset().fix()),
+                    "{text}"
+                );
+            }
+            // Declined: the general parser decides (and may accept).
+            None => {}
+        }
+        assert_eq!(parse_rfc3339(text).ok(), general, "{text}");
+    }
+
+    #[test]
+    fn the_fast_path_agrees_with_the_general_parser() {
+        for t in [
+            "2026-11-03T07:00:05.000Z",
+            "2026-11-03T07:00:05Z",
+            "2026-11-03T07:00:05.1z",
+            "2026-11-03T07:00:05.123456789+05:30",
+            "2026-11-03T07:00:05.1234567891Z",
+            "2026-03-29T01:30:00-02:00",
+            "2024-02-29T23:59:59.999Z",
+            "2023-02-29T00:00:00Z",
+            "2026-13-01T00:00:00Z",
+            "2026-12-31T24:00:00Z",
+            "2016-12-31T23:59:60Z",
+            "2026-11-03 07:00:05Z",
+            "2026-11-03T07:00:05",
+            "2026-11-03T07:00:05+0530",
+            "2026-11-03T07:00:05.Z",
+            "0000-01-01T00:00:00Z",
+            "9999-12-31T23:59:59+23:59",
+            "2026-11-03T07:00:05+24:00",
+            "２026-11-03T07:00:05Z",
+        ] {
+            same(t);
+        }
+        assert!(parse_rfc3339_fast("2026-11-03T07:00:05.000Z").is_some());
+        assert!(parse_rfc3339_fast("2026-11-03T07:00:05.250+02:00").is_some());
+    }
+
+    proptest! {
+        #[test]
+        fn any_text_in_the_layout_agrees(
+            y in 0u32..10000, mo in 0u32..14, d in 0u32..33, h in 0u32..26,
+            mi in 0u32..61, s in 0u32..62, frac in proptest::option::of("[0-9]{0,11}"),
+            off in prop_oneof![Just("Z".to_string()), "[+-][0-9]{2}:[0-9]{2}"],
+        ) {
+            let frac = frac.map(|f| format!(".{f}")).unwrap_or_default();
+            let text = format!("{y:04}-{mo:02}-{d:02}T{h:02}:{mi:02}:{s:02}{frac}{off}");
+            same(&text);
+        }
+
+        #[test]
+        fn any_text_at_all_agrees(text in "\\PC{0,30}") {
+            same(&text);
+        }
+    }
 }
 
 #[cfg(test)]

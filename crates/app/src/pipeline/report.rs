@@ -659,6 +659,9 @@ fn say_time_order(
     before: Option<(u64, DateTime<Utc>)>,
     out: &mut WalkOutcome,
 ) {
+    if !(row.time_went_back || row.time_repeated || row.offset_change.is_some()) {
+        return;
+    }
     let t = crate::timefmt::write_rfc3339;
     let prev = before.map_or_else(String::new, |(line, time)| {
         format!(" ({}, line {line})", t(time))

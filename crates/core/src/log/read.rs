@@ -160,6 +160,9 @@ pub struct LogReader<R> {
     last_offset: Option<FixedOffset>,
     offset_changes: u64,
     header_line: u64,
+    /// Where each cell of the row being read lies in its text (kept for its
+    /// allocation).
+    spans: Vec<(usize, usize)>,
 }
 
 impl<R: BufRead> LogReader<R> {
@@ -178,6 +181,7 @@ impl<R: BufRead> LogReader<R> {
             last_offset: None,
             offset_changes: 0,
             header_line: 0,
+            spans: Vec::new(),
         };
         r.read_magic()?;
         loop {
@@ -400,9 +404,14 @@ impl<R: BufRead> LogReader<R> {
 
     fn row(&mut self, raw: &RawLine) -> Option<Result<Row, LogError>> {
         let name = self.name.as_str();
-        let text = match text_of(name, raw, ',') {
-            Ok(t) => t,
-            Err(e) => return Some(Err(e)),
+        // A data line is valid UTF-8 as it stands (no byte-order mark after
+        // the first line): borrowed, not copied.
+        let text: std::borrow::Cow<'_, str> = match std::str::from_utf8(&raw.bytes) {
+            Ok(t) if raw.number > 1 && !raw.too_long => t.into(),
+            _ => match text_of(name, raw, ',') {
+                Ok(t) => t.into(),
+                Err(e) => return Some(Err(e)),
+            },
         };
         if text.trim().is_empty() {
             return None;
@@ -414,39 +423,82 @@ impl<R: BufRead> LogReader<R> {
                 "a `#` line after the header row; metadata belongs before it".into(),
             )));
         }
-        let cells = match lines::split(&text, ',') {
-            Ok(c) => c,
-            Err(e) => return Some(Err(at(e.field, e.message))),
+        // Cells without quotes (what the writer gives) are cut straight
+        // from the text; the general splitter takes the rest.
+        let split;
+        let mut spans = std::mem::take(&mut self.spans);
+        spans.clear();
+        let cells: &[lines::Field] = if text.contains('"') {
+            split = match lines::split(&text, ',') {
+                Ok(c) => c,
+                Err(e) => return Some(Err(at(e.field, e.message))),
+            };
+            &split
+        } else {
+            let mut start = 0;
+            for (i, b) in text.bytes().enumerate() {
+                if b == b',' {
+                    spans.push((start, i));
+                    start = i + 1;
+                }
+            }
+            spans.push((start, text.len()));
+            &[]
+        };
+        let cell = |i: usize| -> &str {
+            match spans.get(i) {
+                Some(&(a, b)) => text[a..b].trim_matches([' ', '\t']),
+                None => cells.get(i).map_or("", |c| c.text.as_str()),
+            }
+        };
+        let count = if cells.is_empty() {
+            spans.len()
+        } else {
+            cells.len()
         };
         let expected = self.columns.len() + 1;
-        if cells.len() != expected {
-            let col = cells.len().min(expected) + 1;
+        let result = self.row_cells(raw, count, expected, &cell);
+        self.spans = spans;
+        result
+    }
+
+    fn row_cells<'t>(
+        &mut self,
+        raw: &RawLine,
+        count: usize,
+        expected: usize,
+        cell: &dyn Fn(usize) -> &'t str,
+    ) -> Option<Result<Row, LogError>> {
+        let name = self.name.as_str();
+        let at = |col: usize, msg: String| LogError::at(name, raw.number, Some(col), msg);
+        if count != expected {
+            let col = count.min(expected) + 1;
             return Some(Err(at(
                 col,
                 format!(
-                    "row has {} cells; the header has {expected} (time and {} columns)",
-                    cells.len(),
+                    "row has {count} cells; the header has {expected} (time and {} columns)",
                     self.columns.len()
                 ),
             )));
         }
-        let (time, offset) = match parse_time(&cells[0].text, self.last_offset) {
+        let (time, offset) = match parse_time(cell(0), self.last_offset) {
             Ok(t) => (t.with_timezone(&Utc), t.offset().fix()),
             Err(msg) => return Some(Err(at(1, msg))),
         };
         let mut samples = Vec::new();
         let mut gas = None;
         let mut bad: Vec<(usize, String)> = Vec::new();
-        for (i, (cell, column)) in cells[1..].iter().zip(&self.columns).enumerate() {
+        for (i, column) in self.columns.iter().enumerate() {
+            let text = cell(i + 1);
             if column.kind == ColumnKind::Gas {
-                let g = cell.text.trim();
+                let g = text.trim();
                 gas = (!g.is_empty()).then(|| g.to_string());
                 continue;
             }
             let ColumnKind::Channel(unit) = column.kind else {
                 continue;
             };
-            match parse_cell(&cell.text) {
+            match parse_cell(text) {
                 Ok(None) => {}
                 Ok(Some(reading)) => samples.push(Sample {
                     time,
@@ -681,7 +733,7 @@ fn parse_time(text: &str, before: Option<FixedOffset>) -> Result<DateTime<FixedO
     if text.is_empty() {
         return Err("the time cell is empty".into());
     }
-    DateTime::parse_from_rfc3339(text).map_err(|e| {
+    crate::timefmt::parse_rfc3339(text).map_err(|e| {
         if crate::timefmt::lacks_offset(text) {
             format!(
                 "time \"{}\" {}",
