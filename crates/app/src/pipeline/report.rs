@@ -253,6 +253,11 @@ impl ReportSink {
     /// Feeds the chamber pressure to its analysis when this row holds a
     /// reading of the gauge it comes from now.
     fn push_chamber(&mut self, samples: &[crate::sample::Sample], monitor: &Monitor) {
+        // With one pressure gauge it is that gauge's analysis (counted from
+        // when a second one appears).
+        if self.pressure_gauges < 2 {
+            return;
+        }
         let Some((source, track)) = monitor.chamber_track(&Quantity::Pressure) else {
             return;
         };

@@ -211,6 +211,11 @@ pub struct Monitor {
     /// Kinetics per gas and temperature, worked out once
     /// ([`Precomputed`]).
     kinetics: Vec<CachedKinetics>,
+    /// The time [`Monitor::advance_to`] last went to, until the next push.
+    advanced_to: Option<DateTime<Utc>>,
+    /// Every gauge an input alarm watches has a track (no "never seen"
+    /// deadline to look for).
+    inputs_seen: bool,
     rules: Vec<(RuleMachine, Option<Condition>)>,
     inputs: Vec<RuleMachine>,
     gates: Vec<GateMachine>,
@@ -340,6 +345,8 @@ impl Monitor {
             tracks: BTreeMap::new(),
             temperature_k: None,
             kinetics: Vec::new(),
+            advanced_to: None,
+            inputs_seen: false,
             rules,
             inputs,
             gates,
@@ -358,6 +365,7 @@ impl Monitor {
         if !self.inputs.iter().any(|r| r.rule.gauge == id) {
             self.inputs
                 .push(RuleMachine::new(input_rule(id, self.setup.input_severity)));
+            self.inputs_seen = self.tracks.contains_key(id) && self.inputs_seen;
         }
     }
 
@@ -516,7 +524,13 @@ impl Monitor {
             return Vec::new();
         };
         self.take_over_clock(time);
-        let mut events = self.advance_to(time);
+        // A caller that has just advanced to the row's time (the pipeline
+        // does, to pass on deadline events before the row) need not again.
+        let mut events = if self.advanced_to.take() == Some(time) {
+            Vec::new()
+        } else {
+            self.advance_to(time)
+        };
         let now = self.now.map_or(time, |n| n.max(time));
         // Gas steps are decided on the row taken with the gas in force;
         // when they change the gas, the row is taken again with the new one.
@@ -546,6 +560,7 @@ impl Monitor {
                     (Some(t), Some(old)) if change => t.restore(old),
                     (Some(_), None) if change => {
                         self.tracks.remove(id);
+                        self.inputs_seen = false;
                     }
                     (Some(t), _) => t.window.commit(),
                     (None, _) => {}
@@ -781,6 +796,7 @@ impl Monitor {
             events.extend(self.evaluate(d));
         }
         self.now = Some(self.now.map_or(t, |n| n.max(t)));
+        self.advanced_to = Some(t);
         events
     }
 
@@ -806,11 +822,14 @@ impl Monitor {
             .tracks
             .values()
             .filter_map(|t| t.last_time.and_then(stale_at));
-        let never_seen = self
-            .inputs
-            .iter()
-            .any(|r| !self.tracks.contains_key(&r.rule.gauge))
-            .then(|| self.origin.and_then(stale_at))
+        let never_seen = (!self.inputs_seen)
+            .then(|| {
+                self.inputs
+                    .iter()
+                    .any(|r| !self.tracks.contains_key(&r.rule.gauge))
+                    .then(|| self.origin.and_then(stale_at))
+                    .flatten()
+            })
             .flatten();
         let machines = self
             .all_rules()
@@ -841,6 +860,10 @@ impl Monitor {
         if !self.tracks.contains_key(&s.channel) {
             self.tracks
                 .insert(s.channel.clone(), GaugeTrack::new(start));
+            self.inputs_seen = self
+                .inputs
+                .iter()
+                .all(|r| self.tracks.contains_key(&r.rule.gauge));
         }
         let Some(track) = self.tracks.get_mut(&s.channel) else {
             return;
