@@ -18,6 +18,17 @@ pub(crate) struct RawLine {
     pub too_long: bool,
 }
 
+impl RawLine {
+    /// No line yet (a buffer to read into).
+    pub fn empty() -> Self {
+        RawLine {
+            number: 0,
+            bytes: Vec::new(),
+            too_long: false,
+        }
+    }
+}
+
 /// Reads physical lines one at a time from a `BufRead`, never holding more
 /// than one line.
 pub(crate) struct Lines<R> {
@@ -50,10 +61,40 @@ impl<R: BufRead> Lines<R> {
 
     /// The next line; `None` at the end; an I/O error ends the reading.
     pub fn next_line(&mut self) -> Option<io::Result<RawLine>> {
+        let mut line = RawLine {
+            number: 0,
+            bytes: Vec::new(),
+            too_long: false,
+        };
+        match self.next_line_into(&mut line)? {
+            Ok(()) => Some(Ok(line)),
+            Err(e) => Some(Err(e)),
+        }
+    }
+
+    /// [`Lines::next_located`] into `line`, reusing its allocation.
+    pub fn next_located_into(
+        &mut self,
+        name: &str,
+        line: &mut RawLine,
+    ) -> Option<Result<(), super::LogError>> {
+        Some(self.next_line_into(line)?.map_err(|e| {
+            super::LogError::at(
+                name,
+                self.number + 1,
+                None,
+                format!("cannot read the log: {e}"),
+            )
+        }))
+    }
+
+    /// [`Lines::next_line`] into `line`, reusing its allocation.
+    pub fn next_line_into(&mut self, line: &mut RawLine) -> Option<io::Result<()>> {
         if self.done {
             return None;
         }
-        let mut bytes = Vec::new();
+        let bytes = &mut line.bytes;
+        bytes.clear();
         let mut too_long = false;
         let mut any = false;
         loop {
@@ -91,11 +132,9 @@ impl<R: BufRead> Lines<R> {
             bytes.pop();
         }
         self.number += 1;
-        Some(Ok(RawLine {
-            number: self.number,
-            bytes,
-            too_long,
-        }))
+        line.number = self.number;
+        line.too_long = too_long;
+        Some(Ok(()))
     }
 }
 

@@ -163,6 +163,8 @@ pub struct LogReader<R> {
     /// Where each cell of the row being read lies in its text (kept for its
     /// allocation).
     spans: Vec<(usize, usize)>,
+    /// The line being read (kept for its allocation).
+    raw: RawLine,
 }
 
 impl<R: BufRead> LogReader<R> {
@@ -182,6 +184,7 @@ impl<R: BufRead> LogReader<R> {
             offset_changes: 0,
             header_line: 0,
             spans: Vec::new(),
+            raw: RawLine::empty(),
         };
         r.read_magic()?;
         loop {
@@ -561,11 +564,14 @@ impl<R: BufRead> Iterator for LogReader<R> {
 
     fn next(&mut self) -> Option<Self::Item> {
         loop {
-            let raw = match self.lines.next_located(&self.name)? {
-                Ok(raw) => raw,
-                Err(e) => return Some(Err(e)),
-            };
-            if let Some(item) = self.row(&raw) {
+            let mut raw = std::mem::replace(&mut self.raw, RawLine::empty());
+            if let Err(e) = self.lines.next_located_into(&self.name, &mut raw)? {
+                self.raw = raw;
+                return Some(Err(e));
+            }
+            let item = self.row(&raw);
+            self.raw = raw;
+            if let Some(item) = item {
                 return Some(item);
             }
         }
