@@ -91,7 +91,11 @@ fn output(out: Option<&PathBuf>) -> Result<Box<dyn Write + Send>, CliError> {
         Some(p) => std::fs::File::create(p)
             .map(|f| Box::new(std::io::BufWriter::new(f)) as Box<dyn Write + Send>)
             .map_err(|e| CliError::Runtime(format!("--out {}: {e}", p.display()))),
-        None => Ok(Box::new(std::io::stdout())),
+        // Buffered: the CSV is written a line at a time.
+        None => Ok(Box::new(std::io::BufWriter::with_capacity(
+            1 << 16,
+            std::io::stdout(),
+        ))),
     }
 }
 

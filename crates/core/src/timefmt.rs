@@ -109,6 +109,40 @@ pub fn parse_rfc3339(text: &str) -> chrono::ParseResult<DateTime<FixedOffset>> {
     }
 }
 
+/// Appends `t` as [`write_rfc3339`] writes it, without allocating.
+pub fn push_rfc3339(out: &mut String, t: DateTime<Utc>) {
+    use chrono::{Datelike, Timelike};
+    let (y, mo, d) = (t.year(), t.month(), t.day());
+    let (h, mi, s) = (t.hour(), t.minute(), t.second());
+    // A leap second shows as :60, as chrono writes it.
+    let nanos = t.nanosecond();
+    let (s, ms) = if nanos >= 1_000_000_000 {
+        (s + 1, (nanos - 1_000_000_000) / 1_000_000)
+    } else {
+        (s, nanos / 1_000_000)
+    };
+    if !(0..=9999).contains(&y) {
+        out.push_str(&write_rfc3339(t));
+        return;
+    }
+    let mut buf = *b"0000-00-00T00:00:00.000Z";
+    let mut put = |at: usize, v: u32, n: usize| {
+        let mut v = v;
+        for i in (0..n).rev() {
+            buf[at + i] = b'0' + (v % 10) as u8;
+            v /= 10;
+        }
+    };
+    put(0, y as u32, 4);
+    put(5, mo, 2);
+    put(8, d, 2);
+    put(11, h, 2);
+    put(14, mi, 2);
+    put(17, s, 2);
+    put(20, ms, 3);
+    out.push_str(std::str::from_utf8(&buf).unwrap_or_default());
+}
+
 /// How times are written.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum TimeFormat {
@@ -530,6 +564,14 @@ mod fast_tests {
     }
 
     proptest! {
+        #[test]
+        fn pushing_writes_what_write_rfc3339_writes(ms in -62_000_000_000_000i64..253_402_300_799_999) {
+            let t = DateTime::from_timestamp_millis(ms).expect("in range");
+            let mut s = String::from("x");
+            push_rfc3339(&mut s, t);
+            prop_assert_eq!(&s[1..], write_rfc3339(t));
+        }
+
         #[test]
         fn any_text_in_the_layout_agrees(
             y in 0u32..10000, mo in 0u32..14, d in 0u32..33, h in 0u32..26,

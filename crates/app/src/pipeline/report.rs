@@ -76,6 +76,7 @@ pub struct ReportSink {
     notes: Vec<String>,
     csv: Option<Box<dyn Write + Send>>,
     csv_header: bool,
+    csv_line: String,
     csv_error: Option<String>,
     plot: Option<PlotData>,
 }
@@ -96,6 +97,7 @@ impl ReportSink {
             notes: Vec::new(),
             csv,
             csv_header: false,
+            csv_line: String::new(),
             csv_error: None,
             plot: options.plot.then(PlotData::default),
             options,
@@ -130,6 +132,7 @@ impl ReportSink {
     }
 
     fn write_csv(&mut self, obs: &Observation, id: &str, monitor: &Monitor) {
+        use std::fmt::Write as _;
         let Some(out) = self.csv.as_mut() else {
             return;
         };
@@ -137,12 +140,16 @@ impl ReportSink {
             return;
         }
         let lengths = &monitor.setup().lengths;
-        let mut line = String::new();
+        // One line buffer for the whole run; numbers in the shortest form
+        // that reads back to the same f64 (`{:e}`).
+        let line = &mut self.csv_line;
+        line.clear();
         if !self.csv_header {
             self.csv_header = true;
             line.push_str("time,gauge,status,pressure_pa,number_density_per_m3,mean_free_path_m");
             for l in lengths {
-                line.push_str(&format!(",knudsen {0},regime {0}", csv_text(&l.name)));
+                let name = csv_text(&l.name);
+                let _ = write!(line, ",knudsen {name},regime {name}");
             }
             line.push_str(",impingement_per_m2_s,monolayer_time_s,range\n");
         }
@@ -150,30 +157,39 @@ impl ReportSink {
         let derived = track
             .and_then(|t| t.derived.as_ref())
             .filter(|_| obs.pressure_pa.is_some());
-        let num = |v: Option<f64>| v.map(|v| format!("{v:e}")).unwrap_or_default();
-        line.push_str(&format!(
-            "{},{},{},{},{},{}",
-            crate::timefmt::write_rfc3339(obs.time),
-            csv_text(id),
-            obs.status.as_str(),
-            num(obs.pressure_pa),
-            num(derived.map(|d| d.number_density_per_m3)),
-            num(derived.map(|d| d.mean_free_path_m)),
-        ));
-        for l in lengths {
-            let d = derived.and_then(|d| d.lengths.iter().find(|x| x.name == l.name));
-            line.push_str(&format!(
-                ",{},{}",
-                num(d.map(|d| d.knudsen)),
-                d.map(|d| d.regime.as_str()).unwrap_or_default()
-            ));
+        let num = |line: &mut String, v: Option<f64>| {
+            line.push(',');
+            if let Some(v) = v {
+                let _ = write!(line, "{v:e}");
+            }
+        };
+        crate::timefmt::push_rfc3339(line, obs.time);
+        line.push(',');
+        if id.contains([',', '"', '\n', '\r']) {
+            line.push_str(&csv_text(id));
+        } else {
+            line.push_str(id);
         }
-        line.push_str(&format!(
-            ",{},{},{}\n",
-            num(derived.map(|d| d.impingement_per_m2_s)),
-            num(derived.map(|d| d.monolayer_time_s)),
-            derived.map(|d| d.vacuum_range.as_str()).unwrap_or_default()
-        ));
+        line.push(',');
+        line.push_str(obs.status.as_str());
+        num(line, obs.pressure_pa);
+        num(line, derived.map(|d| d.number_density_per_m3));
+        num(line, derived.map(|d| d.mean_free_path_m));
+        for (i, l) in lengths.iter().enumerate() {
+            // The engine gives the lengths in the setup's order.
+            let d = derived.and_then(|d| match d.lengths.get(i) {
+                Some(x) if x.name == l.name => Some(x),
+                _ => d.lengths.iter().find(|x| x.name == l.name),
+            });
+            num(line, d.map(|d| d.knudsen));
+            line.push(',');
+            line.push_str(d.map(|d| d.regime.as_str()).unwrap_or_default());
+        }
+        num(line, derived.map(|d| d.impingement_per_m2_s));
+        num(line, derived.map(|d| d.monolayer_time_s));
+        line.push(',');
+        line.push_str(derived.map(|d| d.vacuum_range.as_str()).unwrap_or_default());
+        line.push('\n');
         if let Err(e) = out.write_all(line.as_bytes()) {
             self.csv_error = Some(format!("cannot write the CSV: {e}"));
         }
