@@ -519,17 +519,14 @@ mod fast_tests {
 
     fn same(text: &str) {
         let general = DateTime::parse_from_rfc3339(text).ok();
-        match parse_rfc3339_fast(text) {
-            Some(fast) => {
-                assert_eq!(Some(fast), general, "{text}");
-                assert_eq!(
-                    Some(fast.offset().fix()),
-                    general.map(|g| g.offset().fix()),
-                    "{text}"
-                );
-            }
-            // Declined: the general parser decides (and may accept).
-            None => {}
+        // Declined (None): the general parser decides, and may accept.
+        if let Some(fast) = parse_rfc3339_fast(text) {
+            assert_eq!(Some(fast), general, "{text}");
+            assert_eq!(
+                Some(fast.offset().fix()),
+                general.map(|g| g.offset().fix()),
+                "{text}"
+            );
         }
         assert_eq!(parse_rfc3339(text).ok(), general, "{text}");
     }
