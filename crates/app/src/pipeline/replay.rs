@@ -112,7 +112,7 @@ pub fn index(
     setup: &MonitorSetup,
     gases: &GasTable,
 ) -> Result<LogIndex, String> {
-    let mut rows = Rows::open(file, foreign)?;
+    let log = open_log(file, foreign).map_err(|e| e.to_string())?;
     let mut pipeline = Pipeline::new(Monitor::new(setup.clone()));
     pipeline.set_gases(gases.clone());
     let mut gas = None;
@@ -121,7 +121,21 @@ pub fn index(
     let mut end: Option<DateTime<Utc>> = None;
     let mut gaps = Vec::new();
     let mut intervals: Vec<i64> = Vec::new();
-    while let Some(row) = rows.next_until(None) {
+    let mut bad_rows = 0u64;
+    // Read and parsed on a second thread in bounded batches, in order.
+    let (rx, reader) = read_ahead(log);
+    for item in rx.into_iter().flatten() {
+        let row = match item {
+            Ok(r) => r,
+            Err(e) => {
+                bad_rows += 1;
+                // A row with a bad cell keeps its other readings.
+                match e.row {
+                    Some(r) => *r,
+                    None => continue,
+                }
+            }
+        };
         start.get_or_insert(row.time);
         if let Some(prev) = end {
             let dt = (row.time - prev).num_milliseconds();
@@ -140,6 +154,9 @@ pub fn index(
             pipeline.feed(&ev, None, &mut events);
         }
     }
+    let log = reader
+        .join()
+        .map_err(|_| format!("{}: the reader stopped unexpectedly", file.display()))?;
     let (Some(start), Some(end)) = (start, end) else {
         return Err(format!("{}: the log has no rows", file.display()));
     };
@@ -147,9 +164,45 @@ pub fn index(
         start,
         end,
         gaps,
-        bad_rows: rows.bad_rows(),
-        times_went_back: rows.times_went_back(),
-        times_repeated: rows.times_repeated(),
+        bad_rows,
+        times_went_back: log.times_went_back(),
+        times_repeated: log.times_repeated(),
         events: events.0,
     })
+}
+
+/// Rows per batch from a reading thread.
+pub const BATCH_ROWS: usize = 1024;
+/// Batches a reading thread may be ahead.
+pub const READ_AHEAD_BATCHES: usize = 8;
+
+/// What a reading thread gives: batches of rows in file order.
+pub type RowBatches = std::sync::mpsc::Receiver<Vec<Result<Row, crate::log::LogError>>>;
+
+/// Reads and parses `log` on a thread of its own, in batches of
+/// [`BATCH_ROWS`], at most [`READ_AHEAD_BATCHES`] ahead of the caller (a
+/// bounded queue: memory does not grow with the log). One reader, one
+/// queue: the order is the file's. Joining the thread gives the log back,
+/// for its counts.
+pub fn read_ahead(
+    mut log: Box<dyn LogSource>,
+) -> (RowBatches, std::thread::JoinHandle<Box<dyn LogSource>>) {
+    let (tx, rx) = std::sync::mpsc::sync_channel(READ_AHEAD_BATCHES);
+    let reader = std::thread::spawn(move || {
+        let mut batch = Vec::with_capacity(BATCH_ROWS);
+        for r in log.by_ref() {
+            batch.push(r);
+            if batch.len() == BATCH_ROWS {
+                let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH_ROWS));
+                if tx.send(full).is_err() {
+                    break;
+                }
+            }
+        }
+        if !batch.is_empty() {
+            let _ = tx.send(batch);
+        }
+        log
+    });
+    (rx, reader)
 }

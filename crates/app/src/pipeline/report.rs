@@ -618,14 +618,9 @@ pub fn walk(
     out
 }
 
-/// Rows per batch from the reading thread.
-const BATCH_ROWS: usize = 1024;
-/// Batches the reading thread may be ahead.
-const READ_AHEAD_BATCHES: usize = 8;
-
 fn read_one(
     path: &Path,
-    mut log: Box<dyn LogSource>,
+    log: Box<dyn LogSource>,
     pipeline: &mut Pipeline,
     gas: &mut Option<String>,
     sink: &mut ReportSink,
@@ -639,27 +634,9 @@ fn read_one(
     let mut items = 0u64;
     // The row before's line and time, for the messages.
     let mut before: Option<(u64, DateTime<Utc>)> = None;
-    // The file is read and parsed on a thread of its own, in batches, while
-    // this one runs the pipeline: two cores, and the order kept (one reader,
-    // one bounded queue).
-    let (tx, rx) =
-        std::sync::mpsc::sync_channel::<Vec<Result<crate::log::Row, LogError>>>(READ_AHEAD_BATCHES);
-    let reader = std::thread::spawn(move || {
-        let mut batch = Vec::with_capacity(BATCH_ROWS);
-        for r in log.by_ref() {
-            batch.push(r);
-            if batch.len() == BATCH_ROWS {
-                let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH_ROWS));
-                if tx.send(full).is_err() {
-                    break;
-                }
-            }
-        }
-        if !batch.is_empty() {
-            let _ = tx.send(batch);
-        }
-        log
-    });
+    // The file is read and parsed on a second thread while this one runs
+    // the pipeline (see [`super::replay::read_ahead`]).
+    let (rx, reader) = super::replay::read_ahead(log);
     for row in rx.into_iter().flatten() {
         items += 1;
         let row = match row {
