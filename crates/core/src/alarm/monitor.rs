@@ -773,7 +773,17 @@ impl Monitor {
         if let Some(i) = self.kinetics.iter().position(|k| k.key == key) {
             return Ok((p, i));
         }
-        let pre = Precomputed::new(t, mixture, &self.setup.lengths, &self.setup.physics);
+        // The same gas at another temperature scales what it can.
+        let same_gas = self
+            .kinetics
+            .iter()
+            .find(|k| k.key.own_gas_of == key.own_gas_of && k.key.generation == key.generation);
+        let pre = match same_gas {
+            Some(k) => k
+                .pre
+                .at_temperature(t, mixture, &self.setup.lengths, &self.setup.physics),
+            None => Precomputed::new(t, mixture, &self.setup.lengths, &self.setup.physics),
+        };
         if self.kinetics.len() >= KINETICS_CACHED {
             self.kinetics.clear();
         }

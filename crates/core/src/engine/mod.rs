@@ -320,6 +320,38 @@ pub struct Precomputed {
 impl Precomputed {
     /// The kinetics of `mixture` at `t_k` for these lengths and physics.
     pub fn new(t_k: f64, mixture: &Mixture, lengths: &[NamedLength], physics: &Physics) -> Self {
+        Self::build(t_k, mixture, lengths, physics, None)
+    }
+
+    /// The kinetics of the same `mixture` (and lengths and physics) as
+    /// `self`, at another temperature. The mixture's most probable speed,
+    /// a numerical search over its speed distribution, is not searched
+    /// again: every term of the distribution depends on v only through
+    /// m·v²/(2 k_B T), so its mode grows exactly as √T.
+    pub fn at_temperature(
+        &self,
+        t_k: f64,
+        mixture: &Mixture,
+        lengths: &[NamedLength],
+        physics: &Physics,
+    ) -> Self {
+        let mode = self.unit.most_probable_speed_m_per_s * (t_k / self.temperature_k).sqrt();
+        Self::build(
+            t_k,
+            mixture,
+            lengths,
+            physics,
+            Some(mode).filter(|m| m.is_finite()),
+        )
+    }
+
+    fn build(
+        t_k: f64,
+        mixture: &Mixture,
+        lengths: &[NamedLength],
+        physics: &Physics,
+        mode: Option<f64>,
+    ) -> Self {
         let t = t_k;
         let mut warnings = Vec::new();
         let n_unit = kinetics::number_density(1.0, t);
@@ -400,7 +432,11 @@ impl Precomputed {
             unit: Derived {
                 number_density_per_m3: n_unit,
                 mean_speed_m_per_s: mean_speed,
-                most_probable_speed_m_per_s: kinetics::mixture_most_probable_speed(t, &by_number),
+                most_probable_speed_m_per_s: match mode {
+                    // A pure gas's mode is a closed form: no need to scale.
+                    Some(m) if comps.len() > 1 => m,
+                    _ => kinetics::mixture_most_probable_speed(t, &by_number),
+                },
                 rms_speed_m_per_s: rms_sq.sqrt(),
                 mean_free_path_m,
                 impingement_per_m2_s: impingement,

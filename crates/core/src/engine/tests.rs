@@ -446,3 +446,32 @@ fn hard_sphere_far_from_its_reference_temperature_warns() {
             .any(|w| w.code == "hard-sphere-far-from-reference")
     );
 }
+
+#[test]
+fn kinetics_at_another_temperature_equal_a_fresh_derivation() {
+    // The mode of a mixture's speed distribution scales as √T (every term
+    // depends on v only through m v²/(2 k_B T)): scaling it from 295 K must
+    // give what the numerical search finds at the new temperature, and
+    // every other quantity must be the very same.
+    let t = GasTable::builtin();
+    let mix = Mixture::parse("H2=0.6,H2O=0.3,N2=0.1", &t).expect("mix");
+    let lengths = [NamedLength::new("bore", 0.4)];
+    let physics = Physics::default();
+    let base = Precomputed::new(295.0, &mix, &lengths, &physics);
+    for temp in [273.15, 295.05, 300.0, 350.0, 420.0] {
+        let scaled = base.at_temperature(temp, &mix, &lengths, &physics);
+        let fresh = Precomputed::new(temp, &mix, &lengths, &physics);
+        let (a, b) = (scaled.derive(1e-3), fresh.derive(1e-3));
+        // The search locates a flat maximum to about √ε ≈ 1e-8 relative.
+        assert_close!(
+            a.most_probable_speed_m_per_s,
+            b.most_probable_speed_m_per_s,
+            1e-7
+        );
+        let same = Derived {
+            most_probable_speed_m_per_s: b.most_probable_speed_m_per_s,
+            ..a
+        };
+        assert_eq!(same, b, "at {temp} K");
+    }
+}
