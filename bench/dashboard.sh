@@ -136,24 +136,37 @@ steady_run() {
     echo
 }
 
-# A week of 10 Hz rows in data time: memory along the way.
+# A week of 10 Hz rows in data time: memory along the way, and whether
+# the screen keeps up (the data time it shows is read every second; the
+# longest stretch without a change is a freeze of the display).
 week_run() {
     local args="--source 'sim:demo?rate=max&interval=100ms&duration=7 d'"
     start "$args"
-    local t0 t
+    local t0 t n=0
     t0=$(now)
     echo "week: rarefy watch --demo $args"
     echo "  wall s   data time shown            VmRSS KiB  VmHWM KiB"
-    local ended=0 shown=""
+    local ended=0 shown="" last="" since frozen=0 longest=0
+    since=$t0
     while :; do
-        sleep 5
+        sleep 1
+        n=$((n + 1))
         t=$(elapsed "$t0" "$(now)")
         [[ -d /proc/$dash_pid ]] || { echo "  the dashboard ended" >&2; exit 1; }
         local screen
         screen=$(tm capture-pane -p -t bench:0)
         shown=$(grep -o '[0-9]\{4\}-[0-9-]* [0-9:]* UTC' <<<"$screen" | head -1 || true)
-        printf '  %6s   %-25s  %9s  %9s\n' "$t" "${shown:--}" \
-            "$(kib "$dash_pid" VmRSS)" "$(kib "$dash_pid" VmHWM)"
+        if [[ -n $shown && $shown != "$last" ]]; then
+            last=$shown
+            since=$(now)
+        else
+            frozen=$(elapsed "$since" "$(now)")
+            longest=$(awk -v a="$frozen" -v b="$longest" 'BEGIN { print (a > b) ? a : b }')
+        fi
+        if ((n % 5 == 0)) || grep -q "all sources ended" <<<"$screen"; then
+            printf '  %6s   %-25s  %9s  %9s\n' "$t" "${shown:--}" \
+                "$(kib "$dash_pid" VmRSS)" "$(kib "$dash_pid" VmHWM)"
+        fi
         if grep -q "all sources ended" <<<"$screen"; then
             ended=1
             break
@@ -169,6 +182,7 @@ week_run() {
     else
         echo "  stopped after WEEK_LIMIT=$WEEK_LIMIT s before the week's end"
     fi
+    echo "  longest time the shown data time stood still: $longest s"
     tm kill-server
     echo
 }

@@ -9,7 +9,11 @@
 //!   (`parse::decoder`), 1 000 different lines an iteration;
 //! * `log-v1`: reading a 10 000-row log v1 from memory, per row;
 //! * `monitor`: `alarm::Monitor::push` of one row of two gauges against six
-//!   rules (one a rate of change) and a gate, per row.
+//!   rules (one a rate of change) and a gate, per row; in N2 without a
+//!   temperature channel, then with a wall temperature read to 0.1 °C (a few
+//!   values recur, so the kinetics worked out per temperature are found
+//!   again) and with one that is new at every row (worked out again every
+//!   row), for N2 and for the three-gas mixture.
 //!
 //! The machine is shared and noisy: read the figures against each other in
 //! the same run rather than as absolute numbers.
@@ -233,8 +237,7 @@ fn log(c: &mut Criterion) {
 /// Two gauges (a combined gauge and an ionization gauge, both in N2), six
 /// rules — thresholds with deadband and delays, a rate of change, a flow
 /// regime crossing, a mean free path, a vacuum range — and one gate.
-fn monitor_setup() -> MonitorSetup {
-    let n2 = Mixture::pure(GasTable::builtin().get("N2").expect("N2").clone());
+fn monitor_setup(gas: &Mixture) -> MonitorSetup {
     let lengths = lengths();
     let length = |name: &str| lengths.iter().find(|l| l.name == name).map(|l| l.length_m);
     let rules = [
@@ -265,8 +268,8 @@ fn monitor_setup() -> MonitorSetup {
     };
     let gauge = |id: &str, kind| GaugeSetup {
         id: id.into(),
-        model: GaugeModel::new(kind, &n2, &GaugeOverrides::default()).expect("model"),
-        mixture: n2.clone(),
+        model: GaugeModel::new(kind, gas, &GaugeOverrides::default()).expect("model"),
+        mixture: gas.clone(),
         settings: None,
     };
     MonitorSetup {
@@ -274,7 +277,7 @@ fn monitor_setup() -> MonitorSetup {
             gauge("chamber", GaugeKind::Combined),
             gauge("ion", GaugeKind::Ionization),
         ],
-        mixture: n2.clone(),
+        mixture: gas.clone(),
         gas_steps: vec![],
         lengths: lengths.clone(),
         physics: Physics::default(),
@@ -291,10 +294,23 @@ fn monitor_setup() -> MonitorSetup {
     }
 }
 
-/// Rows of the two gauges at 10 Hz: pump-downs with the ion gauge off
-/// above 1e-3 mbar.
-fn monitor_rows(n: usize) -> Vec<[Sample; 2]> {
+/// How the rows' wall temperature channel reads.
+#[derive(Clone, Copy)]
+enum Wall {
+    /// No temperature channel: the assumed temperature throughout.
+    None,
+    /// Read to 0.1 °C, as a thermocouple readout gives it: a few values
+    /// recur.
+    Tenths,
+    /// A value that is new at every row (a filtered or averaged channel).
+    Continuous,
+}
+
+/// Rows of the two gauges (and a wall temperature) at 10 Hz: pump-downs
+/// with the ion gauge off above 1e-3 mbar.
+fn monitor_rows(n: usize, wall: Wall) -> Vec<Vec<Sample>> {
     let mut noise = Noise(9);
+    let celsius = ChannelUnit::Temperature(TemperatureUnit::C);
     (0..n)
         .map(|i| {
             let t = t0() + chrono::Duration::milliseconds(100 * i as i64);
@@ -304,7 +320,14 @@ fn monitor_rows(n: usize) -> Vec<[Sample; 2]> {
             } else {
                 Sample::ok(t, "ion", p * (1.0 + 0.03 * noise.next()), MBAR)
             };
-            [Sample::ok(t, "chamber", p, MBAR), ion]
+            let mut row = vec![Sample::ok(t, "chamber", p, MBAR), ion];
+            let c = 22.0 + 0.3 * noise.next();
+            match wall {
+                Wall::None => {}
+                Wall::Tenths => row.push(Sample::ok(t, "wall", (c * 10.0).round() / 10.0, celsius)),
+                Wall::Continuous => row.push(Sample::ok(t, "wall", c, celsius)),
+            }
+            row
         })
         .collect()
 }
@@ -314,32 +337,46 @@ fn monitor(c: &mut Criterion) {
     // are shifted by whole cycles), so the monitor never sees time go back.
     const ROWS: usize = 80_000;
     const BATCH: usize = 1_000;
-    let mut rows = monitor_rows(ROWS);
+    let table = GasTable::builtin();
+    let n2 = Mixture::pure(table.get("N2").expect("N2").clone());
+    let process = Mixture::parse("Ar=0.9,N2=0.08,H2O=0.02", &table).expect("mixture");
     let cycle = chrono::Duration::milliseconds(100 * ROWS as i64);
-    let mut m = Monitor::new(monitor_setup());
-    let mut at = 0;
-    let mut events = 0usize;
     let mut g = c.benchmark_group("monitor");
     quick(&mut g);
     g.throughput(Throughput::Elements(BATCH as u64));
-    g.bench_function("push row (2 gauges, 6 rules, 1 gate)", |b| {
-        b.iter(|| {
-            for _ in 0..BATCH {
-                if at == ROWS {
-                    at = 0;
-                    for r in &mut rows {
-                        for s in r.iter_mut() {
-                            s.time += cycle;
+    for (name, gas, wall) in [
+        ("push row (2 gauges, 6 rules, 1 gate) N2", &n2, Wall::None),
+        ("push row + wall 0.1 C, Ar+N2+H2O", &process, Wall::Tenths),
+        ("push row + wall continuous, N2", &n2, Wall::Continuous),
+        (
+            "push row + wall continuous, Ar+N2+H2O",
+            &process,
+            Wall::Continuous,
+        ),
+    ] {
+        let mut rows = monitor_rows(ROWS, wall);
+        let mut m = Monitor::new(monitor_setup(gas));
+        let mut at = 0;
+        let mut events = 0usize;
+        g.bench_function(name, |b| {
+            b.iter(|| {
+                for _ in 0..BATCH {
+                    if at == ROWS {
+                        at = 0;
+                        for r in &mut rows {
+                            for s in r.iter_mut() {
+                                s.time += cycle;
+                            }
                         }
                     }
+                    events += m.push(black_box(&rows[at])).len();
+                    at += 1;
                 }
-                events += m.push(black_box(&rows[at])).len();
-                at += 1;
-            }
-        })
-    });
+            })
+        });
+        println!("  {name}: {events} events over the pushes (alarms and gate changes)");
+    }
     g.finish();
-    println!("monitor: {events} events over the pushes (alarms and gate changes)");
 }
 
 criterion_group!(benches, engine, template, log, monitor);
