@@ -343,6 +343,9 @@ fn monitor(c: &mut Criterion) {
     let cycle = chrono::Duration::milliseconds(100 * ROWS as i64);
     let mut g = c.benchmark_group("monitor");
     quick(&mut g);
+    // An iteration is 1 000 rows (up to tens of ms): fewer samples keep
+    // the group within its few seconds.
+    g.sample_size(30);
     g.throughput(Throughput::Elements(BATCH as u64));
     for (name, gas, wall) in [
         ("push row (2 gauges, 6 rules, 1 gate) N2", &n2, Wall::None),
