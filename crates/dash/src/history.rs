@@ -169,6 +169,46 @@ mod tests {
         assert_eq!(b.len(), 1000);
     }
 
+    /// Two weeks of one gauge at 10 Hz in data time (a week is 6 048 000
+    /// samples): the finer levels are full after the first hour or so and
+    /// stay at their capacity; the coarsest (512 s) fills in its 12 days and
+    /// then stops growing. Allocations are bounded too, not only lengths.
+    #[test]
+    fn memory_stays_bounded_over_weeks_at_10_hz() {
+        const DAY: usize = 864_000;
+        let mut s = Series::default();
+        let mut per_day = Vec::new();
+        for i in 0..14 * DAY {
+            // A slow ripple on a base pressure, never equal twice in a row.
+            let t = i as f64 / 10.0;
+            s.push(t, 1e-6 * (1.5 + (t / 3600.0).sin()));
+            if (i + 1) % DAY == 0 {
+                let lens: Vec<usize> = s.levels.iter().map(VecDeque::len).collect();
+                for (l, level) in s.levels.iter().enumerate() {
+                    assert!(level.len() <= CAPACITY, "level {l}: {lens:?}");
+                    assert!(level.capacity() <= 2 * CAPACITY, "level {l}");
+                }
+                per_day.push(lens);
+            }
+        }
+        assert_eq!(s.samples(), 14 * DAY as u64);
+        // Levels 0–2 (1 s, 8 s, 64 s: 34 min, 4.6 h, 36 h of history) are
+        // full from the second day on.
+        for lens in &per_day[1..] {
+            assert_eq!(lens[..3], [CAPACITY; 3], "{per_day:?}");
+        }
+        // The 512 s level holds a week whole, then tops out at its capacity.
+        assert_eq!(per_day[6][3], (7 * 86_400) / 512 + 1, "{per_day:?}");
+        assert_eq!(per_day[12][3], CAPACITY);
+        assert_eq!(per_day[13][3], CAPACITY);
+        assert_eq!(s.buckets(), CAPACITY * LEVELS.len());
+        // A week's window still comes whole from the coarsest level.
+        let now = 14.0 * 86_400.0;
+        let (width, b) = s.span(now - 7.0 * 86_400.0, now);
+        assert_eq!(width, 512.0);
+        assert!(b.len() >= 7 * 86_400 / 512, "{}", b.len());
+    }
+
     #[test]
     fn gaps_show_as_missing_buckets() {
         let mut s = Series::default();

@@ -176,31 +176,37 @@ pub async fn live(mut app: App, mut input: LiveInput) -> Result<Vec<String>, Str
                     _ => {}
                 }
             }
-            ev = input.rx.recv(), if sources_open => {
-                let Some(ev) = ev else {
-                    sources_open = false;
-                    app.message = Some("all sources ended".into());
-                    app.dirty = true;
-                    continue;
-                };
-                // Take what is queued, up to a bound, before drawing again.
-                let mut batch = vec![ev];
-                while batch.len() < 2000 {
-                    match input.rx.try_recv() {
-                        Ok(ev) => batch.push(ev),
-                        Err(_) => break,
-                    }
+            // The frame, the recording's notes and the actions' outcomes
+            // before the data: a backlog of rows (a source that sends faster
+            // than real time, or one catching up) still leaves the screen
+            // redrawn every frame, rather than frozen until the queue is
+            // empty.
+            _ = sh.tick.tick() => {
+                if !input.finite {
+                    app.tick(clock.now());
                 }
-                for ev in &batch {
-                    if let SourceEvent::Samples(s) = ev
-                        && let Some(t) = s.iter().map(|s| s.time).max()
+                // Rows per wall second, over the last second or so.
+                let dt = rate_mark.0.elapsed().as_secs_f64();
+                if dt >= 1.0 {
+                    let rate = (app.counters.rows - rate_mark.1) as f64 / dt;
+                    if (rate - app.counters.rate).abs() > 1e-9 {
+                        app.counters.rate = rate;
+                        app.dirty = true;
+                    }
+                    rate_mark = (Instant::now(), app.counters.rows);
+                }
+                if last_flush.elapsed() >= Duration::from_secs(1) {
+                    app.pipeline.flush();
+                    last_flush = Instant::now();
+                    if let Some(state) = &input.recording
+                        && let Ok(s) = state.lock()
+                        && s.failing
                     {
-                        clock.saw(t);
+                        app.message = Some(format!("RECORDING FAILS: {} rows kept in memory", s.buffered));
+                        app.dirty = true;
                     }
-                    let now = (!input.finite).then(|| clock.now());
-                    app.ingest(ev, now);
                 }
-                app.counters.behind = input.rx.len();
+                draw(&mut sh.guard, &mut app).map_err(|e| e.to_string())?;
             }
             Some(n) = recv_opt(&mut input.notes) => {
                 // The status line names the file; only trouble is a message.
@@ -233,32 +239,31 @@ pub async fn live(mut app: App, mut input: LiveInput) -> Result<Vec<String>, Str
                     app.dirty = true;
                 }
             }
-            _ = sh.tick.tick() => {
-                if !input.finite {
-                    app.tick(clock.now());
-                }
-                // Rows per wall second, over the last second or so.
-                let dt = rate_mark.0.elapsed().as_secs_f64();
-                if dt >= 1.0 {
-                    let rate = (app.counters.rows - rate_mark.1) as f64 / dt;
-                    if (rate - app.counters.rate).abs() > 1e-9 {
-                        app.counters.rate = rate;
-                        app.dirty = true;
+            ev = input.rx.recv(), if sources_open => {
+                let Some(ev) = ev else {
+                    sources_open = false;
+                    app.message = Some("all sources ended".into());
+                    app.dirty = true;
+                    continue;
+                };
+                // Take what is queued, up to a bound, before drawing again.
+                let mut batch = vec![ev];
+                while batch.len() < 2000 {
+                    match input.rx.try_recv() {
+                        Ok(ev) => batch.push(ev),
+                        Err(_) => break,
                     }
-                    rate_mark = (Instant::now(), app.counters.rows);
                 }
-                if last_flush.elapsed() >= Duration::from_secs(1) {
-                    app.pipeline.flush();
-                    last_flush = Instant::now();
-                    if let Some(state) = &input.recording
-                        && let Ok(s) = state.lock()
-                        && s.failing
+                for ev in &batch {
+                    if let SourceEvent::Samples(s) = ev
+                        && let Some(t) = s.iter().map(|s| s.time).max()
                     {
-                        app.message = Some(format!("RECORDING FAILS: {} rows kept in memory", s.buffered));
-                        app.dirty = true;
+                        clock.saw(t);
                     }
+                    let now = (!input.finite).then(|| clock.now());
+                    app.ingest(ev, now);
                 }
-                draw(&mut sh.guard, &mut app).map_err(|e| e.to_string())?;
+                app.counters.behind = input.rx.len();
             }
         }
     }
