@@ -101,6 +101,26 @@ def run_once(cmd, stdout_path):
     return wall, cpu, rss
 
 
+def busy_cores(seconds=1.0):
+    """Cores busy over the next `seconds` (from /proc/stat): other work on
+    the machine, when nothing of ours runs."""
+
+    def sample():
+        with open("/proc/stat") as f:
+            v = [int(x) for x in f.readline().split()[1:]]
+        idle = v[3] + (v[4] if len(v) > 4 else 0)
+        return sum(v), idle
+
+    try:
+        t0, i0 = sample()
+        time.sleep(seconds)
+        t1, i1 = sample()
+    except OSError:
+        return float("nan")
+    total = t1 - t0
+    return (os.cpu_count() or 1) * (1.0 - (i1 - i0) / total) if total > 0 else 0.0
+
+
 def fmt_s(s):
     return f"{s:.3f}" if s < 10 else f"{s:.2f}"
 
@@ -137,6 +157,9 @@ def main():
     work = Path(tempfile.mkdtemp(prefix="rarefy-bench-"))
     print(f"log: {log} ({size / 1e6:.1f} MB, {args.rows} lines); {args.runs} run(s) each; outputs in {work}")
 
+    load_before = busy_cores()
+    if load_before > 0.2:
+        print(f"note: the machine is not idle ({load_before:.2f} cores busy with other work): timings will be slower")
     # The page cache: every run reads the log from memory.
     subprocess.run(["cat", str(log)], stdout=subprocess.DEVNULL, check=True)
 
@@ -195,7 +218,11 @@ def main():
                 break
     except OSError:
         pass
-    print(f"{when}; rarefy at commit {commit}{dirty}; {cores} cores ({cpu_name}); {platform.python_version()}")
+    load_after = busy_cores()
+    print(
+        f"{when}; rarefy at commit {commit}{dirty}; {cores} cores ({cpu_name}); Python {platform.python_version()}; "
+        f"cores busy with other work: {load_before:.2f} before, {load_after:.2f} after"
+    )
     versions = ""
     if args.python:
         versions = subprocess.run(
@@ -282,6 +309,7 @@ def main():
                     "rows": args.rows,
                     "runs": args.runs,
                     "versions": versions,
+                    "busy_cores_before_after": [load_before, load_after],
                     "timings": {
                         n: {"walls_s": t.walls, "cpus_s": t.cpus, "peak_rss_bytes": max(t.rss)} for n, t in timings.items()
                     },

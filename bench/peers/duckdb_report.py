@@ -43,8 +43,8 @@ def main():
         WITH temps AS (
             -- Gas temperature: the last valid wall reading of the rows before.
             SELECT ms, ptext,
-                   coalesce(last_value(CASE WHEN isfinite(wall) THEN wall + {c.ZERO_CELSIUS_K!r} END IGNORE NULLS)
-                            OVER (ORDER BY ms ROWS BETWEEN UNBOUNDED PRECEDING AND 1 PRECEDING),
+                   coalesce(lag(CASE WHEN isfinite(wall) THEN wall + {c.ZERO_CELSIUS_K!r} END IGNORE NULLS)
+                            OVER (ORDER BY ms),
                             {c.ASSUMED_T!r}) AS t_k
             FROM log
         ),

@@ -35,13 +35,16 @@ def main():
         .alias("t_k"),
         p.alias("p_raw"),
     )
-    rows_lf = lf.select(pl.len().alias("rows"))
-    # The gauge's readings: rows whose pressure cell is not empty.
-    r = lf.filter(pl.col(P).is_not_null())
+    # The gauge's readings: rows whose pressure cell is not empty. Every row
+    # stays in the frame (one scan of the log); the sums take the readings.
+    reading = pl.col(P).is_not_null()
     finite = pl.col("p_raw").is_finite().fill_null(False)
-    valid = finite & (pl.col("p_raw") > 0)
-    r = r.with_columns(
-        pl.when(finite)
+    valid = reading & finite & (pl.col("p_raw") > 0)
+    r = lf.with_columns(
+        reading.alias("reading"),
+        pl.when(~reading)
+        .then(None)
+        .when(finite)
         .then(pl.lit("ok"))
         .when(pl.col(P).is_in(c.STATUS_WORDS))
         .then(pl.col(P))
@@ -49,6 +52,8 @@ def main():
         .alias("status"),
         valid.alias("valid"),
         pl.when(valid).then(pl.col("p_raw")).alias("pressure_pa"),
+        # Each reading's state holds until the next reading.
+        pl.when(reading).then(pl.col("t")).shift(-1).backward_fill().alias("t_next"),
     )
     t_k = pl.col("t_k")
     pv = pl.col("pressure_pa")
@@ -77,32 +82,34 @@ def main():
         .then(pl.lit("molecular"))
         .otherwise(pl.lit("transitional"))
         .alias(f"regime {c.LENGTH_NAME}"),
-        range_expr.alias("range"),
+        pl.when(pv.is_not_null()).then(range_expr).alias("range"),
         pl.lit(c.GAUGE).alias("gauge"),
-        # Each reading's state holds until the next reading.
-        (pl.col("t").shift(-1) - pl.col("t")).dt.total_milliseconds().alias("dt_ms"),
+        pl.when(reading).then((pl.col("t_next") - pl.col("t")).dt.total_milliseconds()).alias("dt_ms"),
     )
 
     if args.csv:
         # One pass writes the CSV; the summary is taken from the same frame.
-        frame = r.select(c.CSV_COLUMNS[1:] + ["t", "valid", "dt_ms"]).collect()
-        frame.select(pl.col("t").alias("time"), *c.CSV_COLUMNS[1:]).write_csv(
+        frame = r.select(c.CSV_COLUMNS[1:] + ["t", "reading", "valid", "dt_ms"]).collect()
+        frame.filter(pl.col("reading")).select(pl.col("t").alias("time"), *c.CSV_COLUMNS[1:]).write_csv(
             args.csv, datetime_format="%Y-%m-%dT%H:%M:%S%.3fZ"
         )
         r = frame.lazy()
 
     # Gaps: 5 x the median of the first 64 intervals (the upper median).
-    first = pl.col("dt_ms").head(c.INTERVALS_KEPT).drop_nulls().sort()
+    first = pl.col("dt_ms").filter(pl.col("reading")).head(c.INTERVALS_KEPT).drop_nulls().sort()
     gap_after = first.get(first.len() // 2) / 1000.0 * c.GAP_FACTOR
     dt_s = pl.col("dt_ms") / 1000.0
     gap = (dt_s > gap_after).fill_null(False)
+
     def held(cond):
         return pl.col("dt_ms").filter(~gap & pl.col("valid") & cond).sum()
 
+    t_read = pl.col("t").filter(pl.col("reading"))
     summary_exprs = [
-        pl.len().alias("samples"),
-        pl.col("t").first().alias("start"),
-        pl.col("t").last().alias("end"),
+        pl.len().alias("rows"),
+        pl.col("reading").sum().alias("samples"),
+        t_read.first().alias("start"),
+        t_read.last().alias("end"),
         pv.min().alias("min_pa"),
         pv.max().alias("max_pa"),
         pv.mean().alias("mean_pa"),
@@ -111,25 +118,24 @@ def main():
         gap_after.alias("gap_after_s"),
         pl.col("dt_ms").filter(gap).sum().alias("gap_ms"),
     ]
+    words = ["ok"] + c.STATUS_WORDS
+    summary_exprs += [(pl.col("status") == w).sum().alias(f"status {w}") for w in words]
     for name, _ in c.RANGES:
         summary_exprs.append(held(pl.col("range") == name).alias(f"range {name}"))
     for name in c.REGIMES:
         summary_exprs.append(held(pl.col(f"regime {c.LENGTH_NAME}") == name).alias(f"regime {name}"))
     for th in c.THRESHOLDS:
         summary_exprs.append(pl.col("t").filter(pl.col("valid") & (pv < th)).first().alias(f"below {th}"))
-    s, statuses, rows = pl.collect_all(
-        [r.select(summary_exprs), r.group_by("status").len(), rows_lf]
-    )
-    s = s.row(0, named=True)
+    s = r.select(summary_exprs).collect().row(0, named=True)
 
     def ms(t):
         return None if t is None else int(t.timestamp() * 1000 + 0.5)
 
     summary = {
         "tool": f"polars {pl.__version__}",
-        "rows": rows["rows"][0],
+        "rows": s["rows"],
         "samples": s["samples"],
-        "statuses": dict(statuses.iter_rows()),
+        "statuses": {w: s[f"status {w}"] for w in words if s[f"status {w}"]},
         "start": c.iso_ms(ms(s["start"])),
         "end": c.iso_ms(ms(s["end"])),
         "duration_s": (ms(s["end"]) - ms(s["start"])) / 1000.0 if s["start"] else 0.0,
