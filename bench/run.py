@@ -156,6 +156,7 @@ def main():
     peers = agree.PEERS if args.python else []
     work = Path(tempfile.mkdtemp(prefix="rarefy-bench-"))
     print(f"log: {log} ({size / 1e6:.1f} MB, {args.rows} lines); {args.runs} run(s) each; outputs in {work}")
+    print(f"rarefy: {args.rarefy}")
 
     load_before = busy_cores()
     if load_before > 0.2:
