@@ -19,6 +19,7 @@ import datetime
 import json
 import os
 import platform
+import shutil
 import statistics
 import subprocess
 import sys
@@ -149,13 +150,16 @@ def main():
     ap.add_argument("--rows", type=int, required=True, help="data lines in the log (for rows/s)")
     ap.add_argument("--no-check", action="store_true", help="skip the agreement check")
     ap.add_argument("--json", help="also write the measurements here")
+    ap.add_argument("--keep", action="store_true", help="keep the outputs of the last runs (removed by default)")
     args = ap.parse_args()
 
     log = Path(args.log)
     size = log.stat().st_size
     peers = agree.PEERS if args.python else []
     work = Path(tempfile.mkdtemp(prefix="rarefy-bench-"))
-    print(f"log: {log} ({size / 1e6:.1f} MB, {args.rows} lines); {args.runs} run(s) each; outputs in {work}")
+    print(f"log: {log} ({size / 1e6:.1f} MB, {args.rows} lines); {args.runs} run(s) each")
+    if args.keep:
+        print(f"outputs kept in {work}")
     print(f"rarefy: {args.rarefy}")
 
     load_before = busy_cores()
@@ -318,6 +322,8 @@ def main():
                 indent=1,
             )
         )
+    if not args.keep:
+        shutil.rmtree(work, ignore_errors=True)
     if not ok:
         print("the peers DISAGREE with rarefy (see above): the comparison is not valid", file=sys.stderr)
         sys.exit(1)

@@ -10,6 +10,7 @@
 #   bash bench/run.sh --smoke              # 2e4 rows, 1 run, debug build;
 #                                          # peers only if bench/.venv exists
 #   bash bench/run.sh --no-peers           # rarefy, cat and wc -l only
+#   bash bench/run.sh --keep               # keep the last run's outputs
 #
 # Environment: PYTHON (default python3) makes the venv; CARGO_TARGET_DIR is
 # honoured.
@@ -24,8 +25,9 @@ smoke=0
 peers=1
 check=1
 json=""
+keep=0
 
-usage() { sed -n '2,16p' "$0" | sed 's/^# \{0,1\}//'; }
+usage() { sed -n '2,17p' "$0" | sed 's/^# \{0,1\}//'; }
 while [[ $# -gt 0 ]]; do
     case $1 in
         --rows) rows=$2; shift 2 ;;
@@ -34,6 +36,7 @@ while [[ $# -gt 0 ]]; do
         --no-peers) peers=0; shift ;;
         --no-check) check=0; shift ;;
         --json) json=$2; shift 2 ;;
+        --keep) keep=1; shift ;;
         -h|--help) usage; exit 0 ;;
         *) echo "run.sh: unknown argument $1" >&2; usage >&2; exit 2 ;;
     esac
@@ -87,4 +90,5 @@ fi
 
 runner=${py:-python3}
 exec "$runner" "$here/run.py" "$log" --rarefy "$bin/rarefy" --rows "$count" --runs "$runs" \
-    ${py:+--python "$py"} ${json:+--json "$json"} $([[ $check == 0 ]] && echo --no-check)
+    ${py:+--python "$py"} ${json:+--json "$json"} $([[ $check == 0 ]] && echo --no-check) \
+    $([[ $keep == 1 ]] && echo --keep)
