@@ -112,7 +112,7 @@ pub fn index(
     setup: &MonitorSetup,
     gases: &GasTable,
 ) -> Result<LogIndex, String> {
-    let log = open_log(file, foreign).map_err(|e| e.to_string())?;
+    let mut log = open_log(file, foreign).map_err(|e| e.to_string())?;
     let mut pipeline = Pipeline::new(Monitor::new(setup.clone()));
     pipeline.set_gases(gases.clone());
     let mut gas = None;
@@ -122,9 +122,7 @@ pub fn index(
     let mut gaps = Vec::new();
     let mut intervals: Vec<i64> = Vec::new();
     let mut bad_rows = 0u64;
-    // Read and parsed on a second thread in bounded batches, in order.
-    let (rx, reader) = read_ahead(log);
-    for item in rx.into_iter().flatten() {
+    for item in log.by_ref() {
         let row = match item {
             Ok(r) => r,
             Err(e) => {
@@ -154,9 +152,6 @@ pub fn index(
             pipeline.feed(&ev, None, &mut events);
         }
     }
-    let log = reader
-        .join()
-        .map_err(|_| format!("{}: the reader stopped unexpectedly", file.display()))?;
     let (Some(start), Some(end)) = (start, end) else {
         return Err(format!("{}: the log has no rows", file.display()));
     };
@@ -169,40 +164,4 @@ pub fn index(
         times_repeated: log.times_repeated(),
         events: events.0,
     })
-}
-
-/// Rows per batch from a reading thread.
-pub const BATCH_ROWS: usize = 1024;
-/// Batches a reading thread may be ahead.
-pub const READ_AHEAD_BATCHES: usize = 8;
-
-/// What a reading thread gives: batches of rows in file order.
-pub type RowBatches = std::sync::mpsc::Receiver<Vec<Result<Row, crate::log::LogError>>>;
-
-/// Reads and parses `log` on a thread of its own, in batches of
-/// [`BATCH_ROWS`], at most [`READ_AHEAD_BATCHES`] ahead of the caller (a
-/// bounded queue: memory does not grow with the log). One reader, one
-/// queue: the order is the file's. Joining the thread gives the log back,
-/// for its counts.
-pub fn read_ahead(
-    mut log: Box<dyn LogSource>,
-) -> (RowBatches, std::thread::JoinHandle<Box<dyn LogSource>>) {
-    let (tx, rx) = std::sync::mpsc::sync_channel(READ_AHEAD_BATCHES);
-    let reader = std::thread::spawn(move || {
-        let mut batch = Vec::with_capacity(BATCH_ROWS);
-        for r in log.by_ref() {
-            batch.push(r);
-            if batch.len() == BATCH_ROWS {
-                let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH_ROWS));
-                if tx.send(full).is_err() {
-                    break;
-                }
-            }
-        }
-        if !batch.is_empty() {
-            let _ = tx.send(batch);
-        }
-        log
-    });
-    (rx, reader)
 }
