@@ -494,6 +494,7 @@ fn gauge_json(g: &GaugeSummary, a: &Analysis, origin: Option<DateTime<Utc>>) -> 
         "duration_s": g.duration_s,
         "min_pa": g.min_pa,
         "max_pa": g.max_pa,
+        "mean_pa": g.mean_pa,
         "median_pa": g.median_pa,
         "time_in_range_s": ranges,
         "time_in_regime_s": regimes,
@@ -704,9 +705,10 @@ fn to_text(
         if g.min_pa.is_some() {
             let _ = writeln!(
                 s,
-                "  pressure: min {}, max {}, median {} (P² estimate)",
+                "  pressure: min {}, max {}, mean {}, median {} (P² estimate)",
                 p(g.min_pa),
                 p(g.max_pa),
+                p(g.mean_pa),
                 p(g.median_pa)
             );
         }

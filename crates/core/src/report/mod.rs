@@ -107,6 +107,9 @@ pub struct GaugeAccumulator {
     statuses: [u64; Status::ALL.len()],
     min: Option<f64>,
     max: Option<f64>,
+    /// Neumaier-compensated sum of the valid pressures, and their count.
+    sum: (f64, f64),
+    valid: u64,
     median: P2Quantile,
     intervals: Vec<f64>,
     /// The gap limit once [`INTERVALS_KEPT`] intervals are in.
@@ -138,6 +141,8 @@ impl GaugeAccumulator {
             statuses: [0; Status::ALL.len()],
             min: None,
             max: None,
+            sum: (0.0, 0.0),
+            valid: 0,
             median: P2Quantile::new(0.5),
             intervals: Vec::new(),
             gap_limit_fixed: None,
@@ -226,6 +231,17 @@ impl GaugeAccumulator {
         if let Some(p) = p {
             self.min = Some(self.min.map_or(p, |m| m.min(p)));
             self.max = Some(self.max.map_or(p, |m| m.max(p)));
+            // Neumaier's summation: the sum of 1e7 readings over ten decades
+            // keeps its last digits.
+            let (sum, c) = &mut self.sum;
+            let t = *sum + p;
+            *c += if sum.abs() >= p.abs() {
+                (*sum - t) + p
+            } else {
+                (p - t) + *sum
+            };
+            *sum = t;
+            self.valid += 1;
             self.median.add(p.ln());
             for (t, first) in &mut self.thresholds {
                 if first.is_none() && p < t.pa {
@@ -282,6 +298,7 @@ impl GaugeAccumulator {
             duration_s: secs(self.start, self.end),
             min_pa: self.min,
             max_pa: self.max,
+            mean_pa: (self.valid > 0).then(|| (self.sum.0 + self.sum.1) / self.valid as f64),
             median_pa: self.median.estimate().map(f64::exp),
             time_in_range_s: RANGES
                 .iter()
@@ -333,6 +350,8 @@ pub struct GaugeSummary {
     pub min_pa: Option<f64>,
     /// Highest valid pressure, Pa.
     pub max_pa: Option<f64>,
+    /// Mean of the valid pressures (each reading counts once), Pa.
+    pub mean_pa: Option<f64>,
     /// Median valid pressure, Pa: a P² estimate.
     pub median_pa: Option<f64>,
     /// Seconds in each range, every range listed.

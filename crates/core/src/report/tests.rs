@@ -76,6 +76,8 @@ fn three_readings_by_hand() {
     assert_eq!(s.max_pa, Some(5e4));
     let median = s.median_pa.expect("median");
     assert!((median - 50.0).abs() < 1e-9, "{median}");
+    // (5e4 + 50 + 0.05) / 3, by hand.
+    assert_eq!(s.mean_pa, Some(50_050.05 / 3.0));
     assert_eq!(
         s.time_in_regime_s,
         vec![(
@@ -136,4 +138,19 @@ fn unusable_rows_count_by_cause() {
     u.count("y");
     assert_eq!(u.total(), 3);
     assert_eq!(u.causes.get("x"), Some(&2));
+}
+
+#[test]
+fn the_mean_keeps_its_digits_over_many_decades() {
+    // 200 000 readings: one of 1e5 Pa, then 199 999 of 1e-6 Pa. A plain
+    // sum loses the small ones' digits against the large one; the
+    // compensated sum gives (1e5 + 199 999e-6) / 2e5 to the last bits.
+    let mut g = GaugeAccumulator::new("g", Vec::new(), Some(1e9));
+    g.add(obs(0, Some(1e5)));
+    for i in 1..200_000 {
+        g.add(obs(i, Some(1e-6)));
+    }
+    let mean = g.summary().mean_pa.expect("mean");
+    let want = (1e5 + 199_999.0 * 1e-6) / 2e5;
+    assert!((mean - want).abs() <= 1e-15 * want, "{mean} vs {want}");
 }
