@@ -40,6 +40,7 @@ pub mod analysis;
 pub mod engine;
 pub mod gas;
 pub mod log;
+pub mod numfmt;
 pub mod parse;
 pub mod report;
 pub mod sample;

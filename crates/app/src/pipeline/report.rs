@@ -141,7 +141,8 @@ impl ReportSink {
         }
         let lengths = &monitor.setup().lengths;
         // One line buffer for the whole run; numbers in the shortest form
-        // that reads back to the same f64 (`{:e}`).
+        // that reads back to the same f64, as `{:e}` writes them
+        // (`numfmt::push_exp`).
         let line = &mut self.csv_line;
         line.clear();
         if !self.csv_header {
@@ -160,7 +161,7 @@ impl ReportSink {
         let num = |line: &mut String, v: Option<f64>| {
             line.push(',');
             if let Some(v) = v {
-                let _ = write!(line, "{v:e}");
+                rarefy_core::numfmt::push_exp(line, v);
             }
         };
         crate::timefmt::push_rfc3339(line, obs.time);
