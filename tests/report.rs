@@ -480,10 +480,12 @@ fn operator_actions_from_the_event_log_stand_beside_the_events() {
         .expect(&out);
     assert!(ack < set);
     assert!(!out.contains("operator ines"), "{out}");
-    // --events names the log explicitly; one that does not exist is said.
-    let (_, _, err) = report(&[p, "--events", "no-such-events.jsonl"]);
+    // --events names the log explicitly; one that cannot be opened is a
+    // usage error, before any work.
+    let (code, _, err) = report(&[p, "--events", "no-such-events.jsonl"]);
+    assert_eq!(code, 2, "{err}");
     assert!(
-        err.contains("no-such-events.jsonl: cannot open the event log"),
+        err.contains("--events no-such-events.jsonl: cannot open the event log"),
         "{err}"
     );
 }

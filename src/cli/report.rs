@@ -144,6 +144,16 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
         }
         return Err(CliError::Usage("no usable rows in the log(s)".into()));
     };
+    // An event log named on the command line must be there (found ones are
+    // only looked for).
+    for e in &args.events {
+        if let Err(err) = std::fs::File::open(e) {
+            return Err(CliError::Usage(format!(
+                "--events {}: cannot open the event log: {err}",
+                e.display()
+            )));
+        }
+    }
     let lc = log_config(first, args.config.as_ref())?;
     if let Some(n) = &lc.note {
         crate::pipeline::sinks::say(n);
