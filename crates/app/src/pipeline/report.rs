@@ -21,9 +21,7 @@ use crate::log::{ForeignLogSpec, LogError, LogSource};
 use crate::logfile::open_log;
 use crate::report::{GaugeAccumulator, GaugeSummary, Observation, Threshold, Unusable};
 use crate::sample::{SourceEvent, Status};
-use rarefy_core::analysis::{
-    Analysis, AnalysisOptions, Analyzer, PumpDownOptions, RiseOptions, SourceId,
-};
+use rarefy_core::analysis::{Analysis, AnalysisOptions, Analyzer, PumpDownOptions, RiseOptions};
 use rarefy_core::engine::gauge::GaugeKind;
 
 /// How many reader messages a report keeps to show (all are counted).
@@ -290,24 +288,15 @@ impl ReportSink {
         if self.chamber.is_none() {
             self.chamber = Some(self.analyzer());
         }
-        let name = source_name(&s.channel, monitor);
+        let name = self
+            .index
+            .get(&*s.channel)
+            .and_then(|i| self.labels.get(*i))
+            .map_or(s.channel.as_str(), |l| l.name(monitor));
         if let Some(a) = self.chamber.as_mut() {
-            let src = a.source(&name);
+            let src = a.source(name);
             a.push_from((s.time - origin).num_milliseconds() as f64 / 1000.0, p, src);
         }
-    }
-}
-
-/// The name a gauge's readings carry in the analysis: its id, and for a
-/// combined gauge the element that read (its two elements step where they
-/// hand over, so no fit may span them).
-fn source_name<'a>(id: &'a str, monitor: &Monitor) -> std::borrow::Cow<'a, str> {
-    match (
-        gauge_kind(id, monitor),
-        monitor.track(id).and_then(|t| t.indicated),
-    ) {
-        (Some(k @ GaugeKind::Combined), Some(v)) => format!("{id} ({})", k.element(v)).into(),
-        _ => id.into(),
     }
 }
 
@@ -320,16 +309,49 @@ fn gauge_kind(id: &str, monitor: &Monitor) -> Option<GaugeKind> {
         .map(|g| g.model.kind)
 }
 
-/// A gauge's source ids in its analyzer: one, or one per element of a
-/// combined gauge.
+/// The names a gauge's readings carry in the analysis: its id, and for a
+/// combined gauge one per element (they step where they hand over, so no fit
+/// may span them). Made once per gauge, not per reading.
 #[derive(Debug, Clone)]
 enum Labels {
-    Plain(SourceId),
+    Plain(String),
     Combined {
-        name: String,
-        ion: SourceId,
-        thermal: SourceId,
+        id: String,
+        ion: String,
+        thermal: String,
     },
+}
+
+impl Labels {
+    fn new(id: &str, monitor: &Monitor) -> Self {
+        if gauge_kind(id, monitor) == Some(GaugeKind::Combined) {
+            Labels::Combined {
+                id: id.to_string(),
+                ion: format!("{id} ({})", GaugeKind::Ionization),
+                thermal: format!("{id} ({})", GaugeKind::Thermal),
+            }
+        } else {
+            Labels::Plain(id.to_string())
+        }
+    }
+
+    /// The name of the gauge's last reading.
+    fn name(&self, monitor: &Monitor) -> &str {
+        match self {
+            Labels::Plain(id) => id,
+            Labels::Combined { id, ion, thermal } => {
+                let element = monitor
+                    .track(id)
+                    .and_then(|t| t.indicated)
+                    .map(|v| GaugeKind::Combined.element(v));
+                if element == Some(GaugeKind::Ionization) {
+                    ion
+                } else {
+                    thermal
+                }
+            }
+        }
+    }
 }
 
 /// A CSV cell: quoted when it holds a comma, quote or line break.
@@ -378,20 +400,9 @@ impl Sink for ReportSink {
                                 self.options.gap_after_s,
                             ));
                             self.origin.get_or_insert(s.time);
-                            let mut a = self.analyzer();
-                            let labels =
-                                if gauge_kind(&s.channel, monitor) == Some(GaugeKind::Combined) {
-                                    let name = s.channel.clone();
-                                    Labels::Combined {
-                                        ion: a.source(&format!("{name} (ionization)")),
-                                        thermal: a.source(&format!("{name} (thermal)")),
-                                        name,
-                                    }
-                                } else {
-                                    Labels::Plain(a.source(&s.channel))
-                                };
+                            let a = self.analyzer();
                             self.analyzers.push(a);
-                            self.labels.push(labels);
+                            self.labels.push(Labels::new(&s.channel, monitor));
                             if track.is_some_and(|t| t.is_pressure) {
                                 self.pressure_gauges += 1;
                             }
@@ -406,18 +417,10 @@ impl Sink for ReportSink {
                     // reading, to the pump-down and rate-of-rise analysis.
                     let origin = *self.origin.get_or_insert(s.time);
                     let t_s = (s.time - origin).num_milliseconds() as f64 / 1000.0;
-                    if let (Some(p), Some(a)) = (pressure_pa, self.analyzers.get_mut(i)) {
-                        let src = match self.labels.get(i) {
-                            Some(Labels::Plain(id)) => *id,
-                            Some(Labels::Combined { name, ion, thermal }) => {
-                                let ion_reads =
-                                    monitor.track(name).and_then(|t| t.indicated).is_some_and(
-                                        |v| GaugeKind::Combined.element(v) == GaugeKind::Ionization,
-                                    );
-                                if ion_reads { *ion } else { *thermal }
-                            }
-                            None => 0,
-                        };
+                    if let (Some(p), Some(a), Some(l)) =
+                        (pressure_pa, self.analyzers.get_mut(i), self.labels.get(i))
+                    {
+                        let src = a.source(l.name(monitor));
                         a.push_from(t_s, p, src);
                     }
                     if let (Some(p), Some(plot)) = (pressure_pa, self.plot.as_mut()) {
