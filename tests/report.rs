@@ -1030,3 +1030,23 @@ mod plot {
         assert!(ys[0] < median - 300, "spike at {} vs {median}", ys[0]);
     }
 }
+
+#[test]
+fn a_gauge_the_log_does_not_have_is_a_usage_error() {
+    let (code, out, err) = report(&["sample-logs/leak-check.csv", "--gauge", "chambr"]);
+    assert_eq!(code, 2, "{out}");
+    assert!(
+        err.contains("--gauge \"chambr\": the log has no such channel (it has cdg, chamber, ion, wall); did you mean \"chamber\"?"),
+        "{err}"
+    );
+}
+
+#[test]
+fn a_window_without_readings_is_a_usage_error() {
+    let (code, _, err) = report(&["sample-logs/leak-check.csv", "--from", "23:00:00"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("--from/--to: no readings between 2026-11-03T23:00:00.000Z and the end (the log's first row is at 2026-11-03T07:00:05.000Z)"),
+        "{err}"
+    );
+}

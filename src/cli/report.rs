@@ -254,6 +254,26 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
     if outcome.rows == 0 {
         return Err(CliError::Usage("no usable rows in the log(s)".into()));
     }
+    if let Some(g) = &args.gauge
+        && !sink.gauge_seen()
+    {
+        let others: Vec<&str> = sink.other_channels().collect();
+        let hint = crate::suggest::nearest(g, others.iter().copied())
+            .map(|s| format!("; did you mean \"{s}\"?"))
+            .unwrap_or_default();
+        return Err(CliError::Usage(format!(
+            "--gauge {g:?}: the log has no such channel (it has {}){hint}",
+            others.join(", ")
+        )));
+    }
+    if sink.summaries().is_empty() && (args.from.is_some() || args.to.is_some()) {
+        return Err(CliError::Usage(format!(
+            "--from/--to: no readings between {} and {} (the log's first row is at {})",
+            options_time(sink.from(), "the start"),
+            options_time(sink.to(), "the end"),
+            start.map_or("-".to_string(), write_rfc3339),
+        )));
+    }
     let ops = actions(args, &sink);
     for m in &ops.messages {
         eprintln!("rarefy: {}", rarefy_core::parse::terminal_text(m));
@@ -277,6 +297,11 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
     } else {
         ExitCode::Ok
     })
+}
+
+/// A window's end for a message: the time, else `open` (no bound).
+fn options_time(t: Option<DateTime<Utc>>, open: &str) -> String {
+    t.map_or(open.to_string(), write_rfc3339)
 }
 
 /// The operator actions of the run's span (and the --from/--to window).

@@ -65,8 +65,13 @@ pub struct ReportSink {
     chamber: Option<Analyzer>,
     /// Pressure gauges seen.
     pressure_gauges: usize,
-    /// Each gauge's source ids in its analyzer (same order).
+    /// Each gauge's source names in its analyzer (same order).
     labels: Vec<Labels>,
+    /// With `gauge` given: the channels the log has besides it.
+    other_channels: std::collections::BTreeSet<String>,
+    /// A reading of a channel the report covers was seen (in the time
+    /// window or not).
+    gauge_seen: bool,
     /// Time origin of the analyses' seconds: the first reading.
     origin: Option<DateTime<Utc>>,
     index: BTreeMap<String, usize>,
@@ -90,6 +95,8 @@ impl ReportSink {
             chamber: None,
             pressure_gauges: 0,
             labels: Vec::new(),
+            other_channels: std::collections::BTreeSet::new(),
+            gauge_seen: false,
             index: BTreeMap::new(),
             events: Vec::new(),
             notes: Vec::new(),
@@ -258,6 +265,28 @@ impl ReportSink {
         self.plot.as_ref()
     }
 
+    /// With [`ReportOptions::gauge`] given: the log's other channels (to
+    /// say what there is when the gauge is not among them).
+    pub fn other_channels(&self) -> impl Iterator<Item = &str> {
+        self.other_channels.iter().map(String::as_str)
+    }
+
+    /// The window's start ([`ReportOptions::from`]).
+    pub fn from(&self) -> Option<DateTime<Utc>> {
+        self.options.from
+    }
+
+    /// The window's end ([`ReportOptions::to`]).
+    pub fn to(&self) -> Option<DateTime<Utc>> {
+        self.options.to
+    }
+
+    /// Whether a reading of a channel the report covers came (in the time
+    /// window or not).
+    pub fn gauge_seen(&self) -> bool {
+        self.gauge_seen
+    }
+
     /// Problems the pipeline reported (a gas column naming no gas …).
     pub fn notes(&self) -> &[String] {
         &self.notes
@@ -368,9 +397,16 @@ impl Sink for ReportSink {
         match item {
             Item::Row(samples) => {
                 for s in samples {
-                    if self.options.gauge.as_ref().is_some_and(|g| *g != s.channel)
-                        || !self.in_window(s.time)
+                    if let Some(g) = &self.options.gauge
+                        && *g != s.channel
                     {
+                        if !self.other_channels.contains(&s.channel) {
+                            self.other_channels.insert(s.channel.clone());
+                        }
+                        continue;
+                    }
+                    self.gauge_seen = true;
+                    if !self.in_window(s.time) {
                         continue;
                     }
                     let track = monitor.track(&s.channel);
