@@ -893,19 +893,26 @@ fn alarms(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
         .count();
     // Returned-unacknowledged alarms still wait for the operator, so they
     // count; the words say how the count is made up.
-    let title = if returned == 0 {
-        format!("alarms & gates · {active} active")
-    } else if area.width >= 60 {
-        format!(
-            "alarms & gates · {} to attend: {active} active, {returned} returned-unacknowledged",
-            active + returned
-        )
+    // The longest wording that leaves the frame's corners free.
+    let attend = active + returned;
+    let candidates = if returned == 0 {
+        vec![format!("alarms & gates · {active} active")]
     } else {
-        format!(
-            "alarms & gates · {} to attend ({returned} rtn-unack)",
-            active + returned
-        )
+        vec![
+            format!(
+                "alarms & gates · {attend} to attend: {active} active, {returned} returned-unacknowledged"
+            ),
+            format!("alarms & gates · {attend} to attend ({returned} rtn-unack)"),
+            format!("alarms · {attend} to attend ({returned} rtn-unack)"),
+        ]
     };
+    let room = usize::from(area.width).saturating_sub(4);
+    let title = candidates
+        .iter()
+        .find(|t| t.chars().count() <= room)
+        .or(candidates.last())
+        .cloned()
+        .unwrap_or_default();
     let inner = look.frame(&title, area, buf);
     let width = usize::from(inner.width);
     let longest = views
