@@ -17,6 +17,7 @@
 
 mod clock;
 pub mod plot;
+pub mod read_ahead;
 pub mod replay;
 pub mod report;
 pub mod sinks;
@@ -179,27 +180,7 @@ impl Pipeline {
         also: &mut dyn Sink,
     ) -> Vec<Event> {
         match ev {
-            SourceEvent::Samples(samples) => {
-                let Some(t) = samples.iter().map(|s| s.time).max() else {
-                    return Vec::new();
-                };
-
-                // Deadlines up to the row first, at their own times …
-                let mut events = self.monitor.advance_to(t);
-                self.dispatch_events_also(&events, also);
-                // … then the row and what it caused.
-                let caused = self.monitor.push(samples);
-                self.counts.rows += 1;
-                self.counts.samples += samples.len() as u64;
-                let item = Item::Row(samples);
-                for s in &mut self.sinks {
-                    s.accept(item, &self.monitor);
-                }
-                also.accept(item, &self.monitor);
-                self.dispatch_events_also(&caused, also);
-                events.extend(caused);
-                events
-            }
+            SourceEvent::Samples(samples) => self.feed_samples(samples, also),
             SourceEvent::Status { source, state } => {
                 let mut events = Vec::new();
                 if let (Some(now), Some((_, id))) =
@@ -250,6 +231,51 @@ impl Pipeline {
                 Vec::new()
             }
         }
+    }
+
+    /// Takes one row of readings (what [`SourceEvent::Samples`] carries).
+    fn feed_samples(&mut self, samples: &[Sample], also: &mut dyn Sink) -> Vec<Event> {
+        let Some(t) = samples.iter().map(|s| s.time).max() else {
+            return Vec::new();
+        };
+        // Deadlines up to the row first, at their own times …
+        let mut events = self.monitor.advance_to(t);
+        self.dispatch_events_also(&events, also);
+        // … then the row and what it caused.
+        let caused = self.monitor.push(samples);
+        self.counts.rows += 1;
+        self.counts.samples += samples.len() as u64;
+        let item = Item::Row(samples);
+        for s in &mut self.sinks {
+            s.accept(item, &self.monitor);
+        }
+        also.accept(item, &self.monitor);
+        self.dispatch_events_also(&caused, also);
+        events.extend(caused);
+        events
+    }
+
+    /// Takes one row of a log read back (no live clock): a change of its
+    /// `gas` cell from the row before's (`gas`, updated) first, then its
+    /// readings; the same as feeding [`crate::log::row_events`] without
+    /// giving up the row (a reader reuses its buffers).
+    pub fn feed_log_row(
+        &mut self,
+        row: &crate::log::Row,
+        gas: &mut Option<String>,
+        also: &mut dyn Sink,
+    ) -> Vec<Event> {
+        let mut events = Vec::new();
+        if row.gas != *gas {
+            gas.clone_from(&row.gas);
+            let change = SourceEvent::Gas {
+                time: row.time,
+                text: row.gas.clone(),
+            };
+            events = self.feed(&change, None, also);
+        }
+        events.extend(self.feed_samples(&row.samples, also));
+        events
     }
 
     /// Moves data time to `t` without readings: every deadline up to `t` is

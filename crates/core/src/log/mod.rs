@@ -91,6 +91,13 @@ pub trait LogSource: Iterator<Item = Result<Row, LogError>> + Send {
     fn time_offset_changes(&self) -> u64;
     /// The line of the header (column-name) row, when the log has one.
     fn header_line(&self) -> Option<u64>;
+    /// The next row into `row`, reusing its buffers where the reader can
+    /// ([`LogReader::next_row_into`]); otherwise the iterator's next row.
+    /// After `Some(Err(e))` the bad row's readings are in `e.row` and
+    /// `row` holds nothing to use.
+    fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
+        Some(self.next()?.map(|r| *row = r))
+    }
 }
 
 impl<R: BufRead + Send> LogSource for LogReader<R> {
@@ -117,6 +124,9 @@ impl<R: BufRead + Send> LogSource for LogReader<R> {
     }
     fn header_line(&self) -> Option<u64> {
         Some(LogReader::header_line(self))
+    }
+    fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
+        LogReader::next_row_into(self, row)
     }
 }
 

@@ -71,7 +71,7 @@ impl fmt::Display for LogError {
 impl std::error::Error for LogError {}
 
 /// One data row: its time and one sample per non-empty channel cell.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct Row {
     /// 1-based line number in the file.
     pub line: u64,
@@ -398,14 +398,36 @@ impl<R: BufRead> LogReader<R> {
     /// arriving line by line): the same checks as reading the file. `None`
     /// for a blank line.
     pub fn read_row(&mut self, number: u64, text: &str) -> Option<Result<Row, LogError>> {
-        self.row(&RawLine {
+        let raw = RawLine {
             number,
             bytes: text.as_bytes().to_vec(),
             too_long: false,
-        })
+        };
+        let mut row = Row::default();
+        Some(self.row(&raw, &mut row)?.map(|()| row))
     }
 
-    fn row(&mut self, raw: &RawLine) -> Option<Result<Row, LogError>> {
+    /// The next row into `row`, reusing its buffers (its samples and their
+    /// channel names): what the iterator gives, without allocating per row.
+    /// `Some(Ok(()))`: `row` holds the row. `Some(Err(e))`: a bad row, its
+    /// good readings in `e.row` as the iterator gives them (`row` is then
+    /// left empty). `None`: the end of the log.
+    pub fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
+        loop {
+            let mut raw = std::mem::replace(&mut self.raw, RawLine::empty());
+            if let Err(e) = self.lines.next_located_into(&self.name, &mut raw)? {
+                self.raw = raw;
+                return Some(Err(e));
+            }
+            let item = self.row(&raw, row);
+            self.raw = raw;
+            if let Some(item) = item {
+                return Some(item);
+            }
+        }
+    }
+
+    fn row(&mut self, raw: &RawLine, out: &mut Row) -> Option<Result<(), LogError>> {
         let name = self.name.as_str();
         // A data line is valid UTF-8 as it stands (no byte-order mark after
         // the first line): borrowed, not copied.
@@ -460,7 +482,7 @@ impl<R: BufRead> LogReader<R> {
             cells.len()
         };
         let expected = self.columns.len() + 1;
-        let result = self.row_cells(raw, count, expected, &cell);
+        let result = self.row_cells(raw, count, expected, &cell, out);
         self.spans = spans;
         result
     }
@@ -471,7 +493,8 @@ impl<R: BufRead> LogReader<R> {
         count: usize,
         expected: usize,
         cell: &dyn Fn(usize) -> &'t str,
-    ) -> Option<Result<Row, LogError>> {
+        out: &mut Row,
+    ) -> Option<Result<(), LogError>> {
         let name = self.name.as_str();
         let at = |col: usize, msg: String| LogError::at(name, raw.number, Some(col), msg);
         if count != expected {
@@ -488,7 +511,30 @@ impl<R: BufRead> LogReader<R> {
             Ok(t) => (t.with_timezone(&Utc), t.offset().fix()),
             Err(msg) => return Some(Err(at(1, msg))),
         };
-        let mut samples = Vec::new();
+        // The row's samples overwrite the buffer's in place: a sample's
+        // channel name is copied only when it differs from what the slot
+        // held (in a steady log, never).
+        let mut used = 0;
+        let mut put = |samples: &mut Vec<Sample>, name: &str, unit, reading| {
+            match samples.get_mut(used) {
+                Some(s) => {
+                    s.time = time;
+                    if s.channel != name {
+                        name.clone_into(&mut s.channel);
+                    }
+                    s.unit = unit;
+                    s.reading = reading;
+                }
+                None => samples.push(Sample {
+                    time,
+                    channel: name.to_string(),
+                    unit,
+                    reading,
+                }),
+            }
+            used += 1;
+        };
+        let mut samples = std::mem::take(&mut out.samples);
         let mut gas = None;
         let mut bad: Vec<(usize, String)> = Vec::new();
         for (i, column) in self.columns.iter().enumerate() {
@@ -503,35 +549,37 @@ impl<R: BufRead> LogReader<R> {
             };
             match parse_cell(text) {
                 Ok(None) => {}
-                Ok(Some(reading)) => samples.push(Sample {
-                    time,
-                    channel: column.name.clone(),
-                    unit,
-                    reading,
-                }),
+                Ok(Some(reading)) => put(&mut samples, &column.name, unit, reading),
                 Err(msg) => {
-                    samples.push(Sample::bad(time, &column.name, unit, Fault::Unparsed));
+                    put(
+                        &mut samples,
+                        &column.name,
+                        unit,
+                        Reading::Bad(Fault::Unparsed),
+                    );
                     bad.push((i + 2, msg));
                 }
             }
         }
+        samples.truncate(used);
         let (time_went_back, time_repeated) = time_order(self.last_time, time);
         self.went_back += u64::from(time_went_back);
         self.repeated += u64::from(time_repeated);
         self.last_time = Some(time);
         let offset_change = offset_order(&mut self.last_offset, Some(offset));
         self.offset_changes += u64::from(offset_change.is_some());
-        let row = Row {
-            line: raw.number,
-            time,
-            samples,
-            time_went_back,
-            time_repeated,
-            offset_change,
-            notes: Vec::new(),
-            gas,
-        };
-        Some(row_result(row, bad, at))
+        out.line = raw.number;
+        out.time = time;
+        out.samples = samples;
+        out.time_went_back = time_went_back;
+        out.time_repeated = time_repeated;
+        out.offset_change = offset_change;
+        out.notes.clear();
+        out.gas = gas;
+        if bad.is_empty() {
+            return Some(Ok(()));
+        }
+        Some(row_result(std::mem::take(out), bad, at).map(|_| ()))
     }
 }
 
@@ -563,18 +611,8 @@ impl<R: BufRead> Iterator for LogReader<R> {
     type Item = Result<Row, LogError>;
 
     fn next(&mut self) -> Option<Self::Item> {
-        loop {
-            let mut raw = std::mem::replace(&mut self.raw, RawLine::empty());
-            if let Err(e) = self.lines.next_located_into(&self.name, &mut raw)? {
-                self.raw = raw;
-                return Some(Err(e));
-            }
-            let item = self.row(&raw);
-            self.raw = raw;
-            if let Some(item) = item {
-                return Some(item);
-            }
-        }
+        let mut row = Row::default();
+        Some(self.next_row_into(&mut row)?.map(|()| row))
     }
 }
 
