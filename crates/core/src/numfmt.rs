@@ -17,49 +17,54 @@ pub fn push_exp(out: &mut String, v: f64) {
     }
     let mut buf = ryu::Buffer::new();
     let text = buf.format_finite(v);
-    let (negative, text) = match text.strip_prefix('-') {
+    // ryu writes `[-]d[.ddd]e<exp>` (already this layout) or, for
+    // magnitudes from 1e-5 to 1e16, `[-]int.frac`; only the second is laid
+    // out again.
+    if text.contains('e') {
+        out.push_str(text);
+        return;
+    }
+    let (negative, t) = match text.strip_prefix('-') {
         Some(rest) => (true, rest),
         None => (false, text),
     };
-    let (mantissa, exp_part) = match text.split_once('e') {
-        Some((m, e)) => (m, e.parse::<i32>().unwrap_or(0)),
-        None => (text, 0),
-    };
-    // The mantissa's digits without the point, and where the point was.
-    let (int_part, frac_part) = mantissa.split_once('.').unwrap_or((mantissa, ""));
-    let mut digits = [0u8; 40];
-    let mut n = 0;
-    for b in int_part.bytes().chain(frac_part.bytes()) {
-        if n < digits.len() {
-            digits[n] = b;
-            n += 1;
-        }
-    }
-    let digits = &digits[..n];
-    let lead = digits.iter().take_while(|&&d| d == b'0').count();
     if negative {
         out.push('-');
     }
-    if lead == digits.len() {
-        out.push_str("0e0");
-        return;
-    }
-    let sig = &digits[lead..];
-    let trail = sig.iter().rev().take_while(|&&d| d == b'0').count();
-    let sig = &sig[..sig.len() - trail];
-    // value = 0.<digits> × 10^(int_len) × 10^exp_part; the first
-    // significant digit sits at 10^(int_len − lead − 1 + exp_part).
-    let exponent = int_part.len() as i32 - lead as i32 - 1 + exp_part;
-    out.push(char::from(sig[0]));
-    if sig.len() > 1 {
-        out.push('.');
-        for &d in &sig[1..] {
-            out.push(char::from(d));
+    let (int, frac) = t.split_once('.').unwrap_or((t, ""));
+    let frac_digits = frac.trim_end_matches('0');
+    let exponent = if int.trim_start_matches('0').is_empty() {
+        // 0.000ddd: the first significant digit is in the fraction.
+        let lead = frac_digits.len() - frac_digits.trim_start_matches('0').len();
+        let sig = &frac_digits[lead..];
+        let Some(first) = sig.get(..1) else {
+            out.push_str("0e0");
+            return;
+        };
+        out.push_str(first);
+        if sig.len() > 1 {
+            out.push('.');
+            out.push_str(&sig[1..]);
         }
-    }
+        -(lead as i32) - 1
+    } else {
+        // ddd.ddd with no leading zero: the point moves after the first
+        // digit; trailing zeros of the digits go.
+        let rest = if frac_digits.is_empty() {
+            int[1..].trim_end_matches('0')
+        } else {
+            &int[1..]
+        };
+        out.push_str(&int[..1]);
+        if !rest.is_empty() || !frac_digits.is_empty() {
+            out.push('.');
+            out.push_str(rest);
+            out.push_str(frac_digits);
+        }
+        int.len() as i32 - 1
+    };
     out.push('e');
-    let mut itoa = itoa_buf(exponent);
-    out.push_str(itoa.as_str());
+    out.push_str(itoa_buf(exponent).as_str());
 }
 
 /// A small integer as text, on the stack.
@@ -162,6 +167,18 @@ mod tests {
         #[test]
         fn pressures_write_what_std_writes(m in 1.0f64..10.0, e in -12i32..6) {
             same(m * 10f64.powi(e));
+        }
+
+        /// The magnitudes ryu writes without an exponent (1e-5 to 1e16),
+        /// including whole numbers and short decimals.
+        #[test]
+        fn plain_decimals_write_what_std_writes(
+            m in 1.0f64..10.0, e in -6i32..17, k in 0u32..100_000, negative: bool
+        ) {
+            let sign = if negative { -1.0 } else { 1.0 };
+            same(sign * m * 10f64.powi(e));
+            same(sign * f64::from(k) * 10f64.powi(e - 3));
+            same(sign * f64::from(k));
         }
     }
 }

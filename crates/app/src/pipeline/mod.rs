@@ -16,6 +16,7 @@
 //! [`DataClock`], as "no data has arrived by now".
 
 mod clock;
+pub mod csv_out;
 pub mod plot;
 pub mod read_ahead;
 pub mod replay;

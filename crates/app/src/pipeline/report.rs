@@ -11,6 +11,7 @@ use std::path::{Path, PathBuf};
 
 use chrono::{DateTime, Utc};
 
+use super::csv_out::{CsvOut, DerivedCells, Record};
 use super::plot::PlotData;
 use super::read_ahead::ReadMode;
 use super::{Item, Pipeline, Sink};
@@ -78,10 +79,12 @@ pub struct ReportSink {
     index: BTreeMap<String, usize>,
     events: Vec<Event>,
     notes: Vec<String>,
-    csv: Option<Box<dyn Write + Send>>,
-    csv_header: bool,
-    csv_line: String,
-    csv_error: Option<String>,
+    /// Where the CSV goes, until its first row.
+    csv_to: Option<Box<dyn Write + Send>>,
+    /// The CSV, from its first row.
+    csv: Option<CsvOut>,
+    /// Write the CSV on a thread of its own.
+    csv_thread: bool,
     plot: Option<PlotData>,
 }
 
@@ -101,10 +104,9 @@ impl ReportSink {
             index: BTreeMap::new(),
             events: Vec::new(),
             notes: Vec::new(),
-            csv,
-            csv_header: false,
-            csv_line: String::new(),
-            csv_error: None,
+            csv_to: csv,
+            csv: None,
+            csv_thread: std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2),
             plot: options.plot.then(PlotData::default),
             options,
         }
@@ -137,69 +139,50 @@ impl ReportSink {
         out
     }
 
+    /// Writes the CSV on a thread of its own (`true`, the default on a
+    /// machine with two cores or more) or on the caller's; the bytes are
+    /// the same.
+    pub fn csv_on_own_thread(mut self, yes: bool) -> Self {
+        self.csv_thread = yes;
+        self
+    }
+
     fn write_csv(&mut self, obs: &Observation, id: &str, monitor: &Monitor) {
-        use std::fmt::Write as _;
-        let Some(out) = self.csv.as_mut() else {
+        let lengths = &monitor.setup().lengths;
+        if let Some(out) = self.csv_to.take() {
+            let names: Vec<String> = lengths.iter().map(|l| l.name.clone()).collect();
+            self.csv = Some(CsvOut::new(out, &names, self.csv_thread));
+        }
+        let Some(csv) = self.csv.as_mut() else {
             return;
         };
-        if self.csv_error.is_some() {
-            return;
-        }
-        let lengths = &monitor.setup().lengths;
-        // One line buffer for the whole run; numbers in the shortest form
-        // that reads back to the same f64, as `{:e}` writes them
-        // (`numfmt::push_exp`).
-        let line = &mut self.csv_line;
-        line.clear();
-        if !self.csv_header {
-            self.csv_header = true;
-            line.push_str("time,gauge,status,pressure_pa,number_density_per_m3,mean_free_path_m");
-            for l in lengths {
-                let name = csv_text(&l.name);
-                let _ = write!(line, ",knudsen {name},regime {name}");
-            }
-            line.push_str(",impingement_per_m2_s,monolayer_time_s,range\n");
-        }
-        let track = monitor.track(id);
-        let derived = track
+        let derived = monitor
+            .track(id)
             .and_then(|t| t.derived.as_ref())
             .filter(|_| obs.pressure_pa.is_some());
-        let num = |line: &mut String, v: Option<f64>| {
-            line.push(',');
-            if let Some(v) = v {
-                rarefy_core::numfmt::push_exp(line, v);
-            }
+        let gauge = csv.gauge(id);
+        let record = Record {
+            time: obs.time,
+            gauge,
+            status: obs.status,
+            pressure_pa: obs.pressure_pa,
+            derived: derived.map(|d| DerivedCells {
+                number_density_per_m3: d.number_density_per_m3,
+                mean_free_path_m: d.mean_free_path_m,
+                impingement_per_m2_s: d.impingement_per_m2_s,
+                monolayer_time_s: d.monolayer_time_s,
+                range: d.vacuum_range.as_str(),
+            }),
         };
-        crate::timefmt::push_rfc3339(line, obs.time);
-        line.push(',');
-        if id.contains([',', '"', '\n', '\r']) {
-            line.push_str(&csv_text(id));
-        } else {
-            line.push_str(id);
-        }
-        line.push(',');
-        line.push_str(obs.status.as_str());
-        num(line, obs.pressure_pa);
-        num(line, derived.map(|d| d.number_density_per_m3));
-        num(line, derived.map(|d| d.mean_free_path_m));
-        for (i, l) in lengths.iter().enumerate() {
+        let cells = lengths.iter().enumerate().map(|(i, l)| {
             // The engine gives the lengths in the setup's order.
             let d = derived.and_then(|d| match d.lengths.get(i) {
                 Some(x) if x.name == l.name => Some(x),
                 _ => d.lengths.iter().find(|x| x.name == l.name),
             });
-            num(line, d.map(|d| d.knudsen));
-            line.push(',');
-            line.push_str(d.map(|d| d.regime.as_str()).unwrap_or_default());
-        }
-        num(line, derived.map(|d| d.impingement_per_m2_s));
-        num(line, derived.map(|d| d.monolayer_time_s));
-        line.push(',');
-        line.push_str(derived.map(|d| d.vacuum_range.as_str()).unwrap_or_default());
-        line.push('\n');
-        if let Err(e) = out.write_all(line.as_bytes()) {
-            self.csv_error = Some(format!("cannot write the CSV: {e}"));
-        }
+            d.map(|d| (d.knudsen, d.regime.as_str()))
+        });
+        csv.push(record, cells);
     }
 
     /// Each gauge's report, in the order gauges first appeared.
@@ -384,15 +367,6 @@ impl Labels {
     }
 }
 
-/// A CSV cell: quoted when it holds a comma, quote or line break.
-fn csv_text(s: &str) -> String {
-    if s.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", s.replace('"', "\"\""))
-    } else {
-        s.to_string()
-    }
-}
-
 impl Sink for ReportSink {
     fn accept(&mut self, item: Item<'_>, monitor: &Monitor) {
         match item {
@@ -484,19 +458,18 @@ impl Sink for ReportSink {
     }
 
     fn flush(&mut self) {
-        if let Some(out) = self.csv.as_mut()
-            && let Err(e) = out.flush()
-        {
-            self.csv_error
-                .get_or_insert(format!("cannot write the CSV: {e}"));
+        if let Some(csv) = self.csv.as_mut() {
+            csv.flush();
         }
     }
 
     fn finish(&mut self) -> Result<(), String> {
-        self.flush();
-        match self.csv_error.take() {
-            Some(e) => Err(e),
-            None => Ok(()),
+        match (self.csv.as_mut(), self.csv_to.as_mut()) {
+            (Some(csv), _) => csv.finish(),
+            (None, Some(out)) => out
+                .flush()
+                .map_err(|e| format!("cannot write the CSV: {e}")),
+            (None, None) => Ok(()),
         }
     }
 }
@@ -803,7 +776,7 @@ mod tests {
 
     /// Everything a report gives, as text: the summaries, analyses, events,
     /// the reader's counts and messages, and the CSV.
-    fn whole_report(files: &[PathBuf], mode: ReadMode) -> String {
+    fn whole_report(files: &[PathBuf], mode: ReadMode, csv_thread: bool) -> String {
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
         let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
         let setup = cfg.monitor_setup(Vec::new());
@@ -822,7 +795,8 @@ mod tests {
             plot: true,
             ..ReportOptions::default()
         };
-        let mut sink = ReportSink::new(options, Some(Box::new(Shared(csv.clone()))));
+        let mut sink = ReportSink::new(options, Some(Box::new(Shared(csv.clone()))))
+            .csv_on_own_thread(csv_thread);
         let out = walk_with(files, None, &setup, &cfg.gases, &mut sink, mode);
         let csv = String::from_utf8(csv.lock().expect("lock").clone()).expect("utf-8");
         format!(
@@ -836,8 +810,9 @@ mod tests {
         )
     }
 
-    /// Reading ahead on a second core gives the same report as reading on
-    /// one thread, whatever the batch size: on every sample log read as one
+    /// Reading ahead on a second core, and writing the CSV on a third
+    /// thread, give the same report as one thread, whatever the batch size:
+    /// on every sample log read as one
     /// run, and on a log with bad cells, cut-off lines, repeated and
     /// backward times and gas changes falling on and across batch edges.
     #[test]
@@ -873,17 +848,22 @@ mod tests {
             }
         }
         std::fs::write(&odd, text).expect("write");
-        let odd_report = whole_report(std::slice::from_ref(&odd), ReadMode::SameThread);
+        let odd_report = whole_report(std::slice::from_ref(&odd), ReadMode::SameThread, false);
         assert!(odd_report.contains("row has 1 cells"), "no cut-off line");
         assert!(odd_report.contains("2.5E-O-5"), "no bad cell");
         for files in [samples, vec![odd]] {
-            let one = whole_report(&files, ReadMode::SameThread);
+            let one = whole_report(&files, ReadMode::SameThread, false);
             // The logs hold what the batches must carry across.
             assert!(one.contains("Event {"), "no events");
             assert!(one.len() > 100_000, "a short report");
             for batch in [1, 2, 7, 1024] {
-                let ahead = whole_report(&files, ReadMode::Ahead { batch });
-                assert!(one == ahead, "batch {batch}: the reports differ");
+                for csv_thread in [false, true] {
+                    let ahead = whole_report(&files, ReadMode::Ahead { batch }, csv_thread);
+                    assert!(
+                        one == ahead,
+                        "batch {batch}, {csv_thread}: the reports differ"
+                    );
+                }
             }
         }
         let _ = std::fs::remove_dir_all(&dir);
