@@ -115,10 +115,13 @@ pub fn parse_rfc3339(text: &str) -> chrono::ParseResult<DateTime<FixedOffset>> {
 /// without allocating.
 pub fn push_rfc3339(out: &mut String, t: DateTime<Utc>) {
     use chrono::{Datelike, Timelike};
-    let (y, mo, d) = (t.year(), t.month(), t.day());
-    let (h, mi, s) = (t.hour(), t.minute(), t.second());
+    // The UTC fields straight (a `DateTime`'s own accessors go through its
+    // offset every call).
+    let (date, time) = (t.naive_utc().date(), t.naive_utc().time());
+    let (y, mo, d) = (date.year(), date.month(), date.day());
+    let (h, mi, s) = (time.hour(), time.minute(), time.second());
     // A leap second shows as :60, as chrono writes it.
-    let nanos = t.nanosecond();
+    let nanos = time.nanosecond();
     let (s, ms) = if nanos >= 1_000_000_000 {
         (s + 1, (nanos - 1_000_000_000) / 1_000_000)
     } else {
@@ -145,6 +148,41 @@ pub fn push_rfc3339(out: &mut String, t: DateTime<Utc>) {
     put(17, s, 2);
     put(20, ms, 3);
     out.push_str(std::str::from_utf8(&buf).unwrap_or_default());
+}
+
+/// Seconds from `a` to `b`, at millisecond resolution:
+/// `(b - a).num_milliseconds() as f64 / 1000.0`, the engine's one way of
+/// measuring data time, without chrono's general duration arithmetic on
+/// every reading. Two times of the same day (nearly every pair a log
+/// gives) differ by their times of day alone.
+pub fn seconds_between(a: DateTime<Utc>, b: DateTime<Utc>) -> f64 {
+    millis_between(a, b) as f64 / 1000.0
+}
+
+/// Whole milliseconds from `a` to `b`, truncated toward zero, as
+/// `(b - a).num_milliseconds()` gives them.
+pub fn millis_between(a: DateTime<Utc>, b: DateTime<Utc>) -> i64 {
+    use chrono::{Datelike, Timelike};
+    // The UTC fields straight (a `DateTime`'s own accessors go through its
+    // offset every call).
+    let (a_utc, b_utc) = (a.naive_utc(), b.naive_utc());
+    let (ta, tb) = (a_utc.time(), b_utc.time());
+    let (na, nb) = (ta.nanosecond(), tb.nanosecond());
+    let (da, db) = (a_utc.date(), b_utc.date());
+    let days = if da == db {
+        0
+    } else {
+        i64::from(db.num_days_from_ce()) - i64::from(da.num_days_from_ce())
+    };
+    // A leap second (nanoseconds past 1e9) and far-apart dates go the
+    // general way.
+    if na >= 1_000_000_000 || nb >= 1_000_000_000 || days.abs() > 100_000 {
+        return (b - a).num_milliseconds();
+    }
+    let secs = days * 86_400 + i64::from(tb.num_seconds_from_midnight())
+        - i64::from(ta.num_seconds_from_midnight());
+    let nanos = secs * 1_000_000_000 + i64::from(nb) - i64::from(na);
+    nanos / 1_000_000
 }
 
 /// How times are written.
@@ -582,6 +620,24 @@ mod fast_tests {
             let frac = frac.map(|f| format!(".{f}")).unwrap_or_default();
             let text = format!("{y:04}-{mo:02}-{d:02}T{h:02}:{mi:02}:{s:02}{frac}{off}");
             same(&text);
+        }
+
+        #[test]
+        fn millis_between_is_chronos(
+            secs in -62_000_000_000i64..253_402_300_799,
+            nanos in prop_oneof![0u32..1_000_000_000, 0u32..2_000_000_000],
+            d in prop_oneof![-10_000_000_000i64..10_000_000_000, any::<i64>()],
+        ) {
+            // Leap seconds too (nanoseconds past 1e9, where chrono allows).
+            let Some(ta) = DateTime::from_timestamp(secs, nanos) else {
+                return Ok(());
+            };
+            let Some(tb) = ta.checked_add_signed(chrono::TimeDelta::nanoseconds(d)) else {
+                return Ok(());
+            };
+            prop_assert_eq!(millis_between(ta, tb), (tb - ta).num_milliseconds());
+            prop_assert_eq!(millis_between(tb, ta), (ta - tb).num_milliseconds());
+            prop_assert_eq!(seconds_between(ta, tb), (tb - ta).num_milliseconds() as f64 / 1000.0);
         }
 
         #[test]

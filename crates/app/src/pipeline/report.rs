@@ -213,8 +213,7 @@ impl ReportSink {
     /// A new analyzer with the report's options (the origin is known).
     fn analyzer(&self) -> Analyzer {
         let origin = self.origin;
-        let secs =
-            |t: DateTime<Utc>| origin.map_or(0.0, |o| (t - o).num_milliseconds() as f64 / 1000.0);
+        let secs = |t: DateTime<Utc>| origin.map_or(0.0, |o| crate::timefmt::seconds_between(o, t));
         Analyzer::new(AnalysisOptions {
             volume_m3: self.options.volume_m3,
             pumpdown: PumpDownOptions {
@@ -308,7 +307,7 @@ impl ReportSink {
             .map_or(s.channel.as_str(), |l| l.name(monitor));
         if let Some(a) = self.chamber.as_mut() {
             let src = a.source(name);
-            a.push_from((s.time - origin).num_milliseconds() as f64 / 1000.0, p, src);
+            a.push_from(crate::timefmt::seconds_between(origin, s.time), p, src);
         }
     }
 }
@@ -427,7 +426,7 @@ impl Sink for ReportSink {
                     // The gauge's true pressure, on seconds from the first
                     // reading, to the pump-down and rate-of-rise analysis.
                     let origin = *self.origin.get_or_insert(s.time);
-                    let t_s = (s.time - origin).num_milliseconds() as f64 / 1000.0;
+                    let t_s = crate::timefmt::seconds_between(origin, s.time);
                     if let (Some(p), Some(a), Some(l)) =
                         (pressure_pa, self.analyzers.get_mut(i), self.labels.get(i))
                     {

@@ -112,7 +112,7 @@ impl GateMachine {
             return Some(0.0);
         }
         let (since, now) = (self.held_since?, self.last_time?);
-        Some((self.gate.hold_s - (now - since).num_milliseconds() as f64 / 1000.0).max(0.0))
+        Some((self.gate.hold_s - crate::timefmt::seconds_between(since, now)).max(0.0))
     }
 
     /// Seconds left until ready at data time `now` (which may lie after the
@@ -122,7 +122,7 @@ impl GateMachine {
             return Some(0.0);
         }
         let since = self.held_since?;
-        Some((self.gate.hold_s - (now - since).num_milliseconds() as f64 / 1000.0).max(0.0))
+        Some((self.gate.hold_s - crate::timefmt::seconds_between(since, now)).max(0.0))
     }
 
     /// The index of the first condition that failed (or could not be
@@ -172,7 +172,7 @@ impl GateMachine {
             }
             None => {
                 let since = *self.held_since.get_or_insert(time);
-                let held = (time - since).num_milliseconds() as f64 / 1000.0;
+                let held = crate::timefmt::seconds_between(since, time);
                 if held >= self.gate.hold_s {
                     self.reason = None;
                     GateState::Ready

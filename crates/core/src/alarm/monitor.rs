@@ -828,10 +828,14 @@ impl Monitor {
         // Stale is "more than stale_after since", so one millisecond past.
         let stale_at =
             |t: DateTime<Utc>| t.checked_add_signed(chrono::Duration::milliseconds(stale_ms + 1));
+        // Adding the same span keeps the order: the earliest reading goes
+        // stale first.
         let tracks = self
             .tracks
             .values()
-            .filter_map(|t| t.last_time.and_then(stale_at));
+            .filter_map(|t| t.last_time)
+            .min()
+            .and_then(stale_at);
         let never_seen = (!self.inputs_seen)
             .then(|| {
                 self.inputs
@@ -846,6 +850,7 @@ impl Monitor {
             .filter_map(RuleMachine::deadline)
             .chain(self.gates.iter().filter_map(GateMachine::deadline));
         tracks
+            .into_iter()
             .chain(never_seen)
             .chain(machines)
             .filter(|d| self.evaluated.is_none_or(|e| *d > e))
@@ -854,9 +859,7 @@ impl Monitor {
 
     fn never_seen_stale(&self) -> bool {
         match (self.origin, self.now) {
-            (Some(o), Some(n)) => {
-                (n - o).num_milliseconds() as f64 / 1000.0 > self.setup.stale_after_s
-            }
+            (Some(o), Some(n)) => crate::timefmt::seconds_between(o, n) > self.setup.stale_after_s,
             _ => false,
         }
     }
@@ -917,7 +920,7 @@ impl Monitor {
             }
         }
         let t0 = *track.t0.get_or_insert(s.time);
-        let ts = (s.time - t0).num_milliseconds() as f64 / 1000.0;
+        let ts = crate::timefmt::seconds_between(t0, s.time);
         track.exposure.add(ts, p);
         track.window.push(ts, p, self.setup.rate_window_s);
         track.fit_rates();
@@ -1016,7 +1019,7 @@ impl Monitor {
     fn stale(&self, track: &GaugeTrack, now: DateTime<Utc>) -> bool {
         track
             .last_time
-            .is_none_or(|t| (now - t).num_milliseconds() as f64 / 1000.0 > self.setup.stale_after_s)
+            .is_none_or(|t| crate::timefmt::seconds_between(t, now) > self.setup.stale_after_s)
     }
 
     /// The input a quantity of a gauge gives now.
@@ -1230,7 +1233,7 @@ impl Monitor {
                 None => self
                     .origin
                     .is_some_and(|o| {
-                        (now - o).num_milliseconds() as f64 / 1000.0 > self.setup.stale_after_s
+                        crate::timefmt::seconds_between(o, now) > self.setup.stale_after_s
                     })
                     .then_some("no data"),
                 Some(t) if self.stale(t, now) => Some("stale"),
@@ -1466,8 +1469,7 @@ impl Monitor {
                 old.push((id.clone(), t.exposure.langmuir()));
             }
             let t0 = *t.t0.get_or_insert(now);
-            t.exposure
-                .restart((now - t0).num_milliseconds() as f64 / 1000.0);
+            t.exposure.restart(crate::timefmt::seconds_between(t0, now));
         }
         old.into_iter()
             .map(|(id, langmuir)| {

@@ -262,7 +262,7 @@ pub struct RuleMachine {
 }
 
 fn seconds(a: DateTime<Utc>, b: DateTime<Utc>) -> f64 {
-    (b - a).num_milliseconds() as f64 / 1000.0
+    crate::timefmt::seconds_between(a, b)
 }
 
 /// The first millisecond of data time at which `seconds(t, ·) >= secs`:

@@ -196,7 +196,7 @@ impl GaugeAccumulator {
         if let Some(end) = self.end {
             // Time moves only forward: a row earlier than the latest adds
             // no time, but its state holds from the latest time on.
-            let dt = (obs.time - end).num_milliseconds() as f64 / 1000.0;
+            let dt = crate::timefmt::seconds_between(end, obs.time);
             if dt > 0.0 {
                 let limit = self.gap_limit(dt);
                 if self.gap_after_s.is_none() && self.intervals.len() < INTERVALS_KEPT {
@@ -281,7 +281,7 @@ impl GaugeAccumulator {
     /// The report so far.
     pub fn summary(&self) -> GaugeSummary {
         let secs = |a: Option<DateTime<Utc>>, b: Option<DateTime<Utc>>| match (a, b) {
-            (Some(a), Some(b)) => (b - a).num_milliseconds() as f64 / 1000.0,
+            (Some(a), Some(b)) => crate::timefmt::seconds_between(a, b),
             _ => 0.0,
         };
         GaugeSummary {
