@@ -1225,8 +1225,8 @@ impl Monitor {
         }
         // Bad-input alarms.
         for i in 0..self.inputs.len() {
-            let gauge = self.inputs[i].rule.gauge.clone();
-            let seen = self.tracks.get(&gauge);
+            let gauge = self.inputs[i].rule.gauge.as_str();
+            let seen = self.tracks.get(gauge);
             let bad = match seen {
                 // Never sent anything: bad once the data clock has run for
                 // longer than stale_after.
@@ -1256,7 +1256,10 @@ impl Monitor {
                 e.value_text = bad.map(str::to_string);
                 e.text = match bad {
                     Some(s) => format!("{}: {} ({s})", self.inputs[i].rule.label, t.to),
-                    None => format!("{gauge}: readings valid again: {}", t.to),
+                    None => format!(
+                        "{}: readings valid again: {}",
+                        self.inputs[i].rule.gauge, t.to
+                    ),
                 };
                 events.push(e);
             }

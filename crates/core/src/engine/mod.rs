@@ -153,7 +153,7 @@ impl fmt::Display for Warning {
 }
 
 /// Derived quantities of one species.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, PartialEq, Serialize)]
 pub struct SpeciesDerived {
     /// Gas id.
     pub gas: String,
@@ -176,7 +176,7 @@ pub struct SpeciesDerived {
 }
 
 /// Knudsen number and regime for one named length.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, PartialEq, Serialize)]
 pub struct LengthDerived {
     /// Name.
     pub name: String,
@@ -186,6 +186,44 @@ pub struct LengthDerived {
     pub knudsen: f64,
     /// Flow regime.
     pub regime: FlowRegime,
+}
+
+// `clone_from` keeps the name's buffer: the engine refreshes its results
+// in place on every reading (`Precomputed::derive_into`) without
+// allocating.
+impl Clone for SpeciesDerived {
+    fn clone(&self) -> Self {
+        SpeciesDerived {
+            gas: self.gas.clone(),
+            ..*self
+        }
+    }
+
+    fn clone_from(&mut self, source: &Self) {
+        let mut gas = std::mem::take(&mut self.gas);
+        gas.clone_from(&source.gas);
+        *self = SpeciesDerived {
+            gas: String::new(),
+            ..*source
+        };
+        self.gas = gas;
+    }
+}
+
+impl Clone for LengthDerived {
+    fn clone(&self) -> Self {
+        LengthDerived {
+            name: self.name.clone(),
+            ..*self
+        }
+    }
+
+    fn clone_from(&mut self, source: &Self) {
+        self.name.clone_from(&source.name);
+        self.length_m = source.length_m;
+        self.knudsen = source.knudsen;
+        self.regime = source.regime;
+    }
 }
 
 /// Everything the engine derives from one state of the gas.
