@@ -20,7 +20,10 @@ pub fn push_exp(out: &mut String, v: f64) {
     // ryu writes `[-]d[.ddd]e<exp>` (already this layout) or, for
     // magnitudes from 1e-5 to 1e16, `[-]int.frac`; only the second is laid
     // out again.
-    if text.contains('e') {
+    // The exponent, when there is one, is among the last five bytes
+    // (`e-324`).
+    let tail = text.len().saturating_sub(5);
+    if text.as_bytes()[tail..].contains(&b'e') {
         out.push_str(text);
         return;
     }
