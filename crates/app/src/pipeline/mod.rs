@@ -23,6 +23,7 @@ pub mod replay;
 pub mod report;
 pub mod sinks;
 pub mod start;
+pub mod tally;
 
 use chrono::{DateTime, Utc};
 

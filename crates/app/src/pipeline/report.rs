@@ -14,6 +14,7 @@ use chrono::{DateTime, Utc};
 use super::csv_out::{CsvOut, DerivedCells, Record};
 use super::plot::PlotData;
 use super::read_ahead::ReadMode;
+use super::tally::{Counted, Element, Labels, Msg, TallyOut};
 use super::{Item, Pipeline, Sink};
 use crate::alarm::quantity::Quantity;
 use crate::alarm::rule::Test;
@@ -59,15 +60,16 @@ pub struct ReportOptions {
 /// optionally every reading with its derived values as CSV.
 pub struct ReportSink {
     options: ReportOptions,
-    gauges: Vec<GaugeAccumulator>,
-    /// Pump-down and rate-of-rise analysis per gauge (same order).
-    analyzers: Vec<Analyzer>,
-    /// The same analysis of the chamber pressure: at each reading, the best
-    /// gauge in its range ([`crate::alarm::chamber`]).
-    chamber: Option<Analyzer>,
+    /// The per-gauge accumulators and analyses, and the analysis of the
+    /// chamber pressure (at each reading, the best gauge in its range,
+    /// [`crate::alarm::chamber`]): fed from here, on a second core when
+    /// there is one.
+    tally: TallyOut,
+    /// The chamber pressure's analysis has started.
+    chamber_started: bool,
     /// Pressure gauges seen.
     pressure_gauges: usize,
-    /// Each gauge's source names in its analyzer (same order).
+    /// Each gauge's source names in its analyzer (in the order first seen).
     labels: Vec<Labels>,
     /// With `gauge` given: the channels the log has besides it.
     other_channels: std::collections::BTreeSet<String>,
@@ -94,9 +96,8 @@ impl ReportSink {
     pub fn new(options: ReportOptions, csv: Option<Box<dyn Write + Send>>) -> Self {
         ReportSink {
             origin: options.origin,
-            gauges: Vec::new(),
-            analyzers: Vec::new(),
-            chamber: None,
+            tally: TallyOut::new(two_cores()),
+            chamber_started: false,
             pressure_gauges: 0,
             labels: Vec::new(),
             other_channels: std::collections::BTreeSet::new(),
@@ -106,7 +107,7 @@ impl ReportSink {
             notes: Vec::new(),
             csv_to: csv,
             csv: None,
-            csv_thread: std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2),
+            csv_thread: two_cores(),
             plot: options.plot.then(PlotData::default),
             options,
         }
@@ -144,6 +145,14 @@ impl ReportSink {
     /// the same.
     pub fn csv_on_own_thread(mut self, yes: bool) -> Self {
         self.csv_thread = yes;
+        self
+    }
+
+    /// Feeds the accumulators and analyses on a thread of their own
+    /// (`true`, the default on a machine with two cores or more) or on the
+    /// caller's; the results are the same. Call before the first item.
+    pub fn tally_on_own_thread(mut self, yes: bool) -> Self {
+        self.tally = TallyOut::new(yes);
         self
     }
 
@@ -185,27 +194,31 @@ impl ReportSink {
         csv.push(record, cells);
     }
 
-    /// Each gauge's report, in the order gauges first appeared.
+    /// Each gauge's report, in the order gauges first appeared (complete
+    /// once the sink is finished).
     pub fn summaries(&self) -> Vec<GaugeSummary> {
-        self.gauges.iter().map(|g| g.summary()).collect()
+        self.tally
+            .tally()
+            .map(|t| t.gauges.iter().map(|g| g.summary()).collect())
+            .unwrap_or_default()
     }
 
-    /// Each gauge's pump-downs and rate-of-rise segments so far, in the
-    /// order of [`ReportSink::summaries`].
+    /// Each gauge's pump-downs and rate-of-rise segments, in the order of
+    /// [`ReportSink::summaries`] (complete once the sink is finished).
     pub fn analyses(&self) -> Vec<Analysis> {
-        self.analyzers
-            .iter()
-            .cloned()
-            .map(Analyzer::finish)
-            .collect()
+        self.tally
+            .tally()
+            .map(|t| t.analyzers.iter().cloned().map(Analyzer::finish).collect())
+            .unwrap_or_default()
     }
 
     /// The analysis of the chamber pressure (the best gauge in range at
     /// each reading, no fit spanning two gauges), when the log has more than
-    /// one pressure gauge.
+    /// one pressure gauge (complete once the sink is finished).
     pub fn chamber_analysis(&self) -> Option<Analysis> {
-        self.chamber
-            .clone()
+        self.tally
+            .tally()
+            .and_then(|t| t.chamber.clone())
             .filter(|_| self.pressure_gauges > 1)
             .map(Analyzer::finish)
     }
@@ -297,19 +310,31 @@ impl ReportSink {
         if !self.in_window(s.time) || track.uncorrectable {
             return;
         }
-        if self.chamber.is_none() {
-            self.chamber = Some(self.analyzer());
+        // The gauge was counted just before (this row, in the window).
+        let Some(&gauge) = self.index.get(&*s.channel) else {
+            return;
+        };
+        if !self.chamber_started {
+            self.chamber_started = true;
+            let a = self.analyzer();
+            self.tally.send(Msg::ChamberStart(Some(Box::new(a))));
         }
-        let name = self
-            .index
-            .get(&*s.channel)
-            .and_then(|i| self.labels.get(*i))
-            .map_or(s.channel.as_str(), |l| l.name(monitor));
-        if let Some(a) = self.chamber.as_mut() {
-            let src = a.source(name);
-            a.push_from(crate::timefmt::seconds_between(origin, s.time), p, src);
-        }
+        let element = self
+            .labels
+            .get(gauge)
+            .map_or(Element::Whole, |l| l.element(track.indicated));
+        self.tally.send(Msg::Chamber {
+            gauge,
+            element,
+            t_s: crate::timefmt::seconds_between(origin, s.time),
+            p,
+        });
     }
+}
+
+/// Whether the machine has a second core for the report's helper threads.
+fn two_cores() -> bool {
+    std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2)
 }
 
 fn gauge_kind(id: &str, monitor: &Monitor) -> Option<GaugeKind> {
@@ -319,51 +344,6 @@ fn gauge_kind(id: &str, monitor: &Monitor) -> Option<GaugeKind> {
         .iter()
         .find(|g| g.id == id)
         .map(|g| g.model.kind)
-}
-
-/// The names a gauge's readings carry in the analysis: its id, and for a
-/// combined gauge one per element (they step where they hand over, so no fit
-/// may span them). Made once per gauge, not per reading.
-#[derive(Debug, Clone)]
-enum Labels {
-    Plain(String),
-    Combined {
-        id: String,
-        ion: String,
-        thermal: String,
-    },
-}
-
-impl Labels {
-    fn new(id: &str, monitor: &Monitor) -> Self {
-        if gauge_kind(id, monitor) == Some(GaugeKind::Combined) {
-            Labels::Combined {
-                id: id.to_string(),
-                ion: format!("{id} ({})", GaugeKind::Ionization),
-                thermal: format!("{id} ({})", GaugeKind::Thermal),
-            }
-        } else {
-            Labels::Plain(id.to_string())
-        }
-    }
-
-    /// The name of the gauge's last reading.
-    fn name(&self, monitor: &Monitor) -> &str {
-        match self {
-            Labels::Plain(id) => id,
-            Labels::Combined { id, ion, thermal } => {
-                let element = monitor
-                    .track(id)
-                    .and_then(|t| t.indicated)
-                    .map(|v| GaugeKind::Combined.element(v));
-                if element == Some(GaugeKind::Ionization) {
-                    ion
-                } else {
-                    thermal
-                }
-            }
-        }
-    }
 }
 
 impl Sink for ReportSink {
@@ -404,41 +384,46 @@ impl Sink for ReportSink {
                         Some(i) => *i,
                         None => {
                             let th = self.thresholds(&s.channel, monitor);
-                            self.gauges.push(GaugeAccumulator::new(
-                                &s.channel,
-                                th,
-                                self.options.gap_after_s,
-                            ));
+                            let acc =
+                                GaugeAccumulator::new(&s.channel, th, self.options.gap_after_s);
                             self.origin.get_or_insert(s.time);
                             let a = self.analyzer();
-                            self.analyzers.push(a);
-                            self.labels.push(Labels::new(&s.channel, monitor));
+                            let labels = Labels::new(&s.channel, gauge_kind(&s.channel, monitor));
+                            self.labels.push(labels.clone());
+                            self.tally
+                                .send(Msg::Gauge(Some(Box::new((acc, a, labels)))));
                             if track.is_some_and(|t| t.is_pressure) {
                                 self.pressure_gauges += 1;
                             }
                             if let Some(plot) = self.plot.as_mut() {
                                 plot.add_gauge(monitor.setup());
                             }
-                            self.index.insert(s.channel.clone(), self.gauges.len() - 1);
-                            self.gauges.len() - 1
+                            self.index.insert(s.channel.clone(), self.labels.len() - 1);
+                            self.labels.len() - 1
                         }
                     };
                     // The gauge's true pressure, on seconds from the first
                     // reading, to the pump-down and rate-of-rise analysis.
                     let origin = *self.origin.get_or_insert(s.time);
                     let t_s = crate::timefmt::seconds_between(origin, s.time);
-                    if let (Some(p), Some(a), Some(l)) =
-                        (pressure_pa, self.analyzers.get_mut(i), self.labels.get(i))
-                    {
-                        let src = a.source(l.name(monitor));
-                        a.push_from(t_s, p, src);
-                    }
                     if let (Some(p), Some(plot)) = (pressure_pa, self.plot.as_mut()) {
                         plot.push(i, t_s, p, derived.map(|d| d.mean_free_path_m * p));
                     }
-                    if let Some(g) = self.gauges.get_mut(i) {
-                        g.add(obs);
-                    }
+                    let element = match (pressure_pa, self.labels.get(i)) {
+                        (Some(_), Some(l)) => l.element(track.and_then(|t| t.indicated)),
+                        _ => Element::Whole,
+                    };
+                    let counted = Counted {
+                        gauge: i,
+                        time: obs.time,
+                        t_s,
+                        status: obs.status,
+                        pressure_pa: obs.pressure_pa,
+                        range: obs.range,
+                        exposure_langmuir: obs.exposure_langmuir,
+                        element,
+                    };
+                    self.tally.reading(counted, obs.regimes);
                 }
                 self.push_chamber(samples, monitor);
             }
@@ -463,13 +448,18 @@ impl Sink for ReportSink {
     }
 
     fn finish(&mut self) -> Result<(), String> {
-        match (self.csv.as_mut(), self.csv_to.as_mut()) {
+        let tally = self.tally.settle();
+        let csv = match (self.csv.as_mut(), self.csv_to.as_mut()) {
             (Some(csv), _) => csv.finish(),
             (None, Some(out)) => out
                 .flush()
                 .map_err(|e| format!("cannot write the CSV: {e}")),
             (None, None) => Ok(()),
+        };
+        if !tally {
+            return Err("the report's accumulators stopped unexpectedly".into());
         }
+        csv
     }
 }
 
@@ -775,7 +765,7 @@ mod tests {
 
     /// Everything a report gives, as text: the summaries, analyses, events,
     /// the reader's counts and messages, and the CSV.
-    fn whole_report(files: &[PathBuf], mode: ReadMode, csv_thread: bool) -> String {
+    fn whole_report(files: &[PathBuf], mode: ReadMode, threads: (bool, bool)) -> String {
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
         let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
         let setup = cfg.monitor_setup(Vec::new());
@@ -795,7 +785,8 @@ mod tests {
             ..ReportOptions::default()
         };
         let mut sink = ReportSink::new(options, Some(Box::new(Shared(csv.clone()))))
-            .csv_on_own_thread(csv_thread);
+            .csv_on_own_thread(threads.0)
+            .tally_on_own_thread(threads.1);
         let out = walk_with(files, None, &setup, &cfg.gases, &mut sink, mode);
         let csv = String::from_utf8(csv.lock().expect("lock").clone()).expect("utf-8");
         format!(
@@ -809,8 +800,9 @@ mod tests {
         )
     }
 
-    /// Reading ahead on a second core, and writing the CSV on a third
-    /// thread, give the same report as one thread, whatever the batch size:
+    /// Reading ahead on a second core, writing the CSV and feeding the
+    /// accumulators on threads of their own, give the same report as one
+    /// thread, whatever the batch size:
     /// on every sample log read as one
     /// run, and on a log with bad cells, cut-off lines, repeated and
     /// backward times and gas changes falling on and across batch edges.
@@ -847,20 +839,31 @@ mod tests {
             }
         }
         std::fs::write(&odd, text).expect("write");
-        let odd_report = whole_report(std::slice::from_ref(&odd), ReadMode::SameThread, false);
+        let odd_report = whole_report(
+            std::slice::from_ref(&odd),
+            ReadMode::SameThread,
+            (false, false),
+        );
+        let samples_report = whole_report(&samples, ReadMode::SameThread, (false, false));
+        assert!(samples_report.contains("RateOfRise {"), "no rate-of-rise");
+        assert!(
+            samples_report.contains("\nSome(Analysis {"),
+            "no chamber analysis"
+        );
         assert!(odd_report.contains("row has 1 cells"), "no cut-off line");
         assert!(odd_report.contains("2.5E-O-5"), "no bad cell");
         for files in [samples, vec![odd]] {
-            let one = whole_report(&files, ReadMode::SameThread, false);
+            let one = whole_report(&files, ReadMode::SameThread, (false, false));
             // The logs hold what the batches must carry across.
             assert!(one.contains("Event {"), "no events");
+            assert!(one.contains("PumpDown {"), "no pump-down");
             assert!(one.len() > 100_000, "a short report");
             for batch in [1, 2, 7, 1024] {
-                for csv_thread in [false, true] {
-                    let ahead = whole_report(&files, ReadMode::Ahead { batch }, csv_thread);
+                for threads in [(false, true), (true, false), (true, true)] {
+                    let ahead = whole_report(&files, ReadMode::Ahead { batch }, threads);
                     assert!(
                         one == ahead,
-                        "batch {batch}, {csv_thread}: the reports differ"
+                        "batch {batch}, {threads:?}: the reports differ"
                     );
                 }
             }

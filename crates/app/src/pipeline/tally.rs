@@ -1,0 +1,372 @@
+//! The report's per-gauge accumulators and analyses, fed on a second core
+//! when there is one.
+//!
+//! The report sink reads what each reading left in the monitor (its true
+//! pressure, range, regimes, exposure; which element of a combined gauge it
+//! came from) on the pipeline's thread and passes it on as a [`Msg`]; the
+//! [`Tally`] (accumulators, pump-down and rate-of-rise analyses) takes the
+//! messages in order, either at once or in batches on a thread of its own.
+//! Batches go back to be filled again, their per-length results refreshed
+//! in place, so nothing is allocated per reading. Both ways give the same
+//! results: the same [`Tally::apply`] takes every message.
+
+use std::sync::mpsc;
+use std::thread::JoinHandle;
+
+use chrono::{DateTime, Utc};
+
+use crate::engine::LengthDerived;
+use crate::engine::regime::VacuumRange;
+use crate::report::{GaugeAccumulator, Observation};
+use crate::sample::Status;
+use rarefy_core::analysis::Analyzer;
+use rarefy_core::engine::gauge::GaugeKind;
+
+/// Messages per hand-over.
+const BATCH: usize = 1024;
+/// Batches in flight.
+const BATCHES: usize = 3;
+
+/// A gauge's source names in its analysis: its id, or for a combined gauge
+/// one per element (they step where they hand over, so no fit may span
+/// them). Made once per gauge, not per reading.
+#[derive(Debug, Clone)]
+pub enum Labels {
+    /// One source: the gauge's id.
+    Plain(String),
+    /// A combined gauge: one source per element.
+    Combined {
+        /// The gauge's id.
+        id: String,
+        /// `id (ionization)`.
+        ion: String,
+        /// `id (thermal)`.
+        thermal: String,
+    },
+}
+
+/// Which of a gauge's [`Labels`] a reading counts under.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Element {
+    /// The gauge's id (a plain gauge; a combined gauge not read yet).
+    Whole,
+    /// A combined gauge's ionization element.
+    Ionization,
+    /// A combined gauge's thermal element.
+    Thermal,
+}
+
+impl Labels {
+    /// The labels of a gauge of `kind` named `id`.
+    pub fn new(id: &str, kind: Option<GaugeKind>) -> Self {
+        if kind == Some(GaugeKind::Combined) {
+            Labels::Combined {
+                id: id.to_string(),
+                ion: format!("{id} ({})", GaugeKind::Ionization),
+                thermal: format!("{id} ({})", GaugeKind::Thermal),
+            }
+        } else {
+            Labels::Plain(id.to_string())
+        }
+    }
+
+    /// The element of a reading whose indicated value is `indicated`.
+    pub fn element(&self, indicated: Option<f64>) -> Element {
+        match self {
+            Labels::Plain(_) => Element::Whole,
+            Labels::Combined { .. } => {
+                if indicated.map(|v| GaugeKind::Combined.element(v)) == Some(GaugeKind::Ionization)
+                {
+                    Element::Ionization
+                } else {
+                    Element::Thermal
+                }
+            }
+        }
+    }
+
+    /// The source name for `element`.
+    pub fn name(&self, element: Element) -> &str {
+        match (self, element) {
+            (Labels::Plain(id), _) => id,
+            (Labels::Combined { ion, .. }, Element::Ionization) => ion,
+            (Labels::Combined { thermal, .. }, Element::Thermal) => thermal,
+            (Labels::Combined { id, .. }, Element::Whole) => id,
+        }
+    }
+}
+
+/// One reading of a gauge, as the report counts it. Its per-length results
+/// travel beside it in the batch.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Counted {
+    /// Index of the gauge (in the order of [`Msg::Gauge`]).
+    pub gauge: usize,
+    /// Reading time.
+    pub time: DateTime<Utc>,
+    /// Seconds from the report's origin.
+    pub t_s: f64,
+    /// The reading's status.
+    pub status: Status,
+    /// True pressure of a valid pressure reading, Pa.
+    pub pressure_pa: Option<f64>,
+    /// Its ISO 3529-1 range.
+    pub range: Option<VacuumRange>,
+    /// The gauge's exposure after it, langmuir.
+    pub exposure_langmuir: Option<f64>,
+    /// Which source of the gauge's analysis it counts under.
+    pub element: Element,
+}
+
+/// What the tally is given, in order.
+#[derive(Debug)]
+pub enum Msg {
+    /// A gauge first seen: its accumulator, analysis and labels (taken by
+    /// the tally).
+    Gauge(Option<Box<(GaugeAccumulator, Analyzer, Labels)>>),
+    /// A reading of gauge `gauge`, with `lengths` per-length results.
+    Reading(Counted, usize),
+    /// The chamber pressure's analysis starts (taken by the tally).
+    ChamberStart(Option<Box<Analyzer>>),
+    /// The chamber pressure at `t_s`: `p` Pa from gauge `gauge`'s
+    /// `element`.
+    Chamber {
+        /// Index of the gauge it came from.
+        gauge: usize,
+        /// Which of its sources.
+        element: Element,
+        /// Seconds from the report's origin.
+        t_s: f64,
+        /// Pressure, Pa.
+        p: f64,
+    },
+}
+
+/// The report's accumulators and analyses.
+#[derive(Debug, Default)]
+pub struct Tally {
+    /// Per gauge, in the order first seen.
+    pub gauges: Vec<GaugeAccumulator>,
+    /// Pump-down and rate-of-rise analysis per gauge (same order).
+    pub analyzers: Vec<Analyzer>,
+    /// Each gauge's source names (same order).
+    pub labels: Vec<Labels>,
+    /// The chamber pressure's analysis.
+    pub chamber: Option<Analyzer>,
+}
+
+impl Tally {
+    /// Takes one message; `lengths`: the per-length results that follow it
+    /// in its batch.
+    fn apply(&mut self, msg: &mut Msg, lengths: &[LengthDerived]) {
+        match msg {
+            Msg::Gauge(g) => {
+                if let Some(g) = g.take() {
+                    let (acc, analyzer, labels) = *g;
+                    self.gauges.push(acc);
+                    self.analyzers.push(analyzer);
+                    self.labels.push(labels);
+                }
+            }
+            Msg::Reading(r, _) => {
+                let i = r.gauge;
+                if let (Some(p), Some(a), Some(l)) =
+                    (r.pressure_pa, self.analyzers.get_mut(i), self.labels.get(i))
+                {
+                    let src = a.source(l.name(r.element));
+                    a.push_from(r.t_s, p, src);
+                }
+                if let Some(g) = self.gauges.get_mut(i) {
+                    g.add(Observation {
+                        time: r.time,
+                        status: r.status,
+                        pressure_pa: r.pressure_pa,
+                        range: r.range,
+                        regimes: lengths,
+                        exposure_langmuir: r.exposure_langmuir,
+                    });
+                }
+            }
+            Msg::ChamberStart(a) => {
+                if let Some(a) = a.take() {
+                    self.chamber = Some(*a);
+                }
+            }
+            Msg::Chamber {
+                gauge,
+                element,
+                t_s,
+                p,
+            } => {
+                if let (Some(a), Some(l)) = (self.chamber.as_mut(), self.labels.get(*gauge)) {
+                    let src = a.source(l.name(*element));
+                    a.push_from(*t_s, *p, src);
+                }
+            }
+        }
+    }
+}
+
+#[derive(Debug, Default)]
+struct Batch {
+    msgs: Vec<Msg>,
+    /// Per-length results of the readings, in order; the first `used` are
+    /// this batch's (the rest are kept for their buffers).
+    lengths: Vec<LengthDerived>,
+    used: usize,
+}
+
+impl Batch {
+    fn apply_to(&mut self, tally: &mut Tally) {
+        let mut at = 0;
+        for m in &mut self.msgs {
+            let n = match m {
+                Msg::Reading(_, n) => *n,
+                _ => 0,
+            };
+            let end = (at + n).min(self.used);
+            tally.apply(m, &self.lengths[at..end]);
+            at = end;
+        }
+        self.msgs.clear();
+        self.used = 0;
+    }
+}
+
+enum Mode {
+    Here(Box<Tally>),
+    Thread {
+        full: Option<mpsc::SyncSender<Batch>>,
+        empty: mpsc::Receiver<Batch>,
+        handle: Option<JoinHandle<Tally>>,
+    },
+    /// The thread stopped unexpectedly.
+    Lost,
+}
+
+/// The tally, fed here or on a thread of its own.
+pub struct TallyOut {
+    mode: Mode,
+    batch: Batch,
+}
+
+impl TallyOut {
+    /// An empty tally, fed on a thread of its own when `thread`.
+    pub fn new(thread: bool) -> TallyOut {
+        let mode = if thread { spawn() } else { None };
+        TallyOut {
+            mode: mode.unwrap_or_else(|| Mode::Here(Box::default())),
+            batch: Batch::default(),
+        }
+    }
+
+    /// Passes on a message with no per-length results.
+    pub fn send(&mut self, msg: Msg) {
+        self.batch.msgs.push(msg);
+        self.maybe_hand_over();
+    }
+
+    /// Passes on a reading and its per-length results.
+    pub fn reading(&mut self, r: Counted, lengths: &[LengthDerived]) {
+        let b = &mut self.batch;
+        for l in lengths {
+            match b.lengths.get_mut(b.used) {
+                Some(slot) => slot.clone_from(l),
+                None => b.lengths.push(l.clone()),
+            }
+            b.used += 1;
+        }
+        b.msgs.push(Msg::Reading(r, lengths.len()));
+        self.maybe_hand_over();
+    }
+
+    fn maybe_hand_over(&mut self) {
+        if self.batch.msgs.len() >= BATCH {
+            self.hand_over();
+        }
+    }
+
+    fn hand_over(&mut self) {
+        match &mut self.mode {
+            Mode::Here(t) => self.batch.apply_to(t),
+            Mode::Thread { full, empty, .. } => {
+                let sent = full.as_ref().is_some_and(|tx| {
+                    let next = empty.recv().unwrap_or_default();
+                    let b = std::mem::replace(&mut self.batch, next);
+                    tx.send(b).is_ok()
+                });
+                if !sent {
+                    self.batch.msgs.clear();
+                    self.batch.used = 0;
+                    full.take();
+                }
+            }
+            Mode::Lost => {
+                self.batch.msgs.clear();
+                self.batch.used = 0;
+            }
+        }
+    }
+
+    /// Takes everything passed on so far into account, and from then on
+    /// feeds the tally here. Returns false if the thread was lost (a bug).
+    pub fn settle(&mut self) -> bool {
+        self.hand_over();
+        if let Mode::Thread { full, handle, .. } = &mut self.mode {
+            // Closing the channel ends the thread's loop.
+            full.take();
+            self.mode = match handle.take().map(JoinHandle::join) {
+                Some(Ok(t)) => Mode::Here(Box::new(t)),
+                _ => Mode::Lost,
+            };
+        }
+        !matches!(self.mode, Mode::Lost)
+    }
+
+    /// The tally as fed so far; complete after [`TallyOut::settle`].
+    pub fn tally(&self) -> Option<&Tally> {
+        match &self.mode {
+            Mode::Here(t) => Some(t),
+            _ => None,
+        }
+    }
+}
+
+impl Drop for TallyOut {
+    fn drop(&mut self) {
+        if let Mode::Thread { full, handle, .. } = &mut self.mode {
+            full.take();
+            if let Some(h) = handle.take() {
+                let _ = h.join();
+            }
+        }
+    }
+}
+
+/// The tally's thread, or `None` when one cannot be started (the tally
+/// is then fed here).
+fn spawn() -> Option<Mode> {
+    let (full_tx, full_rx) = mpsc::sync_channel::<Batch>(BATCHES);
+    let (empty_tx, empty_rx) = mpsc::channel::<Batch>();
+    for _ in 0..BATCHES {
+        // Cannot fail: the receiver is here.
+        let _ = empty_tx.send(Batch::default());
+    }
+    let handle = std::thread::Builder::new()
+        .name("report tally".into())
+        .spawn(move || {
+            let mut tally = Tally::default();
+            for mut b in full_rx.iter() {
+                b.apply_to(&mut tally);
+                // The sink may be done with batches.
+                let _ = empty_tx.send(b);
+            }
+            tally
+        })
+        .ok()?;
+    Some(Mode::Thread {
+        full: Some(full_tx),
+        empty: empty_rx,
+        handle: Some(handle),
+    })
+}
