@@ -55,16 +55,22 @@ pub fn read_rows(
     mode: ReadMode,
     mut f: impl FnMut(&Slot),
 ) -> Box<dyn LogSource> {
-    let batch = match mode {
-        ReadMode::SameThread => {
-            let mut slot = Ok(Row::default());
-            while fill(log.as_mut(), &mut slot) {
-                f(&slot);
-            }
-            return log;
-        }
-        ReadMode::Ahead { batch } => batch.max(1),
-    };
+    if let ReadMode::Ahead { batch } = mode
+        && ahead(log.as_mut(), batch.max(1), &mut f)
+    {
+        return log;
+    }
+    // One thread (asked for, or none could be started).
+    let mut slot = Ok(Row::default());
+    while fill(log.as_mut(), &mut slot) {
+        f(&slot);
+    }
+    log
+}
+
+/// Reads `log` on a second thread, `batch` rows at a time; false, having
+/// read nothing, when no thread could be started.
+fn ahead(log: &mut dyn LogSource, batch: usize, f: &mut impl FnMut(&Slot)) -> bool {
     std::thread::scope(|scope| {
         let (full_tx, full_rx) = mpsc::sync_channel::<Batch>(BATCHES);
         let (empty_tx, empty_rx) = mpsc::channel::<Batch>();
@@ -72,7 +78,7 @@ pub fn read_rows(
             // Cannot fail: the receiver is alive.
             let _ = empty_tx.send(Batch::default());
         }
-        let reader = scope.spawn(move || {
+        let read = move || {
             // Ends when the log does, or when the caller has gone.
             while let Ok(mut b) = empty_rx.recv() {
                 b.used = 0;
@@ -81,7 +87,7 @@ pub fn read_rows(
                     if b.slots.len() == b.used {
                         b.slots.push(Ok(Row::default()));
                     }
-                    if !fill(log.as_mut(), &mut b.slots[b.used]) {
+                    if !fill(log, &mut b.slots[b.used]) {
                         more = false;
                         break;
                     }
@@ -91,8 +97,13 @@ pub fn read_rows(
                     break;
                 }
             }
-            log
-        });
+        };
+        let Ok(reader) = std::thread::Builder::new()
+            .name("log reader".into())
+            .spawn_scoped(scope, read)
+        else {
+            return false;
+        };
         for b in full_rx.iter() {
             for slot in &b.slots[..b.used] {
                 f(slot);
@@ -101,10 +112,10 @@ pub fn read_rows(
             let _ = empty_tx.send(b);
         }
         drop(empty_tx);
-        match reader.join() {
-            Ok(log) => log,
-            Err(panic) => std::panic::resume_unwind(panic),
+        if let Err(panic) = reader.join() {
+            std::panic::resume_unwind(panic);
         }
+        true
     })
 }
 
