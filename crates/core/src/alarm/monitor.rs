@@ -800,9 +800,7 @@ impl Monitor {
         if self.origin.is_none() {
             self.origin = Some(t);
         }
-        while let Some(d) = self.next_deadline()
-            && d <= t
-        {
+        while let Some(d) = self.next_deadline_by(t) {
             events.extend(self.evaluate(d));
         }
         self.now = Some(self.now.map_or(t, |n| n.max(t)));
@@ -854,6 +852,50 @@ impl Monitor {
             .chain(never_seen)
             .chain(machines)
             .filter(|d| self.evaluated.is_none_or(|e| *d > e))
+            .min()
+    }
+
+    /// [`Monitor::next_deadline`] when it is at or before `t`, else `None`:
+    /// what [`Monitor::advance_to`] asks at every reading. The stale
+    /// deadlines are tested by the time since the reading (no date
+    /// arithmetic unless one is due).
+    fn next_deadline_by(&self, t: DateTime<Utc>) -> Option<DateTime<Utc>> {
+        let stale_ms = (self.setup.stale_after_s * 1000.0 + 1e-6).floor();
+        let stale_ms = if stale_ms.is_finite() && stale_ms < 1e15 {
+            stale_ms as i64
+        } else {
+            1_000_000_000_000_000
+        };
+        // Stale is "more than stale_after since": at since + stale_ms + 1.
+        let due = |since: DateTime<Utc>| {
+            (crate::timefmt::millis_between(since, t) > stale_ms)
+                .then(|| since.checked_add_signed(chrono::Duration::milliseconds(stale_ms + 1)))
+                .flatten()
+        };
+        let tracks = self
+            .tracks
+            .values()
+            .filter_map(|t| t.last_time)
+            .min()
+            .and_then(due);
+        let never_seen = (!self.inputs_seen)
+            .then(|| {
+                self.inputs
+                    .iter()
+                    .any(|r| !self.tracks.contains_key(&r.rule.gauge))
+                    .then(|| self.origin.and_then(due))
+                    .flatten()
+            })
+            .flatten();
+        let machines = self
+            .all_rules()
+            .filter_map(RuleMachine::deadline)
+            .chain(self.gates.iter().filter_map(GateMachine::deadline));
+        tracks
+            .into_iter()
+            .chain(never_seen)
+            .chain(machines)
+            .filter(|d| *d <= t && self.evaluated.is_none_or(|e| *d > e))
             .min()
     }
 
