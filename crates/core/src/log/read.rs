@@ -805,5 +805,6 @@ fn parse_cell(text: &str) -> Result<CellValue, String> {
     }
 }
 
+mod resume;
 #[cfg(test)]
 mod tests;
