@@ -235,13 +235,22 @@ pub fn open_log_from<R: BufRead + Send + 'static>(
 /// index, `record --source file://`) sees the same gas changes.
 pub fn row_events(row: Row, last: &mut Option<String>) -> Vec<crate::sample::SourceEvent> {
     let mut out = Vec::with_capacity(2);
-    if row.gas != *last {
-        last.clone_from(&row.gas);
-        out.push(crate::sample::SourceEvent::Gas {
-            time: row.time,
-            text: row.gas,
-        });
-    }
+    out.extend(gas_event(&row, last));
     out.push(crate::sample::SourceEvent::Samples(row.samples));
     out
+}
+
+/// The first of [`row_events`] alone, without building the list: the
+/// [`SourceEvent::Gas`](crate::sample::SourceEvent::Gas) when the row's
+/// `gas` cell differs from `last` (which it updates). The row's readings
+/// follow it as `SourceEvent::Samples(row.samples)`.
+pub fn gas_event(row: &Row, last: &mut Option<String>) -> Option<crate::sample::SourceEvent> {
+    if row.gas == *last {
+        return None;
+    }
+    last.clone_from(&row.gas);
+    Some(crate::sample::SourceEvent::Gas {
+        time: row.time,
+        text: row.gas.clone(),
+    })
 }
