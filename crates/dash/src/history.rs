@@ -29,10 +29,14 @@ impl Bucket {
 }
 
 /// The history of one channel.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct Series {
     levels: [VecDeque<Bucket>; 4],
     samples: u64,
+    /// Buckets begun on each level, ever: the last bucket of a level is
+    /// its `started - 1`th (a replay's keyframes store the rings by these
+    /// positions).
+    started: [u64; 4],
 }
 
 impl Series {
@@ -42,35 +46,54 @@ impl Series {
             return;
         }
         self.samples += 1;
-        for (level, width) in self.levels.iter_mut().zip(LEVELS) {
+        for ((level, width), started) in self.levels.iter_mut().zip(LEVELS).zip(&mut self.started) {
             let index = (t / width).floor() as i64;
             match level.back_mut() {
                 Some(b) if b.index == index => {
                     b.min = b.min.min(v);
                     b.max = b.max.max(v);
+                    continue;
                 }
                 // A clock jump backwards: start again from here on this
                 // level rather than mixing the order.
-                Some(b) if b.index > index => {
-                    level.clear();
-                    level.push_back(Bucket {
-                        index,
-                        min: v,
-                        max: v,
-                    });
-                }
+                Some(b) if b.index > index => level.clear(),
                 _ => {
                     if level.len() == CAPACITY {
                         level.pop_front();
                     }
-                    level.push_back(Bucket {
-                        index,
-                        min: v,
-                        max: v,
-                    });
                 }
             }
+            level.push_back(Bucket {
+                index,
+                min: v,
+                max: v,
+            });
+            *started += 1;
         }
+    }
+
+    /// A series from its parts (as [`Series::level`], [`Series::samples`]
+    /// and [`Series::started`] give them).
+    pub(crate) fn from_parts(
+        levels: [VecDeque<Bucket>; 4],
+        samples: u64,
+        started: [u64; 4],
+    ) -> Self {
+        Series {
+            levels,
+            samples,
+            started,
+        }
+    }
+
+    /// The buckets kept on level `l` (0: the finest), oldest first.
+    pub(crate) fn level(&self, l: usize) -> &VecDeque<Bucket> {
+        &self.levels[l]
+    }
+
+    /// Buckets begun on level `l`, ever.
+    pub(crate) fn started(&self, l: usize) -> u64 {
+        self.started[l]
     }
 
     /// Samples pushed.
@@ -106,7 +129,7 @@ impl Series {
 }
 
 /// The history of every channel.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct History {
     series: BTreeMap<String, Series>,
 }
@@ -126,6 +149,16 @@ impl History {
     /// A channel's history.
     pub fn get(&self, id: &str) -> Option<&Series> {
         self.series.get(id)
+    }
+
+    /// Every channel's history, by id.
+    pub fn series(&self) -> impl Iterator<Item = (&String, &Series)> {
+        self.series.iter()
+    }
+
+    /// A history of these series.
+    pub(crate) fn from_series(series: BTreeMap<String, Series>) -> Self {
+        History { series }
     }
 
     /// Samples folded into buckets that already held one (shown as
