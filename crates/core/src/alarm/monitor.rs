@@ -182,7 +182,9 @@ struct KineticsKey {
 #[derive(Debug, Clone)]
 struct CachedKinetics {
     key: KineticsKey,
-    pre: Precomputed,
+    /// Shared with the monitor's clones (a replay's keyframes, a frozen
+    /// display): never changed once made.
+    pre: std::sync::Arc<Precomputed>,
 }
 
 /// A view of one alarm for displays.
@@ -787,7 +789,10 @@ impl Monitor {
         if self.kinetics.len() >= KINETICS_CACHED {
             self.kinetics.clear();
         }
-        self.kinetics.push(CachedKinetics { key, pre });
+        self.kinetics.push(CachedKinetics {
+            key,
+            pre: std::sync::Arc::new(pre),
+        });
         Ok((p, self.kinetics.len() - 1))
     }
 
