@@ -79,38 +79,43 @@ pub struct Rows {
     next: Option<Row>,
     bad: u64,
     taken: u64,
-    /// While indexing: the span of the rows taken, and where the reading
-    /// stood before `next`.
-    indexing: Option<(Span, Resume)>,
+    /// While indexing: the span of the rows taken, where the reading stood
+    /// before `next` when that was a multiple of `every`th row, and
+    /// `every`.
+    indexing: Option<(Span, Resume, u64)>,
 }
 
 impl Rows {
     /// Opens the log at its start.
     pub fn open(file: &Path, foreign: Option<&ForeignLogSpec>) -> Result<Rows, String> {
-        Rows::open_as(file, foreign, false)
+        Rows::open_as(file, foreign, None)
     }
 
     /// Opens the log at its start for an index pass: the rows' span is
-    /// kept ([`Rows::span`]), and the point before the next row
-    /// ([`Rows::resume_point`]).
-    pub fn open_indexing(file: &Path, foreign: Option<&ForeignLogSpec>) -> Result<Rows, String> {
-        Rows::open_as(file, foreign, true)
+    /// kept ([`Rows::span`]), and the point before the next row when the
+    /// rows taken are a multiple of `every` ([`Rows::resume_point`]).
+    pub fn open_indexing(
+        file: &Path,
+        foreign: Option<&ForeignLogSpec>,
+        every: u64,
+    ) -> Result<Rows, String> {
+        Rows::open_as(file, foreign, Some(every.max(1)))
     }
 
     fn open_as(
         file: &Path,
         foreign: Option<&ForeignLogSpec>,
-        indexing: bool,
+        every: Option<u64>,
     ) -> Result<Rows, String> {
         let log = open_log(file, foreign).map_err(|e| e.to_string())?;
         let mut rows = Rows {
-            indexing: indexing.then(|| {
+            indexing: every.map(|every| {
                 let at = Resume {
                     read: log.read_position(),
                     bad: 0,
                     taken: 0,
                 };
-                (Span::default(), at)
+                (Span::default(), at, every)
             }),
             log,
             next: None,
@@ -138,7 +143,7 @@ impl Rows {
         self.log = self.log.resume(Box::new(BufReader::new(f)), &at.read);
         self.bad = at.bad;
         self.taken = at.taken;
-        if let Some((_, before)) = &mut self.indexing {
+        if let Some((_, before, _)) = &mut self.indexing {
             before.clone_from(at);
         }
         self.advance();
@@ -147,7 +152,9 @@ impl Rows {
 
     fn advance(&mut self) {
         self.next = None;
-        if let Some((_, before)) = &mut self.indexing {
+        if let Some((_, before, every)) = &mut self.indexing
+            && self.taken.is_multiple_of(*every)
+        {
             *before = Resume {
                 read: self.log.read_position(),
                 bad: self.bad,
@@ -184,7 +191,7 @@ impl Rows {
         }
         let row = self.next.take()?;
         self.taken += 1;
-        if let Some((span, _)) = &mut self.indexing {
+        if let Some((span, _, _)) = &mut self.indexing {
             span.add(row.time);
         }
         self.advance();
@@ -196,14 +203,18 @@ impl Rows {
         self.taken
     }
 
-    /// Indexing: the point before the next row, to resume at.
+    /// Indexing: the point before the next row, to resume at, when the
+    /// rows taken are a multiple of the `every` the rows were opened with.
     pub fn resume_point(&self) -> Option<&Resume> {
-        self.indexing.as_ref().map(|(_, at)| at)
+        self.indexing
+            .as_ref()
+            .map(|(_, at, _)| at)
+            .filter(|at| at.taken == self.taken)
     }
 
     /// Indexing: the span of the rows taken so far.
     pub fn span(&self) -> Option<&Span> {
-        self.indexing.as_ref().map(|(span, _)| span)
+        self.indexing.as_ref().map(|(span, _, _)| span)
     }
 
     /// Rows the reader reported as bad so far.
@@ -286,7 +297,7 @@ pub fn index(
     setup: &MonitorSetup,
     gases: &GasTable,
 ) -> Result<LogIndex, String> {
-    let mut rows = Rows::open_indexing(file, foreign)?;
+    let mut rows = Rows::open_indexing(file, foreign, u64::MAX)?;
     let mut pipeline = Pipeline::new(Monitor::new(setup.clone()));
     pipeline.set_gases(gases.clone());
     let mut gas = None;
@@ -327,6 +338,17 @@ mod tests {
             end = Some(end.map_or(t, |e| e.max(t)));
         }
         gaps
+    }
+
+    #[test]
+    fn only_plain_files_can_be_resumed_in() {
+        let file = std::env::temp_dir().join(format!("rarefy-resume-{}.csv", std::process::id()));
+        std::fs::write(&file, "x\n").expect("write");
+        assert!(Rows::can_resume(&file));
+        let _ = std::fs::remove_file(&file);
+        assert!(!Rows::can_resume(&file));
+        assert!(!Rows::can_resume(Path::new("/dev/null")));
+        assert!(!Rows::can_resume(&std::env::temp_dir()));
     }
 
     #[test]
