@@ -475,3 +475,32 @@ fn an_operators_action_carries_on_forward() {
     assert_same("back, then forward", &mut a, &pa, &mut b, &pb);
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// A log that changed after its index (rows appended) is no longer
+/// resumed at the index's offsets: seeks play it from the start, as a
+/// replay without keyframes does.
+#[test]
+fn a_log_changed_after_its_index_plays_from_the_start() {
+    let dir = tempdir("changed");
+    let file = v1_log(&dir);
+    let (setup, gauges) = demo_setup(&file);
+    let (with, _) = index_every(&setup, 97).expect("index");
+    let without = Replay {
+        keyframes: None,
+        ..with.clone()
+    };
+    let mut a = app(&setup, &gauges, &with);
+    let mut pa = Player::open(&setup).expect("player");
+    let mut b = app(&setup, &gauges, &without);
+    let mut pb = Player::open(&setup).expect("player");
+    let at = |s: i64| t0() + Duration::seconds(s);
+    // The first rows rewritten with other values, the length kept.
+    let text = std::fs::read_to_string(&file).expect("read");
+    std::fs::write(&file, text.replacen(",N2\n", ",Ar\n", 50)).expect("write");
+    for s in [2000, 500, 1500] {
+        seek(&mut a, &mut pa, &setup, at(s)).expect("seek");
+        seek(&mut b, &mut pb, &setup, at(s)).expect("seek");
+        assert_same(&format!("seek to {s} s"), &mut a, &pa, &mut b, &pb);
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}

@@ -16,7 +16,8 @@
 //!
 //! Keyframes need a plain file to reopen at a byte offset; a log read
 //! from a pipe or device, or a spill file that cannot be made, gives none,
-//! and seeks play from the start as before.
+//! and seeks play from the start as before; so do they once the file's
+//! length or modification time is no longer what the index saw.
 
 use std::collections::{BTreeMap, HashMap, VecDeque};
 use std::fs::File;
@@ -235,6 +236,9 @@ impl Spill {
 
 struct Inner {
     frames: Vec<Keyframe>,
+    /// The log file's length and modification time after the index pass:
+    /// its offsets hold while they are the same.
+    file: (u64, Option<std::time::SystemTime>),
     /// Channels in the order the log's rows first gave them.
     channels: Vec<(String, ChannelUnit)>,
     spill: Spill,
@@ -305,6 +309,12 @@ impl Keyframes {
         rewound: bool,
     ) -> Result<(), String> {
         let k = &self.0.frames[i];
+        if file_stamp(&setup.file) != Some(self.0.file) {
+            return Err(format!(
+                "{} changed since it was indexed",
+                setup.file.display()
+            ));
+        }
         let history = self
             .0
             .spill
@@ -355,6 +365,13 @@ impl Keyframes {
     }
 }
 
+/// A file's length and modification time.
+fn file_stamp(file: &std::path::Path) -> Option<(u64, Option<std::time::SystemTime>)> {
+    std::fs::metadata(file)
+        .ok()
+        .map(|m| (m.len(), m.modified().ok()))
+}
+
 /// Collects every event of the index pass.
 #[derive(Clone, Default)]
 struct Events(Arc<Mutex<Vec<Event>>>);
@@ -392,7 +409,7 @@ pub fn index(setup: &ReplaySetup, every: u64) -> Result<(LogIndex, Option<Keyfra
     let events = Events::default();
     app.pipeline.add_sink(Box::new(events.clone()));
     let mut player = Player {
-        rows: Rows::open_indexing(&setup.file, setup.foreign.as_ref())?,
+        rows: Rows::open_indexing(&setup.file, setup.foreign.as_ref(), every)?,
         gas: None,
     };
     let mut spill = if Rows::can_resume(&setup.file) {
@@ -438,9 +455,11 @@ pub fn index(setup: &ReplaySetup, every: u64) -> Result<(LogIndex, Option<Keyfra
         }
     }
     let ix = LogIndex::of(&player.rows, events.take(), &setup.file)?;
-    let keyframes = spill.map(|spill| {
+    let stamp = file_stamp(&setup.file);
+    let keyframes = spill.zip(stamp).map(|(spill, file)| {
         Keyframes(Arc::new(Inner {
             frames,
+            file,
             channels: app.gauges.iter().map(|g| (g.id.clone(), g.unit)).collect(),
             spill,
         }))
