@@ -292,10 +292,11 @@ pub struct ReplaySetup {
     pub gases: crate::gas::GasTable,
 }
 
-/// Reads the whole log once through the pipeline (see
-/// [`rarefy_app::pipeline::replay::index`]): start, end, gaps and the alarm
-/// events, for the timeline and for jumping between alarms. The events are
-/// exactly those playback gives at any speed.
+/// Reads the whole log once, played through an app as playback plays it
+/// (see [`super::keyframe::index`]): start, end, gaps and the alarm
+/// events, for the timeline and for jumping between alarms, and the
+/// keyframes seeks start from. The events are exactly those playback gives
+/// at any speed.
 pub fn index(setup: &ReplaySetup) -> Result<Replay, String> {
     let (replay, _) = index_events(setup)?;
     Ok(replay)
