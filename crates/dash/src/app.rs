@@ -24,6 +24,9 @@ pub const WINDOWS: [f64; 7] = [
     7.0 * 86_400.0,
 ];
 
+/// Recent events the app keeps ([`App::events`]).
+pub const EVENTS_KEPT: usize = 200;
+
 /// Replay speed.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Speed {
@@ -80,6 +83,9 @@ pub struct Replay {
     pub times_repeated: u64,
     /// Whether the log ended.
     pub at_end: bool,
+    /// Where seeks may start from other than the log's start (none for a
+    /// log read from a pipe).
+    pub keyframes: Option<super::keyframe::Keyframes>,
 }
 
 /// A modal overlay.
@@ -193,6 +199,9 @@ pub struct App {
     pub show_events: bool,
     /// Recent events, newest last.
     pub events: VecDeque<Event>,
+    /// Events taken since the start (a replay: since the start of the
+    /// log), however many `events` still holds.
+    pub events_seen: usize,
     /// A new alarm asks for the bell.
     pub bell: bool,
     /// Whether the bell is wanted at all.
@@ -269,6 +278,7 @@ impl App {
             note: None,
             show_events: false,
             events: VecDeque::new(),
+            events_seen: 0,
             bell: false,
             bell_enabled: true,
             ascii: false,
@@ -327,6 +337,7 @@ impl App {
                 counters: &mut self.counters,
                 last_unparsed: &mut self.last_unparsed,
                 events: &mut self.events,
+                events_seen: &mut self.events_seen,
                 bell: &mut self.bell,
                 bell_enabled: self.bell_enabled,
                 dirty: &mut self.dirty,
@@ -425,6 +436,7 @@ struct View<'a> {
     counters: &'a mut Counters,
     last_unparsed: &'a mut Option<String>,
     events: &'a mut VecDeque<Event>,
+    events_seen: &'a mut usize,
     bell: &'a mut bool,
     bell_enabled: bool,
     dirty: &'a mut bool,
@@ -468,10 +480,11 @@ impl Sink for View<'_> {
                 if e.change.alarm_to() == Some(AlarmState::Unacknowledged) {
                     *self.bell = self.bell_enabled;
                 }
-                if self.events.len() >= 200 {
+                if self.events.len() >= EVENTS_KEPT {
                     self.events.pop_front();
                 }
                 self.events.push_back(e.clone());
+                *self.events_seen += 1;
             }
             Item::Source(SourceEvent::Status { source, state }) => {
                 self.sources.insert(source.clone(), *state);

@@ -5,7 +5,8 @@
 
 use std::collections::{BTreeMap, VecDeque};
 
-/// Bucket widths of the levels, s.
+/// Bucket widths of the levels, s: 8^l (the index of a bucket on a level
+/// is that of its 1 s bucket divided by the width).
 pub const LEVELS: [f64; 4] = [1.0, 8.0, 64.0, 512.0];
 /// Buckets kept per level.
 pub const CAPACITY: usize = 2048;
@@ -29,10 +30,14 @@ impl Bucket {
 }
 
 /// The history of one channel.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct Series {
     levels: [VecDeque<Bucket>; 4],
     samples: u64,
+    /// Buckets begun on each level, ever: the last bucket of a level is
+    /// its `started - 1`th (a replay's keyframes store the rings by these
+    /// positions).
+    started: [u64; 4],
 }
 
 impl Series {
@@ -42,35 +47,57 @@ impl Series {
             return;
         }
         self.samples += 1;
-        for (level, width) in self.levels.iter_mut().zip(LEVELS) {
-            let index = (t / width).floor() as i64;
+        // The widths are 2^(3l) s, so a level's index is the 1 s one's
+        // divided, rounding down (a shift): exactly floor(t / width).
+        let second = t.floor() as i64;
+        for ((l, level), started) in self.levels.iter_mut().enumerate().zip(&mut self.started) {
+            let index = second >> (3 * l);
             match level.back_mut() {
                 Some(b) if b.index == index => {
                     b.min = b.min.min(v);
                     b.max = b.max.max(v);
+                    continue;
                 }
                 // A clock jump backwards: start again from here on this
                 // level rather than mixing the order.
-                Some(b) if b.index > index => {
-                    level.clear();
-                    level.push_back(Bucket {
-                        index,
-                        min: v,
-                        max: v,
-                    });
-                }
+                Some(b) if b.index > index => level.clear(),
                 _ => {
                     if level.len() == CAPACITY {
                         level.pop_front();
                     }
-                    level.push_back(Bucket {
-                        index,
-                        min: v,
-                        max: v,
-                    });
                 }
             }
+            level.push_back(Bucket {
+                index,
+                min: v,
+                max: v,
+            });
+            *started += 1;
         }
+    }
+
+    /// A series from its parts (as [`Series::level`], [`Series::samples`]
+    /// and [`Series::started`] give them).
+    pub(crate) fn from_parts(
+        levels: [VecDeque<Bucket>; 4],
+        samples: u64,
+        started: [u64; 4],
+    ) -> Self {
+        Series {
+            levels,
+            samples,
+            started,
+        }
+    }
+
+    /// The buckets kept on level `l` (0: the finest), oldest first.
+    pub(crate) fn level(&self, l: usize) -> &VecDeque<Bucket> {
+        &self.levels[l]
+    }
+
+    /// Buckets begun on level `l`, ever.
+    pub(crate) fn started(&self, l: usize) -> u64 {
+        self.started[l]
     }
 
     /// Samples pushed.
@@ -106,7 +133,7 @@ impl Series {
 }
 
 /// The history of every channel.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct History {
     series: BTreeMap<String, Series>,
 }
@@ -126,6 +153,16 @@ impl History {
     /// A channel's history.
     pub fn get(&self, id: &str) -> Option<&Series> {
         self.series.get(id)
+    }
+
+    /// Every channel's history, by id.
+    pub fn series(&self) -> impl Iterator<Item = (&String, &Series)> {
+        self.series.iter()
+    }
+
+    /// A history of these series.
+    pub(crate) fn from_series(series: BTreeMap<String, Series>) -> Self {
+        History { series }
     }
 
     /// Samples folded into buckets that already held one (shown as
@@ -207,6 +244,32 @@ mod tests {
         let (width, b) = s.span(now - 7.0 * 86_400.0, now);
         assert_eq!(width, 512.0);
         assert!(b.len() >= 7 * 86_400 / 512, "{}", b.len());
+    }
+
+    #[test]
+    fn bucket_indices_are_the_time_over_the_width_rounded_down() {
+        let mut x: u64 = 3;
+        for i in 0..200_000 {
+            x = x
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            let u = (x >> 11) as f64 / (1u64 << 53) as f64;
+            let t = match i % 4 {
+                0 => (u - 0.5) * 4096.0,
+                1 => (u - 0.5) * 1e15,
+                2 => ((u * 1e6).round() - 5e5) * 8.0,
+                _ => (u - 0.5) * 1e-300,
+            };
+            let mut s = Series::default();
+            s.push(t, 1.0);
+            for (l, width) in LEVELS.iter().enumerate() {
+                assert_eq!(
+                    s.levels[l][0].index,
+                    (t / width).floor() as i64,
+                    "{t} {width}"
+                );
+            }
+        }
     }
 
     #[test]

@@ -2,6 +2,7 @@
 //! on data time).
 //!
 //! * [`app`]: the state, plain data, with bounded decimated [`history`];
+//! * [`keyframe`]: the points a replay's seek starts from;
 //! * [`keys`]: what each key does, apart from drawing;
 //! * [`render`]: one function per panel, and the layout;
 //! * [`run`]: the event loops; [`term`]: the terminal and its restoration.
@@ -10,6 +11,7 @@
 
 pub mod app;
 pub mod history;
+pub mod keyframe;
 pub mod keys;
 pub mod render;
 pub mod run;

@@ -20,7 +20,7 @@ use crate::record::{RecordEvent, Recorder};
 use crate::sample::SourceEvent;
 use rarefy_app::action::Outcome;
 use rarefy_app::pipeline::DataClock;
-use rarefy_app::pipeline::replay::{self, Rows};
+use rarefy_app::pipeline::replay::Rows;
 use rarefy_app::pipeline::sinks::{RecordingNote, RecordingState};
 use std::sync::{Arc, Mutex};
 
@@ -292,10 +292,11 @@ pub struct ReplaySetup {
     pub gases: crate::gas::GasTable,
 }
 
-/// Reads the whole log once through the pipeline (see
-/// [`rarefy_app::pipeline::replay::index`]): start, end, gaps and the alarm
-/// events, for the timeline and for jumping between alarms. The events are
-/// exactly those playback gives at any speed.
+/// Reads the whole log once, played through an app as playback plays it
+/// (see [`super::keyframe::index`]): start, end, gaps and the alarm
+/// events, for the timeline and for jumping between alarms, and the
+/// keyframes seeks start from. The events are exactly those playback gives
+/// at any speed.
 pub fn index(setup: &ReplaySetup) -> Result<Replay, String> {
     let (replay, _) = index_events(setup)?;
     Ok(replay)
@@ -303,12 +304,12 @@ pub fn index(setup: &ReplaySetup) -> Result<Replay, String> {
 
 /// [`index`], and every event of the log.
 pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String> {
-    let ix = replay::index(
-        &setup.file,
-        setup.foreign.as_ref(),
-        &setup.monitor,
-        &setup.gases,
-    )?;
+    index_every(setup, super::keyframe::EVERY)
+}
+
+/// [`index_events`] with a keyframe every `every` rows.
+pub fn index_every(setup: &ReplaySetup, every: u64) -> Result<(Replay, Vec<Event>), String> {
+    let (ix, keyframes) = super::keyframe::index(setup, every)?;
     let marks = ix
         .events
         .iter()
@@ -328,6 +329,7 @@ pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String>
             times_went_back: ix.times_went_back,
             times_repeated: ix.times_repeated,
             at_end: false,
+            keyframes,
         },
         ix.events,
     ))
@@ -335,9 +337,9 @@ pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String>
 
 /// A replay in progress: the log's rows, fed to the app.
 pub struct Player {
-    rows: Rows,
+    pub(crate) rows: Rows,
     /// The last row's `gas` cell.
-    gas: Option<String>,
+    pub(crate) gas: Option<String>,
 }
 
 impl Player {
@@ -354,6 +356,11 @@ impl Player {
         self.rows.next_time()
     }
 
+    /// Rows fed so far (since the log's start).
+    pub fn rows_fed(&self) -> u64 {
+        self.rows.taken()
+    }
+
     /// Feeds the app every row up to `until` (at most `max` rows).
     pub fn feed(&mut self, app: &mut App, until: Option<DateTime<Utc>>, max: usize) -> usize {
         let mut n = 0;
@@ -364,26 +371,55 @@ impl Player {
             if let Some((column, text)) = row.notes.last() {
                 app.note = Some((row.time, column.clone(), text.clone()));
             }
-            for ev in &crate::log::row_events(row, &mut self.gas) {
-                app.ingest(ev, None);
+            if let Some(ev) = crate::log::gas_event(&row, &mut self.gas) {
+                app.ingest(&ev, None);
             }
+            app.ingest(&SourceEvent::Samples(row.samples), None);
             n += 1;
         }
         n
     }
 }
 
-/// Starts the app over at the beginning of the log (for seeking back).
-pub fn rewind(app: &mut App, setup: &ReplaySetup) -> Result<Player, String> {
+/// Puts the app back as it was before the log's first row (a monitor
+/// fresh from the setup, no history, counters, recent events, note or
+/// source error); what the operator chose to see stays.
+pub(crate) fn reset(app: &mut App, setup: &ReplaySetup) {
     app.pipeline.reset(Monitor::new(setup.monitor.clone()));
     app.pipeline.set_gases(setup.gases.clone());
     app.history = super::history::History::default();
     app.origin = None;
     app.events.clear();
+    app.events_seen = 0;
     app.counters = Default::default();
     app.frozen = None;
     app.note = None;
+    app.source_error = None;
+}
+
+/// Starts the app over at the beginning of the log (for seeking back).
+pub fn rewind(app: &mut App, setup: &ReplaySetup) -> Result<Player, String> {
+    reset(app, setup);
     Player::open(setup)
+}
+
+/// The keyframe a seek to `t` starts from, if one is nearer than where
+/// the player is: the last one at or before `t` (every row before it is),
+/// for a seek back (`back`) or one forward past it. Not forward after an
+/// operator's action in this replay (acknowledge, shelve, edit …): playing
+/// on from the playhead keeps its effect, as before.
+fn keyframe_for(
+    app: &App,
+    player: &Player,
+    t: DateTime<Utc>,
+    back: bool,
+) -> Option<(super::keyframe::Keyframes, usize)> {
+    let keyframes = app.replay.as_ref()?.keyframes.clone()?;
+    let i = keyframes.last_before(t)?;
+    if !back && (app.pipeline.operations() > 0 || player.rows_fed() >= keyframes.rows_before(i)) {
+        return None;
+    }
+    Some((keyframes, i))
 }
 
 /// Moves the replay to data time `t`.
@@ -408,7 +444,12 @@ pub fn seek(
             t.format("%Y-%m-%d %H:%M:%S")
         ));
     }
-    if app.monitor().now().is_some_and(|now| t < now) {
+    let back = app.monitor().now().is_some_and(|now| t < now);
+    // From the nearest keyframe when there is one (the same state as
+    // playing every row before it); else from the start, or on.
+    let jumped = keyframe_for(app, player, t, back)
+        .is_some_and(|(k, i)| k.restore(i, app, player, setup, back).is_ok());
+    if back && !jumped {
         *player = rewind(app, setup)?;
     }
     player.feed(app, Some(t), usize::MAX);

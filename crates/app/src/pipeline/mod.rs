@@ -103,6 +103,9 @@ pub struct Pipeline {
     /// Source name → the id of its link alarm (live sources only).
     links: Vec<(String, String)>,
     counts: Counts,
+    /// Operator requests carried out since the start or the last
+    /// [`Pipeline::reset`] (or [`Pipeline::restore`]).
+    operations: u64,
     /// Gases a log's `gas` column may name (the built-in table and the
     /// config's own).
     gases: GasTable,
@@ -116,6 +119,7 @@ impl Pipeline {
             sinks: Vec::new(),
             links: Vec::new(),
             counts: Counts::default(),
+            operations: 0,
             gases: GasTable::builtin(),
         }
     }
@@ -143,8 +147,16 @@ impl Pipeline {
 
     /// Replaces the monitor (a replay starting over); sinks stay.
     pub fn reset(&mut self, monitor: Monitor) {
+        self.restore(monitor, Counts::default());
+    }
+
+    /// Replaces the monitor and the counts with those of a pipeline that
+    /// went through part of a log (a replay jumping to a keyframe the index
+    /// kept); sinks stay.
+    pub fn restore(&mut self, monitor: Monitor, counts: Counts) {
         self.monitor = monitor;
-        self.counts = Counts::default();
+        self.counts = counts;
+        self.operations = 0;
         for (name, id) in &self.links {
             self.monitor.add_link(id, name);
         }
@@ -153,6 +165,13 @@ impl Pipeline {
     /// What went through so far.
     pub fn counts(&self) -> Counts {
         self.counts
+    }
+
+    /// How many operator requests ([`Pipeline::operate`]) were carried out
+    /// since the start or the last reset: while none were, the monitor's
+    /// state is the one its input alone gives.
+    pub fn operations(&self) -> u64 {
+        self.operations
     }
 
     /// Watches a live source's connection: a `source-N.link` alarm is
@@ -309,6 +328,7 @@ impl Pipeline {
             Operation::ResetExposure => m.reset_exposure(who, now),
             Operation::SetGas(c) => m.set_gas(c.clone(), who, now),
         };
+        self.operations += 1;
         self.dispatch_events_also(&events, also);
         Ok(events)
     }

@@ -2,7 +2,14 @@
 //! the readings they have), and the index a replay opens with — start, end,
 //! gaps and every event, from one pass through the same pipeline that plays
 //! it, so the timeline shows exactly what playback will.
+//!
+//! A reading of a plain file can also go on from a point another reading
+//! reached ([`Rows::resume`] at a [`Resume`]): the dashboard's index keeps
+//! such points with the state there (keyframes), so that a seek reads at
+//! most the rows from the nearest one.
 
+use std::fs::File;
+use std::io::{BufReader, Seek, SeekFrom};
 use std::path::Path;
 
 use chrono::{DateTime, Utc};
@@ -11,31 +18,149 @@ use super::Pipeline;
 use super::sinks::Collect;
 use crate::alarm::{Event, Monitor, MonitorSetup};
 use crate::gas::GasTable;
-use crate::log::{ForeignLogSpec, LogSource, Row};
+use crate::log::{ForeignLogSpec, LogSource, ReadPosition, Row};
 use crate::logfile::open_log;
+use crate::sample::SourceEvent;
+
+/// How many of the first intervals between rows give the typical one.
+const TYPICAL_OF: usize = 64;
+
+/// The time a log's rows span, and its gaps, found row by row.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Span {
+    /// First row's time.
+    pub start: Option<DateTime<Utc>>,
+    /// Latest row time.
+    pub end: Option<DateTime<Utc>>,
+    /// Gaps: no row for much longer than usual (five times the typical
+    /// interval, and over 5 s). The typical interval is the (upper) median
+    /// of the intervals so far while there are fewer than 64, then of the
+    /// first 64.
+    pub gaps: Vec<(DateTime<Utc>, DateTime<Utc>)>,
+    /// The first intervals, ms (at least 1), in order of size.
+    first: Vec<i64>,
+}
+
+impl Span {
+    /// Takes the next row's time.
+    pub fn add(&mut self, t: DateTime<Utc>) {
+        self.start.get_or_insert(t);
+        if let Some(prev) = self.end {
+            let dt = (t - prev).num_milliseconds();
+            if self.first.len() < TYPICAL_OF {
+                let v = dt.max(1);
+                let at = self.first.partition_point(|x| *x < v);
+                self.first.insert(at, v);
+            }
+            let typical = self.first[self.first.len() / 2];
+            if dt > typical * 5 && dt > 5000 {
+                self.gaps.push((prev, t));
+            }
+        }
+        self.end = Some(self.end.map_or(t, |e| e.max(t)));
+    }
+}
+
+/// A point to go on reading a log from: before a row, with what the
+/// reading of the rows before it carried.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Resume {
+    /// The reader's position before the row.
+    pub read: ReadPosition,
+    /// Rows the reader reported as bad before it.
+    pub bad: u64,
+    /// Rows taken before it.
+    pub taken: u64,
+}
 
 /// A log's rows, one ahead.
 pub struct Rows {
     log: Box<dyn LogSource>,
     next: Option<Row>,
     bad: u64,
+    taken: u64,
+    /// While indexing: the span of the rows taken, where the reading stood
+    /// before `next` when that was a multiple of `every`th row, and
+    /// `every`.
+    indexing: Option<(Span, Resume, u64)>,
 }
 
 impl Rows {
     /// Opens the log at its start.
     pub fn open(file: &Path, foreign: Option<&ForeignLogSpec>) -> Result<Rows, String> {
+        Rows::open_as(file, foreign, None)
+    }
+
+    /// Opens the log at its start for an index pass: the rows' span is
+    /// kept ([`Rows::span`]), and the point before the next row when the
+    /// rows taken are a multiple of `every` ([`Rows::resume_point`]).
+    pub fn open_indexing(
+        file: &Path,
+        foreign: Option<&ForeignLogSpec>,
+        every: u64,
+    ) -> Result<Rows, String> {
+        Rows::open_as(file, foreign, Some(every.max(1)))
+    }
+
+    fn open_as(
+        file: &Path,
+        foreign: Option<&ForeignLogSpec>,
+        every: Option<u64>,
+    ) -> Result<Rows, String> {
         let log = open_log(file, foreign).map_err(|e| e.to_string())?;
         let mut rows = Rows {
+            indexing: every.map(|every| {
+                let at = Resume {
+                    read: log.read_position(),
+                    bad: 0,
+                    taken: 0,
+                };
+                (Span::default(), at, every)
+            }),
             log,
             next: None,
             bad: 0,
+            taken: 0,
         };
         rows.advance();
         Ok(rows)
     }
 
+    /// Whether `file` is a plain file, which a reading can be resumed in
+    /// (not a pipe or a device).
+    pub fn can_resume(file: &Path) -> bool {
+        std::fs::metadata(file).is_ok_and(|m| m.is_file())
+    }
+
+    /// Goes on reading `file` (the log these rows were opened on) from
+    /// `at`, a point an indexing reading of it gave: the rows, bad-row
+    /// count and time-order counts are then those of a reading from the
+    /// start.
+    pub fn resume(&mut self, file: &Path, at: &Resume) -> Result<(), String> {
+        let cannot = |e: std::io::Error| format!("{}: cannot read the log: {e}", file.display());
+        let mut f = File::open(file).map_err(cannot)?;
+        f.seek(SeekFrom::Start(at.read.offset)).map_err(cannot)?;
+        self.log = self.log.resume(Box::new(BufReader::new(f)), &at.read);
+        self.bad = at.bad;
+        self.taken = at.taken;
+        if let Some((_, before, _)) = &mut self.indexing {
+            before.clone_from(at);
+        }
+        self.advance();
+        Ok(())
+    }
+
     fn advance(&mut self) {
         self.next = None;
+        if let Some((_, before, every)) = &mut self.indexing
+            && self.taken.is_multiple_of(*every)
+        {
+            *before = Resume {
+                read: self.log.read_position(),
+                bad: self.bad,
+                taken: self.taken,
+            };
+        }
         for row in self.log.by_ref() {
             match row {
                 Ok(r) => {
@@ -65,8 +190,31 @@ impl Rows {
             return None;
         }
         let row = self.next.take()?;
+        self.taken += 1;
+        if let Some((span, _, _)) = &mut self.indexing {
+            span.add(row.time);
+        }
         self.advance();
         Some(row)
+    }
+
+    /// Rows taken so far.
+    pub fn taken(&self) -> u64 {
+        self.taken
+    }
+
+    /// Indexing: the point before the next row, to resume at, when the
+    /// rows taken are a multiple of the `every` the rows were opened with.
+    pub fn resume_point(&self) -> Option<&Resume> {
+        self.indexing
+            .as_ref()
+            .map(|(_, at, _)| at)
+            .filter(|at| at.taken == self.taken)
+    }
+
+    /// Indexing: the span of the rows taken so far.
+    pub fn span(&self) -> Option<&Span> {
+        self.indexing.as_ref().map(|(span, _, _)| span)
     }
 
     /// Rows the reader reported as bad so far.
@@ -83,6 +231,23 @@ impl Rows {
     pub fn times_repeated(&self) -> u64 {
         self.log.times_repeated()
     }
+}
+
+/// Feeds one log row to `pipeline`: its gas change, if it makes one
+/// (`gas`: the last row's gas cell), then its readings. Returns the
+/// events.
+pub fn feed_row(
+    pipeline: &mut Pipeline,
+    row: Row,
+    gas: &mut Option<String>,
+    also: &mut dyn super::Sink,
+) -> Vec<Event> {
+    let mut events = match crate::log::gas_event(&row, gas) {
+        Some(ev) => pipeline.feed(&ev, None, also),
+        None => Vec::new(),
+    };
+    events.extend(pipeline.feed(&SourceEvent::Samples(row.samples), None, also));
+    events
 }
 
 /// What one pass through a log found.
@@ -105,6 +270,26 @@ pub struct LogIndex {
     pub events: Vec<Event>,
 }
 
+impl LogIndex {
+    /// The index of what `rows` read, with `events`; an error naming
+    /// `file` when it had no rows.
+    pub fn of(rows: &Rows, events: Vec<Event>, file: &Path) -> Result<LogIndex, String> {
+        let span = rows.span().cloned().unwrap_or_default();
+        let (Some(start), Some(end)) = (span.start, span.end) else {
+            return Err(format!("{}: the log has no rows", file.display()));
+        };
+        Ok(LogIndex {
+            start,
+            end,
+            gaps: span.gaps,
+            bad_rows: rows.bad_rows(),
+            times_went_back: rows.times_went_back(),
+            times_repeated: rows.times_repeated(),
+            events,
+        })
+    }
+}
+
 /// Reads the whole log once through a pipeline with `setup`'s monitor.
 pub fn index(
     file: &Path,
@@ -112,56 +297,91 @@ pub fn index(
     setup: &MonitorSetup,
     gases: &GasTable,
 ) -> Result<LogIndex, String> {
-    let mut log = open_log(file, foreign).map_err(|e| e.to_string())?;
+    let mut rows = Rows::open_indexing(file, foreign, u64::MAX)?;
     let mut pipeline = Pipeline::new(Monitor::new(setup.clone()));
     pipeline.set_gases(gases.clone());
     let mut gas = None;
     let mut events = Collect::default();
-    let mut start = None;
-    let mut end: Option<DateTime<Utc>> = None;
-    let mut gaps = Vec::new();
-    let mut intervals: Vec<i64> = Vec::new();
-    let mut bad_rows = 0u64;
-    for item in log.by_ref() {
-        let row = match item {
-            Ok(r) => r,
-            Err(e) => {
-                bad_rows += 1;
-                // A row with a bad cell keeps its other readings.
-                match e.row {
-                    Some(r) => *r,
-                    None => continue,
+    while let Some(row) = rows.next_until(None) {
+        feed_row(&mut pipeline, row, &mut gas, &mut events);
+    }
+    LogIndex::of(&rows, events.0, file)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn at(s: f64) -> DateTime<Utc> {
+        DateTime::<Utc>::UNIX_EPOCH + chrono::Duration::milliseconds((s * 1000.0) as i64)
+    }
+
+    /// The gaps as the index found them before: the median of a sorted
+    /// copy of the first 64 intervals, taken again at every row.
+    fn gaps_by_sorting(times: &[DateTime<Utc>]) -> Vec<(DateTime<Utc>, DateTime<Utc>)> {
+        let mut end: Option<DateTime<Utc>> = None;
+        let mut intervals: Vec<i64> = Vec::new();
+        let mut gaps = Vec::new();
+        for &t in times {
+            if let Some(prev) = end {
+                let dt = (t - prev).num_milliseconds();
+                if intervals.len() < 64 {
+                    intervals.push(dt.max(1));
+                }
+                let mut sorted = intervals.clone();
+                sorted.sort_unstable();
+                let typical = sorted[sorted.len() / 2];
+                if dt > typical * 5 && dt > 5000 {
+                    gaps.push((prev, t));
                 }
             }
-        };
-        start.get_or_insert(row.time);
-        if let Some(prev) = end {
-            let dt = (row.time - prev).num_milliseconds();
-            if intervals.len() < 64 {
-                intervals.push(dt.max(1));
-            }
-            let mut sorted = intervals.clone();
-            sorted.sort_unstable();
-            let typical = sorted[sorted.len() / 2];
-            if dt > typical * 5 && dt > 5000 {
-                gaps.push((prev, row.time));
-            }
+            end = Some(end.map_or(t, |e| e.max(t)));
         }
-        end = Some(end.map_or(row.time, |e| e.max(row.time)));
-        for ev in crate::log::row_events(row, &mut gas) {
-            pipeline.feed(&ev, None, &mut events);
-        }
+        gaps
     }
-    let (Some(start), Some(end)) = (start, end) else {
-        return Err(format!("{}: the log has no rows", file.display()));
-    };
-    Ok(LogIndex {
-        start,
-        end,
-        gaps,
-        bad_rows,
-        times_went_back: log.times_went_back(),
-        times_repeated: log.times_repeated(),
-        events: events.0,
-    })
+
+    #[test]
+    fn only_plain_files_can_be_resumed_in() {
+        let file = std::env::temp_dir().join(format!("rarefy-resume-{}.csv", std::process::id()));
+        std::fs::write(&file, "x\n").expect("write");
+        assert!(Rows::can_resume(&file));
+        let _ = std::fs::remove_file(&file);
+        assert!(!Rows::can_resume(&file));
+        assert!(!Rows::can_resume(Path::new("/dev/null")));
+        assert!(!Rows::can_resume(&std::env::temp_dir()));
+    }
+
+    #[test]
+    fn gaps_are_those_of_the_median_taken_at_every_row() {
+        // Irregular intervals, times going back and repeating, long pauses
+        // early and late.
+        let mut x: u64 = 7;
+        let mut times = Vec::new();
+        let mut t = 0.0;
+        for i in 0..2000 {
+            x = x
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            let r = (x >> 33) % 1000;
+            t += match r {
+                0..=9 => 30.0 + r as f64,
+                10..=19 => -2.0,
+                20..=29 => 0.0,
+                _ => 0.1 + (r % 7) as f64 * 0.35,
+            };
+            if i == 5 {
+                t += 100.0;
+            }
+            times.push(at(t));
+        }
+        let mut span = Span::default();
+        for &t in &times {
+            span.add(t);
+        }
+        let want = gaps_by_sorting(&times);
+        assert!(want.len() > 5, "{}", want.len());
+        assert_eq!(span.gaps, want);
+        assert_eq!(span.start, times.first().copied());
+        assert_eq!(span.end, times.iter().max().copied());
+    }
 }

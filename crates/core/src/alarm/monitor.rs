@@ -182,7 +182,9 @@ struct KineticsKey {
 #[derive(Debug, Clone)]
 struct CachedKinetics {
     key: KineticsKey,
-    pre: Precomputed,
+    /// Shared with the monitor's clones (a replay's keyframes, a frozen
+    /// display): never changed once made.
+    pre: std::sync::Arc<Precomputed>,
 }
 
 /// A view of one alarm for displays.
@@ -205,7 +207,9 @@ pub struct AlarmView<'a> {
 /// The monitor.
 #[derive(Debug, Clone)]
 pub struct Monitor {
-    setup: MonitorSetup,
+    /// Shared with the monitor's clones until an edit (a threshold or a
+    /// hold) changes it.
+    setup: std::sync::Arc<MonitorSetup>,
     tracks: BTreeMap<String, GaugeTrack>,
     temperature_k: Option<f64>,
     /// Kinetics per gas and temperature, worked out once
@@ -341,7 +345,7 @@ impl Monitor {
         };
         Monitor {
             gas,
-            setup,
+            setup: std::sync::Arc::new(setup),
             tracks: BTreeMap::new(),
             temperature_k: None,
             kinetics: Vec::new(),
@@ -787,7 +791,10 @@ impl Monitor {
         if self.kinetics.len() >= KINETICS_CACHED {
             self.kinetics.clear();
         }
-        self.kinetics.push(CachedKinetics { key, pre });
+        self.kinetics.push(CachedKinetics {
+            key,
+            pre: std::sync::Arc::new(pre),
+        });
         Ok((p, self.kinetics.len() - 1))
     }
 
@@ -1461,7 +1468,11 @@ impl Monitor {
         };
         m.rule.test = m_test(&m.rule.test, threshold);
         let (label, q) = (m.rule.label.clone(), m.rule.quantity.clone());
-        if let Some(spec) = self.setup.rules.iter_mut().find(|r| r.rule.id == id) {
+        if let Some(spec) = std::sync::Arc::make_mut(&mut self.setup)
+            .rules
+            .iter_mut()
+            .find(|r| r.rule.id == id)
+        {
             spec.rule.test = m_test(&spec.rule.test, threshold);
         }
         let mut e = self.setting_event(
@@ -1490,7 +1501,11 @@ impl Monitor {
             .ok_or_else(|| format!("no gate `{id}`"))?;
         let old = std::mem::replace(&mut g.gate.hold_s, hold_s);
         let label = g.gate.label.clone();
-        if let Some(spec) = self.setup.gates.iter_mut().find(|g| g.id == id) {
+        if let Some(spec) = std::sync::Arc::make_mut(&mut self.setup)
+            .gates
+            .iter_mut()
+            .find(|g| g.id == id)
+        {
             spec.hold_s = hold_s;
         }
         let show = |s: f64| format!("{} s", crate::units::format_sig(s, 6));

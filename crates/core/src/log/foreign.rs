@@ -856,6 +856,44 @@ impl<R: BufRead> ForeignReader<R> {
         self.header_line
     }
 
+    /// Where the reader is now: after the last line it read.
+    pub fn read_position(&self) -> super::ReadPosition {
+        super::ReadPosition {
+            offset: self.lines.offset(),
+            line: self.lines.number(),
+            last_time: self.last_time,
+            last_offset: self.last_offset,
+            times_went_back: self.went_back,
+            times_repeated: self.repeated,
+            ambiguous_times: self.ambiguous,
+            time_offset_changes: self.offset_changes,
+        }
+    }
+
+    /// A reader of the same log that reads `input` (the log's bytes from
+    /// `at.offset` on) as this reader would have gone on from `at`.
+    pub fn resumed<S: BufRead>(&self, input: S, at: &super::ReadPosition) -> ForeignReader<S> {
+        ForeignReader {
+            lines: Lines::resume(input, at.line, at.offset),
+            name: self.name.clone(),
+            spec: self.spec.clone(),
+            time_cell: self.time_cell,
+            cells: self.cells.clone(),
+            time_header: self.time_header.clone(),
+            columns: self.columns.clone(),
+            meta: self.meta.clone(),
+            last_time: at.last_time,
+            went_back: at.times_went_back,
+            repeated: at.times_repeated,
+            ambiguous: at.ambiguous_times,
+            last_offset: at.last_offset,
+            offset_changes: at.time_offset_changes,
+            header_line: self.header_line,
+            note_cells: self.note_cells.clone(),
+            gas_cell: self.gas_cell,
+        }
+    }
+
     fn parse_time(&mut self, text: &str) -> Result<(DateTime<Utc>, Option<FixedOffset>), String> {
         let bad = |why: String| {
             format!(

@@ -35,15 +35,35 @@ pub(crate) struct Lines<R> {
     inner: R,
     number: u64,
     done: bool,
+    /// Bytes taken from `inner` so far (with the starting offset of a
+    /// resumed reading): where the next line starts in the file.
+    offset: u64,
 }
 
 impl<R: BufRead> Lines<R> {
     pub fn new(inner: R) -> Self {
+        Lines::resume(inner, 0, 0)
+    }
+
+    /// Lines of `inner`, which starts `offset` bytes into the file, after
+    /// line `number` (its lines are numbered from `number + 1`).
+    pub fn resume(inner: R, number: u64, offset: u64) -> Self {
         Lines {
             inner,
-            number: 0,
+            number,
             done: false,
+            offset,
         }
+    }
+
+    /// The number of the last line read (0 before any).
+    pub fn number(&self) -> u64 {
+        self.number
+    }
+
+    /// Where the next line starts, in bytes from the start of the file.
+    pub fn offset(&self) -> u64 {
+        self.offset
     }
 
     /// The next line, or a located error naming the log `name` when reading
@@ -124,6 +144,7 @@ impl<R: BufRead> Lines<R> {
             }
             bytes.extend_from_slice(&chunk[..chunk.len().min(room)]);
             self.inner.consume(used);
+            self.offset += used as u64;
             if end {
                 break;
             }

@@ -44,12 +44,38 @@ pub mod v1;
 
 use std::io::BufRead;
 
+use chrono::{DateTime, FixedOffset, Utc};
+
 pub use foreign::{ForeignLogSpec, ForeignReader, LogSection};
 pub use lines::{Encoding, MAX_LINE_BYTES};
 pub use read::{LogError, LogReader, OffsetChange, Row};
 pub use v1::{Column, ColumnKind, LogMeta, MAGIC};
 
 use crate::sample::ChannelInfo;
+
+/// Where a reader is in its log, and what it carries over from the rows
+/// before: enough for [`LogSource::resume`] to go on reading from there as
+/// if it had read every line before.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ReadPosition {
+    /// Where the next line starts, in bytes from the start of the file.
+    pub offset: u64,
+    /// The number of the last line read (the next one is `line + 1`).
+    pub line: u64,
+    /// The last row's time (the order checks, and foreign times that
+    /// depend on the row before).
+    pub last_time: Option<DateTime<Utc>>,
+    /// The last row's UTC offset, when its time carried one.
+    pub last_offset: Option<FixedOffset>,
+    /// Rows so far whose time went back.
+    pub times_went_back: u64,
+    /// Rows so far whose time repeated.
+    pub times_repeated: u64,
+    /// Rows so far with an ambiguous local time.
+    pub ambiguous_times: u64,
+    /// Rows so far whose UTC offset changed.
+    pub time_offset_changes: u64,
+}
 
 /// Which reader a log is read with.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -98,6 +124,13 @@ pub trait LogSource: Iterator<Item = Result<Row, LogError>> + Send {
     fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
         Some(self.next()?.map(|r| *row = r))
     }
+    /// Where the reader is now: after the last line it read.
+    fn read_position(&self) -> ReadPosition;
+    /// A reader of the same log (same header, columns and settings) that
+    /// reads `input`, the log's bytes from `at.offset` on, as this kind of
+    /// reader would have gone on from `at`: the rows, errors, line numbers
+    /// and counts are those of a reading from the start.
+    fn resume(&self, input: Box<dyn BufRead + Send>, at: &ReadPosition) -> Box<dyn LogSource>;
 }
 
 impl<R: BufRead + Send> LogSource for LogReader<R> {
@@ -128,6 +161,12 @@ impl<R: BufRead + Send> LogSource for LogReader<R> {
     fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
         LogReader::next_row_into(self, row)
     }
+    fn read_position(&self) -> ReadPosition {
+        LogReader::read_position(self)
+    }
+    fn resume(&self, input: Box<dyn BufRead + Send>, at: &ReadPosition) -> Box<dyn LogSource> {
+        Box::new(self.resumed(input, at))
+    }
 }
 
 impl<R: BufRead + Send> LogSource for ForeignReader<R> {
@@ -154,6 +193,12 @@ impl<R: BufRead + Send> LogSource for ForeignReader<R> {
     }
     fn header_line(&self) -> Option<u64> {
         ForeignReader::header_line(self)
+    }
+    fn read_position(&self) -> ReadPosition {
+        ForeignReader::read_position(self)
+    }
+    fn resume(&self, input: Box<dyn BufRead + Send>, at: &ReadPosition) -> Box<dyn LogSource> {
+        Box::new(self.resumed(input, at))
     }
 }
 
@@ -200,13 +245,22 @@ pub fn open_log_from<R: BufRead + Send + 'static>(
 /// index, `record --source file://`) sees the same gas changes.
 pub fn row_events(row: Row, last: &mut Option<String>) -> Vec<crate::sample::SourceEvent> {
     let mut out = Vec::with_capacity(2);
-    if row.gas != *last {
-        last.clone_from(&row.gas);
-        out.push(crate::sample::SourceEvent::Gas {
-            time: row.time,
-            text: row.gas,
-        });
-    }
+    out.extend(gas_event(&row, last));
     out.push(crate::sample::SourceEvent::Samples(row.samples));
     out
+}
+
+/// The first of [`row_events`] alone, without building the list: the
+/// [`SourceEvent::Gas`](crate::sample::SourceEvent::Gas) when the row's
+/// `gas` cell differs from `last` (which it updates). The row's readings
+/// follow it as `SourceEvent::Samples(row.samples)`.
+pub fn gas_event(row: &Row, last: &mut Option<String>) -> Option<crate::sample::SourceEvent> {
+    if row.gas == *last {
+        return None;
+    }
+    last.clone_from(&row.gas);
+    Some(crate::sample::SourceEvent::Gas {
+        time: row.time,
+        text: row.gas.clone(),
+    })
 }

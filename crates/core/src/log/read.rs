@@ -843,5 +843,6 @@ fn parse_cell(text: &str) -> Result<CellValue, String> {
     }
 }
 
+mod resume;
 #[cfg(test)]
 mod tests;
