@@ -9,17 +9,14 @@
 //! function lays out a line.
 
 use std::io::Write;
-use std::sync::mpsc;
-use std::thread::JoinHandle;
 
 use chrono::{DateTime, Utc};
 
+use super::worker::Worker;
 use crate::sample::Status;
 
 /// Rows per hand-over to the writer thread.
 const BATCH_ROWS: usize = 1024;
-/// Batches in flight.
-const BATCHES: usize = 3;
 
 /// A reading's derived values, as the CSV gives them.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -174,30 +171,24 @@ pub fn csv_text(s: &str) -> String {
     }
 }
 
-enum Mode {
-    /// Laid out and written at once.
-    Here(Writer),
-    /// Handed to the writer thread.
-    Thread {
-        full: Option<mpsc::SyncSender<Batch>>,
-        empty: mpsc::Receiver<Batch>,
-        handle: Option<JoinHandle<Writer>>,
-    },
-}
-
 /// Where the CSV goes, and how.
 pub struct CsvOut {
-    mode: Mode,
-    batch: Batch,
+    worker: Worker<Batch, Writer>,
     lengths: usize,
     /// Gauge names given so far (for their indices).
     names: Vec<String>,
-    error: Option<String>,
+}
+
+/// The writer takes a batch: its lines written, the batch emptied.
+fn take(w: &mut Writer, b: &mut Batch) {
+    w.write(b);
+    b.clear();
 }
 
 impl CsvOut {
     /// A CSV to `out` whose rows have one Knudsen number and regime per name
-    /// in `lengths`; on a writer thread when `thread`.
+    /// in `lengths`; on a writer thread when `thread` (and one can be
+    /// started).
     pub fn new(out: Box<dyn Write + Send>, lengths: &[String], thread: bool) -> CsvOut {
         let mut header =
             String::from("time,gauge,status,pressure_pa,number_density_per_m3,mean_free_path_m");
@@ -215,58 +206,10 @@ impl CsvOut {
             line: String::new(),
             error: None,
         };
-        let mode = if thread {
-            let (full_tx, full_rx) = mpsc::sync_channel::<Batch>(BATCHES);
-            let (empty_tx, empty_rx) = mpsc::channel::<Batch>();
-            for _ in 0..BATCHES {
-                // Cannot fail: the receiver is here.
-                let _ = empty_tx.send(Batch::default());
-            }
-            let handle = std::thread::Builder::new()
-                .name("csv writer".into())
-                .spawn(move || {
-                    let mut writer = writer;
-                    for mut b in full_rx.iter() {
-                        writer.write(&b);
-                        b.clear();
-                        // The sink may be done with batches.
-                        let _ = empty_tx.send(b);
-                    }
-                    writer
-                });
-            match handle {
-                Ok(h) => Mode::Thread {
-                    full: Some(full_tx),
-                    empty: empty_rx,
-                    handle: Some(h),
-                },
-                Err(e) => {
-                    return CsvOut {
-                        mode: Mode::Here(Writer {
-                            out: Box::new(std::io::sink()),
-                            header: String::new(),
-                            header_written: true,
-                            lengths: 0,
-                            names: Vec::new(),
-                            line: String::new(),
-                            error: None,
-                        }),
-                        batch: Batch::default(),
-                        lengths: lengths.len(),
-                        names: Vec::new(),
-                        error: Some(format!("cannot start the CSV writer: {e}")),
-                    };
-                }
-            }
-        } else {
-            Mode::Here(writer)
-        };
         CsvOut {
-            mode,
-            batch: Batch::default(),
+            worker: Worker::new(writer, thread.then_some("csv writer"), take),
             lengths: lengths.len(),
             names: Vec::new(),
-            error: None,
         }
     }
 
@@ -276,94 +219,56 @@ impl CsvOut {
             return i;
         }
         self.names.push(name.to_string());
-        self.batch.names.push(name.to_string());
+        self.worker.batch.names.push(name.to_string());
         self.names.len() - 1
     }
 
     /// Adds one line: `record` and its cells, one per length (missing ones
     /// are empty).
     pub fn push(&mut self, record: Record, cells: impl Iterator<Item = LengthCells>) {
-        self.batch.records.push(record);
-        let before = self.batch.cells.len();
-        self.batch.cells.extend(cells.take(self.lengths));
-        self.batch
-            .cells
-            .resize(before + self.lengths, None::<(f64, &'static str)>);
-        if self.batch.records.len() >= BATCH_ROWS {
-            self.send();
-        }
-    }
-
-    /// Hands over (or writes) what is gathered.
-    fn send(&mut self) {
-        match &mut self.mode {
-            Mode::Here(w) => {
-                w.write(&self.batch);
-                self.batch.clear();
-            }
-            Mode::Thread { full, empty, .. } => {
-                // A batch comes back for each one sent, unless the writer
-                // has stopped; then the rows are gathered again here and
-                // its error is read at the end.
-                let Some(tx) = full.as_ref() else {
-                    self.batch.clear();
-                    return;
-                };
-                let next = empty.recv().unwrap_or_default();
-                let b = std::mem::replace(&mut self.batch, next);
-                if tx.send(b).is_err() {
-                    *full = None;
-                }
-            }
+        let b = &mut self.worker.batch;
+        b.records.push(record);
+        let before = b.cells.len();
+        b.cells.extend(cells.take(self.lengths));
+        b.cells.resize(before + self.lengths, None);
+        if b.records.len() >= BATCH_ROWS {
+            self.worker.hand_over();
         }
     }
 
     /// Writes out everything pushed so far.
     pub fn flush(&mut self) {
-        self.batch.flush = true;
-        self.send();
+        self.worker.batch.flush = true;
+        self.worker.hand_over();
     }
 
     /// Writes out the rest and closes; the first write error, if any.
     pub fn finish(&mut self) -> Result<(), String> {
-        self.flush();
-        let writer_error = match &mut self.mode {
-            Mode::Here(w) => w.error.take(),
-            Mode::Thread { full, handle, .. } => {
-                // Closing the channel ends the writer's loop.
-                full.take();
-                match handle.take().map(JoinHandle::join) {
-                    Some(Ok(mut w)) => w.error.take(),
-                    Some(Err(_)) => Some("the CSV writer stopped unexpectedly".into()),
-                    None => None,
-                }
-            }
-        };
-        match self.error.take().or(writer_error) {
-            Some(e) => Err(e),
-            None => Ok(()),
-        }
-    }
-}
-
-impl Drop for CsvOut {
-    fn drop(&mut self) {
-        if let Mode::Thread { full, handle, .. } = &mut self.mode {
-            full.take();
-            if let Some(h) = handle.take() {
-                let _ = h.join();
-            }
+        self.worker.batch.flush = true;
+        self.worker.settle();
+        match self.worker.state_mut() {
+            Some(w) => w.error.take().map_or(Ok(()), Err),
+            None => Err("the CSV writer stopped unexpectedly".into()),
         }
     }
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use std::sync::{Arc, Mutex};
 
+    /// A writer whose bytes the test reads afterwards.
     #[derive(Clone, Default)]
-    struct Shared(Arc<Mutex<Vec<u8>>>);
+    pub(crate) struct Shared(pub(crate) Arc<Mutex<Vec<u8>>>);
+
+    impl Shared {
+        /// Everything written, as text.
+        pub(crate) fn text(&self) -> String {
+            String::from_utf8(self.0.lock().expect("lock").clone()).expect("utf-8")
+        }
+    }
+
     impl Write for Shared {
         fn write(&mut self, b: &[u8]) -> std::io::Result<usize> {
             self.0.lock().expect("lock").extend_from_slice(b);
@@ -424,7 +329,7 @@ mod tests {
             let mut csv = CsvOut::new(Box::new(shared.clone()), &lengths, thread);
             fill(&mut csv, 3 * BATCH_ROWS + 17);
             csv.finish().expect("written");
-            outs.push(String::from_utf8(shared.0.lock().expect("lock").clone()).expect("utf-8"));
+            outs.push(shared.text());
         }
         assert_eq!(outs[0], outs[1]);
         let text = &outs[0];

@@ -24,6 +24,7 @@ pub mod report;
 pub mod sinks;
 pub mod start;
 pub mod tally;
+mod worker;
 
 use chrono::{DateTime, Utc};
 

@@ -769,26 +769,16 @@ mod tests {
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
         let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
         let setup = cfg.monitor_setup(Vec::new());
-        let csv = std::sync::Arc::new(std::sync::Mutex::new(Vec::new()));
-        struct Shared(std::sync::Arc<std::sync::Mutex<Vec<u8>>>);
-        impl Write for Shared {
-            fn write(&mut self, b: &[u8]) -> std::io::Result<usize> {
-                self.0.lock().expect("lock").extend_from_slice(b);
-                Ok(b.len())
-            }
-            fn flush(&mut self) -> std::io::Result<()> {
-                Ok(())
-            }
-        }
+        let csv = crate::pipeline::csv_out::tests::Shared::default();
         let options = ReportOptions {
             plot: true,
             ..ReportOptions::default()
         };
-        let mut sink = ReportSink::new(options, Some(Box::new(Shared(csv.clone()))))
+        let mut sink = ReportSink::new(options, Some(Box::new(csv.clone())))
             .csv_on_own_thread(threads.0)
             .tally_on_own_thread(threads.1);
         let out = walk_with(files, None, &setup, &cfg.gases, &mut sink, mode);
-        let csv = String::from_utf8(csv.lock().expect("lock").clone()).expect("utf-8");
+        let csv = csv.text();
         format!(
             "{:?}\n{:?}\n{:?}\n{:?}\n{:?}\n{:?}\n{csv}",
             sink.summaries(),

@@ -10,11 +10,9 @@
 //! in place, so nothing is allocated per reading. Both ways give the same
 //! results: the same [`Tally::apply`] takes every message.
 
-use std::sync::mpsc;
-use std::thread::JoinHandle;
-
 use chrono::{DateTime, Utc};
 
+use super::worker::Worker;
 use crate::engine::LengthDerived;
 use crate::engine::regime::VacuumRange;
 use crate::report::{GaugeAccumulator, Observation};
@@ -24,8 +22,6 @@ use rarefy_core::engine::gauge::GaugeKind;
 
 /// Messages per hand-over.
 const BATCH: usize = 1024;
-/// Batches in flight.
-const BATCHES: usize = 3;
 
 /// A gauge's source names in its analysis: its id, or for a combined gauge
 /// one per element (they step where they hand over, so no fit may span
@@ -233,42 +229,33 @@ impl Batch {
     }
 }
 
-enum Mode {
-    Here(Box<Tally>),
-    Thread {
-        full: Option<mpsc::SyncSender<Batch>>,
-        empty: mpsc::Receiver<Batch>,
-        handle: Option<JoinHandle<Tally>>,
-    },
-    /// The thread stopped unexpectedly.
-    Lost,
-}
-
 /// The tally, fed here or on a thread of its own.
 pub struct TallyOut {
-    mode: Mode,
-    batch: Batch,
+    worker: Worker<Batch, Tally>,
 }
 
 impl TallyOut {
-    /// An empty tally, fed on a thread of its own when `thread`.
+    /// An empty tally, fed on a thread of its own when `thread` (and one
+    /// can be started).
     pub fn new(thread: bool) -> TallyOut {
-        let mode = if thread { spawn() } else { None };
         TallyOut {
-            mode: mode.unwrap_or_else(|| Mode::Here(Box::default())),
-            batch: Batch::default(),
+            worker: Worker::new(
+                Tally::default(),
+                thread.then_some("report tally"),
+                |t, b| b.apply_to(t),
+            ),
         }
     }
 
     /// Passes on a message with no per-length results.
     pub fn send(&mut self, msg: Msg) {
-        self.batch.msgs.push(msg);
+        self.worker.batch.msgs.push(msg);
         self.maybe_hand_over();
     }
 
     /// Passes on a reading and its per-length results.
     pub fn reading(&mut self, r: Counted, lengths: &[LengthDerived]) {
-        let b = &mut self.batch;
+        let b = &mut self.worker.batch;
         for l in lengths {
             match b.lengths.get_mut(b.used) {
                 Some(slot) => slot.clone_from(l),
@@ -281,92 +268,19 @@ impl TallyOut {
     }
 
     fn maybe_hand_over(&mut self) {
-        if self.batch.msgs.len() >= BATCH {
-            self.hand_over();
-        }
-    }
-
-    fn hand_over(&mut self) {
-        match &mut self.mode {
-            Mode::Here(t) => self.batch.apply_to(t),
-            Mode::Thread { full, empty, .. } => {
-                let sent = full.as_ref().is_some_and(|tx| {
-                    let next = empty.recv().unwrap_or_default();
-                    let b = std::mem::replace(&mut self.batch, next);
-                    tx.send(b).is_ok()
-                });
-                if !sent {
-                    self.batch.msgs.clear();
-                    self.batch.used = 0;
-                    full.take();
-                }
-            }
-            Mode::Lost => {
-                self.batch.msgs.clear();
-                self.batch.used = 0;
-            }
+        if self.worker.batch.msgs.len() >= BATCH {
+            self.worker.hand_over();
         }
     }
 
     /// Takes everything passed on so far into account, and from then on
     /// feeds the tally here. Returns false if the thread was lost (a bug).
     pub fn settle(&mut self) -> bool {
-        self.hand_over();
-        if let Mode::Thread { full, handle, .. } = &mut self.mode {
-            // Closing the channel ends the thread's loop.
-            full.take();
-            self.mode = match handle.take().map(JoinHandle::join) {
-                Some(Ok(t)) => Mode::Here(Box::new(t)),
-                _ => Mode::Lost,
-            };
-        }
-        !matches!(self.mode, Mode::Lost)
+        self.worker.settle()
     }
 
     /// The tally as fed so far; complete after [`TallyOut::settle`].
     pub fn tally(&self) -> Option<&Tally> {
-        match &self.mode {
-            Mode::Here(t) => Some(t),
-            _ => None,
-        }
+        self.worker.state()
     }
-}
-
-impl Drop for TallyOut {
-    fn drop(&mut self) {
-        if let Mode::Thread { full, handle, .. } = &mut self.mode {
-            full.take();
-            if let Some(h) = handle.take() {
-                let _ = h.join();
-            }
-        }
-    }
-}
-
-/// The tally's thread, or `None` when one cannot be started (the tally
-/// is then fed here).
-fn spawn() -> Option<Mode> {
-    let (full_tx, full_rx) = mpsc::sync_channel::<Batch>(BATCHES);
-    let (empty_tx, empty_rx) = mpsc::channel::<Batch>();
-    for _ in 0..BATCHES {
-        // Cannot fail: the receiver is here.
-        let _ = empty_tx.send(Batch::default());
-    }
-    let handle = std::thread::Builder::new()
-        .name("report tally".into())
-        .spawn(move || {
-            let mut tally = Tally::default();
-            for mut b in full_rx.iter() {
-                b.apply_to(&mut tally);
-                // The sink may be done with batches.
-                let _ = empty_tx.send(b);
-            }
-            tally
-        })
-        .ok()?;
-    Some(Mode::Thread {
-        full: Some(full_tx),
-        empty: empty_rx,
-        handle: Some(handle),
-    })
 }

@@ -824,6 +824,20 @@ impl Monitor {
     /// changes without a new reading: a gauge goes stale, an on- or
     /// off-delay runs out, a shelving expires, a gate's hold is complete.
     pub fn next_deadline(&self) -> Option<DateTime<Utc>> {
+        self.deadline_search(None)
+    }
+
+    /// [`Monitor::next_deadline`] when it is at or before `t`, else `None`:
+    /// what [`Monitor::advance_to`] asks at every reading. The stale
+    /// deadlines are then tested by the time since the reading (no date
+    /// arithmetic unless one is due).
+    fn next_deadline_by(&self, t: DateTime<Utc>) -> Option<DateTime<Utc>> {
+        self.deadline_search(Some(t))
+    }
+
+    /// The earliest deadline after the last evaluation (and at or before
+    /// `by`, when given).
+    fn deadline_search(&self, by: Option<DateTime<Utc>>) -> Option<DateTime<Utc>> {
         let stale_ms = (self.setup.stale_after_s * 1000.0 + 1e-6).floor();
         let stale_ms = if stale_ms.is_finite() && stale_ms < 1e15 {
             stale_ms as i64
@@ -831,8 +845,12 @@ impl Monitor {
             1_000_000_000_000_000
         };
         // Stale is "more than stale_after since", so one millisecond past.
-        let stale_at =
-            |t: DateTime<Utc>| t.checked_add_signed(chrono::Duration::milliseconds(stale_ms + 1));
+        let stale_at = |since: DateTime<Utc>| {
+            if by.is_some_and(|t| crate::timefmt::millis_between(since, t) <= stale_ms) {
+                return None;
+            }
+            since.checked_add_signed(chrono::Duration::milliseconds(stale_ms + 1))
+        };
         // Adding the same span keeps the order: the earliest reading goes
         // stale first.
         let tracks = self
@@ -858,51 +876,7 @@ impl Monitor {
             .into_iter()
             .chain(never_seen)
             .chain(machines)
-            .filter(|d| self.evaluated.is_none_or(|e| *d > e))
-            .min()
-    }
-
-    /// [`Monitor::next_deadline`] when it is at or before `t`, else `None`:
-    /// what [`Monitor::advance_to`] asks at every reading. The stale
-    /// deadlines are tested by the time since the reading (no date
-    /// arithmetic unless one is due).
-    fn next_deadline_by(&self, t: DateTime<Utc>) -> Option<DateTime<Utc>> {
-        let stale_ms = (self.setup.stale_after_s * 1000.0 + 1e-6).floor();
-        let stale_ms = if stale_ms.is_finite() && stale_ms < 1e15 {
-            stale_ms as i64
-        } else {
-            1_000_000_000_000_000
-        };
-        // Stale is "more than stale_after since": at since + stale_ms + 1.
-        let due = |since: DateTime<Utc>| {
-            (crate::timefmt::millis_between(since, t) > stale_ms)
-                .then(|| since.checked_add_signed(chrono::Duration::milliseconds(stale_ms + 1)))
-                .flatten()
-        };
-        let tracks = self
-            .tracks
-            .values()
-            .filter_map(|t| t.last_time)
-            .min()
-            .and_then(due);
-        let never_seen = (!self.inputs_seen)
-            .then(|| {
-                self.inputs
-                    .iter()
-                    .any(|r| !self.tracks.contains_key(&r.rule.gauge))
-                    .then(|| self.origin.and_then(due))
-                    .flatten()
-            })
-            .flatten();
-        let machines = self
-            .all_rules()
-            .filter_map(RuleMachine::deadline)
-            .chain(self.gates.iter().filter_map(GateMachine::deadline));
-        tracks
-            .into_iter()
-            .chain(never_seen)
-            .chain(machines)
-            .filter(|d| *d <= t && self.evaluated.is_none_or(|e| *d > e))
+            .filter(|d| by.is_none_or(|t| *d <= t) && self.evaluated.is_none_or(|e| *d > e))
             .min()
     }
 
