@@ -432,6 +432,25 @@ severity = "warning"
     let _ = std::fs::remove_dir_all(&dir);
 }
 
+/// Two replays of the same log, each with its player: the first with
+/// keyframes every 97 rows, the second without any.
+fn with_and_without_keyframes(
+    setup: &ReplaySetup,
+    gauges: &[GaugeInfo],
+) -> (App, Player, App, Player) {
+    let (with, _) = index_every(setup, 97).expect("index");
+    let without = Replay {
+        keyframes: None,
+        ..with.clone()
+    };
+    (
+        app(setup, gauges, &with),
+        Player::open(setup).expect("player"),
+        app(setup, gauges, &without),
+        Player::open(setup).expect("player"),
+    )
+}
+
 /// After an operator's action in a replay, a seek forward plays on from
 /// the playhead (the action's effect carries on) rather than jumping to a
 /// keyframe; a seek back starts over, through a keyframe, as before.
@@ -440,15 +459,7 @@ fn an_operators_action_carries_on_forward() {
     let dir = tempdir("operate");
     let file = v1_log(&dir);
     let (setup, gauges) = demo_setup(&file);
-    let (with, _) = index_every(&setup, 97).expect("index");
-    let without = Replay {
-        keyframes: None,
-        ..with.clone()
-    };
-    let mut a = app(&setup, &gauges, &with);
-    let mut pa = Player::open(&setup).expect("player");
-    let mut b = app(&setup, &gauges, &without);
-    let mut pb = Player::open(&setup).expect("player");
+    let (mut a, mut pa, mut b, mut pb) = with_and_without_keyframes(&setup, &gauges);
     let at = |s: i64| t0() + Duration::seconds(s);
     for (app, p) in [(&mut a, &mut pa), (&mut b, &mut pb)] {
         seek(app, p, &setup, at(300)).expect("seek");
@@ -484,15 +495,7 @@ fn a_log_changed_after_its_index_plays_from_the_start() {
     let dir = tempdir("changed");
     let file = v1_log(&dir);
     let (setup, gauges) = demo_setup(&file);
-    let (with, _) = index_every(&setup, 97).expect("index");
-    let without = Replay {
-        keyframes: None,
-        ..with.clone()
-    };
-    let mut a = app(&setup, &gauges, &with);
-    let mut pa = Player::open(&setup).expect("player");
-    let mut b = app(&setup, &gauges, &without);
-    let mut pb = Player::open(&setup).expect("player");
+    let (mut a, mut pa, mut b, mut pb) = with_and_without_keyframes(&setup, &gauges);
     let at = |s: i64| t0() + Duration::seconds(s);
     // The first rows rewritten with other values, the length kept.
     let text = std::fs::read_to_string(&file).expect("read");
