@@ -374,7 +374,15 @@ impl Player {
             if let Some(ev) = crate::log::gas_event(&row, &mut self.gas) {
                 app.ingest(&ev, None);
             }
-            app.ingest(&SourceEvent::Samples(row.samples), None);
+            // The readings lent to the event and taken back: the row goes
+            // back to be read into again.
+            let mut row = row;
+            let ev = SourceEvent::Samples(std::mem::take(&mut row.samples));
+            app.ingest(&ev, None);
+            if let SourceEvent::Samples(samples) = ev {
+                row.samples = samples;
+            }
+            self.rows.give_back(row);
             n += 1;
         }
         n

@@ -11,6 +11,7 @@
 use std::fs::File;
 use std::io::{BufReader, Seek, SeekFrom};
 use std::path::Path;
+use std::sync::mpsc;
 
 use chrono::{DateTime, Utc};
 
@@ -18,7 +19,7 @@ use super::Pipeline;
 use super::sinks::Collect;
 use crate::alarm::{Event, Monitor, MonitorSetup};
 use crate::gas::GasTable;
-use crate::log::{ForeignLogSpec, LogSource, ReadPosition, Row};
+use crate::log::{ForeignLogSpec, LogError, LogSource, ReadPosition, Row};
 use crate::logfile::open_log;
 use crate::sample::SourceEvent;
 
@@ -76,7 +77,12 @@ pub struct Resume {
 /// A log's rows, one ahead.
 pub struct Rows {
     log: Box<dyn LogSource>,
+    /// An index pass on a machine with two cores: the rows read on a
+    /// second thread (the `log` above is then only the reader's model).
+    ahead: Option<Ahead>,
     next: Option<Row>,
+    /// Rows given back, to be read into again.
+    spare: Vec<Row>,
     bad: u64,
     taken: u64,
     /// While indexing: the span of the rows taken, where the reading stood
@@ -88,24 +94,28 @@ pub struct Rows {
 impl Rows {
     /// Opens the log at its start.
     pub fn open(file: &Path, foreign: Option<&ForeignLogSpec>) -> Result<Rows, String> {
-        Rows::open_as(file, foreign, None)
+        Rows::open_as(file, foreign, None, false)
     }
 
     /// Opens the log at its start for an index pass: the rows' span is
     /// kept ([`Rows::span`]), and the point before the next row when the
-    /// rows taken are a multiple of `every` ([`Rows::resume_point`]).
+    /// rows taken are a multiple of `every` ([`Rows::resume_point`]). On a
+    /// machine with two cores the rows are read ahead on the second
+    /// (a plain file; the same rows and points either way).
     pub fn open_indexing(
         file: &Path,
         foreign: Option<&ForeignLogSpec>,
         every: u64,
     ) -> Result<Rows, String> {
-        Rows::open_as(file, foreign, Some(every.max(1)))
+        let ahead = std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2);
+        Rows::open_as(file, foreign, Some(every.max(1)), ahead)
     }
 
     fn open_as(
         file: &Path,
         foreign: Option<&ForeignLogSpec>,
         every: Option<u64>,
+        ahead: bool,
     ) -> Result<Rows, String> {
         let log = open_log(file, foreign).map_err(|e| e.to_string())?;
         let mut rows = Rows {
@@ -117,11 +127,29 @@ impl Rows {
                 };
                 (Span::default(), at, every)
             }),
+            ahead: None,
             log,
             next: None,
+            spare: Vec::new(),
             bad: 0,
             taken: 0,
         };
+        if ahead {
+            // The reader's model stays here (for its counts); the reading
+            // goes on from the start in a resumed copy on the thread.
+            let input = File::open(file)
+                .map_err(|e| format!("{}: cannot read the log: {e}", file.display()))
+                .and_then(|mut f| {
+                    let at = rows.log.read_position();
+                    f.seek(SeekFrom::Start(at.offset))
+                        .map_err(|e| format!("{}: cannot read the log: {e}", file.display()))?;
+                    Ok(rows.log.resume(Box::new(BufReader::new(f)), &at))
+                });
+            // A log that cannot be reopened (not a plain file) is read here.
+            if let Ok(log) = input {
+                rows.ahead = Ahead::start(log, rows.log.read_position());
+            }
+        }
         rows.advance();
         Ok(rows)
     }
@@ -138,6 +166,8 @@ impl Rows {
     /// start.
     pub fn resume(&mut self, file: &Path, at: &Resume) -> Result<(), String> {
         let cannot = |e: std::io::Error| format!("{}: cannot read the log: {e}", file.display());
+        // Reading ahead ends; the rest is read here.
+        self.ahead = None;
         let mut f = File::open(file).map_err(cannot)?;
         f.seek(SeekFrom::Start(at.read.offset)).map_err(cannot)?;
         self.log = self.log.resume(Box::new(BufReader::new(f)), &at.read);
@@ -151,23 +181,35 @@ impl Rows {
     }
 
     fn advance(&mut self) {
-        self.next = None;
+        if let Some(row) = self.next.take() {
+            self.spare.push(row);
+        }
         if let Some((_, before, every)) = &mut self.indexing
             && self.taken.is_multiple_of(*every)
         {
             *before = Resume {
-                read: self.log.read_position(),
+                read: match &self.ahead {
+                    Some(a) => a.position.clone(),
+                    None => self.log.read_position(),
+                },
                 bad: self.bad,
                 taken: self.taken,
             };
         }
-        for row in self.log.by_ref() {
-            match row {
-                Ok(r) => {
-                    self.next = Some(r);
+        loop {
+            let mut row = self.spare.pop().unwrap_or_default();
+            let item = match &mut self.ahead {
+                Some(a) => a.next_into(&mut row),
+                None => self.log.next_row_into(&mut row),
+            };
+            match item {
+                None => return,
+                Some(Ok(())) => {
+                    self.next = Some(row);
                     return;
                 }
-                Err(e) => {
+                Some(Err(e)) => {
+                    self.spare.push(row);
                     self.bad += 1;
                     // A row with a bad cell keeps its other readings.
                     if let Some(r) = e.row {
@@ -176,6 +218,14 @@ impl Rows {
                     }
                 }
             }
+        }
+    }
+
+    /// Takes back a row [`Rows::next_until`] gave, to read into again
+    /// (no allocation per row).
+    pub fn give_back(&mut self, row: Row) {
+        if self.spare.len() < 64 {
+            self.spare.push(row);
         }
     }
 
@@ -224,12 +274,112 @@ impl Rows {
 
     /// Rows read so far whose time was earlier than the row before's.
     pub fn times_went_back(&self) -> u64 {
-        self.log.times_went_back()
+        match &self.ahead {
+            Some(a) => a.position.times_went_back,
+            None => self.log.times_went_back(),
+        }
     }
 
     /// Rows read so far whose time was the same as the row before's.
     pub fn times_repeated(&self) -> u64 {
-        self.log.times_repeated()
+        match &self.ahead {
+            Some(a) => a.position.times_repeated,
+            None => self.log.times_repeated(),
+        }
+    }
+}
+
+/// Rows read on a second thread, each with the reader's position after
+/// it, in batches that come back to be read into again.
+struct Ahead {
+    full: mpsc::Receiver<AheadBatch>,
+    empty: mpsc::Sender<AheadBatch>,
+    batch: AheadBatch,
+    /// Items of `batch` taken.
+    at: usize,
+    /// The reader's position after the last item taken.
+    position: ReadPosition,
+    /// The reading has ended (the reader's thread is done).
+    done: bool,
+    _thread: std::thread::JoinHandle<()>,
+}
+
+/// Rows per batch read ahead.
+const AHEAD_ROWS: usize = 1024;
+
+#[derive(Default)]
+struct AheadBatch {
+    /// An item: what the reader gave (`None` at the end), and its position
+    /// after it.
+    items: Vec<(Option<Result<(), LogError>>, ReadPosition)>,
+    rows: Vec<Row>,
+}
+
+impl Ahead {
+    /// Reads `log` (which stands at `position`) on a thread of its own;
+    /// `None` when no thread can be started.
+    fn start(mut log: Box<dyn LogSource>, position: ReadPosition) -> Option<Ahead> {
+        let (full_tx, full_rx) = mpsc::sync_channel::<AheadBatch>(2);
+        let (empty_tx, empty_rx) = mpsc::channel::<AheadBatch>();
+        for _ in 0..3 {
+            let _ = empty_tx.send(AheadBatch::default());
+        }
+        let thread = std::thread::Builder::new()
+            .name("log reader".into())
+            .spawn(move || {
+                while let Ok(mut b) = empty_rx.recv() {
+                    b.items.clear();
+                    let mut end = false;
+                    while b.items.len() < AHEAD_ROWS && !end {
+                        let i = b.items.len();
+                        if b.rows.len() == i {
+                            b.rows.push(Row::default());
+                        }
+                        let item = log.next_row_into(&mut b.rows[i]);
+                        end = item.is_none();
+                        b.items.push((item, log.read_position()));
+                    }
+                    if full_tx.send(b).is_err() || end {
+                        return;
+                    }
+                }
+            })
+            .ok()?;
+        Some(Ahead {
+            full: full_rx,
+            empty: empty_tx,
+            batch: AheadBatch::default(),
+            at: 0,
+            position,
+            done: false,
+            _thread: thread,
+        })
+    }
+
+    /// The next item, as [`LogSource::next_row_into`] gives it.
+    fn next_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
+        if self.done {
+            return None;
+        }
+        if self.at == self.batch.items.len() {
+            let next = self.full.recv().unwrap_or_default();
+            let used = std::mem::replace(&mut self.batch, next);
+            let _ = self.empty.send(used);
+            self.at = 0;
+        }
+        let Some((item, position)) = self.batch.items.get_mut(self.at) else {
+            // The reader stopped without an end mark: a bug in it.
+            self.done = true;
+            return None;
+        };
+        self.position.clone_from(position);
+        let item = item.take();
+        if let (Some(Ok(())), Some(r)) = (&item, self.batch.rows.get_mut(self.at)) {
+            std::mem::swap(row, r);
+        }
+        self.at += 1;
+        self.done = item.is_none();
+        item
     }
 }
 
@@ -338,6 +488,75 @@ mod tests {
             end = Some(end.map_or(t, |e| e.max(t)));
         }
         gaps
+    }
+
+    /// An index pass reading ahead on a second thread gives the same rows,
+    /// bad-row and time-order counts, span and resume points as reading
+    /// here, across its batch edges; and a reading resumed at any of those
+    /// points goes on with the same rows.
+    #[test]
+    fn reading_ahead_indexes_as_reading_here() {
+        let file = std::env::temp_dir().join(format!("rarefy-ahead-{}.csv", std::process::id()));
+        let mut text = String::from("# rarefy log v1\ntime,p [Pa],wall [C]\n");
+        for i in 0..(3 * AHEAD_ROWS + 11) {
+            let s = 100 + i / 3 - usize::from(i % 101 == 7) * 2;
+            // Two rows of three share their time.
+            let t = format!(
+                "2026-11-16T06:{:02}:{:02}.{}Z",
+                s / 60 % 60,
+                s % 60,
+                (i % 3).min(1) * 5
+            );
+            match i % 13 {
+                2 => text.push_str(&format!("{t},2.5E-O-5,22\n")),
+                5 => text.push_str("2026-11-16T0\n"),
+                _ => text.push_str(&format!("{t},{}e-3,22.5\n", i + 1)),
+            }
+        }
+        std::fs::write(&file, text).expect("write");
+        let every = 97;
+        let walk = |ahead: bool| {
+            let mut rows = Rows::open_as(&file, None, Some(every), ahead).expect("open");
+            assert_eq!(rows.ahead.is_some(), ahead);
+            let mut seen = Vec::new();
+            let mut points = Vec::new();
+            while let Some(r) = rows.next_until(None) {
+                seen.push(format!(
+                    "{r:?} {} {}",
+                    rows.bad_rows(),
+                    rows.times_went_back()
+                ));
+                if let Some(p) = rows.resume_point() {
+                    points.push(p.clone());
+                }
+                rows.give_back(r);
+            }
+            let counts = (
+                rows.bad_rows(),
+                rows.times_went_back(),
+                rows.times_repeated(),
+            );
+            (seen, points, counts, rows.span().cloned())
+        };
+        let here = walk(false);
+        let ahead = walk(true);
+        assert_eq!(here, ahead);
+        assert!(here.2.0 > 0 && here.2.1 > 0 && here.2.2 > 0, "{:?}", here.2);
+        assert!(here.1.len() > 20);
+        // Resumed at each point (from either), the same rest.
+        for p in ahead.1.iter().step_by(7) {
+            let mut rows = Rows::open(&file, None).expect("open");
+            rows.resume(&file, p).expect("resume");
+            let rest: Vec<String> = std::iter::from_fn(|| rows.next_until(None))
+                .map(|r| format!("{r:?}"))
+                .collect();
+            let expected: Vec<String> = here.0[usize::try_from(p.taken).expect("rows")..]
+                .iter()
+                .map(|l| l.rsplitn(3, ' ').nth(2).unwrap_or_default().to_string())
+                .collect();
+            assert_eq!(rest, expected);
+        }
+        let _ = std::fs::remove_file(&file);
     }
 
     #[test]
