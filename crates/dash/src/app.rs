@@ -348,7 +348,7 @@ impl App {
     /// Seconds of `t` on the history's origin.
     pub fn secs(&self, t: DateTime<Utc>) -> f64 {
         self.origin
-            .map_or(0.0, |o| (t - o).num_milliseconds() as f64 / 1000.0)
+            .map_or(0.0, |o| rarefy_core::timefmt::seconds_between(o, t))
     }
 
     /// Takes one source event. `now` is the live data clock (`None` in
@@ -465,7 +465,7 @@ impl Sink for View<'_> {
                         .map_or(DateTime::<Utc>::UNIX_EPOCH, |s| s.time)
                 });
                 for s in samples {
-                    let t = (s.time - origin).num_milliseconds() as f64 / 1000.0;
+                    let t = rarefy_core::timefmt::seconds_between(origin, s.time);
                     let v = match (s.status(), monitor.track(&s.channel)) {
                         (Status::Ok, Some(track)) if s.unit.is_pressure() => track.pressure_pa,
                         (Status::Ok, Some(track)) => track.temperature_k,

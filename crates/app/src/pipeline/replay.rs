@@ -47,7 +47,7 @@ impl Span {
     pub fn add(&mut self, t: DateTime<Utc>) {
         self.start.get_or_insert(t);
         if let Some(prev) = self.end {
-            let dt = (t - prev).num_milliseconds();
+            let dt = crate::timefmt::millis_between(prev, t);
             if self.first.len() < TYPICAL_OF {
                 let v = dt.max(1);
                 let at = self.first.partition_point(|x| *x < v);
