@@ -1230,14 +1230,29 @@ impl Monitor {
         self.origin.get_or_insert(now);
         self.evaluated = Some(now);
         let mut events = Vec::new();
-        // Rules.
+        // Rules. Rules on the same gauge and quantity one after the other
+        // (thresholds of one pressure) read the input once: the tracks do
+        // not change while the rules are evaluated.
+        let mut last_input: Option<(usize, Input)> = None;
         for i in 0..self.rules.len() {
             let (rule, enable) = (&self.rules[i].0.rule, &self.rules[i].1);
             let enabled = enable
                 .as_ref()
                 .map_or(Check::Holds, |c| self.check(c, now, false, false));
             let input = match enabled {
-                Check::Holds => self.input(&rule.gauge, &rule.quantity, now),
+                Check::Holds => match last_input {
+                    Some((j, input))
+                        if self.rules[j].0.rule.gauge == rule.gauge
+                            && self.rules[j].0.rule.quantity == rule.quantity =>
+                    {
+                        input
+                    }
+                    _ => {
+                        let input = self.input(&rule.gauge, &rule.quantity, now);
+                        last_input = Some((i, input));
+                        input
+                    }
+                },
                 Check::Fails(_) => Input::Disabled,
                 Check::Unknown(_) => Input::Unusable,
             };
