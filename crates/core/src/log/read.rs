@@ -453,26 +453,32 @@ impl<R: BufRead> LogReader<R> {
         let split;
         let mut spans = std::mem::take(&mut self.spans);
         spans.clear();
-        let cells: &[lines::Field] = if text.contains('"') {
+        // One pass finds the commas and whether there is a quote.
+        let mut quoted = false;
+        let mut start = 0;
+        for (i, &b) in text.as_bytes().iter().enumerate() {
+            if b == b',' {
+                spans.push((start, i));
+                start = i + 1;
+            } else if b == b'"' {
+                quoted = true;
+                break;
+            }
+        }
+        let cells: &[lines::Field] = if quoted {
+            spans.clear();
             split = match lines::split(&text, ',') {
                 Ok(c) => c,
                 Err(e) => return Some(Err(at(e.field, e.message))),
             };
             &split
         } else {
-            let mut start = 0;
-            for (i, b) in text.bytes().enumerate() {
-                if b == b',' {
-                    spans.push((start, i));
-                    start = i + 1;
-                }
-            }
             spans.push((start, text.len()));
             &[]
         };
         let cell = |i: usize| -> &str {
             match spans.get(i) {
-                Some(&(a, b)) => text[a..b].trim_matches([' ', '\t']),
+                Some(&(a, b)) => trim_blanks(&text[a..b]),
                 None => cells.get(i).map_or("", |c| c.text.as_str()),
             }
         };
@@ -580,6 +586,18 @@ impl<R: BufRead> LogReader<R> {
             return Some(Ok(()));
         }
         Some(row_result(std::mem::take(out), bad, at).map(|_| ()))
+    }
+}
+
+/// `cell` without the spaces and tabs around it (most cells have none:
+/// two byte tests).
+fn trim_blanks(cell: &str) -> &str {
+    let blank = |b: &u8| *b == b' ' || *b == b'\t';
+    let bytes = cell.as_bytes();
+    if bytes.first().is_some_and(blank) || bytes.last().is_some_and(blank) {
+        cell.trim_matches([' ', '\t'])
+    } else {
+        cell
     }
 }
 
