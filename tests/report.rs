@@ -1050,3 +1050,24 @@ fn a_window_without_readings_is_a_usage_error() {
         "{err}"
     );
 }
+
+/// A CSV that cannot be written in full (a full disk) fails the run, naming
+/// where it went; the other output is not lost.
+#[test]
+fn a_csv_cut_short_fails_the_run_and_names_the_output() {
+    if !Path::new("/dev/full").exists() {
+        return;
+    }
+    let (code, _, err) = report(&[
+        "sample-logs/pumpdown.csv",
+        "--format",
+        "csv",
+        "--out",
+        "/dev/full",
+    ]);
+    assert_eq!(code, 1, "{err}");
+    assert!(
+        err.contains("--out /dev/full: cannot write the CSV"),
+        "{err}"
+    );
+}

@@ -94,8 +94,29 @@ fn output(out: Option<&PathBuf>) -> Result<Box<dyn Write + Send>, CliError> {
         // Buffered: the CSV is written a line at a time.
         None => Ok(Box::new(std::io::BufWriter::with_capacity(
             1 << 16,
-            std::io::stdout(),
+            PipeEnd(std::io::stdout()),
         ))),
+    }
+}
+
+/// Standard output that a reader may stop reading (`| head`): what comes
+/// after is not wanted, so a broken pipe ends the writing quietly instead
+/// of failing the run. Any other error stands.
+struct PipeEnd<W>(W);
+
+impl<W: Write> Write for PipeEnd<W> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        match self.0.write(buf) {
+            Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(buf.len()),
+            r => r,
+        }
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        match self.0.flush() {
+            Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+            r => r,
+        }
     }
 }
 
@@ -250,6 +271,14 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
             "rarefy: … and {} more messages",
             outcome.message_count - outcome.messages.len() as u64
         );
+    }
+    if let Some(e) = &outcome.output_error {
+        // The CSV is the report: one cut short is a failed run.
+        let place = args
+            .out
+            .as_ref()
+            .map_or("stdout".to_string(), |p| format!("--out {}", p.display()));
+        return Err(CliError::Runtime(format!("{place}: {e}")));
     }
     if outcome.rows == 0 {
         return Err(CliError::Usage("no usable rows in the log(s)".into()));

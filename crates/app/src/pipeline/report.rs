@@ -487,6 +487,8 @@ pub struct WalkOutcome {
     pub message_count: u64,
     /// Whether a trip alarm was active at any time.
     pub trip_seen: bool,
+    /// The report's own output (the CSV) could not be written in full.
+    pub output_error: Option<String>,
 }
 
 impl WalkOutcome {
@@ -626,8 +628,7 @@ pub fn walk_with(
         }
     }
     if let Err(e) = sink.finish() {
-        out.messages.push(e);
-        out.message_count += 1;
+        out.output_error = Some(e);
     }
     out.trip_seen = pipeline.monitor().trip_seen();
     out
