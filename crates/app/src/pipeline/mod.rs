@@ -287,15 +287,10 @@ impl Pipeline {
         gas: &mut Option<String>,
         also: &mut dyn Sink,
     ) -> Vec<Event> {
-        let mut events = Vec::new();
-        if row.gas != *gas {
-            gas.clone_from(&row.gas);
-            let change = SourceEvent::Gas {
-                time: row.time,
-                text: row.gas.clone(),
-            };
-            events = self.feed(&change, None, also);
-        }
+        let mut events = match crate::log::gas_event(row, gas) {
+            Some(change) => self.feed(&change, None, also),
+            None => Vec::new(),
+        };
         events.extend(self.feed_samples(&row.samples, also));
         events
     }

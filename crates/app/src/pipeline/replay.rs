@@ -21,7 +21,6 @@ use crate::alarm::{Event, Monitor, MonitorSetup};
 use crate::gas::GasTable;
 use crate::log::{ForeignLogSpec, LogError, LogSource, ReadPosition, Row};
 use crate::logfile::open_log;
-use crate::sample::SourceEvent;
 
 /// How many of the first intervals between rows give the typical one.
 const TYPICAL_OF: usize = 64;
@@ -383,23 +382,6 @@ impl Ahead {
     }
 }
 
-/// Feeds one log row to `pipeline`: its gas change, if it makes one
-/// (`gas`: the last row's gas cell), then its readings. Returns the
-/// events.
-pub fn feed_row(
-    pipeline: &mut Pipeline,
-    row: Row,
-    gas: &mut Option<String>,
-    also: &mut dyn super::Sink,
-) -> Vec<Event> {
-    let mut events = match crate::log::gas_event(&row, gas) {
-        Some(ev) => pipeline.feed(&ev, None, also),
-        None => Vec::new(),
-    };
-    events.extend(pipeline.feed(&SourceEvent::Samples(row.samples), None, also));
-    events
-}
-
 /// What one pass through a log found.
 #[derive(Debug, Clone, PartialEq)]
 pub struct LogIndex {
@@ -453,7 +435,8 @@ pub fn index(
     let mut gas = None;
     let mut events = Collect::default();
     while let Some(row) = rows.next_until(None) {
-        feed_row(&mut pipeline, row, &mut gas, &mut events);
+        pipeline.feed_log_row(&row, &mut gas, &mut events);
+        rows.give_back(row);
     }
     LogIndex::of(&rows, events.0, file)
 }
