@@ -12,8 +12,9 @@
 //! sequence, good and bad, that the log's iterator gives.
 
 use std::sync::mpsc;
+use std::thread::JoinHandle;
 
-use crate::log::{LogError, LogSource, Row};
+use crate::log::{LogError, LogSource, ReadPosition, Row};
 
 /// How a log's rows are read.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -51,91 +52,200 @@ pub type Slot = Result<Row, LogError>;
 /// Reads every row of `log`, in order, giving each to `f`; returns the log
 /// (its counters) at its end.
 pub fn read_rows(
-    mut log: Box<dyn LogSource>,
+    log: Box<dyn LogSource>,
     mode: ReadMode,
     mut f: impl FnMut(&Slot),
 ) -> Box<dyn LogSource> {
-    if let ReadMode::Ahead { batch } = mode
-        && ahead(log.as_mut(), batch.max(1), &mut f)
-    {
-        return log;
-    }
-    // One thread (asked for, or none could be started).
     let mut slot = Ok(Row::default());
-    while fill(log.as_mut(), &mut slot) {
+    let mut log = match mode {
+        ReadMode::Ahead { batch } => match Ahead::start(log, batch, false) {
+            Ok(mut ahead) => {
+                while fill(&mut slot, |row| ahead.next_into(row)) {
+                    f(&slot);
+                }
+                return ahead.finish();
+            }
+            // No thread to be had: read here.
+            Err(log) => log,
+        },
+        ReadMode::SameThread => log,
+    };
+    while fill(&mut slot, |row| log.next_row_into(row)) {
         f(&slot);
     }
     log
 }
 
-/// Reads `log` on a second thread, `batch` rows at a time; false, having
-/// read nothing, when no thread could be started.
-fn ahead(log: &mut dyn LogSource, batch: usize, f: &mut impl FnMut(&Slot)) -> bool {
-    std::thread::scope(|scope| {
-        let (full_tx, full_rx) = mpsc::sync_channel::<Batch>(BATCHES);
+/// A log read on a thread of its own, `batch` rows at a time, taken here
+/// one row at a time as [`LogSource::next_row_into`] gives them. Rows are
+/// read into in place: the batches, with their rows, go back to the
+/// reader to be filled again.
+pub struct Ahead {
+    full: mpsc::Receiver<Batch>,
+    empty: mpsc::Sender<Batch>,
+    batch: Batch,
+    /// Items of `batch` taken.
+    at: usize,
+    /// With positions: the reader's position after the last item taken.
+    position: Option<ReadPosition>,
+    /// The reading has ended.
+    done: bool,
+    thread: Option<JoinHandle<Option<Box<dyn LogSource>>>>,
+}
+
+/// What [`LogSource::next_row_into`] gives for one row.
+type Step = Option<Result<(), LogError>>;
+
+/// Rows read ahead and handed over together.
+#[derive(Default)]
+struct Batch {
+    /// What the reader gave for each row (`None` at the end), and, when
+    /// positions are kept, where it stood after it.
+    items: Vec<(Step, Option<ReadPosition>)>,
+    /// The rows read into, one per item.
+    rows: Vec<Row>,
+}
+
+impl Ahead {
+    /// Starts reading `log` on a thread of its own; with `positions`, the
+    /// reader's position after each row is kept
+    /// ([`Ahead::position`]). Gives the log back when no thread can be
+    /// started.
+    pub fn start(
+        log: Box<dyn LogSource>,
+        batch: usize,
+        positions: bool,
+    ) -> Result<Ahead, Box<dyn LogSource>> {
+        let batch = batch.max(1);
+        let position = positions.then(|| log.read_position());
+        let (full_tx, full_rx) = mpsc::sync_channel::<Batch>(BATCHES - 1);
         let (empty_tx, empty_rx) = mpsc::channel::<Batch>();
+        let (log_tx, log_rx) = mpsc::channel::<Box<dyn LogSource>>();
         for _ in 0..BATCHES {
-            // Cannot fail: the receiver is alive.
+            // Cannot fail: the receiver is here.
             let _ = empty_tx.send(Batch::default());
         }
         let read = move || {
-            // Ends when the log does, or when the caller has gone.
+            // The log comes once the thread runs (so that it stays with the
+            // caller when no thread can be started).
+            let Ok(mut log) = log_rx.recv() else {
+                return None;
+            };
+            // Ends at the end of the log, or when the taker has gone.
             while let Ok(mut b) = empty_rx.recv() {
-                b.used = 0;
-                let mut more = true;
-                while b.used < batch {
-                    if b.slots.len() == b.used {
-                        b.slots.push(Ok(Row::default()));
+                b.items.clear();
+                let mut end = false;
+                while b.items.len() < batch && !end {
+                    let i = b.items.len();
+                    if b.rows.len() == i {
+                        b.rows.push(Row::default());
                     }
-                    if !fill(log, &mut b.slots[b.used]) {
-                        more = false;
-                        break;
-                    }
-                    b.used += 1;
+                    let item = log.next_row_into(&mut b.rows[i]);
+                    end = item.is_none();
+                    b.items.push((item, positions.then(|| log.read_position())));
                 }
-                if full_tx.send(b).is_err() || !more {
+                if full_tx.send(b).is_err() || end {
                     break;
                 }
             }
+            Some(log)
         };
-        let Ok(reader) = std::thread::Builder::new()
+        let thread = match std::thread::Builder::new()
             .name("log reader".into())
-            .spawn_scoped(scope, read)
-        else {
-            return false;
+            .spawn(read)
+        {
+            Ok(t) => t,
+            Err(_) => return Err(log),
         };
-        for b in full_rx.iter() {
-            for slot in &b.slots[..b.used] {
-                f(slot);
-            }
-            // The reader may have finished: then the batch is dropped here.
-            let _ = empty_tx.send(b);
+        if let Err(mpsc::SendError(log)) = log_tx.send(log) {
+            return Err(log);
         }
-        drop(empty_tx);
-        if let Err(panic) = reader.join() {
-            std::panic::resume_unwind(panic);
+        Ok(Ahead {
+            full: full_rx,
+            empty: empty_tx,
+            batch: Batch::default(),
+            at: 0,
+            position,
+            done: false,
+            thread: Some(thread),
+        })
+    }
+
+    /// The next row into `row` (swapped with the one read ahead), as
+    /// [`LogSource::next_row_into`] gives it.
+    pub fn next_into(&mut self, row: &mut Row) -> Step {
+        if self.done {
+            return None;
         }
-        true
-    })
+        if self.at == self.batch.items.len() {
+            // A batch the reader could not send (it stopped) reads as the end.
+            let next = self.full.recv().unwrap_or_default();
+            let used = std::mem::replace(&mut self.batch, next);
+            let _ = self.empty.send(used);
+            self.at = 0;
+        }
+        let Some((item, position)) = self.batch.items.get_mut(self.at) else {
+            self.done = true;
+            return None;
+        };
+        if let (Some(mine), Some(p)) = (self.position.as_mut(), position.as_ref()) {
+            mine.clone_from(p);
+        }
+        let item = item.take();
+        if let (Some(Ok(())), Some(r)) = (&item, self.batch.rows.get_mut(self.at)) {
+            std::mem::swap(row, r);
+        }
+        self.at += 1;
+        self.done = item.is_none();
+        item
+    }
+
+    /// With positions: where the reader stood after the last row taken
+    /// (what [`LogSource::read_position`] would say there).
+    pub fn position(&self) -> Option<&ReadPosition> {
+        self.position.as_ref()
+    }
+
+    /// Stops reading and gives the log back (its counters are those of
+    /// what it read; all of it, once [`Ahead::next_into`] said the end).
+    pub fn finish(mut self) -> Box<dyn LogSource> {
+        // The thread had the log from the start (`Ahead::start` sent it)
+        // and gives it back, unless it panicked, which is passed on.
+        self.stop()
+            .expect("the reader's thread holds the log from its start")
+    }
+
+    fn stop(&mut self) -> Option<Box<dyn LogSource>> {
+        let thread = self.thread.take()?;
+        // The reader stops at its next hand-over.
+        drop(std::mem::replace(&mut self.full, mpsc::sync_channel(0).1));
+        let (closed, _) = mpsc::channel();
+        drop(std::mem::replace(&mut self.empty, closed));
+        match thread.join() {
+            Ok(log) => log,
+            Err(panic) => std::panic::resume_unwind(panic),
+        }
+    }
 }
 
-/// Rows handed over together, with their buffers kept for the next fill.
-#[derive(Default)]
-struct Batch {
-    slots: Vec<Slot>,
-    used: usize,
+impl Drop for Ahead {
+    fn drop(&mut self) {
+        if !std::thread::panicking() {
+            self.stop();
+        }
+    }
 }
 
-/// Reads the next row into `slot`, reusing the row it holds; false at the
-/// end of the log.
-fn fill(log: &mut dyn LogSource, slot: &mut Slot) -> bool {
+/// Reads the next row into `slot` with `next`, reusing the row it holds;
+/// false at the end of the log.
+fn fill(slot: &mut Slot, mut next: impl FnMut(&mut Row) -> Step) -> bool {
     if slot.is_err() {
         *slot = Ok(Row::default());
     }
     let Ok(row) = slot else {
         return false;
     };
-    match log.next_row_into(row) {
+    match next(row) {
         None => false,
         Some(Ok(())) => true,
         Some(Err(e)) => {
@@ -200,6 +310,30 @@ mod tests {
                 assert_eq!(back.times_went_back(), 0);
             }
         }
+    }
+
+    /// A reading ahead stopped before the end (dropped, or finished) ends
+    /// its thread and gives the log back; with positions, each row's is the
+    /// reader's own after it.
+    #[test]
+    fn reading_ahead_stops_early_and_keeps_positions() {
+        let text = sample_log(5000);
+        let mut here = log(&text);
+        let mut ahead = Ahead::start(log(&text), 7, true).unwrap_or_else(|_| panic!("thread"));
+        let mut row = Row::default();
+        for _ in 0..100 {
+            let mut mine = Row::default();
+            let a = ahead.next_into(&mut row).map(|r| r.is_ok());
+            let b = here.next_row_into(&mut mine).map(|r| r.is_ok());
+            assert_eq!(a, b);
+            assert_eq!(ahead.position(), Some(&here.read_position()));
+        }
+        let back = ahead.finish();
+        assert_eq!(back.header_line(), Some(2));
+        let mut dropped = Ahead::start(log(&text), 3, false).unwrap_or_else(|_| panic!("thread"));
+        assert!(dropped.next_into(&mut row).is_some());
+        assert_eq!(dropped.position(), None);
+        drop(dropped);
     }
 
     #[test]

@@ -11,15 +11,15 @@
 use std::fs::File;
 use std::io::{BufReader, Seek, SeekFrom};
 use std::path::Path;
-use std::sync::mpsc;
 
 use chrono::{DateTime, Utc};
 
 use super::Pipeline;
+use super::read_ahead::{Ahead, BATCH_ROWS};
 use super::sinks::Collect;
 use crate::alarm::{Event, Monitor, MonitorSetup};
 use crate::gas::GasTable;
-use crate::log::{ForeignLogSpec, LogError, LogSource, ReadPosition, Row};
+use crate::log::{ForeignLogSpec, LogSource, ReadPosition, Row};
 use crate::logfile::open_log;
 
 /// How many of the first intervals between rows give the typical one.
@@ -146,7 +146,7 @@ impl Rows {
                 });
             // A log that cannot be reopened (not a plain file) is read here.
             if let Ok(log) = input {
-                rows.ahead = Ahead::start(log, rows.log.read_position());
+                rows.ahead = Ahead::start(log, BATCH_ROWS, true).ok();
             }
         }
         rows.advance();
@@ -187,8 +187,8 @@ impl Rows {
             && self.taken.is_multiple_of(*every)
         {
             *before = Resume {
-                read: match &self.ahead {
-                    Some(a) => a.position.clone(),
+                read: match self.ahead.as_ref().and_then(Ahead::position) {
+                    Some(p) => p.clone(),
                     None => self.log.read_position(),
                 },
                 bad: self.bad,
@@ -273,112 +273,18 @@ impl Rows {
 
     /// Rows read so far whose time was earlier than the row before's.
     pub fn times_went_back(&self) -> u64 {
-        match &self.ahead {
-            Some(a) => a.position.times_went_back,
+        match self.ahead.as_ref().and_then(Ahead::position) {
+            Some(p) => p.times_went_back,
             None => self.log.times_went_back(),
         }
     }
 
     /// Rows read so far whose time was the same as the row before's.
     pub fn times_repeated(&self) -> u64 {
-        match &self.ahead {
-            Some(a) => a.position.times_repeated,
+        match self.ahead.as_ref().and_then(Ahead::position) {
+            Some(p) => p.times_repeated,
             None => self.log.times_repeated(),
         }
-    }
-}
-
-/// Rows read on a second thread, each with the reader's position after
-/// it, in batches that come back to be read into again.
-struct Ahead {
-    full: mpsc::Receiver<AheadBatch>,
-    empty: mpsc::Sender<AheadBatch>,
-    batch: AheadBatch,
-    /// Items of `batch` taken.
-    at: usize,
-    /// The reader's position after the last item taken.
-    position: ReadPosition,
-    /// The reading has ended (the reader's thread is done).
-    done: bool,
-    _thread: std::thread::JoinHandle<()>,
-}
-
-/// Rows per batch read ahead.
-const AHEAD_ROWS: usize = 1024;
-
-#[derive(Default)]
-struct AheadBatch {
-    /// An item: what the reader gave (`None` at the end), and its position
-    /// after it.
-    items: Vec<(Option<Result<(), LogError>>, ReadPosition)>,
-    rows: Vec<Row>,
-}
-
-impl Ahead {
-    /// Reads `log` (which stands at `position`) on a thread of its own;
-    /// `None` when no thread can be started.
-    fn start(mut log: Box<dyn LogSource>, position: ReadPosition) -> Option<Ahead> {
-        let (full_tx, full_rx) = mpsc::sync_channel::<AheadBatch>(2);
-        let (empty_tx, empty_rx) = mpsc::channel::<AheadBatch>();
-        for _ in 0..3 {
-            let _ = empty_tx.send(AheadBatch::default());
-        }
-        let thread = std::thread::Builder::new()
-            .name("log reader".into())
-            .spawn(move || {
-                while let Ok(mut b) = empty_rx.recv() {
-                    b.items.clear();
-                    let mut end = false;
-                    while b.items.len() < AHEAD_ROWS && !end {
-                        let i = b.items.len();
-                        if b.rows.len() == i {
-                            b.rows.push(Row::default());
-                        }
-                        let item = log.next_row_into(&mut b.rows[i]);
-                        end = item.is_none();
-                        b.items.push((item, log.read_position()));
-                    }
-                    if full_tx.send(b).is_err() || end {
-                        return;
-                    }
-                }
-            })
-            .ok()?;
-        Some(Ahead {
-            full: full_rx,
-            empty: empty_tx,
-            batch: AheadBatch::default(),
-            at: 0,
-            position,
-            done: false,
-            _thread: thread,
-        })
-    }
-
-    /// The next item, as [`LogSource::next_row_into`] gives it.
-    fn next_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
-        if self.done {
-            return None;
-        }
-        if self.at == self.batch.items.len() {
-            let next = self.full.recv().unwrap_or_default();
-            let used = std::mem::replace(&mut self.batch, next);
-            let _ = self.empty.send(used);
-            self.at = 0;
-        }
-        let Some((item, position)) = self.batch.items.get_mut(self.at) else {
-            // The reader stopped without an end mark: a bug in it.
-            self.done = true;
-            return None;
-        };
-        self.position.clone_from(position);
-        let item = item.take();
-        if let (Some(Ok(())), Some(r)) = (&item, self.batch.rows.get_mut(self.at)) {
-            std::mem::swap(row, r);
-        }
-        self.at += 1;
-        self.done = item.is_none();
-        item
     }
 }
 
@@ -481,7 +387,7 @@ mod tests {
     fn reading_ahead_indexes_as_reading_here() {
         let file = std::env::temp_dir().join(format!("rarefy-ahead-{}.csv", std::process::id()));
         let mut text = String::from("# rarefy log v1\ntime,p [Pa],wall [C]\n");
-        for i in 0..(3 * AHEAD_ROWS + 11) {
+        for i in 0..(3 * BATCH_ROWS + 11) {
             let s = 100 + i / 3 - usize::from(i % 101 == 7) * 2;
             // Two rows of three share their time.
             let t = format!(
