@@ -156,7 +156,15 @@ impl ReportSink {
         self
     }
 
-    fn write_csv(&mut self, obs: &Observation, id: &str, monitor: &Monitor) {
+    /// `derived`: the engine's results for the reading, when its pressure
+    /// is usable.
+    fn write_csv(
+        &mut self,
+        obs: &Observation,
+        id: &str,
+        derived: Option<&crate::engine::Derived>,
+        monitor: &Monitor,
+    ) {
         let lengths = &monitor.setup().lengths;
         if let Some(out) = self.csv_to.take() {
             let names: Vec<String> = lengths.iter().map(|l| l.name.clone()).collect();
@@ -165,10 +173,6 @@ impl ReportSink {
         let Some(csv) = self.csv.as_mut() else {
             return;
         };
-        let derived = monitor
-            .track(id)
-            .and_then(|t| t.derived.as_ref())
-            .filter(|_| obs.pressure_pa.is_some());
         let gauge = csv.gauge(id);
         let record = Record {
             time: obs.time,
@@ -379,7 +383,7 @@ impl Sink for ReportSink {
                             .filter(|t| t.is_pressure)
                             .map(|t| t.exposure.langmuir()),
                     };
-                    self.write_csv(&obs, &s.channel, monitor);
+                    self.write_csv(&obs, &s.channel, derived, monitor);
                     let i = match self.index.get(&s.channel) {
                         Some(i) => *i,
                         None => {
