@@ -22,6 +22,7 @@ pub mod quantity;
 pub mod rate_window;
 pub mod rule;
 pub mod syntax;
+pub mod track_map;
 
 #[cfg(test)]
 mod chamber_tests;

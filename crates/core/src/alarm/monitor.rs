@@ -2,8 +2,6 @@
 //! kinetics, exposure, rate of change), drives the alarm rules and gates from
 //! it, and turns their transitions into [`Event`]s. Pure: data time only.
 
-use std::collections::BTreeMap;
-
 use chrono::{DateTime, Utc};
 
 use super::chamber::{AUTO, ChamberPressure, ChamberSource};
@@ -16,6 +14,7 @@ use super::rule::{
     AlarmState, Deadband, Input, Rule, RuleMachine, Severity, Test, Transition, after,
 };
 use super::syntax::{CondTest, Condition};
+use super::track_map::TrackMap;
 use crate::engine::exposure::{Exposure, ExposureStart};
 use crate::engine::gauge::GaugeSettings;
 use crate::engine::mixture::Mixture;
@@ -210,7 +209,7 @@ pub struct Monitor {
     /// Shared with the monitor's clones until an edit (a threshold or a
     /// hold) changes it.
     setup: std::sync::Arc<MonitorSetup>,
-    tracks: BTreeMap<String, GaugeTrack>,
+    tracks: TrackMap<GaugeTrack>,
     temperature_k: Option<f64>,
     /// Kinetics per gas and temperature, worked out once
     /// ([`Precomputed`]).
@@ -221,6 +220,9 @@ pub struct Monitor {
     /// deadline to look for).
     inputs_seen: bool,
     rules: Vec<(RuleMachine, Option<Condition>)>,
+    /// Per rule, the first rule on the same gauge and quantity (its input
+    /// is read once per evaluation).
+    rule_input: Vec<usize>,
     inputs: Vec<RuleMachine>,
     gates: Vec<GateMachine>,
     links: Vec<Link>,
@@ -310,6 +312,19 @@ impl Monitor {
             .iter()
             .map(|r| (RuleMachine::new(r.rule.clone()), r.enable.clone()))
             .collect();
+        let rule_input = setup
+            .rules
+            .iter()
+            .map(|r| {
+                setup
+                    .rules
+                    .iter()
+                    .position(|o| {
+                        o.rule.gauge == r.rule.gauge && o.rule.quantity == r.rule.quantity
+                    })
+                    .unwrap_or(0)
+            })
+            .collect();
         // A bad-input alarm for every configured gauge and every gauge a
         // rule or gate looks at.
         let mut watched: Vec<String> = setup
@@ -346,12 +361,13 @@ impl Monitor {
         Monitor {
             gas,
             setup: std::sync::Arc::new(setup),
-            tracks: BTreeMap::new(),
+            tracks: TrackMap::default(),
             temperature_k: None,
             kinetics: Vec::new(),
             advanced_to: None,
             inputs_seen: false,
             rules,
+            rule_input,
             inputs,
             gates,
             links: Vec::new(),
@@ -853,31 +869,53 @@ impl Monitor {
         };
         // Adding the same span keeps the order: the earliest reading goes
         // stale first.
-        let tracks = self
-            .tracks
-            .values()
-            .filter_map(|t| t.last_time)
-            .min()
-            .and_then(stale_at);
-        let never_seen = (!self.inputs_seen)
-            .then(|| {
-                self.inputs
-                    .iter()
-                    .any(|r| !self.tracks.contains_key(&r.rule.gauge))
-                    .then(|| self.origin.and_then(stale_at))
-                    .flatten()
-            })
-            .flatten();
+        let mut earliest: Option<DateTime<Utc>> = None;
+        for t in self.tracks.values() {
+            if let Some(l) = t.last_time
+                && earliest.is_none_or(|e| l < e)
+            {
+                earliest = Some(l);
+            }
+        }
+        let first = earliest.and_then(stale_at);
+        let mut best = None;
+        let mut consider = |d: DateTime<Utc>| {
+            if by.is_none_or(|t| d <= t)
+                && self.evaluated.is_none_or(|e| d > e)
+                && best.is_none_or(|b| d < b)
+            {
+                best = Some(d);
+            }
+        };
+        if let Some(d) = first {
+            consider(d);
+        }
+        if !self.inputs_seen
+            && self
+                .inputs
+                .iter()
+                .any(|r| !self.tracks.contains_key(&r.rule.gauge))
+            && let Some(d) = self.origin.and_then(stale_at)
+        {
+            consider(d);
+        }
         let machines = self
-            .all_rules()
-            .filter_map(RuleMachine::deadline)
-            .chain(self.gates.iter().filter_map(GateMachine::deadline));
-        tracks
-            .into_iter()
-            .chain(never_seen)
-            .chain(machines)
-            .filter(|d| by.is_none_or(|t| *d <= t) && self.evaluated.is_none_or(|e| *d > e))
-            .min()
+            .rules
+            .iter()
+            .map(|(r, _)| r)
+            .chain(&self.inputs)
+            .chain(self.links.iter().map(|l| &l.machine));
+        machines.for_each(|r| {
+            if let Some(d) = r.deadline() {
+                consider(d);
+            }
+        });
+        for g in &self.gates {
+            if let Some(d) = g.deadline() {
+                consider(d);
+            }
+        }
+        best
     }
 
     fn never_seen_stale(&self) -> bool {
@@ -893,9 +931,10 @@ impl Monitor {
             .filter(|_| s.unit.is_pressure())
             .map(|v| self.corrected_at(&s.channel, v));
         let start = self.setup.physics.exposure_start;
-        if !self.tracks.contains_key(&s.channel) {
-            self.tracks
-                .insert(s.channel.clone(), GaugeTrack::new(start));
+        let (_, made) = self
+            .tracks
+            .get_or_insert_with(&s.channel, || GaugeTrack::new(start));
+        if made {
             self.inputs_seen = self
                 .inputs
                 .iter()
@@ -978,7 +1017,7 @@ impl Monitor {
             .iter()
             .filter(|g| g.model.kind.is_gas_dependent());
         let mut out: Vec<String> = independent.chain(dependent).map(|g| g.id.clone()).collect();
-        for (id, t) in &self.tracks {
+        for (id, t) in self.tracks.iter() {
             if t.is_pressure && !out.contains(id) {
                 out.push(id.clone());
             }
@@ -1239,17 +1278,13 @@ impl Monitor {
             let enabled = enable
                 .as_ref()
                 .map_or(Check::Holds, |c| self.check(c, now, false, false));
+            let same_input = self.rule_input[i];
             let input = match enabled {
                 Check::Holds => match last_input {
-                    Some((j, input))
-                        if self.rules[j].0.rule.gauge == rule.gauge
-                            && self.rules[j].0.rule.quantity == rule.quantity =>
-                    {
-                        input
-                    }
+                    Some((j, input)) if j == same_input => input,
                     _ => {
                         let input = self.input(&rule.gauge, &rule.quantity, now);
-                        last_input = Some((i, input));
+                        last_input = Some((same_input, input));
                         input
                     }
                 },

@@ -327,7 +327,11 @@ impl RuleMachine {
 
     /// The next data time at which this machine changes without a new
     /// reading: a running on- or off-delay runs out, or a shelving expires.
+    #[inline]
     pub fn deadline(&self) -> Option<DateTime<Utc>> {
+        if self.pending_since.is_none() && self.state != AlarmState::Shelved {
+            return None;
+        }
         let delay = if self.condition {
             self.rule.off_delay_s
         } else {
@@ -398,8 +402,36 @@ impl RuleMachine {
         }
     }
 
+    /// Whether the state is one the condition as it is keeps (an update
+    /// with the same condition changes nothing).
+    fn settled(&self) -> bool {
+        match (self.state, self.condition) {
+            (AlarmState::Normal | AlarmState::ReturnedUnacknowledged, c) => !c,
+            (AlarmState::Unacknowledged | AlarmState::Acknowledged, c) => c || self.rule.latching,
+            (AlarmState::Shelved | AlarmState::SuppressedByDesign, _) => false,
+        }
+    }
+
     /// Feeds one input at data time `time`; returns the state changes.
     pub fn update(&mut self, time: DateTime<Utc>, input: Input) -> Vec<Transition> {
+        // Nearly every reading: a value on the side of the threshold the
+        // condition is already on, no delay running, in a state the
+        // condition keeps. Only the last value changes.
+        if let Input::Value(_) = input
+            && matches!(self.rule.test, Test::Above(_) | Test::Below(_))
+            && self.pending_since.is_none()
+            && self.since.is_some()
+            && self.settled()
+            && self.raw(input) == Some(self.condition)
+        {
+            self.last_value = Some(input);
+            return Vec::new();
+        }
+        self.update_in_full(time, input)
+    }
+
+    /// [`RuleMachine::update`] without its shortcut for the common case.
+    pub(super) fn update_in_full(&mut self, time: DateTime<Utc>, input: Input) -> Vec<Transition> {
         let mut out = Vec::new();
         if self.since.is_none() {
             self.since = Some(time);

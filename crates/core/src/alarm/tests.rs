@@ -873,3 +873,78 @@ fn a_gate_condition_with_a_deadband_keeps_holding_inside_it() {
         "without a deadband the wobble restarts the hold"
     );
 }
+
+mod shortcut {
+    //! [`RuleMachine::update`] takes a shortcut for a value that changes
+    //! nothing; any sequence of inputs and operator actions must give the
+    //! same transitions and states as the update in full.
+    use super::*;
+    use proptest::prelude::*;
+
+    #[derive(Debug, Clone)]
+    enum Step {
+        Feed(Input),
+        Acknowledge,
+        Shelve(u8),
+    }
+
+    fn input() -> impl Strategy<Value = Input> {
+        prop_oneof![
+            8 => (0.0f64..3.0).prop_map(Input::Value),
+            1 => Just(Input::OverRange),
+            1 => Just(Input::UnderRange),
+            1 => Just(Input::Unusable),
+            1 => Just(Input::Disabled),
+        ]
+    }
+
+    fn step() -> impl Strategy<Value = Step> {
+        prop_oneof![
+            12 => input().prop_map(Step::Feed),
+            1 => Just(Step::Acknowledge),
+            1 => (1u8..6).prop_map(Step::Shelve),
+        ]
+    }
+
+    proptest! {
+        #[test]
+        fn same_as_the_update_in_full(
+            above in any::<bool>(),
+            deadband in prop_oneof![Just(Deadband::None), (0.0f64..0.5).prop_map(Deadband::Fraction)],
+            on_delay in prop_oneof![Just(0.0), 0.0f64..3.0],
+            off_delay in prop_oneof![Just(0.0), 0.0f64..3.0],
+            latching in any::<bool>(),
+            steps in prop::collection::vec((step(), 0u16..2500), 1..80),
+        ) {
+            let mut r = rule(if above { Test::Above(1.5) } else { Test::Below(1.5) });
+            r.deadband = deadband;
+            r.on_delay_s = on_delay;
+            r.off_delay_s = off_delay;
+            r.latching = latching;
+            let mut fast = RuleMachine::new(r.clone());
+            let mut full = RuleMachine::new(r);
+            let mut ms = 0i64;
+            for (step, dt) in steps {
+                ms += i64::from(dt);
+                let now = t(0.0) + Duration::milliseconds(ms);
+                let (a, b) = match step {
+                    Step::Feed(i) => (fast.update(now, i), full.update_in_full(now, i)),
+                    Step::Acknowledge => (
+                        fast.acknowledge(now, "op").unwrap_or_default(),
+                        full.acknowledge(now, "op").unwrap_or_default(),
+                    ),
+                    Step::Shelve(s) => {
+                        let until = now + Duration::seconds(i64::from(s));
+                        (
+                            fast.shelve(now, until, "op").unwrap_or_default(),
+                            full.shelve(now, until, "op").unwrap_or_default(),
+                        )
+                    }
+                };
+                prop_assert_eq!(a, b);
+                prop_assert_eq!(format!("{fast:?}"), format!("{full:?}"));
+                prop_assert_eq!(fast.deadline(), full.deadline());
+            }
+        }
+    }
+}

@@ -518,18 +518,56 @@ impl Precomputed {
         out.impingement_per_m2_s = u.impingement_per_m2_s * p;
         out.monolayer_time_s = u.monolayer_time_s / p;
         out.vacuum_range = self.edition.classify(p);
-        out.species.clone_from(&u.species);
-        for s in &mut out.species {
-            s.partial_pressure_pa *= p;
-            s.number_density_per_m3 *= p;
-            s.mean_free_path_m /= p;
-            s.impingement_per_m2_s *= p;
-            s.monolayer_time_s /= p;
+        // The names stay as they are when the gas is the same (they are
+        // compared, not copied, on every reading).
+        out.species.truncate(u.species.len());
+        for (i, unit) in u.species.iter().enumerate() {
+            let s = match out.species.get_mut(i) {
+                Some(s) => {
+                    if s.gas != unit.gas {
+                        s.gas.clone_from(&unit.gas);
+                    }
+                    s
+                }
+                None => {
+                    out.species.push(unit.clone());
+                    &mut out.species[i]
+                }
+            };
+            // Every field named: a new one must be decided here.
+            *s = SpeciesDerived {
+                gas: std::mem::take(&mut s.gas),
+                fraction: unit.fraction,
+                mean_speed_m_per_s: unit.mean_speed_m_per_s,
+                diameter_m: unit.diameter_m,
+                partial_pressure_pa: unit.partial_pressure_pa * p,
+                number_density_per_m3: unit.number_density_per_m3 * p,
+                mean_free_path_m: unit.mean_free_path_m / p,
+                impingement_per_m2_s: unit.impingement_per_m2_s * p,
+                monolayer_time_s: unit.monolayer_time_s / p,
+            };
         }
-        out.lengths.clone_from(&u.lengths);
-        for l in &mut out.lengths {
-            l.knudsen = regime::knudsen(out.mean_free_path_m, l.length_m);
-            l.regime = self.bounds.classify(l.knudsen);
+        out.lengths.truncate(u.lengths.len());
+        for (i, unit) in u.lengths.iter().enumerate() {
+            let l = match out.lengths.get_mut(i) {
+                Some(l) => {
+                    if l.name != unit.name {
+                        l.name.clone_from(&unit.name);
+                    }
+                    l
+                }
+                None => {
+                    out.lengths.push(unit.clone());
+                    &mut out.lengths[i]
+                }
+            };
+            let knudsen = regime::knudsen(out.mean_free_path_m, unit.length_m);
+            *l = LengthDerived {
+                name: std::mem::take(&mut l.name),
+                length_m: unit.length_m,
+                knudsen,
+                regime: self.bounds.classify(knudsen),
+            };
         }
         out.warnings.clear();
         if p > regime::ABOVE_ATMOSPHERIC_PA {

@@ -475,3 +475,41 @@ fn kinetics_at_another_temperature_equal_a_fresh_derivation() {
         assert_eq!(same, b, "at {temp} K");
     }
 }
+
+#[test]
+fn results_refreshed_in_place_equal_fresh_ones() {
+    // One `Derived` refreshed by readings of gases with fewer, more and
+    // other species and lengths, warnings and none, must equal a fresh
+    // derivation every time.
+    let t = GasTable::builtin();
+    let physics = Physics::default();
+    let two = [
+        NamedLength::new("bore", 0.4),
+        NamedLength::new("pipe", 0.016),
+    ];
+    let one = [NamedLength::new("gap", 2e-3)];
+    let cases: Vec<(Mixture, &[NamedLength], f64, f64)> = vec![
+        (pure("N2"), &two, 295.0, 1e-3),
+        (pure("N2"), &two, 295.0, 2.5e5),
+        (
+            Mixture::parse("H2=0.6,H2O=0.3,N2=0.1", &t).expect("mix"),
+            &one,
+            300.0,
+            1e-6,
+        ),
+        (
+            Mixture::parse("H2O=0.5,Ar=0.5", &t).expect("mix"),
+            &[],
+            250.0,
+            3e3,
+        ),
+        (pure("Ar"), &two, 77.0, 0.5),
+        (pure("N2"), &one, 295.0, 1e-9),
+    ];
+    let mut out = Precomputed::new(295.0, &pure("He"), &[], &physics).derive(1.0);
+    for (mix, lengths, temp, p) in &cases {
+        let pre = Precomputed::new(*temp, mix, lengths, &physics);
+        pre.derive_into(*p, &mut out);
+        assert_eq!(out, pre.derive(*p), "{mix:?} at {p} Pa");
+    }
+}
