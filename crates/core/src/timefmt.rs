@@ -155,16 +155,34 @@ pub fn push_rfc3339(out: &mut String, t: DateTime<Utc>) {
 /// measuring data time, without chrono's general duration arithmetic on
 /// every reading. Two times of the same day (nearly every pair a log
 /// gives) differ by their times of day alone.
+#[inline]
 pub fn seconds_between(a: DateTime<Utc>, b: DateTime<Utc>) -> f64 {
     millis_between(a, b) as f64 / 1000.0
 }
 
 /// Whole milliseconds from `a` to `b`, truncated toward zero, as
 /// `(b - a).num_milliseconds()` gives them.
+#[inline(always)]
 pub fn millis_between(a: DateTime<Utc>, b: DateTime<Utc>) -> i64 {
-    use chrono::{Datelike, Timelike};
+    use chrono::Timelike;
     // The UTC fields straight (a `DateTime`'s own accessors go through its
     // offset every call).
+    let (a_utc, b_utc) = (a.naive_utc(), b.naive_utc());
+    let (ta, tb) = (a_utc.time(), b_utc.time());
+    let (na, nb) = (ta.nanosecond(), tb.nanosecond());
+    // Two times of one day, neither in a leap second: nearly every call.
+    if a_utc.date() != b_utc.date() || na >= 1_000_000_000 || nb >= 1_000_000_000 {
+        return millis_between_days(a, b);
+    }
+    let secs =
+        i64::from(tb.num_seconds_from_midnight()) - i64::from(ta.num_seconds_from_midnight());
+    (secs * 1_000_000_000 + i64::from(nb) - i64::from(na)) / 1_000_000
+}
+
+/// [`millis_between`] of two days, or with a leap second.
+#[inline(never)]
+fn millis_between_days(a: DateTime<Utc>, b: DateTime<Utc>) -> i64 {
+    use chrono::{Datelike, Timelike};
     let (a_utc, b_utc) = (a.naive_utc(), b.naive_utc());
     let (ta, tb) = (a_utc.time(), b_utc.time());
     let (na, nb) = (ta.nanosecond(), tb.nanosecond());

@@ -5,7 +5,6 @@
 //! each reading. One pass; memory does not grow with the log (the events and
 //! the first messages are kept).
 
-use std::collections::BTreeMap;
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
@@ -18,6 +17,7 @@ use super::tally::{Counted, Element, Labels, Msg, TallyOut};
 use super::{Item, Pipeline, Sink};
 use crate::alarm::quantity::Quantity;
 use crate::alarm::rule::Test;
+use crate::alarm::track_map::{TrackMap, same_id};
 use crate::alarm::{Event, Monitor, MonitorSetup};
 use crate::gas::GasTable;
 use crate::log::{ForeignLogSpec, LogError, LogSource};
@@ -72,13 +72,13 @@ pub struct ReportSink {
     /// Each gauge's source names in its analyzer (in the order first seen).
     labels: Vec<Labels>,
     /// With `gauge` given: the channels the log has besides it.
-    other_channels: std::collections::BTreeSet<String>,
+    other_channels: TrackMap<()>,
     /// A reading of a channel the report covers was seen (in the time
     /// window or not).
     gauge_seen: bool,
     /// Time origin of the analyses' seconds: the first reading.
     origin: Option<DateTime<Utc>>,
-    index: BTreeMap<String, usize>,
+    index: TrackMap<usize>,
     events: Vec<Event>,
     notes: Vec<String>,
     /// Where the CSV goes, until its first row.
@@ -100,9 +100,9 @@ impl ReportSink {
             chamber_started: false,
             pressure_gauges: 0,
             labels: Vec::new(),
-            other_channels: std::collections::BTreeSet::new(),
+            other_channels: TrackMap::default(),
             gauge_seen: false,
-            index: BTreeMap::new(),
+            index: TrackMap::default(),
             events: Vec::new(),
             notes: Vec::new(),
             csv_to: csv,
@@ -268,7 +268,7 @@ impl ReportSink {
     /// With [`ReportOptions::gauge`] given: the log's other channels (to
     /// say what there is when the gauge is not among them).
     pub fn other_channels(&self) -> impl Iterator<Item = &str> {
-        self.other_channels.iter().map(String::as_str)
+        self.other_channels.iter().map(|(id, _)| id.as_str())
     }
 
     /// The window's start ([`ReportOptions::from`]).
@@ -315,7 +315,7 @@ impl ReportSink {
             return;
         }
         // The gauge was counted just before (this row, in the window).
-        let Some(&gauge) = self.index.get(&*s.channel) else {
+        let Some(&gauge) = self.index.get(&s.channel) else {
             return;
         };
         if !self.chamber_started {
@@ -356,11 +356,9 @@ impl Sink for ReportSink {
             Item::Row(samples) => {
                 for s in samples {
                     if let Some(g) = &self.options.gauge
-                        && *g != s.channel
+                        && !same_id(g, &s.channel)
                     {
-                        if !self.other_channels.contains(&s.channel) {
-                            self.other_channels.insert(s.channel.clone());
-                        }
+                        self.other_channels.get_or_insert_with(&s.channel, || ());
                         continue;
                     }
                     self.gauge_seen = true;
@@ -402,7 +400,8 @@ impl Sink for ReportSink {
                             if let Some(plot) = self.plot.as_mut() {
                                 plot.add_gauge(monitor.setup());
                             }
-                            self.index.insert(s.channel.clone(), self.labels.len() - 1);
+                            self.index
+                                .get_or_insert_with(&s.channel, || self.labels.len() - 1);
                             self.labels.len() - 1
                         }
                     };

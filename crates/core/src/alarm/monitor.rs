@@ -899,17 +899,21 @@ impl Monitor {
         {
             consider(d);
         }
-        let machines = self
-            .rules
-            .iter()
-            .map(|(r, _)| r)
-            .chain(&self.inputs)
-            .chain(self.links.iter().map(|l| &l.machine));
-        machines.for_each(|r| {
+        for (r, _) in &self.rules {
             if let Some(d) = r.deadline() {
                 consider(d);
             }
-        });
+        }
+        for r in &self.inputs {
+            if let Some(d) = r.deadline() {
+                consider(d);
+            }
+        }
+        for l in &self.links {
+            if let Some(d) = l.machine.deadline() {
+                consider(d);
+            }
+        }
         for g in &self.gates {
             if let Some(d) = g.deadline() {
                 consider(d);
@@ -931,7 +935,7 @@ impl Monitor {
             .filter(|_| s.unit.is_pressure())
             .map(|v| self.corrected_at(&s.channel, v));
         let start = self.setup.physics.exposure_start;
-        let (_, made) = self
+        let (at, made) = self
             .tracks
             .get_or_insert_with(&s.channel, || GaugeTrack::new(start));
         if made {
@@ -940,7 +944,7 @@ impl Monitor {
                 .iter()
                 .all(|r| self.tracks.contains_key(&r.rule.gauge));
         }
-        let Some(track) = self.tracks.get_mut(&s.channel) else {
+        let Some(track) = self.tracks.at_mut(at) else {
             return;
         };
         track.last_time = Some(s.time);
@@ -1291,6 +1295,9 @@ impl Monitor {
                 Check::Fails(_) => Input::Disabled,
                 Check::Unknown(_) => Input::Unusable,
             };
+            if self.rules[i].0.quiet(input) {
+                continue;
+            }
             let ts = self.rules[i].0.update(now, input);
             for t in ts {
                 events.push(self.alarm_event(&self.rules[i].0.rule, &t));
@@ -1322,6 +1329,9 @@ impl Monitor {
                 (None, true) => Input::Value(0.0),
                 (None, false) => Input::Unusable,
             };
+            if self.inputs[i].quiet(input) {
+                continue;
+            }
             let ts = self.inputs[i].update(now, input);
             for t in ts {
                 let mut e = self.alarm_event(&self.inputs[i].rule, &t);

@@ -327,11 +327,18 @@ impl RuleMachine {
 
     /// The next data time at which this machine changes without a new
     /// reading: a running on- or off-delay runs out, or a shelving expires.
-    #[inline]
+    #[inline(always)]
     pub fn deadline(&self) -> Option<DateTime<Utc>> {
+        // Asked of every machine at every reading; nearly always none.
         if self.pending_since.is_none() && self.state != AlarmState::Shelved {
             return None;
         }
+        self.running_deadline()
+    }
+
+    /// [`RuleMachine::deadline`] while a delay or a shelving runs.
+    #[inline(never)]
+    fn running_deadline(&self) -> Option<DateTime<Utc>> {
         let delay = if self.condition {
             self.rule.off_delay_s
         } else {
@@ -404,6 +411,7 @@ impl RuleMachine {
 
     /// Whether the state is one the condition as it is keeps (an update
     /// with the same condition changes nothing).
+    #[inline]
     fn settled(&self) -> bool {
         match (self.state, self.condition) {
             (AlarmState::Normal | AlarmState::ReturnedUnacknowledged, c) => !c,
@@ -417,17 +425,38 @@ impl RuleMachine {
         // Nearly every reading: a value on the side of the threshold the
         // condition is already on, no delay running, in a state the
         // condition keeps. Only the last value changes.
-        if let Input::Value(_) = input
-            && matches!(self.rule.test, Test::Above(_) | Test::Below(_))
-            && self.pending_since.is_none()
-            && self.since.is_some()
-            && self.settled()
-            && self.raw(input) == Some(self.condition)
-        {
-            self.last_value = Some(input);
+        if self.quiet(input) {
             return Vec::new();
         }
         self.update_in_full(time, input)
+    }
+
+    /// The shortcut of [`RuleMachine::update`]: whether `input` changes
+    /// nothing but the last value (which it then records). Nearly every
+    /// reading: a value on the side of the threshold the condition is
+    /// already on, no delay running, in a state the condition keeps.
+    #[inline]
+    pub fn quiet(&mut self, input: Input) -> bool {
+        let Input::Value(v) = input else {
+            return false;
+        };
+        if self.pending_since.is_some() || self.since.is_none() || !self.settled() {
+            return false;
+        }
+        // As `raw`, for the two tests a value decides.
+        let active = self.condition;
+        let raw = match self.rule.test {
+            Test::Above(t) if active => v > self.rule.deadband.clear_level(t, true),
+            Test::Above(t) => v > t,
+            Test::Below(t) if active => v < self.rule.deadband.clear_level(t, false),
+            Test::Below(t) => v < t,
+            _ => return false,
+        };
+        if raw != active {
+            return false;
+        }
+        self.last_value = Some(input);
+        true
     }
 
     /// [`RuleMachine::update`] without its shortcut for the common case.

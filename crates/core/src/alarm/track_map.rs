@@ -4,6 +4,29 @@
 //! string ordering a tree needs, and a clone (a replay keyframe) is the
 //! size of its channels, not of a tree node.
 
+/// Whether two channel ids are the same: lengths first, then short ids
+/// word by word (a comparison of the whole bytes is a call into the C
+/// library; ids are a few bytes long and compared several times a reading).
+#[inline(always)]
+pub fn same_id(a: &str, b: &str) -> bool {
+    let (a, b) = (a.as_bytes(), b.as_bytes());
+    let n = a.len();
+    if n != b.len() {
+        return false;
+    }
+    fn word<const W: usize>(s: &[u8], at: usize) -> [u8; W] {
+        let mut w = [0u8; W];
+        w.copy_from_slice(&s[at..at + W]);
+        w
+    }
+    match n {
+        // Two words that overlap cover every byte.
+        8..=16 => word::<8>(a, 0) == word::<8>(b, 0) && word::<8>(a, n - 8) == word::<8>(b, n - 8),
+        4..=7 => word::<4>(a, 0) == word::<4>(b, 0) && word::<4>(a, n - 4) == word::<4>(b, n - 4),
+        _ => a == b,
+    }
+}
+
 /// Values by string id, in id order (as a `BTreeMap<String, V>` iterates).
 #[derive(Debug, Clone)]
 pub struct TrackMap<V> {
@@ -22,9 +45,13 @@ impl<V> TrackMap<V> {
     /// Where `id` is.
     #[inline]
     fn position(&self, id: &str) -> Option<usize> {
-        self.entries
-            .iter()
-            .position(|(k, _)| k.len() == id.len() && k.as_bytes() == id.as_bytes())
+        self.entries.iter().position(|(k, _)| same_id(k, id))
+    }
+
+    /// The value at `i` (from [`TrackMap::get_or_insert_with`]'s order).
+    #[inline]
+    pub fn at_mut(&mut self, i: usize) -> Option<&mut V> {
+        self.entries.get_mut(i).map(|(_, v)| v)
     }
 
     /// The value of `id`.
@@ -45,15 +72,15 @@ impl<V> TrackMap<V> {
         self.position(id).is_some()
     }
 
-    /// The value of `id`, made by `make` when there is none; the flag says
-    /// whether it was made.
-    pub fn get_or_insert_with(&mut self, id: &str, make: impl FnOnce() -> V) -> (&mut V, bool) {
+    /// Where the value of `id` is ([`TrackMap::at_mut`]), made by `make`
+    /// when there is none; the flag says whether it was made.
+    pub fn get_or_insert_with(&mut self, id: &str, make: impl FnOnce() -> V) -> (usize, bool) {
         match self.position(id) {
-            Some(i) => (&mut self.entries[i].1, false),
+            Some(i) => (i, false),
             None => {
                 let at = self.entries.partition_point(|(k, _)| k.as_str() < id);
                 self.entries.insert(at, (id.to_string(), make()));
-                (&mut self.entries[at].1, true)
+                (at, true)
             }
         }
     }
@@ -86,6 +113,14 @@ mod tests {
     use std::collections::BTreeMap;
 
     proptest! {
+        /// Ids compare as strings do, at every length and difference.
+        #[test]
+        fn ids_compare_as_strings(a in "[ab]{0,20}", b in "[ab]{0,20}", c in "\\PC{0,20}") {
+            prop_assert_eq!(super::same_id(&a, &b), a == b);
+            prop_assert_eq!(super::same_id(&a, &c), a == c);
+            prop_assert!(super::same_id(&c, &c.clone()));
+        }
+
         /// Any sequence of inserts and removals leaves the same contents,
         /// in the same order, as a `BTreeMap`.
         #[test]
@@ -94,9 +129,9 @@ mod tests {
             let mut reference = BTreeMap::new();
             for (n, (insert, id)) in ops.into_iter().enumerate() {
                 if insert {
-                    let (v, made) = map.get_or_insert_with(&id, || n);
+                    let (at, made) = map.get_or_insert_with(&id, || n);
                     prop_assert_eq!(made, !reference.contains_key(&id));
-                    *v += 1000;
+                    *map.at_mut(at).expect("where it is") += 1000;
                     *reference.entry(id.clone()).or_insert(n) += 1000;
                 } else {
                     prop_assert_eq!(map.remove(&id), reference.remove(&id));
