@@ -451,6 +451,30 @@ fn is_bidi_or_invisible(c: char) -> bool {
     matches!(c as u32, 0x200b..=0x200f | 0x202a..=0x202e | 0x2066..=0x2069 | 0xfeff)
 }
 
+/// Whether two ids (of channels, gases, lengths) are the same: lengths
+/// first, then short ids word by word (a comparison of the whole bytes is a
+/// call into the C library; ids are a few bytes long and compared several
+/// times a reading).
+#[inline(always)]
+pub fn same_id(a: &str, b: &str) -> bool {
+    let (a, b) = (a.as_bytes(), b.as_bytes());
+    let n = a.len();
+    if n != b.len() {
+        return false;
+    }
+    fn word<const W: usize>(s: &[u8], at: usize) -> [u8; W] {
+        let mut w = [0u8; W];
+        w.copy_from_slice(&s[at..at + W]);
+        w
+    }
+    match n {
+        // Two words that overlap cover every byte.
+        8..=16 => word::<8>(a, 0) == word::<8>(b, 0) && word::<8>(a, n - 8) == word::<8>(b, n - 8),
+        4..=7 => word::<4>(a, 0) == word::<4>(b, 0) && word::<4>(a, n - 4) == word::<4>(b, n - 4),
+        _ => a == b,
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

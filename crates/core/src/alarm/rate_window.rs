@@ -1,5 +1,8 @@
 //! The rate of change of one gauge over a sliding window of data time: the
 //! least-squares slopes of p(t) and log10 p(t), updated in O(1) per reading.
+//! The logarithmic fit runs on ln p and is converted once per slope
+//! (d log10 p/dt = (d ln p/dt) / ln 10): the natural logarithm costs a
+//! third of the decimal one, at every reading.
 //!
 //! Means and co-moments follow Welford's update for a point in and its
 //! reverse for a point out (x̄ₙ₋₁ = x̄ₙ − (x − x̄ₙ)/(n − 1),
@@ -12,7 +15,7 @@ use std::collections::VecDeque;
 /// Removals between recomputations of the sums from the points.
 pub const REFRESH: u32 = 1024;
 
-/// Running co-moments of (t, p) and (t, log10 p).
+/// Running co-moments of (t, p) and (t, ln p).
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 struct Sums {
     n: f64,
@@ -147,7 +150,7 @@ impl RateWindow {
     /// Adds a reading (time s, pressure Pa, in time order) and drops those
     /// older than `window_s` before it.
     pub fn push(&mut self, t: f64, p: f64, window_s: f64) {
-        let l = p.log10();
+        let l = p.ln();
         self.points.push_back((t, p, l));
         self.sums.add(t, p, l);
         // Under a checkpoint, note what to undo.
@@ -185,7 +188,7 @@ impl RateWindow {
         }
         Some((
             self.sums.stp / self.sums.stt,
-            self.sums.stl / self.sums.stt * 60.0,
+            self.sums.stl / self.sums.stt * 60.0 / std::f64::consts::LN_10,
         ))
     }
 

@@ -4,28 +4,7 @@
 //! string ordering a tree needs, and a clone (a replay keyframe) is the
 //! size of its channels, not of a tree node.
 
-/// Whether two channel ids are the same: lengths first, then short ids
-/// word by word (a comparison of the whole bytes is a call into the C
-/// library; ids are a few bytes long and compared several times a reading).
-#[inline(always)]
-pub fn same_id(a: &str, b: &str) -> bool {
-    let (a, b) = (a.as_bytes(), b.as_bytes());
-    let n = a.len();
-    if n != b.len() {
-        return false;
-    }
-    fn word<const W: usize>(s: &[u8], at: usize) -> [u8; W] {
-        let mut w = [0u8; W];
-        w.copy_from_slice(&s[at..at + W]);
-        w
-    }
-    match n {
-        // Two words that overlap cover every byte.
-        8..=16 => word::<8>(a, 0) == word::<8>(b, 0) && word::<8>(a, n - 8) == word::<8>(b, n - 8),
-        4..=7 => word::<4>(a, 0) == word::<4>(b, 0) && word::<4>(a, n - 4) == word::<4>(b, n - 4),
-        _ => a == b,
-    }
-}
+pub use crate::sample::same_id;
 
 /// Values by string id, in id order (as a `BTreeMap<String, V>` iterates).
 #[derive(Debug, Clone)]

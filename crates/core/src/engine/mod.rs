@@ -524,7 +524,7 @@ impl Precomputed {
         for (i, unit) in u.species.iter().enumerate() {
             let s = match out.species.get_mut(i) {
                 Some(s) => {
-                    if s.gas != unit.gas {
+                    if !crate::sample::same_id(&s.gas, &unit.gas) {
                         s.gas.clone_from(&unit.gas);
                     }
                     s
@@ -551,7 +551,7 @@ impl Precomputed {
         for (i, unit) in u.lengths.iter().enumerate() {
             let l = match out.lengths.get_mut(i) {
                 Some(l) => {
-                    if l.name != unit.name {
+                    if !crate::sample::same_id(&l.name, &unit.name) {
                         l.name.clone_from(&unit.name);
                     }
                     l
