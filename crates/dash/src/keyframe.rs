@@ -13,6 +13,9 @@
 //! once, so it goes when the replay ends), and a keyframe keeps only where
 //! each ring starts and ends and its last, still open, bucket. Rings move
 //! forward, so a bucket is written once however many keyframes hold it.
+//! The monitor's rate windows (every reading of the last window, per
+//! gauge: most of a monitor's size) go to the same file, a keyframe
+//! keeping the rest of the monitor ([`PackedMonitor`]).
 //!
 //! Keyframes need a plain file to reopen at a byte offset; a log read
 //! from a pipe or device, or a spill file that cannot be made, gives none,
@@ -29,7 +32,7 @@ use chrono::{DateTime, Utc};
 use super::app::{App, EVENTS_KEPT, GaugeInfo};
 use super::history::{Bucket, History, Series};
 use super::run::{Player, ReplaySetup};
-use crate::alarm::{AlarmState, Event, Monitor};
+use crate::alarm::{AlarmState, Event, Monitor, PackedMonitor};
 use crate::sample::ChannelUnit;
 use rarefy_app::pipeline::replay::{LogIndex, Resume, Rows};
 use rarefy_app::pipeline::{Counts, Item, Sink};
@@ -70,7 +73,10 @@ struct Keyframe {
     at: Resume,
     /// The last row's gas cell.
     gas: Option<String>,
-    monitor: Monitor,
+    /// The monitor, its rate windows' points in the spill file at
+    /// `points` (offset, length): most of its size.
+    monitor: PackedMonitor,
+    points: (u64, u64),
     counts: Counts,
     /// The app's row and sample counters.
     rows: u64,
@@ -177,6 +183,22 @@ impl Spill {
             });
         }
         Ok(marks)
+    }
+
+    /// Appends `bytes`; gives where they are (offset, length).
+    fn put(&mut self, bytes: &[u8]) -> std::io::Result<(u64, u64)> {
+        self.file.write_all_at(bytes, self.len)?;
+        let at = (self.len, bytes.len() as u64);
+        self.len += bytes.len() as u64;
+        Ok(at)
+    }
+
+    /// The bytes [`Spill::put`] put at `at`.
+    fn get(&self, at: (u64, u64)) -> std::io::Result<Vec<u8>> {
+        let len = usize::try_from(at.1).map_err(std::io::Error::other)?;
+        let mut bytes = vec![0; len];
+        self.file.read_exact_at(&mut bytes, at.0)?;
+        Ok(bytes)
     }
 
     /// The history as it stood at `marks`.
@@ -320,12 +342,18 @@ impl Keyframes {
             .spill
             .history(&k.history)
             .map_err(|e| format!("cannot read the replay's spill file: {e}"))?;
+        let monitor = self
+            .0
+            .spill
+            .get(k.points)
+            .map_err(|e| format!("cannot read the replay's spill file: {e}"))
+            .and_then(|bytes| k.monitor.unpack(&bytes))?;
         player.rows.resume(&setup.file, &k.at)?;
         player.gas.clone_from(&k.gas);
         if rewound {
             super::run::reset(app, setup);
         }
-        app.pipeline.restore(k.monitor.clone(), k.counts);
+        app.pipeline.restore(monitor, k.counts);
         app.history = history;
         app.origin = k.origin;
         for (id, unit) in &self.0.channels[..k.channels] {
@@ -431,12 +459,15 @@ pub fn index(setup: &ReplaySetup, every: u64) -> Result<(LogIndex, Option<Keyfra
         ) else {
             continue;
         };
-        match s.mark(&app.history) {
-            Ok(history) => frames.push(Keyframe {
+        let mut bytes = Vec::new();
+        let monitor = app.monitor().pack(&mut bytes);
+        match s.mark(&app.history).and_then(|h| Ok((h, s.put(&bytes)?))) {
+            Ok((history, points)) => frames.push(Keyframe {
                 latest,
                 at: at.clone(),
                 gas: player.gas.clone(),
-                monitor: app.monitor().clone(),
+                monitor,
+                points,
                 counts: app.pipeline.counts(),
                 rows: app.counters.rows,
                 samples: app.counters.samples,

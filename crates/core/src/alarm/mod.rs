@@ -33,5 +33,5 @@ pub use chamber::{AUTO, ChamberPressure, ChamberSource};
 pub use event::{Actor, Change, EVENT_VERSION, Event, EventKind, Operation};
 pub use gas_step::{GasChoice, GasOrigin, GasStep};
 pub use gate::{Gate, GateMachine, GateState};
-pub use monitor::{Monitor, MonitorSetup, RuleSpec};
+pub use monitor::{Monitor, MonitorSetup, PackedMonitor, RuleSpec};
 pub use rule::{AlarmState, Rule, RuleMachine, Severity};

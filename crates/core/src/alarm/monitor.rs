@@ -186,6 +186,27 @@ struct CachedKinetics {
     pre: std::sync::Arc<Precomputed>,
 }
 
+/// A copy of a [`Monitor`] without its rate windows' points, which went to
+/// bytes kept elsewhere ([`Monitor::pack`]): most of a monitor's size, and
+/// nothing a stored copy needs until it is used again.
+#[derive(Debug, Clone)]
+pub struct PackedMonitor(Monitor);
+
+impl PackedMonitor {
+    /// The monitor again, with the points [`Monitor::pack`] wrote to
+    /// `points`.
+    pub fn unpack(&self, mut points: &[u8]) -> Result<Monitor, String> {
+        let mut m = self.0.clone();
+        for (_, t) in m.tracks.iter_mut() {
+            t.window.read_points(&mut points)?;
+        }
+        if !points.is_empty() {
+            return Err("the rate windows' points are longer than the monitor's".into());
+        }
+        Ok(m)
+    }
+}
+
 /// A view of one alarm for displays.
 #[derive(Debug, Clone)]
 pub struct AlarmView<'a> {
@@ -457,6 +478,16 @@ impl Monitor {
         for g in &mut self.gates {
             g.restart_hold();
         }
+    }
+
+    /// A copy of the monitor with its rate windows' points appended to
+    /// `points` instead ([`PackedMonitor::unpack`] gives it back).
+    pub fn pack(&self, points: &mut Vec<u8>) -> PackedMonitor {
+        let mut m = self.clone();
+        for (_, t) in m.tracks.iter_mut() {
+            t.window.write_points(points);
+        }
+        PackedMonitor(m)
     }
 
     /// The setup it runs with.

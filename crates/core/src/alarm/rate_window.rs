@@ -192,6 +192,43 @@ impl RateWindow {
         ))
     }
 
+    /// Appends the points to `out` (their count, then each as three
+    /// little-endian `f64`s) and lets go of them: the window keeps its sums
+    /// and must get them back ([`RateWindow::read_points`]) before use.
+    pub(crate) fn write_points(&mut self, out: &mut Vec<u8>) {
+        out.extend_from_slice(&(self.points.len() as u64).to_le_bytes());
+        for (t, p, l) in std::mem::take(&mut self.points) {
+            for v in [t, p, l] {
+                out.extend_from_slice(&v.to_bits().to_le_bytes());
+            }
+        }
+    }
+
+    /// Takes back the points [`RateWindow::write_points`] wrote, from the
+    /// front of `bytes` (advanced past them).
+    pub(crate) fn read_points(&mut self, bytes: &mut &[u8]) -> Result<(), String> {
+        fn word(bytes: &mut &[u8]) -> Result<u64, String> {
+            let (w, rest) = bytes
+                .split_first_chunk::<8>()
+                .ok_or("the rate window's points are cut short")?;
+            *bytes = rest;
+            Ok(u64::from_le_bytes(*w))
+        }
+        let n = word(bytes)?;
+        if n > (bytes.len() / 24) as u64 {
+            return Err("the rate window's points are cut short".into());
+        }
+        let mut points = VecDeque::with_capacity(n as usize);
+        for _ in 0..n {
+            let t = f64::from_bits(word(bytes)?);
+            let p = f64::from_bits(word(bytes)?);
+            let l = f64::from_bits(word(bytes)?);
+            points.push_back((t, p, l));
+        }
+        self.points = points;
+        Ok(())
+    }
+
     /// Points in the window.
     pub fn len(&self) -> usize {
         self.points.len()

@@ -948,3 +948,43 @@ mod shortcut {
         }
     }
 }
+
+#[test]
+fn a_packed_monitor_unpacks_to_the_same_and_goes_on_the_same() {
+    // Two pressure gauges and a thermocouple, the windows full and
+    // sliding; packed and unpacked, the copy must equal the original and
+    // give the same events, rates and kinetics on the readings after.
+    let wall = ChannelUnit::Temperature(TemperatureUnit::C);
+    let mut m = Monitor::new(setup(
+        vec![rule(Test::Below(5e-3)), rule(Test::Above(2e-2))],
+        vec![],
+    ));
+    let reading = |i: usize| {
+        let s = i as f64 * 0.1;
+        vec![
+            Sample::ok(t(s), "g", 1e-2 * (-s / 40.0).exp(), MBAR),
+            Sample::ok(t(s), "h", 2e-2 * (-s / 30.0).exp(), MBAR),
+            Sample::ok(t(s), "w", 22.0 + (i % 7) as f64 / 16.0, wall),
+        ]
+    };
+    for i in 0..400 {
+        m.push(&reading(i));
+    }
+    let mut points = Vec::new();
+    let packed = m.pack(&mut points);
+    // Both windows (10 s at 10 Hz) went to the bytes.
+    assert!(points.len() >= 2 * 100 * 24, "{} bytes", points.len());
+    let mut copy = packed.unpack(&points).expect("unpacks");
+    assert_eq!(format!("{copy:?}"), format!("{m:?}"));
+    for i in 400..700 {
+        let (a, b) = (m.push(&reading(i)), copy.push(&reading(i)));
+        assert_eq!(a, b, "events at reading {i}");
+    }
+    assert_eq!(format!("{copy:?}"), format!("{m:?}"));
+    // Bytes cut short or too long are an error, not a wrong window.
+    assert!(packed.unpack(&points[..points.len() - 8]).is_err());
+    let mut longer = points.clone();
+    longer.extend_from_slice(&[0; 8]);
+    assert!(packed.unpack(&longer).is_err());
+    assert!(packed.unpack(&[]).is_err());
+}
