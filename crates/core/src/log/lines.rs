@@ -134,7 +134,7 @@ impl<R: BufRead> Lines<R> {
                 break;
             }
             any = true;
-            let (chunk, used, end) = match avail.iter().position(|&b| b == b'\n') {
+            let (chunk, used, end) = match memchr::memchr(b'\n', avail) {
                 Some(i) => (&avail[..i], i + 1, true),
                 None => (avail, avail.len(), false),
             };

@@ -39,6 +39,7 @@
 
 pub mod foreign;
 mod lines;
+mod number;
 pub mod read;
 pub mod v1;
 

@@ -11,8 +11,10 @@ use std::fmt;
 use std::io::BufRead;
 
 use super::lines::{self, Encoding, Lines, RawLine};
+use super::number::parse_f64_prefix;
 use super::v1::{Column, ColumnKind, LogMeta, MAGIC};
 use crate::sample::{ChannelInfo, ChannelUnit, Fault, Reading, Sample, Status};
+use crate::timefmt::Rfc3339Days;
 
 /// A problem reading a log, located by file, line and column.
 #[derive(Debug, Clone, PartialEq)]
@@ -165,6 +167,17 @@ pub struct LogReader<R> {
     spans: Vec<(usize, usize)>,
     /// The line being read (kept for its allocation).
     raw: RawLine,
+    /// The date of the last row time read (most rows share it).
+    days: Rfc3339Days,
+    /// The channel cells of the row being read, before the row is written
+    /// out (kept for its allocation).
+    readings: Vec<Option<Reading>>,
+    /// Tests: every row read the general way (to compare with).
+    #[cfg(test)]
+    general_only: bool,
+    /// Tests: rows read straight from their bytes.
+    #[cfg(test)]
+    plain_rows: u64,
 }
 
 impl<R: BufRead> LogReader<R> {
@@ -185,6 +198,12 @@ impl<R: BufRead> LogReader<R> {
             header_line: 0,
             spans: Vec::new(),
             raw: RawLine::empty(),
+            days: Rfc3339Days::default(),
+            readings: Vec::new(),
+            #[cfg(test)]
+            general_only: false,
+            #[cfg(test)]
+            plain_rows: 0,
         };
         r.read_magic()?;
         loop {
@@ -428,6 +447,158 @@ impl<R: BufRead> LogReader<R> {
     }
 
     fn row(&mut self, raw: &RawLine, out: &mut Row) -> Option<Result<(), LogError>> {
+        // The first line may carry a byte-order mark; a cut line is an error.
+        #[cfg(test)]
+        let general_only = self.general_only;
+        #[cfg(not(test))]
+        let general_only = false;
+        if raw.number > 1
+            && !raw.too_long
+            && !general_only
+            && let Some((time, gas)) = self.plain_row(&raw.bytes)
+        {
+            self.end_plain_row(raw.number, time, gas, out);
+            #[cfg(test)]
+            {
+                self.plain_rows += 1;
+            }
+            return Some(Ok(()));
+        }
+        self.general_row(raw, out)
+    }
+
+    /// Reads the common row straight from its bytes, each cell parsed where
+    /// it starts: as many cells as the header, none quoted or padded with
+    /// blanks, a time in the fixed layout, and every channel cell empty, a
+    /// number read exactly by [`parse_f64_prefix`] or a fault's status word
+    /// (gas and derived cells valid UTF-8). Gives the time and the gas cell,
+    /// the channel cells in `self.readings`; `None` (no state but those
+    /// buffers changed) for any other row, which
+    /// [`LogReader::general_row`] reads. Every byte of a row read here is
+    /// ASCII or in a cell checked to be UTF-8, so the line is valid UTF-8,
+    /// as the general path requires.
+    fn plain_row<'t>(
+        &mut self,
+        bytes: &'t [u8],
+    ) -> Option<(DateTime<FixedOffset>, Option<&'t str>)> {
+        self.readings.clear();
+        // The time: at least 20 bytes, then the first comma (a quote or
+        // blank in it is refused by the time parser).
+        let end = match bytes.get(20..)?.iter().position(|&b| b == b',') {
+            Some(i) => 20 + i,
+            None => bytes.len(),
+        };
+        let time = self.days.parse_fast(&bytes[..end])?;
+        let mut gas = None;
+        // Where the cell after the last comma read starts (past the end
+        // when the line has ended).
+        let mut at = end + 1;
+        for column in &self.columns {
+            let rest = bytes.get(at..)?;
+            let (cell, used) = match column.kind {
+                ColumnKind::Channel(_) => match parse_f64_prefix(rest) {
+                    Some((v, used)) => (Some(Reading::Value(v)), used),
+                    None => {
+                        let used = cell_len(rest)?;
+                        (plain_word(&rest[..used])?, used)
+                    }
+                },
+                ColumnKind::Gas => {
+                    let used = cell_len(rest)?;
+                    let g = std::str::from_utf8(&rest[..used]).ok()?;
+                    if g.trim().len() != g.len() {
+                        return None;
+                    }
+                    gas = (!g.is_empty()).then_some(g);
+                    (None, used)
+                }
+                ColumnKind::Derived(_) => {
+                    let used = cell_len(rest)?;
+                    if !rest[..used].is_ascii() {
+                        std::str::from_utf8(&rest[..used]).ok()?;
+                    }
+                    (None, used)
+                }
+            };
+            match rest.get(used) {
+                None | Some(b',') => {}
+                Some(_) => return None,
+            }
+            if let ColumnKind::Channel(_) = column.kind {
+                self.readings.push(cell);
+            }
+            at += used + 1;
+        }
+        // Every cell read, and the line ends with the last one.
+        (at == bytes.len() + 1).then_some((time, gas))
+    }
+
+    /// Writes out a row [`LogReader::plain_row`] read, as
+    /// [`LogReader::row_cells`] would.
+    fn end_plain_row(
+        &mut self,
+        line: u64,
+        time: DateTime<FixedOffset>,
+        gas: Option<&str>,
+        out: &mut Row,
+    ) {
+        let offset = time.offset().fix();
+        let time = time.with_timezone(&Utc);
+        let channels = self.columns.iter().filter_map(|c| match c.kind {
+            ColumnKind::Channel(unit) => Some((c.name.as_str(), unit)),
+            _ => None,
+        });
+        let samples = &mut out.samples;
+        let mut used = 0;
+        for ((name, unit), reading) in channels.zip(&self.readings) {
+            let Some(reading) = *reading else {
+                continue;
+            };
+            match samples.get_mut(used) {
+                Some(s) => {
+                    s.time = time;
+                    if s.channel != name {
+                        name.clone_into(&mut s.channel);
+                    }
+                    s.unit = unit;
+                    s.reading = reading;
+                }
+                None => samples.push(Sample {
+                    time,
+                    channel: name.to_string(),
+                    unit,
+                    reading,
+                }),
+            }
+            used += 1;
+        }
+        samples.truncate(used);
+        match (gas, &mut out.gas) {
+            (Some(g), Some(held)) => g.clone_into(held),
+            (g, held) => *held = g.map(str::to_string),
+        }
+        self.end_row(line, time, offset, out);
+    }
+
+    /// The order checks and counts for a row read in full, and the row's
+    /// line, time and flags in `out` (its samples and gas are there).
+    fn end_row(&mut self, line: u64, time: DateTime<Utc>, offset: FixedOffset, out: &mut Row) {
+        let (time_went_back, time_repeated) = time_order(self.last_time, time);
+        self.went_back += u64::from(time_went_back);
+        self.repeated += u64::from(time_repeated);
+        self.last_time = Some(time);
+        let offset_change = offset_order(&mut self.last_offset, Some(offset));
+        self.offset_changes += u64::from(offset_change.is_some());
+        out.line = line;
+        out.time = time;
+        out.time_went_back = time_went_back;
+        out.time_repeated = time_repeated;
+        out.offset_change = offset_change;
+        out.notes.clear();
+    }
+
+    /// Reads any row: decoded and split as text, every problem located.
+    fn general_row(&mut self, raw: &RawLine, out: &mut Row) -> Option<Result<(), LogError>> {
         let name = self.name.as_str();
         // A data line is valid UTF-8 as it stands (no byte-order mark after
         // the first line): borrowed, not copied.
@@ -568,23 +739,14 @@ impl<R: BufRead> LogReader<R> {
             }
         }
         samples.truncate(used);
-        let (time_went_back, time_repeated) = time_order(self.last_time, time);
-        self.went_back += u64::from(time_went_back);
-        self.repeated += u64::from(time_repeated);
-        self.last_time = Some(time);
-        let offset_change = offset_order(&mut self.last_offset, Some(offset));
-        self.offset_changes += u64::from(offset_change.is_some());
-        out.line = raw.number;
-        out.time = time;
         out.samples = samples;
-        out.time_went_back = time_went_back;
-        out.time_repeated = time_repeated;
-        out.offset_change = offset_change;
-        out.notes.clear();
         out.gas = gas;
+        self.end_row(raw.number, time, offset, out);
         if bad.is_empty() {
             return Some(Ok(()));
         }
+        let name = self.name.as_str();
+        let at = |col: usize, msg: String| LogError::at(name, raw.number, Some(col), msg);
         Some(row_result(std::mem::take(out), bad, at).map(|_| ()))
     }
 }
@@ -599,6 +761,30 @@ fn trim_blanks(cell: &str) -> &str {
     } else {
         cell
     }
+}
+
+/// The length of the cell `rest` starts with (up to the next comma or the
+/// end); `None` when it holds a quote (left to the general splitter).
+fn cell_len(rest: &[u8]) -> Option<usize> {
+    match memchr::memchr2(b',', b'"', rest) {
+        Some(i) if rest[i] == b'"' => None,
+        Some(i) => Some(i),
+        None => Some(rest.len()),
+    }
+}
+
+/// A channel cell that is not a number as [`parse_cell`] reads it: empty,
+/// or a fault's status word; `None` for anything else (left to
+/// [`parse_cell`]).
+fn plain_word(cell: &[u8]) -> Option<Option<Reading>> {
+    if cell.is_empty() {
+        return Some(None);
+    }
+    let status = Status::ALL
+        .iter()
+        .copied()
+        .find(|s| s.as_str().as_bytes() == cell)?;
+    Some(Some(Reading::Bad(status.fault()?)))
 }
 
 /// A row, or, when cells of it were bad, an error located at the first bad

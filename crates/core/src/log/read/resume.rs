@@ -39,6 +39,12 @@ impl<R: BufRead> LogReader<R> {
             header_line: self.header_line,
             spans: Vec::new(),
             raw: RawLine::empty(),
+            days: Default::default(),
+            readings: Vec::new(),
+            #[cfg(test)]
+            general_only: self.general_only,
+            #[cfg(test)]
+            plain_rows: 0,
         }
     }
 }

@@ -707,3 +707,224 @@ fn a_time_without_an_offset_is_a_located_error_naming_the_offset_before() {
         "{e}"
     );
 }
+
+/// Reads `bytes` through a buffer of `capacity` bytes, reusing one row
+/// buffer, the fast way or (`general_only`) every row the general way:
+/// each item, the buffer after it, and the reader's position after it.
+/// Also the rows read straight from their bytes.
+fn read_traced(bytes: &[u8], capacity: usize, general_only: bool) -> (Vec<String>, u64) {
+    let input = std::io::BufReader::with_capacity(capacity, bytes);
+    let mut r = match LogReader::new(input, "run.csv") {
+        Ok(r) => r,
+        Err(e) => return (vec![format!("{e:?}")], 0),
+    };
+    r.general_only = general_only;
+    let mut seen = vec![format!("{:?} {:?}", r.columns(), r.warnings())];
+    let mut row = Row::default();
+    while let Some(item) = r.next_row_into(&mut row) {
+        seen.push(format!("{item:?} {row:?} {:?}", r.read_position()));
+    }
+    seen.push(format!(
+        "{:?} {} {} {}",
+        r.read_position(),
+        r.times_went_back(),
+        r.times_repeated(),
+        r.time_offset_changes()
+    ));
+    (seen, r.plain_rows)
+}
+
+/// A row time: mostly the writer's, on one of a few days, now and then
+/// with another offset, a leap second, no offset, or a byte changed.
+fn row_time() -> impl Strategy<Value = Vec<u8>> {
+    let day = prop::sample::select(vec![
+        "2026-11-30",
+        "2026-12-01",
+        "2026-12-31",
+        "2027-01-01",
+        "2024-02-29",
+        "2023-02-29",
+    ]);
+    let clock = (0u32..24, 0u32..60, 0u32..61, 0u32..1000, 0usize..8);
+    let mutation = proptest::option::weighted(0.1, (any::<usize>(), any::<u8>()));
+    (day, clock, mutation).prop_map(|(day, (h, m, s, ms, form), mutation)| {
+        let s = if form == 7 { s } else { s.min(59) };
+        let mut t = match form {
+            0..=3 => format!("{day}T{h:02}:{m:02}:{s:02}.{ms:03}Z"),
+            4 => format!("{day}T{h:02}:{m:02}:{s:02}+05:30"),
+            5 => format!("{day}T{h:02}:{m:02}:{s:02}.{ms}-01:00"),
+            6 => format!("{day}T{h:02}:{m:02}:{s:02}"),
+            _ => format!("{day}T23:59:{s:02}.{ms:03}Z"),
+        }
+        .into_bytes();
+        if let Some((at, byte)) = mutation {
+            let at = at % t.len();
+            t[at] = byte;
+        }
+        t
+    })
+}
+
+/// A cell: numbers in the writer's form and others, status words, gas
+/// names, blanks, quotes and garbage (bytes that are not UTF-8 too).
+fn row_cell() -> impl Strategy<Value = Vec<u8>> {
+    prop_oneof![
+        3 => any::<f64>().prop_map(|v| format!("{v:e}").into_bytes()),
+        2 => (any::<u32>(), -30i32..30).prop_map(|(m, e)| format!("{m}e{e}").into_bytes()),
+        1 => "[-+]?[0-9]{0,21}\\.?[0-9]{0,4}([eE][-+]?[0-9]{0,3})?".prop_map(String::into_bytes),
+        1 => Just(Vec::new()),
+        1 => prop::sample::select(vec![
+            "over-range", "under-range", "sensor-off", "sensor-error", "stale", "unparsed",
+            "ok", "OK", "nan", "inf", "-inf", "1e999", "N2", "Ar", " 1.5", "2\t", " Ar ",
+            "\"3\"", "\"a,b\"", "\"x\"y", "1\u{a0}", "\u{2002}", "２", ".", "-0", "+.5e-3",
+        ])
+        .prop_map(|s| s.as_bytes().to_vec()),
+        1 => prop::collection::vec(any::<u8>(), 0..6),
+    ]
+}
+
+/// A data line: a time and cells (now and then one too few or too many),
+/// or a blank, `#` or garbage line; now and then cut short.
+fn row_line(cells: usize) -> impl Strategy<Value = Vec<u8>> {
+    let cut = proptest::option::weighted(0.05, any::<usize>());
+    let line = prop_oneof![
+        12 => (row_time(), prop::collection::vec(row_cell(), cells..=cells)).prop_map(
+            |(t, cells)| {
+                let mut line = t;
+                for c in cells {
+                    line.push(b',');
+                    line.extend(c);
+                }
+                line
+            }
+        ),
+        1 => (row_time(), prop::collection::vec(row_cell(), 0..cells + 3)).prop_map(
+            |(t, cells)| {
+                let mut line = t;
+                for c in cells {
+                    line.push(b',');
+                    line.extend(c);
+                }
+                line
+            }
+        ),
+        1 => prop::sample::select(vec!["", " ", "\t", "# late", "time,a", "\u{feff}x"])
+            .prop_map(|s| s.as_bytes().to_vec()),
+        1 => prop::collection::vec(any::<u8>(), 0..40),
+    ];
+    (line, cut, any::<bool>()).prop_map(|(mut line, cut, crlf)| {
+        if let Some(at) = cut {
+            line.truncate(at % (line.len() + 1));
+        }
+        if crlf {
+            line.push(b'\r');
+        }
+        line
+    })
+}
+
+/// A log: one of a few headers, lines, the last one with or without its
+/// line break.
+fn generated_log() -> impl Strategy<Value = Vec<u8>> {
+    let header = prop::sample::select(vec![
+        ("time,a [mbar],b [C]", 2usize),
+        (
+            "time,chamber [mbar],gas,wall [K],chamber.mean_free_path [m]",
+            4,
+        ),
+        ("time,p [Torr]", 1),
+        ("time,\"x, y [Pa]\",gas", 2),
+    ]);
+    header
+        .prop_flat_map(|(header, cells)| {
+            (
+                prop::collection::vec(row_line(cells), 0..30),
+                any::<bool>(),
+                prop_oneof![1usize..64, Just(8192)],
+            )
+                .prop_map(move |(lines, last_break, capacity)| {
+                    let mut log = format!("{MAGIC}\n# gas: N2\n{header}\n").into_bytes();
+                    let n = lines.len();
+                    for (i, line) in lines.into_iter().enumerate() {
+                        log.extend(line);
+                        if i + 1 < n || last_break {
+                            log.push(b'\n');
+                        }
+                    }
+                    (log, capacity)
+                })
+        })
+        .prop_map(|(log, capacity)| {
+            let mut out = capacity.to_le_bytes().to_vec();
+            out.extend(log);
+            out
+        })
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(512))]
+
+    /// Rows read straight from their bytes are read as the general path
+    /// reads them: every item, message, location, buffer, position and
+    /// count.
+    #[test]
+    fn the_fast_path_reads_every_log_as_the_general_path(log in generated_log()) {
+        let (capacity, log) = log.split_at(8);
+        let capacity = usize::from_le_bytes(capacity.try_into().expect("8 bytes"));
+        let (fast, _) = read_traced(log, capacity, false);
+        let (general, plain) = read_traced(log, capacity, true);
+        prop_assert_eq!(plain, 0);
+        prop_assert_eq!(fast, general, "{:?}", String::from_utf8_lossy(log));
+    }
+
+    /// The writer's rows of numbers of up to eight digits all take the
+    /// fast path.
+    #[test]
+    fn written_rows_take_the_fast_path(
+        rows in prop::collection::vec(
+            (0i64..4_000_000_000_000, prop::collection::vec(prop_oneof![
+                Just(Cell::Empty),
+                (0..Fault::ALL.len()).prop_map(|i| Cell::Bad(Fault::ALL[i])),
+                (-99_999_999i64..100_000_000, -20i32..20).prop_map(|(m, e)| {
+                    Cell::Value(format!("{m}e{e}").parse().expect("a number"))
+                }),
+            ], 4)),
+            1..20,
+        )
+    ) {
+        let mut text = header(&LogMeta::default(), &columns());
+        for (ms, cells) in &rows {
+            let t = DateTime::from_timestamp_millis(*ms).expect("in range");
+            write_row(&mut text, t, cells);
+        }
+        let (fast, plain) = read_traced(text.as_bytes(), 8192, false);
+        let (general, _) = read_traced(text.as_bytes(), 8192, true);
+        prop_assert_eq!(&fast, &general);
+        prop_assert_eq!(plain, rows.len() as u64, "{}", text);
+    }
+}
+
+#[test]
+fn plain_rows_are_read_straight_and_others_are_not() {
+    let log = format!(
+        "{MAGIC}\ntime,a [mbar],gas,b [C],d [m]\n\
+         2026-12-01T19:00:00.000Z,1.5e-3,N2,22.0625,6.6e-8\n\
+         2026-12-01T19:00:00.100Z,over-range,,-4e1,\n\
+         2026-12-01T19:00:00.200Z, 1.5e-3,N2,22,\n\
+         2026-12-01T19:00:00.300Z,1.5e-3,\"N2\",22,\n\
+         2026-12-01T19:00:00.400Z,ok,N2,22,\n\
+         2026-12-01T19:00:00.500Z,1.5e-3,N\u{e9},22,\n\
+         2026-12-01T19:00:00.600Z,1.5e-3,N2,22\n\
+         2026-12-01T19:00:00.700Z,1.5e-3,N2,22,x?\n"
+    );
+    let mut bytes = log.into_bytes();
+    // A byte that is not UTF-8 in a derived cell (the last one).
+    let last = bytes.len() - 2;
+    bytes[last] = 0xff;
+    let (fast, plain) = read_traced(&bytes, 8192, false);
+    let (general, _) = read_traced(&bytes, 8192, true);
+    assert_eq!(fast, general);
+    // The first two, and the one with a non-ASCII gas name.
+    assert_eq!(plain, 3, "{fast:#?}");
+    assert!(fast[8].contains("invalid UTF-8"), "{}", fast[8]);
+}
