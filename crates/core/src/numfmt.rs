@@ -9,11 +9,31 @@
 /// `{:e}`'s; where two texts of that length are equally near the value, the
 /// last digit may differ from `{:e}`'s (property tests).
 pub fn push_exp(out: &mut String, v: f64) {
+    let mut laid = [0u8; 64];
+    let text = lay_exp(v, &mut laid);
+    // Every byte is ASCII (digits, '-', '.', 'e', or std's `inf`/`NaN`).
+    out.push_str(std::str::from_utf8(text).unwrap_or_default());
+}
+
+/// [`push_exp`] onto bytes (a CSV line being built).
+pub fn push_exp_bytes(out: &mut Vec<u8>, v: f64) {
+    let mut laid = [0u8; 64];
+    out.extend_from_slice(lay_exp(v, &mut laid));
+}
+
+/// `v` laid out as [`push_exp`] writes it, in `laid`.
+fn lay_exp(v: f64, laid: &mut [u8; 64]) -> &[u8] {
     if !v.is_finite() {
         // inf, -inf, NaN as std writes them.
-        use std::fmt::Write as _;
-        let _ = write!(out, "{v:e}");
-        return;
+        let text: &[u8] = if v.is_nan() {
+            b"NaN"
+        } else if v > 0.0 {
+            b"inf"
+        } else {
+            b"-inf"
+        };
+        laid[..text.len()].copy_from_slice(text);
+        return &laid[..text.len()];
     }
     let mut buf = ryu::Buffer::new();
     let text = buf.format_finite(v);
@@ -24,89 +44,86 @@ pub fn push_exp(out: &mut String, v: f64) {
     // (`e-324`).
     let tail = text.len().saturating_sub(5);
     if text.as_bytes()[tail..].contains(&b'e') {
-        out.push_str(text);
-        return;
+        laid[..text.len()].copy_from_slice(text.as_bytes());
+        return &laid[..text.len()];
     }
-    let (negative, t) = match text.strip_prefix('-') {
-        Some(rest) => (true, rest),
-        None => (false, text),
+    // `[-]int.frac`: the significant digits are those of `int` and `frac`
+    // together without the zeros before the first or after the last
+    // non-zero one; the point goes after the first of them. Laid out on
+    // the stack, then added at once.
+    let bytes = text.as_bytes();
+    let (negative, body) = match bytes.split_first() {
+        Some((b'-', rest)) => (true, rest),
+        _ => (false, bytes),
     };
+    let (int, frac) = match body.iter().position(|&c| c == b'.') {
+        Some(dot) => (&body[..dot], &body[dot + 1..]),
+        None => (body, &[][..]),
+    };
+    // At most 17 significant digits, 5 zeros after the point (from 1e-5)
+    // and 17 digits before it (below 1e16): well inside 64 bytes.
+    let mut k = 0;
     if negative {
-        out.push('-');
+        laid[0] = b'-';
+        k = 1;
     }
-    let (int, frac) = t.split_once('.').unwrap_or((t, ""));
-    let frac_digits = frac.trim_end_matches('0');
-    let exponent = if int.trim_start_matches('0').is_empty() {
+    let frac_end = frac.iter().rposition(|&d| d != b'0').map_or(0, |l| l + 1);
+    let frac = &frac[..frac_end];
+    let exponent = if int.iter().all(|&d| d == b'0') {
         // 0.000ddd: the first significant digit is in the fraction.
-        let lead = frac_digits.len() - frac_digits.trim_start_matches('0').len();
-        let sig = &frac_digits[lead..];
-        let Some(first) = sig.get(..1) else {
-            out.push_str("0e0");
-            return;
+        let Some(lead) = frac.iter().position(|&d| d != b'0') else {
+            laid[k..k + 3].copy_from_slice(b"0e0");
+            return &laid[..k + 3];
         };
-        out.push_str(first);
+        let sig = &frac[lead..];
+        laid[k] = sig[0];
+        k += 1;
         if sig.len() > 1 {
-            out.push('.');
-            out.push_str(&sig[1..]);
+            laid[k] = b'.';
+            laid[k + 1..k + sig.len()].copy_from_slice(&sig[1..]);
+            k += sig.len();
         }
         -(lead as i32) - 1
     } else {
         // ddd.ddd with no leading zero: the point moves after the first
         // digit; trailing zeros of the digits go.
-        let rest = if frac_digits.is_empty() {
-            int[1..].trim_end_matches('0')
+        let rest = if frac.is_empty() {
+            let end = int.iter().rposition(|&d| d != b'0').map_or(1, |l| l + 1);
+            &int[1..end]
         } else {
             &int[1..]
         };
-        out.push_str(&int[..1]);
-        if !rest.is_empty() || !frac_digits.is_empty() {
-            out.push('.');
-            out.push_str(rest);
-            out.push_str(frac_digits);
+        laid[k] = int[0];
+        k += 1;
+        if !rest.is_empty() || !frac.is_empty() {
+            laid[k] = b'.';
+            k += 1;
+            laid[k..k + rest.len()].copy_from_slice(rest);
+            k += rest.len();
+            laid[k..k + frac.len()].copy_from_slice(frac);
+            k += frac.len();
         }
         int.len() as i32 - 1
     };
-    out.push('e');
-    out.push_str(itoa_buf(exponent).as_str());
-}
-
-/// A small integer as text, on the stack.
-fn itoa_buf(v: i32) -> SmallText {
-    let mut t = SmallText {
-        bytes: [0; 12],
-        len: 0,
-    };
-    let mut n = i64::from(v).unsigned_abs();
-    let mut tmp = [0u8; 12];
-    let mut k = 0;
-    loop {
-        tmp[k] = b'0' + (n % 10) as u8;
+    laid[k] = b'e';
+    k += 1;
+    if exponent < 0 {
+        laid[k] = b'-';
         k += 1;
-        n /= 10;
-        if n == 0 {
-            break;
-        }
     }
-    if v < 0 {
-        t.bytes[0] = b'-';
-        t.len = 1;
+    // From -5 to 15 here (three digits would be written all the same).
+    let e = exponent.unsigned_abs();
+    if e >= 100 {
+        laid[k] = b'0' + (e / 100 % 10) as u8;
+        k += 1;
     }
-    for i in (0..k).rev() {
-        t.bytes[t.len] = tmp[i];
-        t.len += 1;
+    if e >= 10 {
+        laid[k] = b'0' + (e / 10 % 10) as u8;
+        k += 1;
     }
-    t
-}
-
-struct SmallText {
-    bytes: [u8; 12],
-    len: usize,
-}
-
-impl SmallText {
-    fn as_str(&mut self) -> &str {
-        std::str::from_utf8(&self.bytes[..self.len]).unwrap_or("0")
-    }
+    laid[k] = b'0' + (e % 10) as u8;
+    k += 1;
+    &laid[..k]
 }
 
 #[cfg(test)]
@@ -119,6 +136,9 @@ mod tests {
     fn same(v: f64) {
         let mut s = String::new();
         push_exp(&mut s, v);
+        let mut b = b"x,".to_vec();
+        push_exp_bytes(&mut b, v);
+        assert_eq!(b[2..], *s.as_bytes(), "bytes and text of {v:?}");
         let std = format!("{v:e}");
         if v.is_nan() {
             assert_eq!(s, "NaN");

@@ -165,6 +165,27 @@ pub fn parse_rfc3339(text: &str) -> chrono::ParseResult<DateTime<FixedOffset>> {
 /// Appends `t` as [`write_rfc3339`] writes it (the one implementation),
 /// without allocating.
 pub fn push_rfc3339(out: &mut String, t: DateTime<Utc>) {
+    match rfc3339_millis(t) {
+        // Every byte is ASCII.
+        Some(buf) => out.push_str(std::str::from_utf8(&buf).unwrap_or_default()),
+        None => out.push_str(&t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true)),
+    }
+}
+
+/// [`push_rfc3339`] onto bytes (a CSV line being built).
+pub fn push_rfc3339_bytes(out: &mut Vec<u8>, t: DateTime<Utc>) {
+    match rfc3339_millis(t) {
+        Some(buf) => out.extend_from_slice(&buf),
+        None => out.extend_from_slice(
+            t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
+                .as_bytes(),
+        ),
+    }
+}
+
+/// `t` as `YYYY-MM-DDTHH:MM:SS.mmmZ`; `None` for years RFC 3339 cannot
+/// hold in four digits (chrono's form is written for them).
+fn rfc3339_millis(t: DateTime<Utc>) -> Option<[u8; 24]> {
     use chrono::{Datelike, Timelike};
     // The UTC fields straight (a `DateTime`'s own accessors go through its
     // offset every call).
@@ -179,9 +200,7 @@ pub fn push_rfc3339(out: &mut String, t: DateTime<Utc>) {
         (s, nanos / 1_000_000)
     };
     if !(0..=9999).contains(&y) {
-        // Years RFC 3339 cannot hold in four digits: chrono's form.
-        out.push_str(&t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true));
-        return;
+        return None;
     }
     let mut buf = *b"0000-00-00T00:00:00.000Z";
     let mut put = |at: usize, v: u32, n: usize| {
@@ -198,7 +217,7 @@ pub fn push_rfc3339(out: &mut String, t: DateTime<Utc>) {
     put(14, mi, 2);
     put(17, s, 2);
     put(20, ms, 3);
-    out.push_str(std::str::from_utf8(&buf).unwrap_or_default());
+    Some(buf)
 }
 
 /// Seconds from `a` to `b`, at millisecond resolution:
@@ -780,6 +799,9 @@ mod fast_tests {
             let mut s = String::from("x");
             push_rfc3339(&mut s, t);
             prop_assert_eq!(&s[1..], t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true));
+            let mut b = b"x".to_vec();
+            push_rfc3339_bytes(&mut b, t);
+            prop_assert_eq!(&b[1..], s[1..].as_bytes());
         }
 
         #[test]

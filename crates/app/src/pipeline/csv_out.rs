@@ -79,7 +79,7 @@ struct Writer {
     header_written: bool,
     lengths: usize,
     names: Vec<String>,
-    line: String,
+    line: Vec<u8>,
     error: Option<String>,
 }
 
@@ -99,7 +99,7 @@ impl Writer {
         line.clear();
         if !self.header_written && !batch.records.is_empty() {
             self.header_written = true;
-            line.push_str(&self.header);
+            line.extend_from_slice(self.header.as_bytes());
         }
         for (i, r) in batch.records.iter().enumerate() {
             let cells = batch
@@ -110,14 +110,14 @@ impl Writer {
             lay_out(line, r, name, cells);
             // Written in pieces of about 64 KiB.
             if line.len() >= 1 << 16 {
-                if let Err(e) = self.out.write_all(line.as_bytes()) {
+                if let Err(e) = self.out.write_all(line) {
                     self.error = Some(format!("cannot write the CSV: {e}"));
                     return;
                 }
                 line.clear();
             }
         }
-        if let Err(e) = self.out.write_all(line.as_bytes()) {
+        if let Err(e) = self.out.write_all(line) {
             self.error = Some(format!("cannot write the CSV: {e}"));
             return;
         }
@@ -134,32 +134,32 @@ impl Writer {
 /// path, per length Knudsen number and regime, impingement rate, time to a
 /// monolayer, range. Numbers in the shortest form that reads back to the
 /// same `f64` (`numfmt::push_exp`); no value, an empty cell.
-fn lay_out(line: &mut String, r: &Record, gauge: &str, cells: &[LengthCells]) {
-    let num = |line: &mut String, v: Option<f64>| {
-        line.push(',');
+fn lay_out(line: &mut Vec<u8>, r: &Record, gauge: &str, cells: &[LengthCells]) {
+    let num = |line: &mut Vec<u8>, v: Option<f64>| {
+        line.push(b',');
         if let Some(v) = v {
-            rarefy_core::numfmt::push_exp(line, v);
+            rarefy_core::numfmt::push_exp_bytes(line, v);
         }
     };
     let d = r.derived.as_ref();
-    crate::timefmt::push_rfc3339(line, r.time);
-    line.push(',');
-    line.push_str(gauge);
-    line.push(',');
-    line.push_str(r.status.as_str());
+    crate::timefmt::push_rfc3339_bytes(line, r.time);
+    line.push(b',');
+    line.extend_from_slice(gauge.as_bytes());
+    line.push(b',');
+    line.extend_from_slice(r.status.as_str().as_bytes());
     num(line, r.pressure_pa);
     num(line, d.map(|d| d.number_density_per_m3));
     num(line, d.map(|d| d.mean_free_path_m));
     for c in cells {
         num(line, c.map(|c| c.0));
-        line.push(',');
-        line.push_str(c.map_or("", |c| c.1));
+        line.push(b',');
+        line.extend_from_slice(c.map_or("", |c| c.1).as_bytes());
     }
     num(line, d.map(|d| d.impingement_per_m2_s));
     num(line, d.map(|d| d.monolayer_time_s));
-    line.push(',');
-    line.push_str(d.map_or("", |d| d.range));
-    line.push('\n');
+    line.push(b',');
+    line.extend_from_slice(d.map_or("", |d| d.range).as_bytes());
+    line.push(b'\n');
 }
 
 /// A CSV cell: quoted when it holds a comma, a quote or a line break.
@@ -203,7 +203,7 @@ impl CsvOut {
             header_written: false,
             lengths: lengths.len(),
             names: Vec::new(),
-            line: String::new(),
+            line: Vec::new(),
             error: None,
         };
         CsvOut {
