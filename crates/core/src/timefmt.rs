@@ -801,7 +801,7 @@ mod fast_tests {
             prop_assert_eq!(&s[1..], t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true));
             let mut b = b"x".to_vec();
             push_rfc3339_bytes(&mut b, t);
-            prop_assert_eq!(&b[1..], s[1..].as_bytes());
+            prop_assert_eq!(&b[1..], &s.as_bytes()[1..]);
         }
 
         #[test]
