@@ -20,8 +20,9 @@ use rarefy::config;
 use rarefy::pipeline::Operation;
 use rarefy::pipeline::replay::Rows;
 use rarefy::ui::app::{App, GaugeInfo, Replay, Speed};
+use rarefy::ui::keyframe::MOST;
 use rarefy::ui::render;
-use rarefy::ui::run::{self, Player, ReplaySetup, index_every, seek};
+use rarefy::ui::run::{self, Player, ReplaySetup, index_every, index_keyframes, seek};
 
 fn root() -> &'static Path {
     Path::new(env!("CARGO_MANIFEST_DIR"))
@@ -203,9 +204,21 @@ enum Step {
 /// without; after each seek both equal each other (bell and message too)
 /// and a replay played from the start to the seek's time.
 fn check(setup: &ReplaySetup, gauges: &[GaugeInfo], every: u64, steps: &[Step]) -> usize {
-    let (with, _) = index_every(setup, every).expect("index");
+    check_most(setup, gauges, every, MOST, steps)
+}
+
+/// [`check`] with at most `most` keyframes.
+fn check_most(
+    setup: &ReplaySetup,
+    gauges: &[GaugeInfo],
+    every: u64,
+    most: usize,
+    steps: &[Step],
+) -> usize {
+    let (with, _) = index_keyframes(setup, every, most).expect("index");
     let keyframes = with.keyframes.clone().expect("keyframes of a plain file");
     assert!(keyframes.len() >= 5, "{keyframes:?}");
+    assert!(keyframes.len() <= most, "{keyframes:?}");
     let without = Replay {
         keyframes: None,
         ..with.clone()
@@ -356,6 +369,25 @@ fn seeks_through_keyframes_equal_a_replay_from_the_start_v1() {
     ] {
         assert!(events.iter().any(|e| e.id == id), "no event of {id}");
     }
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// More keyframes than are kept: every other one goes and the spacing
+/// doubles, again and again; seeks still equal a replay from the start.
+#[test]
+fn seeks_through_thinned_keyframes_equal_a_replay_from_the_start() {
+    let dir = tempdir("thinned");
+    let file = v1_log(&dir);
+    let (setup, gauges) = demo_setup(&file);
+    let times = row_times(&setup);
+    // 3000 rows: 428 batches of 7, thinned from 16 keyframes five times.
+    let (every, most) = (7, 16);
+    let (replay, _) = index_keyframes(&setup, every, most).expect("index");
+    let kept = replay.keyframes.as_ref().map_or(0, |k| k.len());
+    assert!((most / 2..=most).contains(&kept), "{kept} keyframes");
+    let steps = steps_for(&times, 97);
+    let n = check_most(&setup, &gauges, every, most, &steps);
+    assert!(n > 100, "{n} seeks");
     let _ = std::fs::remove_dir_all(&dir);
 }
 

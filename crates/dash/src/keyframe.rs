@@ -37,9 +37,15 @@ use crate::sample::ChannelUnit;
 use rarefy_app::pipeline::replay::{LogIndex, Resume, Rows};
 use rarefy_app::pipeline::{Counts, Item, Sink};
 
-/// Rows between keyframes: a seek plays at most this many. About 35 ms of
-/// playback on the project's machine; 200 keyframes for 10 million rows.
+/// Rows between keyframes: a seek plays at most this many. About 25 ms of
+/// playback on the project's machine.
 pub const EVERY: u64 = 50_000;
+
+/// Keyframes kept at most: when there would be more, every other one goes
+/// and the spacing doubles, so that a replay's memory does not grow with
+/// the log (each keyframe is a few KiB; 128 at most, and a seek in a log of
+/// ten million rows plays at most 100 000 rows, about 50 ms).
+pub const MOST: usize = 128;
 
 /// Bytes of one bucket in the spill file.
 const BUCKET_BYTES: usize = 24;
@@ -431,7 +437,14 @@ impl Sink for Events {
 /// start, end, gaps and every event, and a keyframe every `every` rows
 /// (`None` for a log that is not a plain file, or when the spill file
 /// cannot be written).
-pub fn index(setup: &ReplaySetup, every: u64) -> Result<(LogIndex, Option<Keyframes>), String> {
+///
+/// At most `most` keyframes are kept: past that, every other one is
+/// dropped and keyframes are taken half as often from then on.
+pub fn index(
+    setup: &ReplaySetup,
+    every: u64,
+    most: usize,
+) -> Result<(LogIndex, Option<Keyframes>), String> {
     let mut app = App::new("", Monitor::new(setup.monitor.clone()), Vec::new());
     app.pipeline.set_gases(setup.gases.clone());
     let events = Events::default();
@@ -447,12 +460,31 @@ pub fn index(setup: &ReplaySetup, every: u64) -> Result<(LogIndex, Option<Keyfra
     };
     let mut frames = Vec::new();
     let batch = usize::try_from(every.max(1)).unwrap_or(usize::MAX);
+    // A keyframe after every `stride`-th batch of rows.
+    let (mut batches, mut stride) = (0u64, 1u64);
     loop {
         player.feed(&mut app, None, batch);
         if player.next_time().is_none() {
             break;
         }
+        batches += 1;
+        if batches % stride != 0 {
+            continue;
+        }
         let Some(s) = &mut spill else { continue };
+        if frames.len() >= most.max(2) {
+            // Keyframe i came after batch (i + 1) · stride: those after a
+            // multiple of twice the stride stay.
+            let mut i = 0;
+            frames.retain(|_| {
+                i += 1;
+                i % 2 == 0
+            });
+            stride *= 2;
+            if batches % stride != 0 {
+                continue;
+            }
+        }
         let (Some(at), Some(latest)) = (
             player.rows.resume_point(),
             player.rows.span().and_then(|s| s.end),

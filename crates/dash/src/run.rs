@@ -309,7 +309,17 @@ pub fn index_events(setup: &ReplaySetup) -> Result<(Replay, Vec<Event>), String>
 
 /// [`index_events`] with a keyframe every `every` rows.
 pub fn index_every(setup: &ReplaySetup, every: u64) -> Result<(Replay, Vec<Event>), String> {
-    let (ix, keyframes) = super::keyframe::index(setup, every)?;
+    index_keyframes(setup, every, super::keyframe::MOST)
+}
+
+/// [`index_every`] keeping at most `most` keyframes (the spacing doubles
+/// whenever there would be more).
+pub fn index_keyframes(
+    setup: &ReplaySetup,
+    every: u64,
+    most: usize,
+) -> Result<(Replay, Vec<Event>), String> {
+    let (ix, keyframes) = super::keyframe::index(setup, every, most)?;
     let marks = ix
         .events
         .iter()
