@@ -257,6 +257,10 @@ pub struct Monitor {
     provisional: bool,
     now: Option<DateTime<Utc>>,
     trip_seen: bool,
+    /// Whether any alarm has the trip severity: the configured rules their
+    /// own (edits change thresholds and holds, not severities), the
+    /// automatic ones the input severity.
+    has_trips: bool,
     gas: GasNow,
 }
 
@@ -379,7 +383,13 @@ impl Monitor {
             models: setup.gauges.iter().map(|g| Some(g.model.clone())).collect(),
             generation: 0,
         };
+        let has_trips = setup.input_severity == Severity::Trip
+            || setup
+                .rules
+                .iter()
+                .any(|r| r.rule.severity == Severity::Trip);
         Monitor {
+            has_trips,
             gas,
             setup: std::sync::Arc::new(setup),
             tracks: TrackMap::default(),
@@ -1445,7 +1455,7 @@ impl Monitor {
                 });
             }
         }
-        if self.trip_active() {
+        if !self.trip_seen && self.has_trips && self.trip_active() {
             self.trip_seen = true;
         }
         events

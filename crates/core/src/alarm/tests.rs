@@ -988,3 +988,38 @@ fn a_packed_monitor_unpacks_to_the_same_and_goes_on_the_same() {
     assert!(packed.unpack(&longer).is_err());
     assert!(packed.unpack(&[]).is_err());
 }
+
+#[test]
+fn a_trip_is_seen_only_of_a_trip_alarm() {
+    // Above 0.1 Pa; readings in mbar (1e-4 mbar is 0.01 Pa).
+    let mut trip = rule(Test::Above(1e-1));
+    trip.severity = Severity::Trip;
+    let warn = rule(Test::Above(1e-1));
+    for (rules, input, high, seen) in [
+        (vec![trip.clone()], Severity::Warning, 1.0, true),
+        (vec![trip], Severity::Warning, 1e-4, false),
+        (vec![warn.clone()], Severity::Warning, 1.0, false),
+        // The automatic bad-input alarm, with the trip severity.
+        (vec![warn], Severity::Trip, f64::NAN, true),
+    ] {
+        let mut s = setup(rules, vec![]);
+        s.input_severity = input;
+        let mut m = Monitor::new(s);
+        m.push(&[Sample::ok(t(0.0), "g", 1e-4, MBAR)]);
+        assert!(
+            !m.trip_seen(),
+            "{input:?} {high} at the start: {:?}",
+            m.alarms()
+                .iter()
+                .map(|a| (a.rule.id.clone(), a.state))
+                .collect::<Vec<_>>()
+        );
+        if high.is_nan() {
+            m.push(&[Sample::bad(t(1.0), "g", MBAR, Fault::SensorError)]);
+        } else {
+            m.push(&[Sample::ok(t(1.0), "g", high, MBAR)]);
+        }
+        m.push(&[Sample::ok(t(2.0), "g", 1e-4, MBAR)]);
+        assert_eq!(m.trip_seen(), seen, "{input:?} {high}");
+    }
+}
