@@ -4,8 +4,8 @@
 
 /// Appends `v` as `format!("{v:e}")` lays it out, without allocating.
 ///
-/// The shortest round-trip digits come from the `ryu` crate, laid out again
-/// as `d[.ddd]e<exp>`. They read back to the same `f64` and are as short as
+/// The shortest round-trip digits come from the `zmij` crate, laid out
+/// again as `d[.ddd]e<exp>`. They read back to the same `f64` and are as short as
 /// `{:e}`'s; where two texts of that length are equally near the value, the
 /// last digit may differ from `{:e}`'s (property tests).
 pub fn push_exp(out: &mut String, v: f64) {
@@ -35,17 +35,39 @@ fn lay_exp(v: f64, laid: &mut [u8; 64]) -> &[u8] {
         laid[..text.len()].copy_from_slice(text);
         return &laid[..text.len()];
     }
-    let mut buf = ryu::Buffer::new();
+    let mut buf = zmij::Buffer::new();
     let text = buf.format_finite(v);
-    // ryu writes `[-]d[.ddd]e<exp>` (already this layout) or, for
-    // magnitudes from 1e-5 to 1e16, `[-]int.frac`; only the second is laid
-    // out again.
-    // The exponent, when there is one, is among the last five bytes
-    // (`e-324`).
-    let tail = text.len().saturating_sub(5);
-    if text.as_bytes()[tail..].contains(&b'e') {
-        laid[..text.len()].copy_from_slice(text.as_bytes());
-        return &laid[..text.len()];
+    // zmij writes `[-]d[.ddd]e±<exp>` or, for magnitudes from 1e-5 to
+    // 1e16, `[-]int.frac`. The first keeps its digits, its exponent is
+    // written as `{:e}` writes it (no `+`, no leading zeros); the second is
+    // laid out again. The exponent, when there is one, is among the last
+    // six bytes (`e-0324` at most).
+    let bytes = text.as_bytes();
+    let tail = bytes.len().saturating_sub(6);
+    if let Some(at) = bytes[tail..].iter().position(|&c| c == b'e') {
+        let (mantissa, exponent) = bytes.split_at(tail + at);
+        let exponent = &exponent[1..];
+        let (minus, digits) = match exponent.split_first() {
+            Some((b'-', rest)) => (true, rest),
+            Some((b'+', rest)) => (false, rest),
+            _ => (false, exponent),
+        };
+        let zeros = digits
+            .iter()
+            .take(digits.len().saturating_sub(1))
+            .take_while(|&&d| d == b'0')
+            .count();
+        let digits = &digits[zeros..];
+        let mut k = mantissa.len();
+        laid[..k].copy_from_slice(mantissa);
+        laid[k] = b'e';
+        k += 1;
+        if minus {
+            laid[k] = b'-';
+            k += 1;
+        }
+        laid[k..k + digits.len()].copy_from_slice(digits);
+        return &laid[..k + digits.len()];
     }
     // `[-]int.frac`: the significant digits are those of `int` and `frac`
     // together without the zeros before the first or after the last
@@ -192,7 +214,7 @@ mod tests {
             same(m * 10f64.powi(e));
         }
 
-        /// The magnitudes ryu writes without an exponent (1e-5 to 1e16),
+        /// The magnitudes written without an exponent (1e-5 to 1e16),
         /// including whole numbers and short decimals.
         #[test]
         fn plain_decimals_write_what_std_writes(
