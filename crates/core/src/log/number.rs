@@ -55,6 +55,8 @@ pub(crate) fn parse_f64_prefix(text: &[u8]) -> Option<(f64, usize)> {
     let mut fraction = 0;
     if i < n && text[i] == b'.' {
         i += 1;
+        // The same loop as the integer part's: written out twice, since a
+        // shared helper cost 2-3 % of the reader thread's instructions.
         let start = i;
         while i < n {
             let d = text[i].wrapping_sub(b'0');

@@ -554,22 +554,7 @@ impl<R: BufRead> LogReader<R> {
             let Some(reading) = *reading else {
                 continue;
             };
-            match samples.get_mut(used) {
-                Some(s) => {
-                    s.time = time;
-                    if s.channel != name {
-                        name.clone_into(&mut s.channel);
-                    }
-                    s.unit = unit;
-                    s.reading = reading;
-                }
-                None => samples.push(Sample {
-                    time,
-                    channel: name.to_string(),
-                    unit,
-                    reading,
-                }),
-            }
+            put_sample(samples, used, time, name, unit, reading);
             used += 1;
         }
         samples.truncate(used);
@@ -693,22 +678,7 @@ impl<R: BufRead> LogReader<R> {
         // held (in a steady log, never).
         let mut used = 0;
         let mut put = |samples: &mut Vec<Sample>, name: &str, unit, reading| {
-            match samples.get_mut(used) {
-                Some(s) => {
-                    s.time = time;
-                    if s.channel != name {
-                        name.clone_into(&mut s.channel);
-                    }
-                    s.unit = unit;
-                    s.reading = reading;
-                }
-                None => samples.push(Sample {
-                    time,
-                    channel: name.to_string(),
-                    unit,
-                    reading,
-                }),
-            }
+            put_sample(samples, used, time, name, unit, reading);
             used += 1;
         };
         let mut samples = std::mem::take(&mut out.samples);
@@ -748,6 +718,36 @@ impl<R: BufRead> LogReader<R> {
         let name = self.name.as_str();
         let at = |col: usize, msg: String| LogError::at(name, raw.number, Some(col), msg);
         Some(row_result(std::mem::take(out), bad, at).map(|_| ()))
+    }
+}
+
+/// Puts a reading in slot `at` of a row's samples (the next one), over
+/// what the slot held: the channel name is copied only when it differs
+/// (in a steady log, never).
+#[inline]
+fn put_sample(
+    samples: &mut Vec<Sample>,
+    at: usize,
+    time: DateTime<Utc>,
+    name: &str,
+    unit: ChannelUnit,
+    reading: Reading,
+) {
+    match samples.get_mut(at) {
+        Some(s) => {
+            s.time = time;
+            if s.channel != name {
+                name.clone_into(&mut s.channel);
+            }
+            s.unit = unit;
+            s.reading = reading;
+        }
+        None => samples.push(Sample {
+            time,
+            channel: name.to_string(),
+            unit,
+            reading,
+        }),
     }
 }
 

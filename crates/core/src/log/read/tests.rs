@@ -785,29 +785,21 @@ fn row_cell() -> impl Strategy<Value = Vec<u8>> {
 
 /// A data line: a time and cells (now and then one too few or too many),
 /// or a blank, `#` or garbage line; now and then cut short.
+/// A time and its cells, as a line.
+fn join_cells((time, cells): (Vec<u8>, Vec<Vec<u8>>)) -> Vec<u8> {
+    let mut line = time;
+    for c in cells {
+        line.push(b',');
+        line.extend(c);
+    }
+    line
+}
+
 fn row_line(cells: usize) -> impl Strategy<Value = Vec<u8>> {
     let cut = proptest::option::weighted(0.05, any::<usize>());
     let line = prop_oneof![
-        12 => (row_time(), prop::collection::vec(row_cell(), cells..=cells)).prop_map(
-            |(t, cells)| {
-                let mut line = t;
-                for c in cells {
-                    line.push(b',');
-                    line.extend(c);
-                }
-                line
-            }
-        ),
-        1 => (row_time(), prop::collection::vec(row_cell(), 0..cells + 3)).prop_map(
-            |(t, cells)| {
-                let mut line = t;
-                for c in cells {
-                    line.push(b',');
-                    line.extend(c);
-                }
-                line
-            }
-        ),
+        12 => (row_time(), prop::collection::vec(row_cell(), cells..=cells)).prop_map(join_cells),
+        1 => (row_time(), prop::collection::vec(row_cell(), 0..cells + 3)).prop_map(join_cells),
         1 => prop::sample::select(vec!["", " ", "\t", "# late", "time,a", "\u{feff}x"])
             .prop_map(|s| s.as_bytes().to_vec()),
         1 => prop::collection::vec(any::<u8>(), 0..40),
