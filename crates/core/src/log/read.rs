@@ -429,8 +429,10 @@ impl<R: BufRead> LogReader<R> {
     /// The next row into `row`, reusing its buffers (its samples and their
     /// channel names): what the iterator gives, without allocating per row.
     /// `Some(Ok(()))`: `row` holds the row. `Some(Err(e))`: a bad row, its
-    /// good readings in `e.row` as the iterator gives them (`row` is then
-    /// left empty). `None`: the end of the log.
+    /// good readings in `e.row` as the iterator gives them; `row` then holds
+    /// nothing to use (emptied after a bad cell, as it was after a line that
+    /// is no row: a wrong number of cells, a bad time, bad UTF-8). `None`:
+    /// the end of the log.
     pub fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
         loop {
             let mut raw = std::mem::replace(&mut self.raw, RawLine::empty());
