@@ -35,16 +35,7 @@ fn time(s: &str) -> DateTime<Utc> {
 fn app_at(until: Option<&str>) -> App {
     let cfg = config::load(&root().join("config/demo.toml")).expect("demo config");
     let monitor = Monitor::new(cfg.monitor_setup(Vec::new()));
-    let gauges = cfg
-        .gauges
-        .iter()
-        .map(|g| GaugeInfo {
-            id: g.id.clone(),
-            label: g.label.clone(),
-            kind: Some(g.kind),
-            unit: rarefy::sample::ChannelUnit::Pressure(cfg.display.pressure_unit),
-        })
-        .collect();
+    let gauges = GaugeInfo::configured(&cfg);
     let mut app = App::new(cfg.chamber.name.clone(), monitor, gauges);
     app.color = false;
     app.window_s = 900.0;

@@ -122,16 +122,9 @@ fn v1_log(dir: &Path) -> PathBuf {
 
 fn demo_setup(file: &Path) -> (ReplaySetup, Vec<GaugeInfo>) {
     let cfg = config::load(&root().join("config/demo.toml")).expect("demo config");
-    let gauges = cfg
-        .gauges
-        .iter()
+    let gauges = GaugeInfo::configured(&cfg)
+        .into_iter()
         .filter(|g| g.id != "ion")
-        .map(|g| GaugeInfo {
-            id: g.id.clone(),
-            label: g.label.clone(),
-            kind: Some(g.kind),
-            unit: rarefy::sample::ChannelUnit::Pressure(cfg.display.pressure_unit),
-        })
         .collect();
     let setup = ReplaySetup {
         file: file.to_path_buf(),

@@ -78,16 +78,7 @@ fn speed(s: &str) -> Result<Speed, String> {
 }
 
 fn gauges(config: &Config) -> Vec<GaugeInfo> {
-    config
-        .gauges
-        .iter()
-        .map(|g| GaugeInfo {
-            id: g.id.clone(),
-            label: g.label.clone(),
-            kind: Some(g.kind),
-            unit: crate::sample::ChannelUnit::Pressure(config.display.pressure_unit),
-        })
-        .collect()
+    GaugeInfo::configured(config)
 }
 
 fn styled(app: &mut App, ascii: bool, config: &Config) {

@@ -52,16 +52,7 @@ fn config() -> Config {
 
 fn empty_app() -> App {
     let config = config();
-    let gauges = config
-        .gauges
-        .iter()
-        .map(|g| GaugeInfo {
-            id: g.id.clone(),
-            label: g.label.clone(),
-            kind: Some(g.kind),
-            unit: ChannelUnit::Pressure(config.display.pressure_unit),
-        })
-        .collect();
+    let gauges = GaugeInfo::configured(&config);
     let monitor = Monitor::new(config.monitor_setup(Vec::new()));
     let mut app = App::new(config.chamber.name.clone(), monitor, gauges);
     app.window_s = 3600.0;

@@ -133,6 +133,23 @@ pub struct GaugeInfo {
     pub unit: ChannelUnit,
 }
 
+impl GaugeInfo {
+    /// The gauges a configuration declares, as shown: its labels and kinds,
+    /// in its display pressure unit.
+    pub fn configured(config: &rarefy_app::config::Config) -> Vec<GaugeInfo> {
+        config
+            .gauges
+            .iter()
+            .map(|g| GaugeInfo {
+                id: g.id.clone(),
+                label: g.label.clone(),
+                kind: Some(g.kind),
+                unit: ChannelUnit::Pressure(config.display.pressure_unit),
+            })
+            .collect()
+    }
+}
+
 /// Counters shown on the status line.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Counters {

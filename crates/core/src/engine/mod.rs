@@ -518,57 +518,40 @@ impl Precomputed {
         out.impingement_per_m2_s = u.impingement_per_m2_s * p;
         out.monolayer_time_s = u.monolayer_time_s / p;
         out.vacuum_range = self.edition.classify(p);
-        // The names stay as they are when the gas is the same (they are
-        // compared, not copied, on every reading).
-        out.species.truncate(u.species.len());
-        for (i, unit) in u.species.iter().enumerate() {
-            let s = match out.species.get_mut(i) {
-                Some(s) => {
-                    if !crate::sample::same_id(&s.gas, &unit.gas) {
-                        s.gas.clone_from(&unit.gas);
-                    }
-                    s
-                }
-                None => {
-                    out.species.push(unit.clone());
-                    &mut out.species[i]
-                }
-            };
-            // Every field named: a new one must be decided here.
-            *s = SpeciesDerived {
-                gas: std::mem::take(&mut s.gas),
-                fraction: unit.fraction,
-                mean_speed_m_per_s: unit.mean_speed_m_per_s,
-                diameter_m: unit.diameter_m,
-                partial_pressure_pa: unit.partial_pressure_pa * p,
-                number_density_per_m3: unit.number_density_per_m3 * p,
-                mean_free_path_m: unit.mean_free_path_m / p,
-                impingement_per_m2_s: unit.impingement_per_m2_s * p,
-                monolayer_time_s: unit.monolayer_time_s / p,
-            };
-        }
-        out.lengths.truncate(u.lengths.len());
-        for (i, unit) in u.lengths.iter().enumerate() {
-            let l = match out.lengths.get_mut(i) {
-                Some(l) => {
-                    if !crate::sample::same_id(&l.name, &unit.name) {
-                        l.name.clone_from(&unit.name);
-                    }
-                    l
-                }
-                None => {
-                    out.lengths.push(unit.clone());
-                    &mut out.lengths[i]
-                }
-            };
-            let knudsen = regime::knudsen(out.mean_free_path_m, unit.length_m);
-            *l = LengthDerived {
-                name: std::mem::take(&mut l.name),
-                length_m: unit.length_m,
-                knudsen,
-                regime: self.bounds.classify(knudsen),
-            };
-        }
+        refresh_each(
+            &mut out.species,
+            &u.species,
+            |s| s.gas.as_str(),
+            |s, unit| {
+                // Every field named: a new one must be decided here.
+                *s = SpeciesDerived {
+                    gas: std::mem::take(&mut s.gas),
+                    fraction: unit.fraction,
+                    mean_speed_m_per_s: unit.mean_speed_m_per_s,
+                    diameter_m: unit.diameter_m,
+                    partial_pressure_pa: unit.partial_pressure_pa * p,
+                    number_density_per_m3: unit.number_density_per_m3 * p,
+                    mean_free_path_m: unit.mean_free_path_m / p,
+                    impingement_per_m2_s: unit.impingement_per_m2_s * p,
+                    monolayer_time_s: unit.monolayer_time_s / p,
+                };
+            },
+        );
+        let mean_free_path_m = out.mean_free_path_m;
+        refresh_each(
+            &mut out.lengths,
+            &u.lengths,
+            |l| l.name.as_str(),
+            |l, unit| {
+                let knudsen = regime::knudsen(mean_free_path_m, unit.length_m);
+                *l = LengthDerived {
+                    name: std::mem::take(&mut l.name),
+                    length_m: unit.length_m,
+                    knudsen,
+                    regime: self.bounds.classify(knudsen),
+                };
+            },
+        );
         out.warnings.clear();
         if p > regime::ABOVE_ATMOSPHERIC_PA {
             out.warnings.push(Warning::new(
@@ -591,6 +574,28 @@ impl Precomputed {
                 ));
             }
         }
+    }
+}
+
+/// Makes `out` as long as `units`, each entry refreshed by `fill` from its
+/// unit, reusing what `out` holds: an entry's name is compared, and copied
+/// (into its buffer) only when it differs, as when the gas changes. The
+/// engine does this on every reading.
+#[inline]
+fn refresh_each<T: Clone>(
+    out: &mut Vec<T>,
+    units: &[T],
+    name: fn(&T) -> &str,
+    mut fill: impl FnMut(&mut T, &T),
+) {
+    out.truncate(units.len());
+    for (i, unit) in units.iter().enumerate() {
+        match out.get_mut(i) {
+            Some(o) if crate::sample::same_id(name(o), name(unit)) => {}
+            Some(o) => o.clone_from(unit),
+            None => out.push(unit.clone()),
+        }
+        fill(&mut out[i], unit);
     }
 }
 

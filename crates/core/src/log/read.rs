@@ -726,7 +726,7 @@ impl<R: BufRead> LogReader<R> {
 /// Puts a reading in slot `at` of a row's samples (the next one), over
 /// what the slot held: the channel name is copied only when it differs
 /// (in a steady log, never).
-#[inline]
+#[inline(always)]
 fn put_sample(
     samples: &mut Vec<Sample>,
     at: usize,
