@@ -237,6 +237,18 @@ pub struct Monitor {
     kinetics: Vec<CachedKinetics>,
     /// The time [`Monitor::advance_to`] last went to, until the next push.
     advanced_to: Option<DateTime<Utc>>,
+    /// No deadline falls before this time: what [`Monitor::advance_to`]
+    /// needs not look for at each reading. Worked out after a search that
+    /// found nothing due, it stays a lower bound while the only changes are
+    /// readings in time order and evaluations in which no machine moves
+    /// (a deadline then only moves later); everything else clears it.
+    deadline_floor: Option<DateTime<Utc>>,
+    /// A reading before this time would go stale before the floor: it
+    /// clears the floor.
+    floor_readings_from: DateTime<Utc>,
+    /// Use [`Monitor::deadline_floor`] (off in tests that compare against a
+    /// search at every reading).
+    floor_on: bool,
     /// Every gauge an input alarm watches has a track (no "never seen"
     /// deadline to look for).
     inputs_seen: bool,
@@ -396,6 +408,9 @@ impl Monitor {
             temperature_k: None,
             kinetics: Vec::new(),
             advanced_to: None,
+            deadline_floor: None,
+            floor_readings_from: DateTime::<Utc>::MAX_UTC,
+            floor_on: true,
             inputs_seen: false,
             rules,
             rule_input,
@@ -410,9 +425,19 @@ impl Monitor {
         }
     }
 
+    /// The same monitor looking for deadlines at every reading (the
+    /// reference [`Monitor::deadline_floor`] is tested against).
+    #[cfg(test)]
+    pub(crate) fn without_deadline_floor(mut self) -> Self {
+        self.floor_on = false;
+        self.deadline_floor = None;
+        self
+    }
+
     /// Watches a channel a source announced before sending anything: from
     /// now on it has a `<id>.input` alarm, so silence is an alarm too.
     pub fn expect_channel(&mut self, id: &str) {
+        self.deadline_floor = None;
         if !self.inputs.iter().any(|r| r.rule.gauge == id) {
             self.inputs
                 .push(RuleMachine::new(input_rule(id, self.setup.input_severity)));
@@ -423,6 +448,7 @@ impl Monitor {
     /// Watches a source's connection with a `<id>.link` alarm, active once
     /// the source has not been connected for `stale_after` of data time.
     pub fn add_link(&mut self, id: &str, label: &str) {
+        self.deadline_floor = None;
         if self.links.iter().any(|l| l.machine.rule.gauge == id) {
             return;
         }
@@ -442,6 +468,7 @@ impl Monitor {
     /// clock). The alarm follows on the next evaluation.
     pub fn set_link(&mut self, id: &str, up: bool, now: DateTime<Utc>) -> Vec<Event> {
         let mut events = self.advance_to(now);
+        self.deadline_floor = None;
         if let Some(l) = self.links.iter_mut().find(|l| l.machine.rule.gauge == id)
             && l.up != up
         {
@@ -459,6 +486,7 @@ impl Monitor {
         if self.origin.is_some() {
             return Vec::new();
         }
+        self.deadline_floor = None;
         self.origin = Some(t);
         self.provisional = true;
         self.now = Some(self.now.map_or(t, |n| n.max(t)));
@@ -476,6 +504,7 @@ impl Monitor {
         self.origin = Some(t);
         self.now = Some(t);
         self.evaluated = None;
+        self.deadline_floor = None;
         for (r, _) in &mut self.rules {
             r.restart_delays();
         }
@@ -628,6 +657,8 @@ impl Monitor {
                 }
             }
             if change {
+                // Tracks went back to their state before the row.
+                self.deadline_floor = None;
                 self.temperature_k = temperature_k;
                 events.push(self.apply_gas(mixture, origin, None, now));
                 for s in samples {
@@ -694,6 +725,7 @@ impl Monitor {
         who: Option<&Actor>,
         now: DateTime<Utc>,
     ) -> Event {
+        self.deadline_floor = None;
         let from = self.gas.mixture.label();
         let to = mixture.label();
         self.gas.models = models_for(&self.setup.gauges, &self.setup.mixture, &mixture);
@@ -863,9 +895,21 @@ impl Monitor {
         let mut events = Vec::new();
         if self.origin.is_none() {
             self.origin = Some(t);
+            self.deadline_floor = None;
         }
-        while let Some(d) = self.next_deadline_by(t) {
-            events.extend(self.evaluate(d));
+        if !(self.floor_on && self.deadline_floor.is_some_and(|f| t < f)) {
+            while let Some(d) = self.next_deadline_by(t) {
+                events.extend(self.evaluate(d));
+            }
+            if self.floor_on {
+                let floor = self
+                    .deadline_search(None)
+                    .unwrap_or(DateTime::<Utc>::MAX_UTC);
+                self.deadline_floor = Some(floor);
+                self.floor_readings_from = floor
+                    .checked_sub_signed(chrono::Duration::milliseconds(self.stale_ms() + 1))
+                    .unwrap_or(DateTime::<Utc>::MIN_UTC);
+            }
         }
         self.now = Some(self.now.map_or(t, |n| n.max(t)));
         self.advanced_to = Some(t);
@@ -895,12 +939,7 @@ impl Monitor {
     /// The earliest deadline after the last evaluation (and at or before
     /// `by`, when given).
     fn deadline_search(&self, by: Option<DateTime<Utc>>) -> Option<DateTime<Utc>> {
-        let stale_ms = (self.setup.stale_after_s * 1000.0 + 1e-6).floor();
-        let stale_ms = if stale_ms.is_finite() && stale_ms < 1e15 {
-            stale_ms as i64
-        } else {
-            1_000_000_000_000_000
-        };
+        let stale_ms = self.stale_ms();
         // Stale is "more than stale_after since", so one millisecond past.
         let stale_at = |since: DateTime<Utc>| {
             if by.is_some_and(|t| crate::timefmt::millis_between(since, t) <= stale_ms) {
@@ -918,7 +957,18 @@ impl Monitor {
                 earliest = Some(l);
             }
         }
-        let first = earliest.and_then(stale_at);
+        let mut first = earliest.and_then(stale_at);
+        if first.is_some_and(|d| self.evaluated.is_some_and(|e| d <= e)) {
+            // The earliest reading went stale at an evaluation already
+            // made (a channel that stopped): the next is another's.
+            first = self
+                .tracks
+                .values()
+                .filter_map(|t| t.last_time)
+                .filter_map(stale_at)
+                .filter(|d| self.evaluated.is_none_or(|e| *d > e))
+                .min();
+        }
         let mut best = None;
         let mut consider = |d: DateTime<Utc>| {
             if by.is_none_or(|t| d <= t)
@@ -963,6 +1013,16 @@ impl Monitor {
         best
     }
 
+    /// `stale_after` in whole milliseconds.
+    fn stale_ms(&self) -> i64 {
+        let stale_ms = (self.setup.stale_after_s * 1000.0 + 1e-6).floor();
+        if stale_ms.is_finite() && stale_ms < 1e15 {
+            stale_ms as i64
+        } else {
+            1_000_000_000_000_000
+        }
+    }
+
     fn never_seen_stale(&self) -> bool {
         match (self.origin, self.now) {
             (Some(o), Some(n)) => crate::timefmt::seconds_between(o, n) > self.setup.stale_after_s,
@@ -988,6 +1048,11 @@ impl Monitor {
         let Some(track) = self.tracks.at_mut(at) else {
             return;
         };
+        // A new channel, or a reading that goes stale before the floor
+        // (time went back, a channel that had stopped).
+        if made || s.time < self.floor_readings_from {
+            self.deadline_floor = None;
+        }
         track.last_time = Some(s.time);
         track.status = s.status();
         track.is_pressure = s.unit.is_pressure();
@@ -1339,6 +1404,8 @@ impl Monitor {
             if self.rules[i].0.quiet(input) {
                 continue;
             }
+            // A machine that moves may start or end a delay.
+            self.deadline_floor = None;
             let ts = self.rules[i].0.update(now, input);
             for t in ts {
                 events.push(self.alarm_event(&self.rules[i].0.rule, &t));
@@ -1373,6 +1440,7 @@ impl Monitor {
             if self.inputs[i].quiet(input) {
                 continue;
             }
+            self.deadline_floor = None;
             let ts = self.inputs[i].update(now, input);
             for t in ts {
                 let mut e = self.alarm_event(&self.inputs[i].rule, &t);
@@ -1387,6 +1455,10 @@ impl Monitor {
                 };
                 events.push(e);
             }
+        }
+        // Source links and gates are updated at every evaluation.
+        if !(self.links.is_empty() && self.gates.is_empty()) {
+            self.deadline_floor = None;
         }
         // Source links.
         for i in 0..self.links.len() {
@@ -1462,6 +1534,7 @@ impl Monitor {
     }
 
     fn rule_mut(&mut self, id: &str) -> Result<&mut RuleMachine, String> {
+        self.deadline_floor = None;
         let known: Vec<String> = self.all_rules().map(|r| r.rule.id.clone()).collect();
         self.rules
             .iter_mut()
@@ -1575,6 +1648,7 @@ impl Monitor {
             .find(|g| g.gate.id == id)
             .ok_or_else(|| format!("no gate `{id}`"))?;
         let old = std::mem::replace(&mut g.gate.hold_s, hold_s);
+        self.deadline_floor = None;
         let label = g.gate.label.clone();
         if let Some(spec) = std::sync::Arc::make_mut(&mut self.setup)
             .gates
@@ -1598,6 +1672,7 @@ impl Monitor {
     /// Returns an audit event per gauge that had counted any.
     pub fn reset_exposure(&mut self, who: &Actor, now: DateTime<Utc>) -> Vec<Event> {
         let now = self.op_time(now);
+        self.deadline_floor = None;
         let mut old = Vec::new();
         for (id, t) in self.tracks.iter_mut() {
             if t.is_pressure && t.exposure.pa_s() > 0.0 {

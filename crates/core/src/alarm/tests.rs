@@ -1023,3 +1023,144 @@ fn a_trip_is_seen_only_of_a_trip_alarm() {
         assert_eq!(m.trip_seen(), seen, "{input:?} {high}");
     }
 }
+
+mod deadline_floor {
+    //! [`Monitor::advance_to`] skips the deadline search while the time is
+    //! before a floor it worked out; any sequence of rows (in order, late,
+    //! repeated, with gaps, bad cells and new channels), ticks and operator
+    //! actions must give the same events and deadlines as a monitor that
+    //! searches at every reading.
+    use super::*;
+    use proptest::prelude::*;
+
+    #[derive(Debug, Clone)]
+    enum Step {
+        /// A row `dt` ms after the last (negative: time went back) on a
+        /// channel (0: g, 1: h) with a value (None: a sensor error).
+        Row(i64, u8, Option<f64>),
+        Tick(i64),
+        Acknowledge,
+        Shelve(u8),
+        Threshold(f64),
+    }
+
+    fn step() -> impl Strategy<Value = Step> {
+        let value = prop_oneof![
+            8 => (-7.0f64..0.0).prop_map(|e| Some(10f64.powf(e))),
+            1 => Just(None),
+        ];
+        let dt = prop_oneof![
+            10 => 0i64..400,
+            1 => 400i64..25_000,
+            1 => -3_000i64..0,
+        ];
+        prop_oneof![
+            20 => (dt, 0u8..2, value).prop_map(|(d, c, v)| Step::Row(d, c, v)),
+            2 => (0i64..15_000).prop_map(Step::Tick),
+            1 => Just(Step::Acknowledge),
+            1 => (1u8..20).prop_map(Step::Shelve),
+            1 => (-6.0f64..-1.0).prop_map(|e| Step::Threshold(10f64.powf(e))),
+        ]
+    }
+
+    fn no_gate_setup() -> MonitorSetup {
+        let mut s = delayed_setup();
+        s.gates.clear();
+        let mut band = rule(Test::Below(1e-3));
+        band.id = "band".into();
+        band.deadband = Deadband::Fraction(0.2);
+        s.rules.push(RuleSpec {
+            rule: band,
+            enable: None,
+        });
+        s
+    }
+
+    proptest! {
+        #[test]
+        fn same_events_as_a_search_at_every_reading(
+            gates in any::<bool>(),
+            steps in prop::collection::vec(step(), 1..120),
+        ) {
+            let setup = if gates { delayed_setup() } else { no_gate_setup() };
+            let mut fast = Monitor::new(setup.clone());
+            let mut full = Monitor::new(setup).without_deadline_floor();
+            let who = Actor { user: "op".into(), wall_time: None };
+            let mut ms = 0i64;
+            for step in steps {
+                let (a, b) = match step {
+                    Step::Row(dt, c, v) => {
+                        ms += dt;
+                        let now = t(0.0) + Duration::milliseconds(ms);
+                        let id = if c == 0 { "g" } else { "h" };
+                        let s = match v {
+                            Some(v) => Sample::ok(now, id, v, MBAR),
+                            None => Sample::bad(now, id, MBAR, Fault::SensorError),
+                        };
+                        let row = [s];
+                        (fast.push(&row), full.push(&row))
+                    }
+                    Step::Tick(dt) => {
+                        ms += dt;
+                        let now = t(0.0) + Duration::milliseconds(ms);
+                        (fast.tick(now), full.tick(now))
+                    }
+                    Step::Acknowledge => {
+                        let now = t(0.0) + Duration::milliseconds(ms);
+                        (fast.acknowledge_all(&who, now), full.acknowledge_all(&who, now))
+                    }
+                    Step::Shelve(s) => {
+                        let now = t(0.0) + Duration::milliseconds(ms);
+                        (
+                            fast.shelve("high", f64::from(s), &who, now).unwrap_or_default(),
+                            full.shelve("high", f64::from(s), &who, now).unwrap_or_default(),
+                        )
+                    }
+                    Step::Threshold(v) => {
+                        let now = t(0.0) + Duration::milliseconds(ms);
+                        (
+                            fast.set_threshold("low", v, &who, now).into_iter().collect(),
+                            full.set_threshold("low", v, &who, now).into_iter().collect(),
+                        )
+                    }
+                };
+                prop_assert_eq!(a, b);
+                prop_assert_eq!(fast.next_deadline(), full.next_deadline());
+            }
+        }
+    }
+}
+
+#[test]
+fn a_second_channel_that_stops_goes_stale_on_ticks_alone() {
+    // Both channels watched; g stops at 0 s, h at 5 s. With nothing but
+    // ticks after, each goes stale at its own time (the earliest reading's
+    // deadline, once evaluated, must not hide the next channel's).
+    let mut on_h = rule(Test::Above(1.0));
+    on_h.id = "h-high".into();
+    on_h.gauge = "h".into();
+    let mut m = Monitor::new(setup(vec![rule(Test::Above(1.0)), on_h], vec![]));
+    m.push(&[
+        Sample::ok(t(0.0), "g", 1e-4, MBAR),
+        Sample::ok(t(0.0), "h", 1e-4, MBAR),
+    ]);
+    for s in 1..=5 {
+        m.push(&[Sample::ok(t(f64::from(s)), "h", 1e-4, MBAR)]);
+    }
+    let mut events = Vec::new();
+    for s in 6..=30 {
+        events.extend(m.tick(t(f64::from(s))));
+    }
+    let stale: Vec<(String, DateTime<Utc>)> = events
+        .iter()
+        .filter(|e| e.value_text.as_deref() == Some("stale"))
+        .map(|e| (e.id.clone(), e.time))
+        .collect();
+    assert_eq!(
+        stale,
+        [
+            ("g.input".to_string(), t(10.001)),
+            ("h.input".to_string(), t(15.001))
+        ]
+    );
+}
