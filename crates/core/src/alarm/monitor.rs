@@ -106,9 +106,10 @@ pub struct GaugeTrack {
     pub derived: Option<Derived>,
     /// Exposure since its start ([`GaugeTrack::exposure_since`]).
     pub exposure: Exposure,
-    /// dp/dt, Pa/s.
+    /// dp/dt, Pa/s (fitted only when some rule, enable condition or gate
+    /// condition reads a rate of change; else `None`).
     pub dpdt: Option<f64>,
-    /// d log10 p/dt, decades per minute.
+    /// d log10 p/dt, decades per minute (as `dpdt`).
     pub decades_per_min: Option<f64>,
     window: RateWindow,
     t0: Option<DateTime<Utc>>,
@@ -273,6 +274,11 @@ pub struct Monitor {
     /// own (edits change thresholds and holds, not severities), the
     /// automatic ones the input severity.
     has_trips: bool,
+    /// Whether anything reads a rate of change (a rule, an enable
+    /// condition, a gate condition): only then are the rate windows kept
+    /// and fitted at each reading (edits change thresholds, not
+    /// quantities).
+    fit_rates: bool,
     gas: GasNow,
 }
 
@@ -400,8 +406,17 @@ impl Monitor {
                 .rules
                 .iter()
                 .any(|r| r.rule.severity == Severity::Trip);
+        let is_rate =
+            |q: &Quantity| matches!(q, Quantity::RateOfChange | Quantity::DecadesPerMinute);
+        let fit_rates = setup.rules.iter().any(|r| {
+            is_rate(&r.rule.quantity) || r.enable.as_ref().is_some_and(|c| is_rate(&c.quantity))
+        }) || setup
+            .gates
+            .iter()
+            .any(|g| g.conditions.iter().any(|c| is_rate(&c.quantity)));
         Monitor {
             has_trips,
+            fit_rates,
             gas,
             setup: std::sync::Arc::new(setup),
             tracks: TrackMap::default(),
@@ -1094,8 +1109,10 @@ impl Monitor {
         let t0 = *track.t0.get_or_insert(s.time);
         let ts = crate::timefmt::seconds_between(t0, s.time);
         track.exposure.add(ts, p);
-        track.window.push(ts, p, self.setup.rate_window_s);
-        track.fit_rates();
+        if self.fit_rates {
+            track.window.push(ts, p, self.setup.rate_window_s);
+            track.fit_rates();
+        }
     }
 
     /// Where the chamber pressure of quantity `q` comes from at the

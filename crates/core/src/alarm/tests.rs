@@ -955,8 +955,11 @@ fn a_packed_monitor_unpacks_to_the_same_and_goes_on_the_same() {
     // sliding; packed and unpacked, the copy must equal the original and
     // give the same events, rates and kinetics on the readings after.
     let wall = ChannelUnit::Temperature(TemperatureUnit::C);
+    // A rule on the rate: the windows are kept.
+    let mut rate = rule(Test::Above(3.0));
+    rate.quantity = Quantity::DecadesPerMinute;
     let mut m = Monitor::new(setup(
-        vec![rule(Test::Below(5e-3)), rule(Test::Above(2e-2))],
+        vec![rule(Test::Below(5e-3)), rule(Test::Above(2e-2)), rate],
         vec![],
     ));
     let reading = |i: usize| {
@@ -1163,4 +1166,49 @@ fn a_second_channel_that_stops_goes_stale_on_ticks_alone() {
             ("h.input".to_string(), t(15.001))
         ]
     );
+}
+
+#[test]
+fn rates_are_fitted_only_when_something_reads_them() {
+    let falling = |m: &mut Monitor| {
+        for i in 0..=50 {
+            let s = f64::from(i) * 0.5;
+            m.push(&[Sample::ok(t(s), "g", 1e-3 * (-s / 10.0).exp(), MBAR)]);
+        }
+        let g = m.track("g").expect("g");
+        (g.dpdt, g.decades_per_min)
+    };
+    // Nothing reads a rate: none is fitted.
+    let mut m = Monitor::new(setup(vec![rule(Test::Below(1e-1))], vec![]));
+    assert_eq!(falling(&mut m), (None, None));
+    let mut points = Vec::new();
+    m.pack(&mut points);
+    assert_eq!(points, 0u64.to_le_bytes(), "an empty window");
+    // A rule, an enable condition or a gate condition on a rate: fitted.
+    // ln p falls by 1/10 a second: 6/ln 10 decades a minute.
+    let want = -6.0 / std::f64::consts::LN_10;
+    let mut on_rate = rule(Test::Below(-10.0));
+    on_rate.quantity = Quantity::DecadesPerMinute;
+    let mut enabled = setup(vec![rule(Test::Below(1e-1))], vec![]);
+    enabled.rules[0].enable =
+        Some(syntax::condition("g rate_of_change below 0 mbar/s", &|_| None).expect("valid"));
+    let gate = Gate {
+        id: "falling".into(),
+        label: "Falling".into(),
+        conditions: vec![
+            syntax::condition("g rate_of_change below 0 mbar/s", &|_| None).expect("valid"),
+        ],
+        hold_s: 1.0,
+    };
+    for s in [
+        setup(vec![on_rate], vec![]),
+        enabled,
+        setup(vec![], vec![gate]),
+    ] {
+        let mut m = Monitor::new(s);
+        let (dpdt, decades) = falling(&mut m);
+        assert!(dpdt.is_some_and(|d| d < 0.0), "{dpdt:?}");
+        let d = decades.expect("decades per minute");
+        assert!((d - want).abs() < 0.05 * want.abs(), "{d} vs {want}");
+    }
 }
