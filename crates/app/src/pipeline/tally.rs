@@ -17,7 +17,7 @@ use crate::engine::LengthDerived;
 use crate::engine::regime::VacuumRange;
 use crate::report::{GaugeAccumulator, Observation};
 use crate::sample::Status;
-use rarefy_core::analysis::Analyzer;
+use rarefy_core::analysis::{Analyzer, SourceId};
 use rarefy_core::engine::gauge::GaugeKind;
 
 /// Messages per hand-over.
@@ -149,6 +149,9 @@ pub struct Tally {
     pub labels: Vec<Labels>,
     /// The chamber pressure's analysis.
     pub chamber: Option<Analyzer>,
+    /// Per gauge, the analysis source of its last reading (the lookup by
+    /// name skipped while a gauge's readings stay on one element).
+    last_source: Vec<Option<(Element, SourceId)>>,
 }
 
 impl Tally {
@@ -169,7 +172,17 @@ impl Tally {
                 if let (Some(p), Some(a), Some(l)) =
                     (r.pressure_pa, self.analyzers.get_mut(i), self.labels.get(i))
                 {
-                    let src = a.source(l.name(r.element));
+                    if self.last_source.len() <= i {
+                        self.last_source.resize(i + 1, None);
+                    }
+                    let src = match self.last_source[i] {
+                        Some((e, src)) if e == r.element => src,
+                        _ => {
+                            let src = a.source(l.name(r.element));
+                            self.last_source[i] = Some((r.element, src));
+                            src
+                        }
+                    };
                     a.push_from(r.t_s, p, src);
                 }
                 if let Some(g) = self.gauges.get_mut(i) {

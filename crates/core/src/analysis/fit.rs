@@ -166,8 +166,16 @@ impl Thinned {
 
     /// Offers one point.
     pub fn push(&mut self, x: f64, y: f64) {
+        self.offer(|| (x, y));
+    }
+
+    /// Offers one point worked out by `point` only when it is kept (the
+    /// buffer keeps one offered point in `stride`; a point may cost two
+    /// logarithms).
+    #[inline]
+    pub fn offer(&mut self, point: impl FnOnce() -> (f64, f64)) {
         if self.seen.is_multiple_of(self.stride) {
-            self.points.push((x, y));
+            self.points.push(point());
             if self.points.len() >= self.capacity {
                 let mut i = 0;
                 self.points.retain(|_| {

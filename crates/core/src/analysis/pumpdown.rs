@@ -255,7 +255,8 @@ impl PumpDownFinder {
                     c.tail.clear();
                 }
                 c.tail_source = Some(src);
-                c.tail.push((t - c.t0).ln(), p.ln());
+                let t0 = c.t0;
+                c.tail.offer(|| ((t - t0).ln(), p.ln()));
             }
         }
     }

@@ -171,6 +171,25 @@ fn thinned_buffer_stays_bounded_and_spans_the_series() {
 }
 
 #[test]
+fn a_thinned_point_is_worked_out_only_when_kept() {
+    let (mut eager, mut lazy) = (Thinned::new(64), Thinned::new(64));
+    let mut worked_out = 0;
+    for i in 0..10_000 {
+        let x = f64::from(i);
+        eager.push(x.ln_1p(), x.sqrt());
+        lazy.offer(|| {
+            worked_out += 1;
+            (x.ln_1p(), x.sqrt())
+        });
+    }
+    assert_eq!(eager, lazy);
+    // One point in `stride`: every one until full, then half as many each
+    // time the stride doubles.
+    assert!(worked_out < 64 * 8, "{worked_out}");
+    assert_eq!(lazy.seen(), 10_000);
+}
+
+#[test]
 fn awkward_inputs_do_not_panic_and_say_inconclusive() {
     // Too few points in a given range.
     let mut a = Analyzer::new(AnalysisOptions {

@@ -114,7 +114,8 @@ pub struct GaugeAccumulator {
     intervals: Vec<f64>,
     /// The gap limit once [`INTERVALS_KEPT`] intervals are in.
     gap_limit_fixed: Option<f64>,
-    in_range: BTreeMap<VacuumRange, f64>,
+    /// Seconds in each of [`RANGES`] (same order).
+    in_range: [f64; RANGES.len()],
     /// Per named length (first-seen order): seconds in each of [`REGIMES`].
     in_regime: Vec<(String, [f64; REGIMES.len()])>,
     no_pressure_s: f64,
@@ -146,7 +147,7 @@ impl GaugeAccumulator {
             median: P2Quantile::new(0.5),
             intervals: Vec::new(),
             gap_limit_fixed: None,
-            in_range: BTreeMap::new(),
+            in_range: [0.0; RANGES.len()],
             in_regime: Vec::new(),
             no_pressure_s: 0.0,
             gap_s: 0.0,
@@ -210,7 +211,11 @@ impl GaugeAccumulator {
                     }
                 } else if let Some(held) = &self.held {
                     match held.range {
-                        Some(r) => *self.in_range.entry(r).or_default() += dt,
+                        Some(r) => {
+                            if let Some(k) = RANGES.iter().position(|x| *x == r) {
+                                self.in_range[k] += dt;
+                            }
+                        }
                         None => self.no_pressure_s += dt,
                     }
                     for &(i, regime) in &held.regimes {
@@ -300,10 +305,7 @@ impl GaugeAccumulator {
             max_pa: self.max,
             mean_pa: (self.valid > 0).then(|| (self.sum.0 + self.sum.1) / self.valid as f64),
             median_pa: self.median.estimate().map(f64::exp),
-            time_in_range_s: RANGES
-                .iter()
-                .map(|r| (*r, self.in_range.get(r).copied().unwrap_or(0.0)))
-                .collect(),
+            time_in_range_s: RANGES.iter().copied().zip(self.in_range).collect(),
             time_in_regime_s: {
                 let mut v: Vec<(String, Vec<(FlowRegime, f64)>)> = self
                     .in_regime
