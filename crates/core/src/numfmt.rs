@@ -9,7 +9,7 @@
 /// `{:e}`'s; where two texts of that length are equally near the value, the
 /// last digit may differ from `{:e}`'s (property tests).
 pub fn push_exp(out: &mut String, v: f64) {
-    let mut laid = [0u8; 64];
+    let mut laid = [0u8; ROOM];
     let text = lay_exp(v, &mut laid);
     // Every byte is ASCII (digits, '-', '.', 'e', or std's `inf`/`NaN`).
     out.push_str(std::str::from_utf8(text).unwrap_or_default());
@@ -17,12 +17,155 @@ pub fn push_exp(out: &mut String, v: f64) {
 
 /// [`push_exp`] onto bytes (a CSV line being built).
 pub fn push_exp_bytes(out: &mut Vec<u8>, v: f64) {
-    let mut laid = [0u8; 64];
-    out.extend_from_slice(lay_exp(v, &mut laid));
+    let mut laid = [0u8; ROOM];
+    let n = lay_exp_len(v, &mut laid);
+    if n <= MOST {
+        // A copy of fixed size, then the bytes beyond cut off.
+        let len = out.len();
+        out.extend_from_slice(&laid[..MOST]);
+        out.truncate(len + n);
+    } else {
+        out.extend_from_slice(&laid[..n]);
+    }
 }
 
 /// `v` laid out as [`push_exp`] writes it, in `laid`.
-fn lay_exp(v: f64, laid: &mut [u8; 64]) -> &[u8] {
+fn lay_exp(v: f64, laid: &mut [u8; ROOM]) -> &[u8] {
+    let n = lay_exp_len(v, laid);
+    &laid[..n]
+}
+
+/// How many bytes of zmij's text are read (it writes at most 24), and the
+/// size of the fixed copies.
+const MOST: usize = 32;
+
+/// Room for a layout and a fixed copy beyond it.
+const ROOM: usize = 80;
+
+/// [`push_exp`]'s layout of `v` in `laid`; returns its length (at most
+/// [`MOST`] but for a sign).
+///
+/// zmij's text is `[-]d[.ddd]e[-]<exp>` (its digits kept, the exponent
+/// written again) or, for magnitudes from 1e-5 to 1e16, `[-]int.frac`:
+/// the significant digits are those without the zeros before the first or
+/// after the last non-zero one, with the point after the first of them.
+/// The text is copied once into room to spare, so that the copies after it
+/// are of a fixed size (moves, not calls).
+#[inline]
+fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
+    if !v.is_finite() {
+        // inf, -inf, NaN as std writes them.
+        let text: &[u8] = if v.is_nan() {
+            b"NaN"
+        } else if v > 0.0 {
+            b"inf"
+        } else {
+            b"-inf"
+        };
+        laid[..text.len()].copy_from_slice(text);
+        return text.len();
+    }
+    let mut buf = zmij::Buffer::new();
+    let text = buf.format_finite(v).as_bytes();
+    let negative = text.first() == Some(&b'-');
+    let body = &text[usize::from(negative)..];
+    let len = body.len().min(MOST);
+    let mut t = [0u8; ROOM];
+    t[..len].copy_from_slice(&body[..len]);
+    let mut k = usize::from(negative);
+    laid[0] = b'-';
+    // The exponent, when there is one, is among the last six bytes
+    // (`e-0324` at most).
+    let tail = len.saturating_sub(6);
+    if let Some(at) = t[tail..len].iter().position(|&c| c == b'e') {
+        let e_at = tail + at;
+        laid[k..k + MOST].copy_from_slice(&t[..MOST]);
+        k += e_at;
+        let mut i = e_at + 1;
+        let minus = t[i] == b'-';
+        if minus || t[i] == b'+' {
+            i += 1;
+        }
+        let mut e = 0u32;
+        for &d in &t[i..len] {
+            e = e * 10 + u32::from(d.wrapping_sub(b'0') % 10);
+        }
+        return put_exponent(laid, k, minus, e);
+    }
+    let dot = t[..len].iter().position(|&c| c == b'.').unwrap_or(len);
+    // The fraction's digits without its trailing zeros: t[dot + 1..end].
+    let mut end = len;
+    while end > dot + 1 && t[end - 1] == b'0' {
+        end -= 1;
+    }
+    let frac = end.saturating_sub(dot + 1);
+    if t[0] == b'0' {
+        // 0.000ddd: the first significant digit is in the fraction.
+        let mut lead = dot + 1;
+        while lead < end && t[lead] == b'0' {
+            lead += 1;
+        }
+        if lead >= end {
+            laid[k..k + 3].copy_from_slice(b"0e0");
+            return k + 3;
+        }
+        laid[k] = t[lead];
+        k += 1;
+        let rest = end - lead - 1;
+        if rest > 0 {
+            laid[k] = b'.';
+            laid[k + 1..k + 1 + MOST].copy_from_slice(&t[lead + 1..lead + 1 + MOST]);
+            k += 1 + rest;
+        }
+        return put_exponent(laid, k, true, (lead - dot) as u32);
+    }
+    // ddd.ddd with no leading zero: the point moves after the first digit;
+    // with no fraction left, the whole part's trailing zeros go too.
+    let mut int_end = dot;
+    if frac == 0 {
+        while int_end > 1 && t[int_end - 1] == b'0' {
+            int_end -= 1;
+        }
+    }
+    laid[k] = t[0];
+    k += 1;
+    let rest = int_end.saturating_sub(1);
+    if rest + frac > 0 {
+        laid[k] = b'.';
+        k += 1;
+        laid[k..k + MOST].copy_from_slice(&t[1..1 + MOST]);
+        k += rest;
+        laid[k..k + MOST].copy_from_slice(&t[dot + 1..dot + 1 + MOST]);
+        k += frac;
+    }
+    put_exponent(laid, k, false, dot.saturating_sub(1) as u32)
+}
+
+/// Writes `e[-]<e>` at `k` (no leading zeros); returns the length.
+#[inline]
+fn put_exponent(laid: &mut [u8; ROOM], mut k: usize, minus: bool, e: u32) -> usize {
+    laid[k] = b'e';
+    k += 1;
+    if minus {
+        laid[k] = b'-';
+        k += 1;
+    }
+    if e >= 100 {
+        laid[k] = b'0' + (e / 100 % 10) as u8;
+        k += 1;
+    }
+    if e >= 10 {
+        laid[k] = b'0' + (e / 10 % 10) as u8;
+        k += 1;
+    }
+    laid[k] = b'0' + (e % 10) as u8;
+    k + 1
+}
+
+/// The layout as first written (several passes over zmij's text): what
+/// [`lay_exp`] is tested against.
+#[cfg(test)]
+fn lay_exp_reference(v: f64, laid: &mut [u8; 64]) -> &[u8] {
     if !v.is_finite() {
         // inf, -inf, NaN as std writes them.
         let text: &[u8] = if v.is_nan() {
@@ -158,6 +301,8 @@ mod tests {
     fn same(v: f64) {
         let mut s = String::new();
         push_exp(&mut s, v);
+        let (mut a, mut b) = ([0u8; ROOM], [0u8; 64]);
+        assert_eq!(lay_exp(v, &mut a), lay_exp_reference(v, &mut b), "{v:?}");
         let mut b = b"x,".to_vec();
         push_exp_bytes(&mut b, v);
         assert_eq!(b[2..], *s.as_bytes(), "bytes and text of {v:?}");

@@ -220,6 +220,116 @@ fn rfc3339_millis(t: DateTime<Utc>) -> Option<[u8; 24]> {
     Some(buf)
 }
 
+/// [`push_rfc3339_bytes`] keeping the text of the last date written: the
+/// times of a CSV are nearly all of the day before's, so a time costs its
+/// time of day alone.
+#[derive(Debug, Clone, Default)]
+pub struct Rfc3339Writer {
+    /// The last date written and a text of it (its time of day is
+    /// overwritten each time).
+    day: Option<(chrono::NaiveDate, [u8; 24])>,
+}
+
+impl Rfc3339Writer {
+    /// Appends `t` as [`push_rfc3339_bytes`] does.
+    #[inline]
+    pub fn push(&mut self, out: &mut Vec<u8>, t: DateTime<Utc>) {
+        use chrono::Timelike;
+        let naive = t.naive_utc();
+        let (date, time) = (naive.date(), naive.time());
+        let mut buf = match self.day {
+            Some((d, text)) if d == date => text,
+            _ => match rfc3339_millis(t) {
+                Some(text) => {
+                    self.day = Some((date, text));
+                    text
+                }
+                None => {
+                    push_rfc3339_bytes(out, t);
+                    return;
+                }
+            },
+        };
+        let secs = time.num_seconds_from_midnight();
+        // A leap second shows as :60, as chrono writes it.
+        let nanos = time.nanosecond();
+        let (leap, ms) = if nanos >= 1_000_000_000 {
+            (1, (nanos - 1_000_000_000) / 1_000_000)
+        } else {
+            (0, nanos / 1_000_000)
+        };
+        let (h, mi, s) = (secs / 3600, secs / 60 % 60, secs % 60 + leap);
+        let two = |v: u32| [b'0' + (v / 10) as u8, b'0' + (v % 10) as u8];
+        buf[11..13].copy_from_slice(&two(h));
+        buf[14..16].copy_from_slice(&two(mi));
+        buf[17..19].copy_from_slice(&two(s));
+        buf[20] = b'0' + (ms / 100) as u8;
+        buf[21..23].copy_from_slice(&two(ms % 100));
+        out.extend_from_slice(&buf);
+    }
+}
+
+#[cfg(test)]
+mod rfc3339_writer_tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        /// Times in runs of one day and across days, years RFC 3339
+        /// cannot hold, and leap seconds: the same bytes as the writer
+        /// without a cache.
+        #[test]
+        fn writes_what_push_rfc3339_bytes_writes(
+            start in -62_000_000_000_000i64..253_402_300_799_999,
+            steps in prop::collection::vec(prop_oneof![
+                4 => 0i64..1_000,
+                2 => 0i64..200_000_000,
+                1 => -100_000_000i64..0,
+                1 => -300_000_000_000_000i64..300_000_000_000_000,
+            ], 1..40),
+            leap in prop::collection::vec(any::<bool>(), 40),
+        ) {
+            let mut w = Rfc3339Writer::default();
+            let mut ms = start;
+            for (i, step) in steps.into_iter().enumerate() {
+                ms = ms.saturating_add(step);
+                let secs = ms.div_euclid(1000);
+                let mut nanos = (ms.rem_euclid(1000) * 1_000_000) as u32;
+                // A leap second: chrono allows it at any second ending :59.
+                if leap[i] && secs.rem_euclid(60) == 59 {
+                    nanos += 1_000_000_000;
+                }
+                let Some(t) = DateTime::from_timestamp(secs, nanos) else {
+                    continue;
+                };
+                let (mut a, mut b) = (b"x,".to_vec(), b"x,".to_vec());
+                w.push(&mut a, t);
+                push_rfc3339_bytes(&mut b, t);
+                prop_assert_eq!(a, b, "{}", t);
+            }
+        }
+    }
+
+    #[test]
+    fn years_outside_four_digits_and_a_leap_second() {
+        let mut w = Rfc3339Writer::default();
+        for t in [
+            DateTime::from_timestamp(-62_200_000_000, 0),
+            DateTime::from_timestamp(253_402_300_800, 5_000_000),
+            DateTime::from_timestamp(1_483_228_799, 1_250_000_000),
+            DateTime::from_timestamp(1_483_228_799, 999_000_000),
+        ]
+        .into_iter()
+        .flatten()
+        {
+            let (mut a, mut b) = (Vec::new(), Vec::new());
+            w.push(&mut a, t);
+            push_rfc3339_bytes(&mut b, t);
+            assert_eq!(a, b, "{t}");
+        }
+    }
+}
+
 /// Seconds from `a` to `b`, at millisecond resolution:
 /// `(b - a).num_milliseconds() as f64 / 1000.0`, the engine's one way of
 /// measuring data time, without chrono's general duration arithmetic on

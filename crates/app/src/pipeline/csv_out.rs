@@ -80,6 +80,7 @@ struct Writer {
     lengths: usize,
     names: Vec<String>,
     line: Vec<u8>,
+    times: crate::timefmt::Rfc3339Writer,
     error: Option<String>,
 }
 
@@ -107,7 +108,7 @@ impl Writer {
                 .get(i * self.lengths..(i + 1) * self.lengths)
                 .unwrap_or_default();
             let name = self.names.get(r.gauge).map_or("", String::as_str);
-            lay_out(line, r, name, cells);
+            lay_out(line, &mut self.times, r, name, cells);
             // Written in pieces of about 64 KiB.
             if line.len() >= 1 << 16 {
                 if let Err(e) = self.out.write_all(line) {
@@ -134,7 +135,13 @@ impl Writer {
 /// path, per length Knudsen number and regime, impingement rate, time to a
 /// monolayer, range. Numbers in the shortest form that reads back to the
 /// same `f64` (`numfmt::push_exp`); no value, an empty cell.
-fn lay_out(line: &mut Vec<u8>, r: &Record, gauge: &str, cells: &[LengthCells]) {
+fn lay_out(
+    line: &mut Vec<u8>,
+    times: &mut crate::timefmt::Rfc3339Writer,
+    r: &Record,
+    gauge: &str,
+    cells: &[LengthCells],
+) {
     let num = |line: &mut Vec<u8>, v: Option<f64>| {
         line.push(b',');
         if let Some(v) = v {
@@ -142,7 +149,7 @@ fn lay_out(line: &mut Vec<u8>, r: &Record, gauge: &str, cells: &[LengthCells]) {
         }
     };
     let d = r.derived.as_ref();
-    crate::timefmt::push_rfc3339_bytes(line, r.time);
+    times.push(line, r.time);
     line.push(b',');
     line.extend_from_slice(gauge.as_bytes());
     line.push(b',');
@@ -204,6 +211,7 @@ impl CsvOut {
             lengths: lengths.len(),
             names: Vec::new(),
             line: Vec::new(),
+            times: Default::default(),
             error: None,
         };
         CsvOut {
