@@ -53,17 +53,8 @@ const ROOM: usize = 80;
 /// are of a fixed size (moves, not calls).
 #[inline]
 fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
-    if !v.is_finite() {
-        // inf, -inf, NaN as std writes them.
-        let text: &[u8] = if v.is_nan() {
-            b"NaN"
-        } else if v > 0.0 {
-            b"inf"
-        } else {
-            b"-inf"
-        };
-        laid[..text.len()].copy_from_slice(text);
-        return text.len();
+    if let Some(n) = lay_non_finite(v, laid) {
+        return n;
     }
     let mut buf = zmij::Buffer::new();
     let text = buf.format_finite(v).as_bytes();
@@ -141,6 +132,23 @@ fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
     put_exponent(laid, k, false, dot.saturating_sub(1) as u32)
 }
 
+/// inf, -inf and NaN as std writes them, in `laid`; `None` for a finite
+/// `v`.
+fn lay_non_finite(v: f64, laid: &mut [u8; ROOM]) -> Option<usize> {
+    if v.is_finite() {
+        return None;
+    }
+    let text: &[u8] = if v.is_nan() {
+        b"NaN"
+    } else if v > 0.0 {
+        b"inf"
+    } else {
+        b"-inf"
+    };
+    laid[..text.len()].copy_from_slice(text);
+    Some(text.len())
+}
+
 /// Writes `e[-]<e>` at `k` (no leading zeros); returns the length.
 #[inline]
 fn put_exponent(laid: &mut [u8; ROOM], mut k: usize, minus: bool, e: u32) -> usize {
@@ -165,18 +173,9 @@ fn put_exponent(laid: &mut [u8; ROOM], mut k: usize, minus: bool, e: u32) -> usi
 /// The layout as first written (several passes over zmij's text): what
 /// [`lay_exp`] is tested against.
 #[cfg(test)]
-fn lay_exp_reference(v: f64, laid: &mut [u8; 64]) -> &[u8] {
-    if !v.is_finite() {
-        // inf, -inf, NaN as std writes them.
-        let text: &[u8] = if v.is_nan() {
-            b"NaN"
-        } else if v > 0.0 {
-            b"inf"
-        } else {
-            b"-inf"
-        };
-        laid[..text.len()].copy_from_slice(text);
-        return &laid[..text.len()];
+fn lay_exp_reference(v: f64, laid: &mut [u8; ROOM]) -> &[u8] {
+    if let Some(n) = lay_non_finite(v, laid) {
+        return &laid[..n];
     }
     let mut buf = zmij::Buffer::new();
     let text = buf.format_finite(v);
@@ -270,25 +269,8 @@ fn lay_exp_reference(v: f64, laid: &mut [u8; 64]) -> &[u8] {
         }
         int.len() as i32 - 1
     };
-    laid[k] = b'e';
-    k += 1;
-    if exponent < 0 {
-        laid[k] = b'-';
-        k += 1;
-    }
-    // From -5 to 15 here (three digits would be written all the same).
-    let e = exponent.unsigned_abs();
-    if e >= 100 {
-        laid[k] = b'0' + (e / 100 % 10) as u8;
-        k += 1;
-    }
-    if e >= 10 {
-        laid[k] = b'0' + (e / 10 % 10) as u8;
-        k += 1;
-    }
-    laid[k] = b'0' + (e % 10) as u8;
-    k += 1;
-    &laid[..k]
+    let n = put_exponent(laid, k, exponent < 0, exponent.unsigned_abs());
+    &laid[..n]
 }
 
 #[cfg(test)]
@@ -301,7 +283,7 @@ mod tests {
     fn same(v: f64) {
         let mut s = String::new();
         push_exp(&mut s, v);
-        let (mut a, mut b) = ([0u8; ROOM], [0u8; 64]);
+        let (mut a, mut b) = ([0u8; ROOM], [0u8; ROOM]);
         assert_eq!(lay_exp(v, &mut a), lay_exp_reference(v, &mut b), "{v:?}");
         let mut b = b"x,".to_vec();
         push_exp_bytes(&mut b, v);
