@@ -38,6 +38,11 @@ pub(crate) struct Lines<R> {
     /// Bytes taken from `inner` so far (with the starting offset of a
     /// resumed reading): where the next line starts in the file.
     offset: u64,
+    /// The length, line break included, of the line [`Lines::peek_line`]
+    /// gave last.
+    peeked: usize,
+    /// A read error met by [`Lines::peek_line`], for the next read to give.
+    pending: Option<io::Error>,
 }
 
 impl<R: BufRead> Lines<R> {
@@ -53,6 +58,8 @@ impl<R: BufRead> Lines<R> {
             number,
             done: false,
             offset,
+            peeked: 0,
+            pending: None,
         }
     }
 
@@ -108,6 +115,50 @@ impl<R: BufRead> Lines<R> {
         }))
     }
 
+    /// The next line, without its line break, where it lies in the
+    /// reader's buffer, when it lies there whole (ended by `\n`) and is no
+    /// longer than [`MAX_LINE_BYTES`]: nothing is taken until
+    /// [`Lines::take_peeked`]. `None` otherwise (a line crossing the
+    /// buffer's end, the last line without a break, the end, a read error):
+    /// [`Lines::next_line_into`] then reads the line as it would have,
+    /// giving any read error met here.
+    #[inline]
+    pub fn peek_line(&mut self) -> Option<&[u8]> {
+        if self.done || self.pending.is_some() {
+            return None;
+        }
+        let avail = match self.inner.fill_buf() {
+            Ok(b) => b,
+            Err(e) => {
+                // An interrupted read is tried again by the next read.
+                if e.kind() != io::ErrorKind::Interrupted {
+                    self.pending = Some(e);
+                }
+                return None;
+            }
+        };
+        if avail.is_empty() {
+            self.done = true;
+            return None;
+        }
+        let end = memchr::memchr(b'\n', avail)?;
+        if end > MAX_LINE_BYTES {
+            return None;
+        }
+        let line = &avail[..end];
+        self.peeked = end + 1;
+        Some(line.strip_suffix(b"\r").unwrap_or(line))
+    }
+
+    /// Takes the line [`Lines::peek_line`] gave last; gives its number.
+    #[inline]
+    pub fn take_peeked(&mut self) -> u64 {
+        self.inner.consume(self.peeked);
+        self.offset += self.peeked as u64;
+        self.number += 1;
+        self.number
+    }
+
     /// [`Lines::next_line`] into `line`, reusing its allocation.
     pub fn next_line_into(&mut self, line: &mut RawLine) -> Option<io::Result<()>> {
         if self.done {
@@ -115,6 +166,10 @@ impl<R: BufRead> Lines<R> {
         }
         let bytes = &mut line.bytes;
         bytes.clear();
+        if let Some(e) = self.pending.take() {
+            self.done = true;
+            return Some(Err(e));
+        }
         let mut too_long = false;
         let mut any = false;
         loop {

@@ -178,6 +178,9 @@ pub struct LogReader<R> {
     /// Tests: rows read straight from their bytes.
     #[cfg(test)]
     plain_rows: u64,
+    /// Tests: of those, rows read where they lie in the reader's buffer.
+    #[cfg(test)]
+    in_place_rows: u64,
 }
 
 impl<R: BufRead> LogReader<R> {
@@ -204,6 +207,8 @@ impl<R: BufRead> LogReader<R> {
             general_only: false,
             #[cfg(test)]
             plain_rows: 0,
+            #[cfg(test)]
+            in_place_rows: 0,
         };
         r.read_magic()?;
         loop {
@@ -423,7 +428,7 @@ impl<R: BufRead> LogReader<R> {
             too_long: false,
         };
         let mut row = Row::default();
-        Some(self.row(&raw, &mut row)?.map(|()| row))
+        Some(self.row(&raw, &mut row, true)?.map(|()| row))
     }
 
     /// The next row into `row`, reusing its buffers (its samples and their
@@ -435,12 +440,18 @@ impl<R: BufRead> LogReader<R> {
     /// the end of the log.
     pub fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
         loop {
+            // Whether the line was tried as a plain row where it lies.
+            let tried = match self.row_in_place(row) {
+                Some(true) => return Some(Ok(())),
+                Some(false) => true,
+                None => false,
+            };
             let mut raw = std::mem::replace(&mut self.raw, RawLine::empty());
             if let Err(e) = self.lines.next_located_into(&self.name, &mut raw)? {
                 self.raw = raw;
                 return Some(Err(e));
             }
-            let item = self.row(&raw, row);
+            let item = self.row(&raw, row, !tried);
             self.raw = raw;
             if let Some(item) = item {
                 return Some(item);
@@ -448,7 +459,39 @@ impl<R: BufRead> LogReader<R> {
         }
     }
 
-    fn row(&mut self, raw: &RawLine, out: &mut Row) -> Option<Result<(), LogError>> {
+    /// Reads the next line as a plain row (see [`plain_row`]) where it lies
+    /// in the reader's buffer, without copying it: `Some(true)` when it was
+    /// one (and is taken), `Some(false)` when it was not (nothing taken),
+    /// `None` when it was not looked at (not whole in the buffer, or the
+    /// first line).
+    #[inline]
+    fn row_in_place(&mut self, out: &mut Row) -> Option<bool> {
+        #[cfg(test)]
+        if self.general_only {
+            return None;
+        }
+        // The first line may carry a byte-order mark.
+        if self.lines.number() == 0 {
+            return None;
+        }
+        let bytes = self.lines.peek_line()?;
+        let Some((time, gas)) = plain_row(&self.columns, &mut self.days, &mut self.readings, bytes)
+        else {
+            return Some(false);
+        };
+        set_gas(&mut out.gas, gas);
+        let line = self.lines.take_peeked();
+        self.end_plain_row(line, time, out);
+        #[cfg(test)]
+        {
+            self.plain_rows += 1;
+            self.in_place_rows += 1;
+        }
+        Some(true)
+    }
+
+    /// A row from its line; `plain`: whether to try it as a plain row first.
+    fn row(&mut self, raw: &RawLine, out: &mut Row, plain: bool) -> Option<Result<(), LogError>> {
         // The first line may carry a byte-order mark; a cut line is an error.
         #[cfg(test)]
         let general_only = self.general_only;
@@ -457,9 +500,16 @@ impl<R: BufRead> LogReader<R> {
         if raw.number > 1
             && !raw.too_long
             && !general_only
-            && let Some((time, gas)) = self.plain_row(&raw.bytes)
+            && plain
+            && let Some((time, gas)) = plain_row(
+                &self.columns,
+                &mut self.days,
+                &mut self.readings,
+                &raw.bytes,
+            )
         {
-            self.end_plain_row(raw.number, time, gas, out);
+            set_gas(&mut out.gas, gas);
+            self.end_plain_row(raw.number, time, out);
             #[cfg(test)]
             {
                 self.plain_rows += 1;
@@ -469,81 +519,9 @@ impl<R: BufRead> LogReader<R> {
         self.general_row(raw, out)
     }
 
-    /// Reads the common row straight from its bytes, each cell parsed where
-    /// it starts: as many cells as the header, none quoted or padded with
-    /// blanks, a time in the fixed layout, and every channel cell empty, a
-    /// number read exactly by [`parse_f64_prefix`] or a fault's status word
-    /// (gas and derived cells valid UTF-8). Gives the time and the gas cell,
-    /// the channel cells in `self.readings`; `None` (no state but those
-    /// buffers changed) for any other row, which
-    /// [`LogReader::general_row`] reads. Every byte of a row read here is
-    /// ASCII or in a cell checked to be UTF-8, so the line is valid UTF-8,
-    /// as the general path requires.
-    fn plain_row<'t>(
-        &mut self,
-        bytes: &'t [u8],
-    ) -> Option<(DateTime<FixedOffset>, Option<&'t str>)> {
-        self.readings.clear();
-        // The time: at least 20 bytes, then the first comma (a quote or
-        // blank in it is refused by the time parser).
-        let end = match bytes.get(20..)?.iter().position(|&b| b == b',') {
-            Some(i) => 20 + i,
-            None => bytes.len(),
-        };
-        let time = self.days.parse_fast(&bytes[..end])?;
-        let mut gas = None;
-        // Where the cell after the last comma read starts (past the end
-        // when the line has ended).
-        let mut at = end + 1;
-        for column in &self.columns {
-            let rest = bytes.get(at..)?;
-            let (cell, used) = match column.kind {
-                ColumnKind::Channel(_) => match parse_f64_prefix(rest) {
-                    Some((v, used)) => (Some(Reading::Value(v)), used),
-                    None => {
-                        let used = cell_len(rest)?;
-                        (plain_word(&rest[..used])?, used)
-                    }
-                },
-                ColumnKind::Gas => {
-                    let used = cell_len(rest)?;
-                    let g = std::str::from_utf8(&rest[..used]).ok()?;
-                    if g.trim().len() != g.len() {
-                        return None;
-                    }
-                    gas = (!g.is_empty()).then_some(g);
-                    (None, used)
-                }
-                ColumnKind::Derived(_) => {
-                    let used = cell_len(rest)?;
-                    if !rest[..used].is_ascii() {
-                        std::str::from_utf8(&rest[..used]).ok()?;
-                    }
-                    (None, used)
-                }
-            };
-            match rest.get(used) {
-                None | Some(b',') => {}
-                Some(_) => return None,
-            }
-            if let ColumnKind::Channel(_) = column.kind {
-                self.readings.push(cell);
-            }
-            at += used + 1;
-        }
-        // Every cell read, and the line ends with the last one.
-        (at == bytes.len() + 1).then_some((time, gas))
-    }
-
-    /// Writes out a row [`LogReader::plain_row`] read, as
-    /// [`LogReader::row_cells`] would.
-    fn end_plain_row(
-        &mut self,
-        line: u64,
-        time: DateTime<FixedOffset>,
-        gas: Option<&str>,
-        out: &mut Row,
-    ) {
+    /// Writes out a row [`plain_row`] read, as [`LogReader::row_cells`]
+    /// would (its gas already in `out`, by [`set_gas`]).
+    fn end_plain_row(&mut self, line: u64, time: DateTime<FixedOffset>, out: &mut Row) {
         let offset = time.offset().fix();
         let time = time.with_timezone(&Utc);
         let channels = self.columns.iter().filter_map(|c| match c.kind {
@@ -560,10 +538,6 @@ impl<R: BufRead> LogReader<R> {
             used += 1;
         }
         samples.truncate(used);
-        match (gas, &mut out.gas) {
-            (Some(g), Some(held)) => g.clone_into(held),
-            (g, held) => *held = g.map(str::to_string),
-        }
         self.end_row(line, time, offset, out);
     }
 
@@ -720,6 +694,82 @@ impl<R: BufRead> LogReader<R> {
         let name = self.name.as_str();
         let at = |col: usize, msg: String| LogError::at(name, raw.number, Some(col), msg);
         Some(row_result(std::mem::take(out), bad, at).map(|_| ()))
+    }
+}
+
+/// Reads the common row straight from its bytes, each cell parsed where
+/// it starts: as many cells as the header, none quoted or padded with
+/// blanks, a time in the fixed layout, and every channel cell empty, a
+/// number read exactly by [`parse_f64_prefix`] or a fault's status word
+/// (gas and derived cells valid UTF-8). Gives the time and the gas cell,
+/// the channel cells in `readings`; `None` (no state but those
+/// buffers changed) for any other row, which
+/// [`LogReader::general_row`] reads. Every byte of a row read here is
+/// ASCII or in a cell checked to be UTF-8, so the line is valid UTF-8,
+/// as the general path requires.
+fn plain_row<'t>(
+    columns: &[Column],
+    days: &mut Rfc3339Days,
+    readings: &mut Vec<Option<Reading>>,
+    bytes: &'t [u8],
+) -> Option<(DateTime<FixedOffset>, Option<&'t str>)> {
+    readings.clear();
+    // The time: at least 20 bytes, then the first comma (a quote or
+    // blank in it is refused by the time parser).
+    let end = match bytes.get(20..)?.iter().position(|&b| b == b',') {
+        Some(i) => 20 + i,
+        None => bytes.len(),
+    };
+    let time = days.parse_fast(&bytes[..end])?;
+    let mut gas = None;
+    // Where the cell after the last comma read starts (past the end
+    // when the line has ended).
+    let mut at = end + 1;
+    for column in columns {
+        let rest = bytes.get(at..)?;
+        let (cell, used) = match column.kind {
+            ColumnKind::Channel(_) => match parse_f64_prefix(rest) {
+                Some((v, used)) => (Some(Reading::Value(v)), used),
+                None => {
+                    let used = cell_len(rest)?;
+                    (plain_word(&rest[..used])?, used)
+                }
+            },
+            ColumnKind::Gas => {
+                let used = cell_len(rest)?;
+                let g = std::str::from_utf8(&rest[..used]).ok()?;
+                if g.trim().len() != g.len() {
+                    return None;
+                }
+                gas = (!g.is_empty()).then_some(g);
+                (None, used)
+            }
+            ColumnKind::Derived(_) => {
+                let used = cell_len(rest)?;
+                if !rest[..used].is_ascii() {
+                    std::str::from_utf8(&rest[..used]).ok()?;
+                }
+                (None, used)
+            }
+        };
+        match rest.get(used) {
+            None | Some(b',') => {}
+            Some(_) => return None,
+        }
+        if let ColumnKind::Channel(_) = column.kind {
+            readings.push(cell);
+        }
+        at += used + 1;
+    }
+    // Every cell read, and the line ends with the last one.
+    (at == bytes.len() + 1).then_some((time, gas))
+}
+
+/// A plain row's gas cell into a row's, reusing its allocation.
+fn set_gas(held: &mut Option<String>, gas: Option<&str>) {
+    match (gas, held) {
+        (Some(g), Some(held)) => g.clone_into(held),
+        (g, held) => *held = g.map(str::to_string),
     }
 }
 
