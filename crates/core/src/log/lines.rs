@@ -38,10 +38,7 @@ pub(crate) struct Lines<R> {
     /// Bytes taken from `inner` so far (with the starting offset of a
     /// resumed reading): where the next line starts in the file.
     offset: u64,
-    /// The length, line break included, of the line [`Lines::peek_line`]
-    /// gave last.
-    peeked: usize,
-    /// A read error met by [`Lines::peek_line`], for the next read to give.
+    /// A read error met by [`Lines::buffered`], for the next read to give.
     pending: Option<io::Error>,
 }
 
@@ -58,7 +55,6 @@ impl<R: BufRead> Lines<R> {
             number,
             done: false,
             offset,
-            peeked: 0,
             pending: None,
         }
     }
@@ -115,15 +111,13 @@ impl<R: BufRead> Lines<R> {
         }))
     }
 
-    /// The next line, without its line break, where it lies in the
-    /// reader's buffer, when it lies there whole (ended by `\n`) and is no
-    /// longer than [`MAX_LINE_BYTES`]: nothing is taken until
-    /// [`Lines::take_peeked`]. `None` otherwise (a line crossing the
-    /// buffer's end, the last line without a break, the end, a read error):
-    /// [`Lines::next_line_into`] then reads the line as it would have,
-    /// giving any read error met here.
+    /// What the reader holds from where the next line starts (at least a
+    /// byte), for a caller to read a line in place: nothing is taken until
+    /// [`Lines::take_line`]. `None` at the end or on a read error (kept
+    /// for [`Lines::next_line_into`] to give): that reads on as it would
+    /// have.
     #[inline]
-    pub fn peek_line(&mut self) -> Option<&[u8]> {
+    pub fn buffered(&mut self) -> Option<&[u8]> {
         if self.done || self.pending.is_some() {
             return None;
         }
@@ -141,20 +135,16 @@ impl<R: BufRead> Lines<R> {
             self.done = true;
             return None;
         }
-        let end = memchr::memchr(b'\n', avail)?;
-        if end > MAX_LINE_BYTES {
-            return None;
-        }
-        let line = &avail[..end];
-        self.peeked = end + 1;
-        Some(line.strip_suffix(b"\r").unwrap_or(line))
+        Some(avail)
     }
 
-    /// Takes the line [`Lines::peek_line`] gave last; gives its number.
+    /// Takes a line read in place from [`Lines::buffered`]: `len` bytes,
+    /// its line break (`\n`) the last of them, and no longer than
+    /// [`MAX_LINE_BYTES`] without it; gives its number.
     #[inline]
-    pub fn take_peeked(&mut self) -> u64 {
-        self.inner.consume(self.peeked);
-        self.offset += self.peeked as u64;
+    pub fn take_line(&mut self, len: usize) -> u64 {
+        self.inner.consume(len);
+        self.offset += len as u64;
         self.number += 1;
         self.number
     }

@@ -1042,3 +1042,47 @@ proptest! {
         prop_assert_eq!(same_name(&a, &c), a == c);
     }
 }
+
+#[test]
+fn rows_read_in_the_buffer_end_where_their_lines_end() {
+    // Each kind of last cell, with `\n` and `\r\n`, stray `\r`s, a row
+    // without cells and a last line without its break: read in place as
+    // the general path reads their lines.
+    let headers = [
+        (
+            "time,a [mbar],gas",
+            vec!["1e-3,N2", "1e-3,", "1e-3,N2\r", "1e-3,\rN2"],
+        ),
+        (
+            "time,a [mbar],b [C]",
+            vec![
+                "1e-3,2.2e1",
+                "1e-3,",
+                "1e-3,stale",
+                "1e-3,2\r",
+                "1e-3,2,3",
+                "1e-3",
+            ],
+        ),
+        (
+            "time,a [mbar],d [m]",
+            vec!["1e-3,6.6e-8", "1e-3,", "1e-3,x\r", "1e-3,\r", "1e-3,a\rb"],
+        ),
+        ("time", vec!["", ",1"]),
+    ];
+    for (header, cells) in headers {
+        for crlf in ["\n", "\r\n", "\r\r\n"] {
+            let mut text = format!("{MAGIC}\n{header}\n");
+            for (i, c) in cells.iter().enumerate() {
+                let sep = if c.is_empty() { "" } else { "," };
+                text.push_str(&format!("2026-12-01T19:00:0{i}.000Z{sep}{c}{crlf}"));
+            }
+            text.push_str("2026-12-01T19:00:09.000Z");
+            for capacity in [1, 30, 64, 8192] {
+                let (fast, _) = read_traced(text.as_bytes(), capacity, false);
+                let (general, _) = read_traced(text.as_bytes(), capacity, true);
+                assert_eq!(fast, general, "{text:?} capacity {capacity}");
+            }
+        }
+    }
+}
