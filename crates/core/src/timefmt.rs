@@ -139,37 +139,43 @@ fn fast_time_of_day(b: &[u8], date: NaiveDate) -> Option<DateTime<FixedOffset>> 
 /// places; `None` for any other text (which [`fast_time_of_day`] reads on).
 #[inline(always)]
 fn writer_time_of_day(b: &[u8]) -> Option<NaiveTime> {
-    let &[
-        b'T',
-        h1,
-        h2,
-        b':',
-        m1,
-        m2,
-        b':',
-        s1,
-        s2,
-        b'.',
-        f1,
-        f2,
-        f3,
-        b'Z',
-    ] = b.get(10..)?
-    else {
-        return None;
-    };
-    let d = [h1, h2, m1, m2, s1, s2, f1, f2, f3].map(|c| u32::from(c.wrapping_sub(b'0')));
-    if d.iter().fold(false, |bad, &d| bad | (d > 9)) {
+    const ONES: u64 = 0x0101_0101_0101_0101;
+    const ZEROS: u64 = ONES * b'0' as u64;
+    if b.len() != 24 || b[10] != b'T' {
         return None;
     }
-    let (hour, minute, second) = (d[0] * 10 + d[1], d[2] * 10 + d[3], d[4] * 10 + d[5]);
+    // `HH:MM:SS` (bytes 11 to 19) and `:SS.mmmZ` (16 to 24) as words, the
+    // first byte lowest; the masks pick the digits of each.
+    let hms = u64::from_le_bytes(*b[11..].first_chunk::<8>()?);
+    let sub = u64::from_le_bytes(*b[16..].first_chunk::<8>()?);
+    const HMS_DIGITS: u64 = 0xFFFF_00FF_FF00_FFFF;
+    const HMS_MARKS: u64 = (b':' as u64) << 16 | (b':' as u64) << 40;
+    const SUB_DIGITS: u64 = 0x00FF_FFFF_0000_0000;
+    const SUB_MARKS_AT: u64 = 0xFF00_0000_FF00_00FF;
+    const SUB_MARKS: u64 = b':' as u64 | (b'.' as u64) << 24 | (b'Z' as u64) << 56;
+    if hms & !HMS_DIGITS != HMS_MARKS || sub & SUB_MARKS_AT != SUB_MARKS {
+        return None;
+    }
+    // Every other byte made a '0', then each byte checked to be a digit
+    // (its top bit set, when below b'0' or above b'9', by one of the two).
+    let hms = (hms & HMS_DIGITS) | (ZEROS & !HMS_DIGITS);
+    let sub = (sub & SUB_DIGITS) | (ZEROS & !SUB_DIGITS);
+    let no_digit = |w: u64| (w.wrapping_sub(ZEROS) | w.wrapping_add(ONES * 0x46)) & (ONES * 0x80);
+    if no_digit(hms) | no_digit(sub) != 0 {
+        return None;
+    }
+    // Each pair of digits into its first byte.
+    let (hms, sub) = (hms - ZEROS, sub - ZEROS);
+    let pairs = hms * 10 + (hms >> 8);
+    let (hour, minute, second) = (pairs & 0xFF, (pairs >> 24) & 0xFF, (pairs >> 48) & 0xFF);
     if hour > 23 || minute > 59 || second > 59 {
         return None;
     }
-    let millis = d[6] * 100 + d[7] * 10 + d[8];
+    let millis = ((sub >> 32) & 0xFF) * 100 + ((sub >> 40) & 0xFF) * 10 + ((sub >> 48) & 0xFF);
+    // All below 2^32.
     NaiveTime::from_num_seconds_from_midnight_opt(
-        hour * 3600 + minute * 60 + second,
-        millis * 1_000_000,
+        (hour * 3600 + minute * 60 + second) as u32,
+        (millis * 1_000_000) as u32,
     )
 }
 
@@ -741,6 +747,35 @@ mod fast_tests {
         }
         assert!(parse_rfc3339_fast("2026-11-03T07:00:05.000Z").is_some());
         assert!(parse_rfc3339_fast("2026-11-03T07:00:05.250+02:00").is_some());
+    }
+
+    /// Every byte of the writer's time of day changed to every value: read
+    /// at fixed places exactly when the general parser reads a real time
+    /// in the layout, and then to the same instant.
+    #[test]
+    fn the_writers_layout_with_any_byte_changed() {
+        for base in ["2026-11-16T07:23:19.300Z", "2024-02-29T23:59:59.999Z"] {
+            for at in 10..24 {
+                for byte in 0..=255u8 {
+                    let mut b = base.as_bytes().to_vec();
+                    b[at] = byte;
+                    let general = std::str::from_utf8(&b)
+                        .ok()
+                        .and_then(|t| DateTime::parse_from_rfc3339(t).ok())
+                        .filter(|t| {
+                            use chrono::Timelike;
+                            t.nanosecond() < 1_000_000_000
+                                && t.offset().local_minus_utc() == 0
+                                && b[10] == b'T'
+                                && b[19] == b'.'
+                                && b[23] == b'Z'
+                        });
+                    let date = fast_date(&b).expect("date");
+                    let fixed = writer_time_of_day(&b).map(|t| date.and_time(t).and_utc());
+                    assert_eq!(fixed, general.map(|g| g.to_utc()), "{b:?}");
+                }
+            }
+        }
     }
 
     /// Times of a few dates (so that consecutive ones often share a date),
