@@ -798,8 +798,11 @@ fn plain_row<'t, const IN_BUFFER: bool>(
 const MAX_TIME_BYTES: usize = 35;
 
 /// A plain row's gas cell into a row's, reusing its allocation.
+#[inline(always)]
 fn set_gas(held: &mut Option<String>, gas: Option<&str>) {
     match (gas, held) {
+        // No gas before or now (a log without a gas column): nothing to do.
+        (None, None) => {}
         (Some(g), Some(held)) => g.clone_into(held),
         (g, held) => *held = g.map(str::to_string),
     }
