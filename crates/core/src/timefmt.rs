@@ -27,7 +27,9 @@
 //! ```
 
 use chrono::format::{Fixed, Item, Numeric, StrftimeItems};
-use chrono::{DateTime, FixedOffset, LocalResult, NaiveDate, NaiveDateTime, Offset, TimeZone, Utc};
+use chrono::{
+    DateTime, FixedOffset, LocalResult, NaiveDate, NaiveDateTime, NaiveTime, Offset, TimeZone, Utc,
+};
 use chrono_tz::Tz;
 use std::fmt::{self, Write as _};
 
@@ -79,6 +81,13 @@ fn fast_digits(b: &[u8], from: usize, n: usize) -> Option<u32> {
 /// The rest of a fixed-layout RFC 3339 time after its date (`date`, read
 /// from the first 10 bytes): `THH:MM:SS[.f…](Z|±HH:MM)`.
 fn fast_time_of_day(b: &[u8], date: NaiveDate) -> Option<DateTime<FixedOffset>> {
+    if let Some(time) = writer_time_of_day(b) {
+        let utc = FixedOffset::east_opt(0)?;
+        return Some(DateTime::from_naive_utc_and_offset(
+            date.and_time(time),
+            utc,
+        ));
+    }
     if b.len() < 20 || b[10] != b'T' || b[13] != b':' || b[16] != b':' {
         return None;
     }
@@ -125,6 +134,51 @@ fn fast_time_of_day(b: &[u8], date: NaiveDate) -> Option<DateTime<FixedOffset>> 
     Some(DateTime::from_naive_utc_and_offset(utc, offset))
 }
 
+/// The time of day of a time in the writer's layout, UTC with
+/// milliseconds (`THH:MM:SS.mmmZ`, bytes 10 to 24 of 24), read at fixed
+/// places; `None` for any other text (which [`fast_time_of_day`] reads on).
+#[inline(always)]
+fn writer_time_of_day(b: &[u8]) -> Option<NaiveTime> {
+    const ONES: u64 = 0x0101_0101_0101_0101;
+    const ZEROS: u64 = ONES * b'0' as u64;
+    if b.len() != 24 || b[10] != b'T' {
+        return None;
+    }
+    // `HH:MM:SS` (bytes 11 to 19) and `:SS.mmmZ` (16 to 24) as words, the
+    // first byte lowest; the masks pick the digits of each.
+    let hms = u64::from_le_bytes(*b[11..].first_chunk::<8>()?);
+    let sub = u64::from_le_bytes(*b[16..].first_chunk::<8>()?);
+    const HMS_DIGITS: u64 = 0xFFFF_00FF_FF00_FFFF;
+    const HMS_MARKS: u64 = (b':' as u64) << 16 | (b':' as u64) << 40;
+    const SUB_DIGITS: u64 = 0x00FF_FFFF_0000_0000;
+    const SUB_MARKS_AT: u64 = 0xFF00_0000_FF00_00FF;
+    const SUB_MARKS: u64 = b':' as u64 | (b'.' as u64) << 24 | (b'Z' as u64) << 56;
+    if hms & !HMS_DIGITS != HMS_MARKS || sub & SUB_MARKS_AT != SUB_MARKS {
+        return None;
+    }
+    // Every other byte made a '0', then each byte checked to be a digit
+    // (its top bit set, when below b'0' or above b'9', by one of the two).
+    let hms = (hms & HMS_DIGITS) | (ZEROS & !HMS_DIGITS);
+    let sub = (sub & SUB_DIGITS) | (ZEROS & !SUB_DIGITS);
+    let no_digit = |w: u64| (w.wrapping_sub(ZEROS) | w.wrapping_add(ONES * 0x46)) & (ONES * 0x80);
+    if no_digit(hms) | no_digit(sub) != 0 {
+        return None;
+    }
+    // Each pair of digits into its first byte.
+    let (hms, sub) = (hms - ZEROS, sub - ZEROS);
+    let pairs = hms * 10 + (hms >> 8);
+    let (hour, minute, second) = (pairs & 0xFF, (pairs >> 24) & 0xFF, (pairs >> 48) & 0xFF);
+    if hour > 23 || minute > 59 || second > 59 {
+        return None;
+    }
+    let millis = ((sub >> 32) & 0xFF) * 100 + ((sub >> 40) & 0xFF) * 10 + ((sub >> 48) & 0xFF);
+    // All below 2^32.
+    NaiveTime::from_num_seconds_from_midnight_opt(
+        (hour * 3600 + minute * 60 + second) as u32,
+        (millis * 1_000_000) as u32,
+    )
+}
+
 /// [`parse_rfc3339_fast`] for a run of times, most of them of one day:
 /// the date of the last time read is kept, and a time whose first 10 bytes
 /// are the same reuses it, so only its time of day is read. Gives what
@@ -140,12 +194,13 @@ impl Rfc3339Days {
     /// [`parse_rfc3339_fast`] of `text` (as bytes), reusing the date of the
     /// time before when `text` starts with the same 10 bytes.
     pub(crate) fn parse_fast(&mut self, text: &[u8]) -> Option<DateTime<FixedOffset>> {
-        let key = text.get(..10)?;
+        // Compared as arrays: a few word compares, not a call.
+        let key = text.first_chunk::<10>()?;
         let date = match self.last {
-            Some((k, date)) if k == key => date,
+            Some((k, date)) if k == *key => date,
             _ => {
                 let date = fast_date(key)?;
-                self.last = Some((key.try_into().ok()?, date));
+                self.last = Some((*key, date));
                 date
             }
         };
@@ -804,6 +859,35 @@ mod fast_tests {
         assert!(parse_rfc3339_fast("2026-11-03T07:00:05.250+02:00").is_some());
     }
 
+    /// Every byte of the writer's time of day changed to every value: read
+    /// at fixed places exactly when the general parser reads a real time
+    /// in the layout, and then to the same instant.
+    #[test]
+    fn the_writers_layout_with_any_byte_changed() {
+        for base in ["2026-11-16T07:23:19.300Z", "2024-02-29T23:59:59.999Z"] {
+            for at in 10..24 {
+                for byte in 0..=255u8 {
+                    let mut b = base.as_bytes().to_vec();
+                    b[at] = byte;
+                    let general = std::str::from_utf8(&b)
+                        .ok()
+                        .and_then(|t| DateTime::parse_from_rfc3339(t).ok())
+                        .filter(|t| {
+                            use chrono::Timelike;
+                            t.nanosecond() < 1_000_000_000
+                                && t.offset().local_minus_utc() == 0
+                                && b[10] == b'T'
+                                && b[19] == b'.'
+                                && b[23] == b'Z'
+                        });
+                    let date = fast_date(&b).expect("date");
+                    let fixed = writer_time_of_day(&b).map(|t| date.and_time(t).and_utc());
+                    assert_eq!(fixed, general.map(|g| g.to_utc()), "{b:?}");
+                }
+            }
+        }
+    }
+
     /// Times of a few dates (so that consecutive ones often share a date),
     /// around the ends of days, months and years, with leap seconds,
     /// offsets, and now and then a byte changed or the text cut.
@@ -946,6 +1030,32 @@ mod fast_tests {
             prop_assert_eq!(millis_between(ta, tb), (tb - ta).num_milliseconds());
             prop_assert_eq!(millis_between(tb, ta), (ta - tb).num_milliseconds());
             prop_assert_eq!(seconds_between(ta, tb), (tb - ta).num_milliseconds() as f64 / 1000.0);
+        }
+
+        /// The writer's layout, now and then with a byte changed: read at
+        /// fixed places as the general parser reads it, and always when
+        /// the time is a real one.
+        #[test]
+        fn the_writers_layout_agrees(
+            y in 1900u32..2200, mo in 1u32..13, d in 1u32..29, h in 0u32..26,
+            mi in 0u32..61, s in 0u32..61, ms in 0u32..1000,
+            mutation in proptest::option::weighted(0.3, (10usize..24, any::<u8>())),
+        ) {
+            let mut b = format!("{y:04}-{mo:02}-{d:02}T{h:02}:{mi:02}:{s:02}.{ms:03}Z").into_bytes();
+            if let Some((at, byte)) = mutation {
+                b[at] = byte;
+            }
+            let text = String::from_utf8_lossy(&b).into_owned();
+            same(&text);
+            // Read at fixed places: every real time in the layout, leap
+            // seconds left out.
+            let t = text.as_bytes();
+            let in_layout = t.len() == 24 && t[10] == b'T' && t[19] == b'.' && t[23] == b'Z';
+            let real = DateTime::parse_from_rfc3339(&text).is_ok_and(|t| {
+                use chrono::Timelike;
+                t.nanosecond() < 1_000_000_000
+            });
+            prop_assert_eq!(writer_time_of_day(t).is_some(), in_layout && real, "{}", text);
         }
 
         #[test]

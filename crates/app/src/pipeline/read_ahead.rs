@@ -99,9 +99,11 @@ type Step = Option<Result<(), LogError>>;
 /// Rows read ahead and handed over together.
 #[derive(Default)]
 struct Batch {
-    /// What the reader gave for each row (`None` at the end), and, when
-    /// positions are kept, where it stood after it.
-    items: Vec<(Step, Option<ReadPosition>)>,
+    /// What the reader gave for each row (`None` at the end).
+    items: Vec<Step>,
+    /// When positions are kept: where the reader stood after each item
+    /// (apart from `items`, so that an item is moved without them).
+    positions: Vec<ReadPosition>,
     /// The rows read into, one per item.
     rows: Vec<Row>,
 }
@@ -134,6 +136,7 @@ impl Ahead {
             // Ends at the end of the log, or when the taker has gone.
             while let Ok(mut b) = empty_rx.recv() {
                 b.items.clear();
+                b.positions.clear();
                 let mut end = false;
                 while b.items.len() < batch && !end {
                     let i = b.items.len();
@@ -142,7 +145,10 @@ impl Ahead {
                     }
                     let item = log.next_row_into(&mut b.rows[i]);
                     end = item.is_none();
-                    b.items.push((item, positions.then(|| log.read_position())));
+                    b.items.push(item);
+                    if positions {
+                        b.positions.push(log.read_position());
+                    }
                 }
                 if full_tx.send(b).is_err() || end {
                     break;
@@ -184,11 +190,11 @@ impl Ahead {
             let _ = self.empty.send(used);
             self.at = 0;
         }
-        let Some((item, position)) = self.batch.items.get_mut(self.at) else {
+        let Some(item) = self.batch.items.get_mut(self.at) else {
             self.done = true;
             return None;
         };
-        if let (Some(mine), Some(p)) = (self.position.as_mut(), position.as_ref()) {
+        if let (Some(mine), Some(p)) = (self.position.as_mut(), self.batch.positions.get(self.at)) {
             mine.clone_from(p);
         }
         let item = item.take();

@@ -38,6 +38,8 @@ pub(crate) struct Lines<R> {
     /// Bytes taken from `inner` so far (with the starting offset of a
     /// resumed reading): where the next line starts in the file.
     offset: u64,
+    /// A read error met by [`Lines::buffered`], for the next read to give.
+    pending: Option<io::Error>,
 }
 
 impl<R: BufRead> Lines<R> {
@@ -53,6 +55,7 @@ impl<R: BufRead> Lines<R> {
             number,
             done: false,
             offset,
+            pending: None,
         }
     }
 
@@ -108,6 +111,44 @@ impl<R: BufRead> Lines<R> {
         }))
     }
 
+    /// What the reader holds from where the next line starts (at least a
+    /// byte), for a caller to read a line in place: nothing is taken until
+    /// [`Lines::take_line`]. `None` at the end or on a read error (kept
+    /// for [`Lines::next_line_into`] to give): that reads on as it would
+    /// have.
+    #[inline]
+    pub fn buffered(&mut self) -> Option<&[u8]> {
+        if self.done || self.pending.is_some() {
+            return None;
+        }
+        let avail = match self.inner.fill_buf() {
+            Ok(b) => b,
+            Err(e) => {
+                // An interrupted read is tried again by the next read.
+                if e.kind() != io::ErrorKind::Interrupted {
+                    self.pending = Some(e);
+                }
+                return None;
+            }
+        };
+        if avail.is_empty() {
+            self.done = true;
+            return None;
+        }
+        Some(avail)
+    }
+
+    /// Takes a line read in place from [`Lines::buffered`]: `len` bytes,
+    /// its line break (`\n`) the last of them, and no longer than
+    /// [`MAX_LINE_BYTES`] without it; gives its number.
+    #[inline]
+    pub fn take_line(&mut self, len: usize) -> u64 {
+        self.inner.consume(len);
+        self.offset += len as u64;
+        self.number += 1;
+        self.number
+    }
+
     /// [`Lines::next_line`] into `line`, reusing its allocation.
     pub fn next_line_into(&mut self, line: &mut RawLine) -> Option<io::Result<()>> {
         if self.done {
@@ -115,6 +156,10 @@ impl<R: BufRead> Lines<R> {
         }
         let bytes = &mut line.bytes;
         bytes.clear();
+        if let Some(e) = self.pending.take() {
+            self.done = true;
+            return Some(Err(e));
+        }
         let mut too_long = false;
         let mut any = false;
         loop {

@@ -31,8 +31,77 @@ pub(crate) fn parse_f64_fast(text: &[u8]) -> Option<f64> {
     }
 }
 
+/// Powers of ten up to 10^8, as integers.
+const POW10_INT: [u64; 9] = [
+    1,
+    10,
+    100,
+    1_000,
+    10_000,
+    100_000,
+    1_000_000,
+    10_000_000,
+    100_000_000,
+];
+
+/// The run of ASCII digits from `text[i]` on, appended to `mantissa` as
+/// decimal digits (wrapping past `u64`); gives where the run ends. Eight
+/// bytes are looked at together while eight are left (unless the run is
+/// at most one digit), then one at a time.
+#[inline(always)]
+fn digit_run(text: &[u8], mut i: usize, mantissa: &mut u64) -> usize {
+    // A run of one digit (`2.2e1`) is read faster one at a time.
+    let long = text.get(i + 1).is_some_and(u8::is_ascii_digit);
+    while long && let Some(word) = text.get(i..).and_then(<[u8]>::first_chunk::<8>) {
+        let (value, count) = leading_digits(u64::from_le_bytes(*word));
+        *mantissa = mantissa.wrapping_mul(POW10_INT[count]).wrapping_add(value);
+        i += count;
+        if count < 8 {
+            return i;
+        }
+    }
+    while let Some(&b) = text.get(i) {
+        let d = b.wrapping_sub(b'0');
+        if d > 9 {
+            break;
+        }
+        *mantissa = mantissa.wrapping_mul(10).wrapping_add(u64::from(d));
+        i += 1;
+    }
+    i
+}
+
+/// The value and count of the ASCII digits eight bytes (little-endian,
+/// the first byte lowest) start with.
+#[inline(always)]
+fn leading_digits(word: u64) -> (u64, usize) {
+    const ONES: u64 = 0x0101_0101_0101_0101;
+    const HIGH: u64 = 0x8080_8080_8080_8080;
+    // Per byte, its value less b'0': exact in every byte before the first
+    // that is no digit (a digit borrows nothing from the byte after it).
+    let less = word.wrapping_sub(ONES * u64::from(b'0'));
+    // The top bit of a byte set where it is below b'0' or (`more`) above b'9':
+    // again exact up to the first that is no digit.
+    let more = word.wrapping_add(ONES * (0x80 - u64::from(b'9') - 1));
+    let no_digit = (less | more) & HIGH;
+    let count = (no_digit.trailing_zeros() / 8) as usize;
+    if count == 0 {
+        return (0, 0);
+    }
+    // The digits, the first one highest, moved to the top bytes (zeros
+    // before them), then combined in pairs, fours and eights.
+    let d = less << (8 * (8 - count));
+    let d = d.wrapping_mul(10).wrapping_add(d >> 8);
+    let d = ((d & 0x0000_00FF_0000_00FF).wrapping_mul(100 + (1_000_000 << 32)))
+        .wrapping_add(((d >> 16) & 0x0000_00FF_0000_00FF).wrapping_mul(1 + (10_000 << 32)))
+        >> 32;
+    (d & 0xFFFF_FFFF, count)
+}
+
 /// The fast reading (see [`parse_f64_fast`]) of the longest start of `text` in that form, and its
-/// length: the caller checks what follows it (a cell's end).
+/// length: the caller checks what follows it (a cell's end). Always
+/// inlined: called once per channel cell of every row.
+#[inline(always)]
 pub(crate) fn parse_f64_prefix(text: &[u8]) -> Option<(f64, usize)> {
     let (negative, mut i) = match text.first()? {
         b'-' => (true, 1),
@@ -43,8 +112,10 @@ pub(crate) fn parse_f64_prefix(text: &[u8]) -> Option<(f64, usize)> {
     // More than 19 digits may overflow (wrapping, then declined below).
     let mut mantissa = 0u64;
     let start = i;
-    while i < n {
-        let d = text[i].wrapping_sub(b'0');
+    // The integer part is mostly one digit (the writer's `1.5e-3`): read
+    // one at a time.
+    while let Some(&b) = text.get(i) {
+        let d = b.wrapping_sub(b'0');
         if d > 9 {
             break;
         }
@@ -55,17 +126,8 @@ pub(crate) fn parse_f64_prefix(text: &[u8]) -> Option<(f64, usize)> {
     let mut fraction = 0;
     if i < n && text[i] == b'.' {
         i += 1;
-        // The same loop as the integer part's: written out twice, since a
-        // shared helper cost 2-3 % of the reader thread's instructions.
         let start = i;
-        while i < n {
-            let d = text[i].wrapping_sub(b'0');
-            if d > 9 {
-                break;
-            }
-            mantissa = mantissa.wrapping_mul(10).wrapping_add(u64::from(d));
-            i += 1;
-        }
+        i = digit_run(text, i, &mut mantissa);
         fraction = i - start;
         digits += fraction;
     }
@@ -232,8 +294,70 @@ mod tests {
         assert_eq!(parse_f64_prefix(b",1"), None);
     }
 
+    /// [`leading_digits`] the plain way.
+    fn leading_digits_one_by_one(bytes: [u8; 8]) -> (u64, usize) {
+        let count = bytes.iter().take_while(|b| b.is_ascii_digit()).count();
+        let value = bytes[..count]
+            .iter()
+            .fold(0, |v, b| v * 10 + u64::from(b - b'0'));
+        (value, count)
+    }
+
+    #[test]
+    fn eight_bytes_are_read_as_one_by_one() {
+        for text in [
+            *b"00000000",
+            *b"99999999",
+            *b"12345678",
+            *b"1.015587",
+            *b"0155873e",
+            *b"x1234567",
+            *b"1234567/",
+            *b"1234567:",
+            *b"9\xff\x00\x2f\x3a\x30\xb9\xc0",
+            *b"55555555",
+        ] {
+            assert_eq!(
+                leading_digits(u64::from_le_bytes(text)),
+                leading_digits_one_by_one(text),
+                "{text:?}"
+            );
+        }
+    }
+
     proptest! {
         #![proptest_config(ProptestConfig::with_cases(4096))]
+
+        /// Any eight bytes, digits mostly.
+        #[test]
+        fn eight_bytes_are_read_as_one_by_one_at_random(
+            bytes in prop::array::uniform8(prop_oneof![4 => b'0'..=b'9', 1 => any::<u8>()])
+        ) {
+            prop_assert_eq!(
+                leading_digits(u64::from_le_bytes(bytes)),
+                leading_digits_one_by_one(bytes)
+            );
+        }
+
+        /// Digit runs of any length at any place, read as one by one.
+        #[test]
+        fn digit_runs_are_read_as_one_by_one(
+            text in "[0-9]{0,30}[-.e,x]?[0-9]{0,12}",
+            at in 0usize..4,
+            start in any::<u64>(),
+        ) {
+            let bytes = text.as_bytes();
+            let at = at.min(bytes.len());
+            let mut got = start;
+            let end = digit_run(bytes, at, &mut got);
+            let mut want = start;
+            let mut i = at;
+            while i < bytes.len() && bytes[i].is_ascii_digit() {
+                want = want.wrapping_mul(10).wrapping_add(u64::from(bytes[i] - b'0'));
+                i += 1;
+            }
+            prop_assert_eq!((got, end), (want, i));
+        }
 
         #[test]
         fn declines_or_agrees_with_str_parse(text in numberish()) {

@@ -178,6 +178,9 @@ pub struct LogReader<R> {
     /// Tests: rows read straight from their bytes.
     #[cfg(test)]
     plain_rows: u64,
+    /// Tests: of those, rows read where they lie in the reader's buffer.
+    #[cfg(test)]
+    in_place_rows: u64,
 }
 
 impl<R: BufRead> LogReader<R> {
@@ -204,6 +207,8 @@ impl<R: BufRead> LogReader<R> {
             general_only: false,
             #[cfg(test)]
             plain_rows: 0,
+            #[cfg(test)]
+            in_place_rows: 0,
         };
         r.read_magic()?;
         loop {
@@ -435,6 +440,11 @@ impl<R: BufRead> LogReader<R> {
     /// the end of the log.
     pub fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
         loop {
+            // A row not read in place (not plain, or not whole in the
+            // buffer) is read from its copied line.
+            if self.row_in_place(row) {
+                return Some(Ok(()));
+            }
             let mut raw = std::mem::replace(&mut self.raw, RawLine::empty());
             if let Err(e) = self.lines.next_located_into(&self.name, &mut raw)? {
                 self.raw = raw;
@@ -448,6 +458,38 @@ impl<R: BufRead> LogReader<R> {
         }
     }
 
+    /// Reads the next line as a plain row (see [`plain_row`]) where it lies
+    /// in the reader's buffer, without copying it: whether it was one (and
+    /// is taken; else nothing is).
+    #[inline]
+    fn row_in_place(&mut self, out: &mut Row) -> bool {
+        #[cfg(test)]
+        if self.general_only {
+            return false;
+        }
+        // The first line may carry a byte-order mark.
+        if self.lines.number() == 0 {
+            return false;
+        }
+        let Some(bytes) = self.lines.buffered() else {
+            return false;
+        };
+        let Some((time, gas, used)) =
+            plain_row::<true>(&self.columns, &mut self.days, &mut self.readings, bytes)
+        else {
+            return false;
+        };
+        set_gas(&mut out.gas, gas);
+        let line = self.lines.take_line(used);
+        self.end_plain_row(line, time, out);
+        #[cfg(test)]
+        {
+            self.plain_rows += 1;
+            self.in_place_rows += 1;
+        }
+        true
+    }
+
     fn row(&mut self, raw: &RawLine, out: &mut Row) -> Option<Result<(), LogError>> {
         // The first line may carry a byte-order mark; a cut line is an error.
         #[cfg(test)]
@@ -457,9 +499,15 @@ impl<R: BufRead> LogReader<R> {
         if raw.number > 1
             && !raw.too_long
             && !general_only
-            && let Some((time, gas)) = self.plain_row(&raw.bytes)
+            && let Some((time, gas, _)) = plain_row::<false>(
+                &self.columns,
+                &mut self.days,
+                &mut self.readings,
+                &raw.bytes,
+            )
         {
-            self.end_plain_row(raw.number, time, gas, out);
+            set_gas(&mut out.gas, gas);
+            self.end_plain_row(raw.number, time, out);
             #[cfg(test)]
             {
                 self.plain_rows += 1;
@@ -469,81 +517,9 @@ impl<R: BufRead> LogReader<R> {
         self.general_row(raw, out)
     }
 
-    /// Reads the common row straight from its bytes, each cell parsed where
-    /// it starts: as many cells as the header, none quoted or padded with
-    /// blanks, a time in the fixed layout, and every channel cell empty, a
-    /// number read exactly by [`parse_f64_prefix`] or a fault's status word
-    /// (gas and derived cells valid UTF-8). Gives the time and the gas cell,
-    /// the channel cells in `self.readings`; `None` (no state but those
-    /// buffers changed) for any other row, which
-    /// [`LogReader::general_row`] reads. Every byte of a row read here is
-    /// ASCII or in a cell checked to be UTF-8, so the line is valid UTF-8,
-    /// as the general path requires.
-    fn plain_row<'t>(
-        &mut self,
-        bytes: &'t [u8],
-    ) -> Option<(DateTime<FixedOffset>, Option<&'t str>)> {
-        self.readings.clear();
-        // The time: at least 20 bytes, then the first comma (a quote or
-        // blank in it is refused by the time parser).
-        let end = match bytes.get(20..)?.iter().position(|&b| b == b',') {
-            Some(i) => 20 + i,
-            None => bytes.len(),
-        };
-        let time = self.days.parse_fast(&bytes[..end])?;
-        let mut gas = None;
-        // Where the cell after the last comma read starts (past the end
-        // when the line has ended).
-        let mut at = end + 1;
-        for column in &self.columns {
-            let rest = bytes.get(at..)?;
-            let (cell, used) = match column.kind {
-                ColumnKind::Channel(_) => match parse_f64_prefix(rest) {
-                    Some((v, used)) => (Some(Reading::Value(v)), used),
-                    None => {
-                        let used = cell_len(rest)?;
-                        (plain_word(&rest[..used])?, used)
-                    }
-                },
-                ColumnKind::Gas => {
-                    let used = cell_len(rest)?;
-                    let g = std::str::from_utf8(&rest[..used]).ok()?;
-                    if g.trim().len() != g.len() {
-                        return None;
-                    }
-                    gas = (!g.is_empty()).then_some(g);
-                    (None, used)
-                }
-                ColumnKind::Derived(_) => {
-                    let used = cell_len(rest)?;
-                    if !rest[..used].is_ascii() {
-                        std::str::from_utf8(&rest[..used]).ok()?;
-                    }
-                    (None, used)
-                }
-            };
-            match rest.get(used) {
-                None | Some(b',') => {}
-                Some(_) => return None,
-            }
-            if let ColumnKind::Channel(_) = column.kind {
-                self.readings.push(cell);
-            }
-            at += used + 1;
-        }
-        // Every cell read, and the line ends with the last one.
-        (at == bytes.len() + 1).then_some((time, gas))
-    }
-
-    /// Writes out a row [`LogReader::plain_row`] read, as
-    /// [`LogReader::row_cells`] would.
-    fn end_plain_row(
-        &mut self,
-        line: u64,
-        time: DateTime<FixedOffset>,
-        gas: Option<&str>,
-        out: &mut Row,
-    ) {
+    /// Writes out a row [`plain_row`] read, as [`LogReader::row_cells`]
+    /// would (its gas already in `out`, by [`set_gas`]).
+    fn end_plain_row(&mut self, line: u64, time: DateTime<FixedOffset>, out: &mut Row) {
         let offset = time.offset().fix();
         let time = time.with_timezone(&Utc);
         let channels = self.columns.iter().filter_map(|c| match c.kind {
@@ -560,10 +536,6 @@ impl<R: BufRead> LogReader<R> {
             used += 1;
         }
         samples.truncate(used);
-        match (gas, &mut out.gas) {
-            (Some(g), Some(held)) => g.clone_into(held),
-            (g, held) => *held = g.map(str::to_string),
-        }
         self.end_row(line, time, offset, out);
     }
 
@@ -723,6 +695,119 @@ impl<R: BufRead> LogReader<R> {
     }
 }
 
+/// Reads the common row straight from its bytes, each cell parsed where
+/// it starts: as many cells as the header, none quoted or padded with
+/// blanks, a time in the fixed layout, and every channel cell empty, a
+/// number read exactly by [`parse_f64_prefix`] or a fault's status word
+/// (gas and derived cells valid UTF-8). Gives the time, the gas cell and
+/// the length read, the channel cells in `readings`; `None` (no state but
+/// those buffers changed) for any other row, which
+/// [`LogReader::general_row`] reads. `IN_BUFFER`: `bytes` is what the
+/// reader holds from the line's start on, and the row must end in a line
+/// break there (its length then counts the break); else `bytes` is the
+/// line. Every byte of a row read here is
+/// ASCII or in a cell checked to be UTF-8, so the line is valid UTF-8,
+/// as the general path requires.
+fn plain_row<'t, const IN_BUFFER: bool>(
+    columns: &[Column],
+    days: &mut Rfc3339Days,
+    readings: &mut Vec<Option<Reading>>,
+    bytes: &'t [u8],
+) -> Option<(DateTime<FixedOffset>, Option<&'t str>, usize)> {
+    let in_buffer = IN_BUFFER;
+    readings.clear();
+    // The time: at least 20 bytes, then the first comma (a quote or
+    // blank in it is refused by the time parser). In a buffer, the comma
+    // is looked for only as far as a time the parser reads can reach.
+    let end = if in_buffer {
+        let window = bytes.get(20..bytes.len().min(MAX_TIME_BYTES + 1))?;
+        20 + window.iter().position(|&b| b == b',')?
+    } else {
+        match bytes.get(20..)?.iter().position(|&b| b == b',') {
+            Some(i) => 20 + i,
+            None => bytes.len(),
+        }
+    };
+    let time = days.parse_fast(&bytes[..end])?;
+    let mut gas = None;
+    // Where the cell after the last comma read starts (past the end
+    // when the line has ended).
+    let mut at = end + 1;
+    for (k, column) in columns.iter().enumerate() {
+        let rest = bytes.get(at..)?;
+        let (cell, used) = match column.kind {
+            ColumnKind::Channel(_) => match parse_f64_prefix(rest) {
+                Some((v, used)) => (Some(Reading::Value(v)), used),
+                None => {
+                    let used = cell_len(rest, in_buffer)?;
+                    (plain_word(&rest[..used])?, used)
+                }
+            },
+            ColumnKind::Gas => {
+                let used = cell_len(rest, in_buffer)?;
+                let g = std::str::from_utf8(&rest[..used]).ok()?;
+                if g.trim().len() != g.len() {
+                    return None;
+                }
+                gas = (!g.is_empty()).then_some(g);
+                (None, used)
+            }
+            ColumnKind::Derived(_) => {
+                let used = cell_len(rest, in_buffer)?;
+                if !rest[..used].is_ascii() {
+                    std::str::from_utf8(&rest[..used]).ok()?;
+                }
+                (None, used)
+            }
+        };
+        let after = rest.get(used);
+        if in_buffer && k + 1 == columns.len() {
+            // The last cell: then the line break, `\n` or `\r\n`, within
+            // the longest line read whole.
+            let brk = match (after, rest.get(used + 1)) {
+                (Some(b'\n'), _) => 0,
+                (Some(b'\r'), Some(b'\n')) => 1,
+                _ => return None,
+            };
+            let line_break = at + used + brk;
+            if line_break > lines::MAX_LINE_BYTES {
+                return None;
+            }
+            if let ColumnKind::Channel(_) = column.kind {
+                readings.push(cell);
+            }
+            return Some((time, gas, line_break + 1));
+        }
+        match after {
+            None if !in_buffer => {}
+            Some(b',') => {}
+            _ => return None,
+        }
+        if let ColumnKind::Channel(_) = column.kind {
+            readings.push(cell);
+        }
+        at += used + 1;
+    }
+    // Every cell read, and the line ends with the last one (in a buffer,
+    // a row without cells is left to the line).
+    (!in_buffer && at == bytes.len() + 1).then_some((time, gas, bytes.len()))
+}
+
+/// The longest row time [`Rfc3339Days::parse_fast`] reads
+/// (`YYYY-MM-DDTHH:MM:SS.fffffffff+HH:MM`).
+const MAX_TIME_BYTES: usize = 35;
+
+/// A plain row's gas cell into a row's, reusing its allocation.
+#[inline(always)]
+fn set_gas(held: &mut Option<String>, gas: Option<&str>) {
+    match (gas, held) {
+        // No gas before or now (a log without a gas column): nothing to do.
+        (None, None) => {}
+        (Some(g), Some(held)) => g.clone_into(held),
+        (g, held) => *held = g.map(str::to_string),
+    }
+}
+
 /// Puts a reading in slot `at` of a row's samples (the next one), over
 /// what the slot held: the channel name is copied only when it differs
 /// (in a steady log, never).
@@ -738,7 +823,7 @@ fn put_sample(
     match samples.get_mut(at) {
         Some(s) => {
             s.time = time;
-            if s.channel != name {
+            if !same_name(&s.channel, name) {
                 name.clone_into(&mut s.channel);
             }
             s.unit = unit;
@@ -750,6 +835,28 @@ fn put_sample(
             unit,
             reading,
         }),
+    }
+}
+
+/// Whether two names are the same: names of up to 16 bytes (most channel
+/// names) compared as a few words, not through a `memcmp` call.
+#[inline(always)]
+fn same_name(a: &str, b: &str) -> bool {
+    let (a, b) = (a.as_bytes(), b.as_bytes());
+    if a.len() != b.len() {
+        return false;
+    }
+    match a.len() {
+        8..=16 => {
+            a.first_chunk::<8>() == b.first_chunk::<8>()
+                && a.last_chunk::<8>() == b.last_chunk::<8>()
+        }
+        4..8 => {
+            a.first_chunk::<4>() == b.first_chunk::<4>()
+                && a.last_chunk::<4>() == b.last_chunk::<4>()
+        }
+        0..4 => a.iter().zip(b).all(|(x, y)| x == y),
+        _ => a == b,
     }
 }
 
@@ -767,7 +874,17 @@ fn trim_blanks(cell: &str) -> &str {
 
 /// The length of the cell `rest` starts with (up to the next comma or the
 /// end); `None` when it holds a quote (left to the general splitter).
-fn cell_len(rest: &[u8]) -> Option<usize> {
+/// `in_buffer`: `rest` runs on past the line, so the cell also ends at a
+/// line break (`\n`, or `\r\n` as a line ending in `\r\n` is read).
+fn cell_len(rest: &[u8], in_buffer: bool) -> Option<usize> {
+    if in_buffer {
+        return match memchr::memchr3(b',', b'"', b'\n', rest) {
+            Some(i) if rest[i] == b'"' => None,
+            Some(i) if rest[i] == b'\n' && i > 0 && rest[i - 1] == b'\r' => Some(i - 1),
+            Some(i) => Some(i),
+            None => None,
+        };
+    }
     match memchr::memchr2(b',', b'"', rest) {
         Some(i) if rest[i] == b'"' => None,
         Some(i) => Some(i),

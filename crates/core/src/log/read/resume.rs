@@ -45,6 +45,8 @@ impl<R: BufRead> LogReader<R> {
             general_only: self.general_only,
             #[cfg(test)]
             plain_rows: 0,
+            #[cfg(test)]
+            in_place_rows: 0,
         }
     }
 }

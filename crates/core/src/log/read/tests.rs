@@ -713,7 +713,14 @@ fn a_time_without_an_offset_is_a_located_error_naming_the_offset_before() {
 /// each item, the buffer after it, and the reader's position after it.
 /// Also the rows read straight from their bytes.
 fn read_traced(bytes: &[u8], capacity: usize, general_only: bool) -> (Vec<String>, u64) {
-    let input = std::io::BufReader::with_capacity(capacity, bytes);
+    read_traced_from(
+        std::io::BufReader::with_capacity(capacity, bytes),
+        general_only,
+    )
+}
+
+/// [`read_traced`] from any buffered reader.
+fn read_traced_from(input: impl BufRead, general_only: bool) -> (Vec<String>, u64) {
     let mut r = match LogReader::new(input, "run.csv") {
         Ok(r) => r,
         Err(e) => return (vec![format!("{e:?}")], 0),
@@ -919,4 +926,163 @@ fn plain_rows_are_read_straight_and_others_are_not() {
     // The first two, and the one with a non-ASCII gas name.
     assert_eq!(plain, 3, "{fast:#?}");
     assert!(fast[8].contains("invalid UTF-8"), "{}", fast[8]);
+}
+
+/// Gives its bytes a few at a time, with interrupted reads and now and then
+/// an error between them (a reader of a flaky disk or pipe).
+struct Flaky {
+    data: Vec<u8>,
+    at: usize,
+    /// What each read does: give up to n bytes, be interrupted (0) or fail
+    /// (1), in turn.
+    steps: Vec<u8>,
+    step: usize,
+    /// The last read was interrupted (the next one is not).
+    interrupted: bool,
+}
+
+impl std::io::Read for Flaky {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let step = self.steps.get(self.step % self.steps.len().max(1)).copied();
+        self.step += 1;
+        let interrupted = std::mem::replace(&mut self.interrupted, step == Some(0));
+        match step {
+            Some(0) if !interrupted => Err(std::io::ErrorKind::Interrupted.into()),
+            Some(1) => Err(std::io::Error::other("flaky")),
+            n => {
+                let n = match n {
+                    Some(n @ 2..) => usize::from(n),
+                    _ => 255,
+                };
+                let n = n.min(buf.len());
+                let n = n.min(self.data.len() - self.at);
+                buf[..n].copy_from_slice(&self.data[self.at..self.at + n]);
+                self.at += n;
+                Ok(n)
+            }
+        }
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(256))]
+
+    /// Rows read where they lie in the reader's buffer meet interrupted
+    /// and failed reads as lines copied out of it do: the same items,
+    /// errors and positions.
+    #[test]
+    fn reads_in_place_meet_read_errors_as_copied_reads_do(
+        log in generated_log(),
+        steps in prop::collection::vec(0u8..90, 1..12),
+    ) {
+        let (capacity, log) = log.split_at(8);
+        let capacity = usize::from_le_bytes(capacity.try_into().expect("8 bytes"));
+        let input = |steps: &[u8]| {
+            let flaky = Flaky {
+                data: log.to_vec(),
+                at: 0,
+                steps: steps.to_vec(),
+                step: 0,
+                interrupted: false,
+            };
+            std::io::BufReader::with_capacity(capacity, flaky)
+        };
+        let (fast, _) = read_traced_from(input(&steps), false);
+        let (general, _) = read_traced_from(input(&steps), true);
+        prop_assert_eq!(fast, general, "{:?}", String::from_utf8_lossy(log));
+    }
+}
+
+#[test]
+fn rows_whole_in_the_buffer_are_read_in_place() {
+    let mut text = format!("{MAGIC}\ntime,a [mbar],gas\n");
+    for i in 0..50 {
+        text.push_str(&format!(
+            "2026-12-01T19:00:{:02}.000Z,{i}.5e-3,N2\r\n",
+            i % 60
+        ));
+    }
+    // The last line without its line break is read the copying way.
+    text.push_str("2026-12-01T19:01:00.000Z,1,Ar");
+    for capacity in [1, 7, 40, 41, 64, 8192] {
+        let (fast, plain) = read_traced(text.as_bytes(), capacity, false);
+        let (general, _) = read_traced(text.as_bytes(), capacity, true);
+        assert_eq!(fast, general, "capacity {capacity}");
+        assert_eq!(plain, 51, "capacity {capacity}");
+    }
+    // With a buffer that holds them all, all but the last are read in
+    // place; with one that holds a few, all but those crossing its end;
+    // with one shorter than a line, none.
+    for (capacity, in_place) in [(8192, 50..=50), (1000, 40..=49), (30, 0..=0)] {
+        let input = std::io::BufReader::with_capacity(capacity, text.as_bytes());
+        let mut r = LogReader::new(input, "run.csv").expect("header");
+        let mut row = Row::default();
+        while let Some(item) = r.next_row_into(&mut row) {
+            assert!(item.is_ok(), "{item:?}");
+        }
+        assert!(
+            in_place.contains(&r.in_place_rows),
+            "capacity {capacity}: {}",
+            r.in_place_rows
+        );
+    }
+}
+
+proptest! {
+    /// Names compared word by word are compared as `==` compares them.
+    #[test]
+    fn same_name_is_equality(
+        a in "[ab]{0,20}",
+        b in "[ab]{0,20}",
+        c in "\\PC{0,20}",
+    ) {
+        prop_assert_eq!(same_name(&a, &b), a == b);
+        prop_assert!(same_name(&a, &a.clone()));
+        prop_assert!(same_name(&c, &c.clone()));
+        prop_assert_eq!(same_name(&a, &c), a == c);
+    }
+}
+
+#[test]
+fn rows_read_in_the_buffer_end_where_their_lines_end() {
+    // Each kind of last cell, with `\n` and `\r\n`, stray `\r`s, a row
+    // without cells and a last line without its break: read in place as
+    // the general path reads their lines.
+    let headers = [
+        (
+            "time,a [mbar],gas",
+            vec!["1e-3,N2", "1e-3,", "1e-3,N2\r", "1e-3,\rN2"],
+        ),
+        (
+            "time,a [mbar],b [C]",
+            vec![
+                "1e-3,2.2e1",
+                "1e-3,",
+                "1e-3,stale",
+                "1e-3,2\r",
+                "1e-3,2,3",
+                "1e-3",
+            ],
+        ),
+        (
+            "time,a [mbar],d [m]",
+            vec!["1e-3,6.6e-8", "1e-3,", "1e-3,x\r", "1e-3,\r", "1e-3,a\rb"],
+        ),
+        ("time", vec!["", ",1"]),
+    ];
+    for (header, cells) in headers {
+        for crlf in ["\n", "\r\n", "\r\r\n"] {
+            let mut text = format!("{MAGIC}\n{header}\n");
+            for (i, c) in cells.iter().enumerate() {
+                let sep = if c.is_empty() { "" } else { "," };
+                text.push_str(&format!("2026-12-01T19:00:0{i}.000Z{sep}{c}{crlf}"));
+            }
+            text.push_str("2026-12-01T19:00:09.000Z");
+            for capacity in [1, 30, 64, 8192] {
+                let (fast, _) = read_traced(text.as_bytes(), capacity, false);
+                let (general, _) = read_traced(text.as_bytes(), capacity, true);
+                assert_eq!(fast, general, "{text:?} capacity {capacity}");
+            }
+        }
+    }
 }
