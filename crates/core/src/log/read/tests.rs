@@ -876,15 +876,16 @@ proptest! {
         prop_assert_eq!(fast, general, "{:?}", String::from_utf8_lossy(log));
     }
 
-    /// The writer's rows of numbers of up to eight digits all take the
-    /// fast path.
+    /// The writer's rows of numbers of up to eight digits, within the
+    /// powers of ten the fast number reader takes (±22 once the digits
+    /// are whole), all take the fast path.
     #[test]
     fn written_rows_take_the_fast_path(
         rows in prop::collection::vec(
             (0i64..4_000_000_000_000, prop::collection::vec(prop_oneof![
                 Just(Cell::Empty),
                 (0..Fault::ALL.len()).prop_map(|i| Cell::Bad(Fault::ALL[i])),
-                (-99_999_999i64..100_000_000, -20i32..20).prop_map(|(m, e)| {
+                (-99_999_999i64..100_000_000, -14i32..14).prop_map(|(m, e)| {
                     Cell::Value(format!("{m}e{e}").parse().expect("a number"))
                 }),
             ], 4)),
