@@ -916,7 +916,9 @@ impl Monitor {
             while let Some(d) = self.next_deadline_by(t) {
                 events.extend(self.evaluate(d));
             }
-            if self.floor_on {
+            // Links and gates are updated at every evaluation and clear the
+            // floor each time: with them, working one out is wasted.
+            if self.floor_on && self.links.is_empty() && self.gates.is_empty() {
                 let floor = self
                     .deadline_search(None)
                     .unwrap_or(DateTime::<Utc>::MAX_UTC);
