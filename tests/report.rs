@@ -633,6 +633,33 @@ fn a_row_with_more_cells_than_the_header_is_located_and_counted() {
 }
 
 #[test]
+fn a_pressure_not_above_zero_is_located_counted_and_kept_without_kinetics() {
+    // A gauge's zero drift: the second reading is below zero.
+    let p = temp(
+        "below-zero.csv",
+        &format!(
+            "{RISE}2026-01-01T00:00:00.000Z,5e1\n2026-01-01T00:00:10.000Z,-1.5e-2\n\
+             2026-01-01T00:00:20.000Z,3e1\n"
+        ),
+    );
+    let (code, v, err) = bad(&[&p]);
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        located(&err, &p, 4, "pressure \"-1.5e-2\" Pa is not above zero"),
+        "{err}"
+    );
+    assert_eq!(
+        v["unusable_rows"]["a pressure not above zero (reading kept, without kinetics)"], 1,
+        "{v}"
+    );
+    // Kept as a reading, but not a pressure: the extremes are the others'.
+    let g = &v["gauges"][0];
+    assert_eq!(g["samples"], 3, "{v}");
+    assert_eq!(g["min_pa"], 30.0, "{v}");
+    assert_eq!(g["max_pa"], 50.0, "{v}");
+}
+
+#[test]
 fn a_header_with_an_unknown_unit_is_located_and_its_rows_counted() {
     let unknown = temp(
         "unknown-unit.csv",

@@ -602,6 +602,17 @@ fn bad_cells_name_their_column() {
     // The row with a bad cell is kept, that cell as `unparsed`.
     let row = e.row.expect("row");
     assert_eq!(row.samples[0].status(), Status::Unparsed);
+    // A pressure not above zero is kept as read, with a located note.
+    let s = spec(&section("decimal_comma = true", ""));
+    let e = one_error(&s, b"Time;P\n2026-01-01 00:00:00;-1,5E-03\n");
+    assert_eq!(
+        e.to_string(),
+        "x.csv:2:2: pressure \"-1,5E-03\" mbar is not above zero: kept as read, \
+         without a true pressure or kinetics (a gauge's zero drift?)"
+    );
+    let row = e.row.expect("row");
+    assert_eq!(row.samples[0].value(), Some(-1.5e-3));
+    assert_eq!(row.samples[0].status(), Status::Ok);
 }
 
 #[test]

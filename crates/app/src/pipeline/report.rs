@@ -506,7 +506,9 @@ impl WalkOutcome {
 /// The cause a reader's error is counted under.
 fn cause_of(e: &LogError) -> &'static str {
     let m = e.message.as_str();
-    if e.row.is_some() {
+    if e.row.is_some() && m.contains(" is not above zero: kept as read") {
+        "a pressure not above zero (reading kept, without kinetics)"
+    } else if e.row.is_some() {
         "a cell could not be read (row used without it)"
     } else if let Some((n, header)) = cell_counts(m) {
         if n < header {

@@ -1034,12 +1034,19 @@ impl<R: BufRead> ForeignReader<R> {
             };
             match self.cell(k, &cell.text) {
                 Ok(None) => {}
-                Ok(Some(reading)) => samples.push(Sample {
-                    time,
-                    channel: col.channel.clone(),
-                    unit: col.unit,
-                    reading,
-                }),
+                Ok(Some(reading)) => {
+                    if let Reading::Value(v) = reading
+                        && let Some(msg) = super::read::not_above_zero(col.unit, v, &cell.text)
+                    {
+                        bad.push((i + 1, msg));
+                    }
+                    samples.push(Sample {
+                        time,
+                        channel: col.channel.clone(),
+                        unit: col.unit,
+                        reading,
+                    });
+                }
                 Err(msg) => {
                     samples.push(Sample::bad(time, &col.channel, col.unit, Fault::Unparsed));
                     bad.push((i + 1, msg));

@@ -29,7 +29,8 @@ pub struct LogError {
     /// What is wrong and what is expected.
     pub message: String,
     /// For a row with bad cells: the row with those cells kept as
-    /// [`Fault::Unparsed`] samples, so a caller may still use the good ones.
+    /// [`Fault::Unparsed`] samples (a pressure not above zero as read), so a
+    /// caller may still use the good ones.
     pub row: Option<Box<Row>>,
 }
 
@@ -137,6 +138,20 @@ pub(crate) fn show(text: &str) -> String {
     } else {
         escaped
     }
+}
+
+/// The note for a pressure reading that is not above zero (a gauge's zero
+/// drift can read a little below it): the reading is kept as read, but no
+/// true pressure or kinetics follow from it, and the reader says so rather
+/// than leave an `ok` reading without a pressure unexplained. `None` for
+/// any other reading.
+pub(crate) fn not_above_zero(unit: ChannelUnit, value: f64, text: &str) -> Option<String> {
+    (unit.is_pressure() && value <= 0.0).then(|| {
+        format!(
+            "pressure \"{}\" {unit} is not above zero: kept as read, without a true pressure or kinetics (a gauge's zero drift?)",
+            show(text)
+        )
+    })
 }
 
 /// The bad statuses, as listed in messages.
@@ -670,7 +685,14 @@ impl<R: BufRead> LogReader<R> {
             };
             match parse_cell(text) {
                 Ok(None) => {}
-                Ok(Some(reading)) => put(&mut samples, &column.name, unit, reading),
+                Ok(Some(reading)) => {
+                    if let Reading::Value(v) = reading
+                        && let Some(msg) = not_above_zero(unit, v, text)
+                    {
+                        bad.push((i + 2, msg));
+                    }
+                    put(&mut samples, &column.name, unit, reading);
+                }
                 Err(msg) => {
                     put(
                         &mut samples,
@@ -736,7 +758,9 @@ fn plain_row<'t, const IN_BUFFER: bool>(
     for (k, column) in columns.iter().enumerate() {
         let rest = bytes.get(at..)?;
         let (cell, used) = match column.kind {
-            ColumnKind::Channel(_) => match parse_f64_prefix(rest) {
+            ColumnKind::Channel(unit) => match parse_f64_prefix(rest) {
+                // A pressure not above zero gets its note on the general path.
+                Some((v, _)) if unit.is_pressure() && v <= 0.0 => return None,
                 Some((v, used)) => (Some(Reading::Value(v)), used),
                 None => {
                     let used = cell_len(rest, in_buffer)?;

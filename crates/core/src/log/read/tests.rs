@@ -81,7 +81,22 @@ fn round_trip(cells: &[(DateTime<Utc>, Vec<Cell>)]) {
     assert_eq!(r.channels().len(), 3);
     let mut n = 0;
     for ((t, written), read) in cells.iter().zip(r.by_ref()) {
-        let row = read.unwrap_or_else(|e| panic!("{e}"));
+        // A pressure not above zero is read back as written, with a note.
+        let noted = written
+            .iter()
+            .zip(&cols)
+            .any(|(cell, col)| match (cell, &col.kind) {
+                (Cell::Value(v), ColumnKind::Channel(unit)) => unit.is_pressure() && *v <= 0.0,
+                _ => false,
+            });
+        let row = match read {
+            Ok(row) if !noted => row,
+            Err(e) if noted && e.message.contains("is not above zero") => {
+                let message = e.message.clone();
+                *e.row.unwrap_or_else(|| panic!("no row kept: {message}"))
+            }
+            other => panic!("noted: {noted}: {other:?}"),
+        };
         assert_eq!(row.time, *t);
         let mut samples = row.samples.iter();
         for (cell, col) in written.iter().zip(&cols) {
@@ -412,6 +427,52 @@ fn bad_cells_are_located_and_specific() {
     // Control characters in a cell are escaped in the message.
     let e = one_row_error("2026-12-01T19:00:00.000Z,\u{1b}[2J,\n");
     assert!(e.message.contains("cell \"\\x1b[2J\""), "{e}");
+}
+
+#[test]
+fn a_pressure_not_above_zero_is_kept_with_a_located_note() {
+    for general_only in [false, true] {
+        for cell in ["-1.5e-2", "0", "-0", "0.0e0", "-3"] {
+            let text = format!(
+                "{MAGIC}\ntime,a [mbar],b [C]\n\
+                 2026-12-01T19:00:00.000Z,{cell},-5.5\n\
+                 2026-12-01T19:00:00.100Z,2e-3,-5.5\n"
+            );
+            let mut r = reader(&text);
+            r.general_only = general_only;
+            let items: Vec<_> = r.collect();
+            assert_eq!(items.len(), 2, "{items:?}");
+            let Some(Err(e)) = items.first() else {
+                panic!("{cell}: expected a note, got {items:?}");
+            };
+            assert_eq!(
+                e.to_string(),
+                format!(
+                    "run.csv:3:2: pressure \"{cell}\" mbar is not above zero: kept as read, \
+                     without a true pressure or kinetics (a gauge's zero drift?)"
+                )
+            );
+            // The reading is kept as read, and so is the row's other one
+            // (a temperature below zero needs no note).
+            let row = e.row.as_ref().expect("the row is kept");
+            let v: f64 = cell.parse().expect("a number");
+            assert_eq!(row.samples.len(), 2);
+            assert_eq!(row.samples[0].status(), Status::Ok);
+            assert_eq!(row.samples[0].value().map(f64::to_bits), Some(v.to_bits()));
+            assert_eq!(row.samples[1].value(), Some(-5.5));
+            let Some(Ok(next)) = items.get(1) else {
+                panic!("{cell}: the next row: {items:?}");
+            };
+            assert_eq!(next.samples[0].value(), Some(2e-3));
+        }
+    }
+    // With a bad cell after it, the note names it.
+    let e = one_row_error("2026-12-01T19:00:00.000Z,-1e-3,x\n");
+    assert!(
+        e.message.ends_with("(and 1 more bad cell in this row)"),
+        "{e}"
+    );
+    assert_eq!(e.column, Some(2));
 }
 
 #[test]
@@ -900,7 +961,19 @@ proptest! {
         let (fast, plain) = read_traced(text.as_bytes(), 8192, false);
         let (general, _) = read_traced(text.as_bytes(), 8192, true);
         prop_assert_eq!(&fast, &general);
-        prop_assert_eq!(plain, rows.len() as u64, "{}", text);
+        // Every row but those with a pressure not above zero (the general
+        // path notes it).
+        let cols = columns();
+        let noted = rows
+            .iter()
+            .filter(|(_, cells)| {
+                cells.iter().zip(&cols).any(|(cell, col)| match (cell, &col.kind) {
+                    (Cell::Value(v), ColumnKind::Channel(unit)) => unit.is_pressure() && *v <= 0.0,
+                    _ => false,
+                })
+            })
+            .count();
+        prop_assert_eq!(plain, (rows.len() - noted) as u64, "{}", text);
     }
 }
 
