@@ -94,12 +94,11 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
         let total = started.names.len();
         let mut progress = Progress::new(name, *json);
         let mut tick = tokio::time::interval(Duration::from_millis(500));
-        let gate_of = |p: &Pipeline| -> Option<GateMachine> {
-            p.monitor()
-                .gates()
-                .iter()
-                .find(|g| &g.gate.id == name)
-                .cloned()
+        // The gate and why it is not ready.
+        let gate_of = |p: &Pipeline| -> Option<(GateMachine, Option<String>)> {
+            let m = p.monitor();
+            let i = m.gates().iter().position(|g| &g.gate.id == name)?;
+            Some((m.gates()[i].clone(), m.gate_reason(i)))
         };
         let code = loop {
             tokio::select! {
@@ -121,7 +120,7 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
                         SourceEvent::Unparsed { .. } | SourceEvent::Gas { .. } => {}
                     }
                     pipeline.feed(&ev, live(&clock), &mut Nowhere);
-                    if ended == total && gate_of(&pipeline).is_none_or(|g| g.state() != GateState::Ready) {
+                    if ended == total && gate_of(&pipeline).is_none_or(|(g, _)| g.state() != GateState::Ready) {
                         break ExitCode::Runtime;
                     }
                 },
@@ -132,8 +131,8 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
                 }
             }
             let data_now = pipeline.monitor().now();
-            if let Some(g) = gate_of(&pipeline) {
-                progress.report(&g, data_now)?;
+            if let Some((g, reason)) = gate_of(&pipeline) {
+                progress.report(&g, reason, data_now)?;
                 if g.state() == GateState::Ready {
                     break ExitCode::Ok;
                 }
@@ -150,8 +149,8 @@ pub fn run(command: &GateCommand) -> Result<ExitCode, CliError> {
             }
         };
         let data_now = pipeline.monitor().now();
-        if let Some(g) = gate_of(&pipeline) {
-            progress.finish(&g, data_now, code)?;
+        if let Some((g, reason)) = gate_of(&pipeline) {
+            progress.finish(&g, reason, data_now, code)?;
         }
         started.stop();
         Ok::<ExitCode, CliError>(code)
@@ -189,7 +188,11 @@ impl<'a> Progress<'a> {
     }
 
     /// The reason and time left of `g` at data time `now`.
-    fn describe(g: &GateMachine, now: Option<DateTime<Utc>>) -> (Option<String>, Option<f64>) {
+    fn describe(
+        g: &GateMachine,
+        reason: Option<String>,
+        now: Option<DateTime<Utc>>,
+    ) -> (Option<String>, Option<f64>) {
         let left = now.and_then(|n| g.time_left_at(n)).or(g.time_left_s());
         match (g.state(), g.failing(), left) {
             (GateState::Ready, ..) => (None, Some(0.0)),
@@ -201,23 +204,29 @@ impl<'a> Progress<'a> {
                 )),
                 Some(left),
             ),
-            _ => (g.reason().map(str::to_string), None),
+            _ => (reason, None),
         }
     }
 
-    fn report(&mut self, g: &GateMachine, now: Option<DateTime<Utc>>) -> Result<(), CliError> {
+    fn report(
+        &mut self,
+        g: &GateMachine,
+        reason: Option<String>,
+        now: Option<DateTime<Utc>>,
+    ) -> Result<(), CliError> {
         let key = (g.state(), g.failing());
         if self.last_key == Some(key) && self.last_at.elapsed() < Self::EVERY {
             return Ok(());
         }
         self.last_key = Some(key);
         self.last_at = Instant::now();
-        self.write(g, now, None)
+        self.write(g, reason, now, None)
     }
 
     fn finish(
         &mut self,
         g: &GateMachine,
+        reason: Option<String>,
         now: Option<DateTime<Utc>>,
         code: ExitCode,
     ) -> Result<(), CliError> {
@@ -229,16 +238,17 @@ impl<'a> Progress<'a> {
             ExitCode::Trip => "timeout",
             _ => "sources-ended",
         };
-        self.write(g, now, Some(outcome))
+        self.write(g, reason, now, Some(outcome))
     }
 
     fn write(
         &self,
         g: &GateMachine,
+        reason: Option<String>,
         now: Option<DateTime<Utc>>,
         outcome: Option<&str>,
     ) -> Result<(), CliError> {
-        let (reason, left) = Self::describe(g, now);
+        let (reason, left) = Self::describe(g, reason, now);
         let name = self.name;
         if outcome.is_none() {
             match (&reason, g.state()) {

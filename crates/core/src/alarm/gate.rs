@@ -77,9 +77,14 @@ pub struct GateMachine {
     pub gate: Gate,
     state: GateState,
     held_since: Option<DateTime<Utc>>,
+    /// The first failing condition's explanation, when the checks carried
+    /// one (and "no data yet" before any).
     reason: Option<String>,
     last_time: Option<DateTime<Utc>>,
     holding: Vec<bool>,
+    /// The first condition that failed at the last evaluation, and whether
+    /// it had held before (its deadband applied).
+    failing_held: Option<(usize, bool)>,
 }
 
 impl GateMachine {
@@ -92,6 +97,7 @@ impl GateMachine {
             reason: Some("no data yet".into()),
             last_time: None,
             holding: Vec::new(),
+            failing_held: None,
         }
     }
 
@@ -100,10 +106,32 @@ impl GateMachine {
         self.state
     }
 
-    /// Why it is not ready: the first failing condition and its value, or
-    /// that the conditions hold but not yet long enough.
-    pub fn reason(&self) -> Option<&str> {
-        self.reason.as_deref()
+    /// Why it is not ready: the first failing condition and its value (when
+    /// its check was explained; the monitor's gates are explained by
+    /// [`super::Monitor::gate_reason`]), or that the conditions hold but not
+    /// yet long enough.
+    pub fn reason(&self) -> Option<String> {
+        if let Some(r) = &self.reason {
+            return Some(r.clone());
+        }
+        match (self.state, self.held_since, self.last_time) {
+            (GateState::NotReady, Some(since), Some(now)) => {
+                let held = crate::timefmt::seconds_between(since, now);
+                Some(format!(
+                    "all conditions hold; {:.0} s of {:.0} s to go",
+                    (self.gate.hold_s - held).ceil(),
+                    self.gate.hold_s
+                ))
+            }
+            _ => None,
+        }
+    }
+
+    /// The first condition that failed (or could not be judged) at the last
+    /// evaluation, and whether it had held at the evaluation before (so
+    /// its deadband applied): what explains it.
+    pub fn failing_held(&self) -> Option<(usize, bool)> {
+        self.failing_held
     }
 
     /// Seconds left until ready, when every condition holds now.
@@ -154,34 +182,37 @@ impl GateMachine {
     }
 
     /// Feeds the checks of every condition (in order) at data time `time`.
+    /// A check may come unexplained (an empty reason: the monitor explains
+    /// only when asked); the reason is then left to the caller, and
+    /// [`GateMachine::failing_held`] says which condition to explain.
     pub fn update(&mut self, time: DateTime<Utc>, checks: &[Check]) -> Option<GateTransition> {
         self.last_time = Some(time);
-        self.holding = checks.iter().map(|c| *c == Check::Holds).collect();
-        let failing = checks
-            .iter()
-            .zip(&self.gate.conditions)
-            .find_map(|(c, cond)| match c {
-                Check::Holds => None,
-                Check::Fails(why) | Check::Unknown(why) => Some(format!("{}: {why}", cond.text)),
-            });
+        let first = checks.iter().position(|c| *c != Check::Holds);
+        self.failing_held = first.map(|j| (j, self.was_holding(j)));
+        self.holding.clear();
+        self.holding
+            .extend(checks.iter().map(|c| *c == Check::Holds));
+        let failing = first.and_then(|j| match &checks[j] {
+            Check::Holds => None,
+            Check::Fails(why) | Check::Unknown(why) => Some((j, why)),
+        });
         let to = match failing {
-            Some(why) => {
+            Some((j, why)) => {
                 self.held_since = None;
-                self.reason = Some(why);
+                self.reason = (!why.is_empty()).then(|| {
+                    let text = self.gate.conditions.get(j).map_or("", |c| c.text.as_str());
+                    format!("{text}: {why}")
+                });
                 GateState::NotReady
             }
             None => {
                 let since = *self.held_since.get_or_insert(time);
                 let held = crate::timefmt::seconds_between(since, time);
+                // The time left is said when asked (`reason`).
+                self.reason = None;
                 if held >= self.gate.hold_s {
-                    self.reason = None;
                     GateState::Ready
                 } else {
-                    self.reason = Some(format!(
-                        "all conditions hold; {:.0} s of {:.0} s to go",
-                        (self.gate.hold_s - held).ceil(),
-                        self.gate.hold_s
-                    ));
                     GateState::NotReady
                 }
             }
@@ -194,7 +225,7 @@ impl GateMachine {
             time,
             from,
             to,
-            reason: self.reason.clone(),
+            reason: self.reason(),
         })
     }
 }

@@ -620,6 +620,25 @@ impl Monitor {
         &self.gates
     }
 
+    /// Why gate `index` (of [`Monitor::gates`]) is not ready, as of the last
+    /// evaluation: its first failing condition and the value that fails
+    /// it, or how long its conditions still have to hold. `None` when it is
+    /// ready. Worked out when asked: the gates are checked without it at
+    /// every reading.
+    pub fn gate_reason(&self, index: usize) -> Option<String> {
+        let g = self.gates.get(index)?;
+        if g.state() == GateState::Ready {
+            return None;
+        }
+        if let (Some((j, held)), Some(now)) = (g.failing_held(), self.evaluated)
+            && let Some(c) = g.gate.conditions.get(j)
+            && let Check::Fails(why) | Check::Unknown(why) = self.check(c, now, held, true)
+        {
+            return Some(format!("{}: {why}", c.text));
+        }
+        g.reason()
+    }
+
     /// Records a row of readings (one line or record) and evaluates: first
     /// every deadline up to the row's time is run (so a delay or a staleness
     /// that ran out between rows has its event at its own time), then the
@@ -1499,16 +1518,20 @@ impl Monitor {
                 events.push(e);
             }
         }
-        // Gates.
+        // Gates: checked unexplained (their reasons are worked out when
+        // asked, `gate_reason`, or when the state changes).
         for i in 0..self.gates.len() {
             let checks: Vec<Check> = self.gates[i]
                 .gate
                 .conditions
                 .iter()
                 .enumerate()
-                .map(|(j, c)| self.check(c, now, self.gates[i].was_holding(j), true))
+                .map(|(j, c)| self.check(c, now, self.gates[i].was_holding(j), false))
                 .collect();
-            if let Some(t) = self.gates[i].update(now, &checks) {
+            if let Some(mut t) = self.gates[i].update(now, &checks) {
+                if t.to == GateState::NotReady && t.reason.is_none() {
+                    t.reason = self.gate_reason(i);
+                }
                 let g = &self.gates[i].gate;
                 let text = match (&t.reason, t.to) {
                     (_, GateState::Ready) => {

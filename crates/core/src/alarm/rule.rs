@@ -433,30 +433,66 @@ impl RuleMachine {
 
     /// The shortcut of [`RuleMachine::update`]: whether `input` changes
     /// nothing but the last value (which it then records). Nearly every
-    /// reading: a value on the side of the threshold the condition is
-    /// already on, no delay running, in a state the condition keeps.
+    /// reading: a value, an off-scale reading or a class on the side of the
+    /// threshold the condition is already on, no delay running, in a state
+    /// the condition keeps; a rule switched off (by its enable condition or
+    /// a gauge switched off) that is already suppressed by design; no
+    /// usable input while nothing waits on one.
     #[inline]
     pub fn quiet(&mut self, input: Input) -> bool {
-        let Input::Value(v) = input else {
-            return false;
-        };
-        if self.pending_since.is_some() || self.since.is_none() || !self.settled() {
-            return false;
-        }
-        // As `raw`, for the two tests a value decides.
         let active = self.condition;
-        let raw = match self.rule.test {
-            Test::Above(t) if active => v > self.rule.deadband.clear_level(t, true),
-            Test::Above(t) => v > t,
-            Test::Below(t) if active => v < self.rule.deadband.clear_level(t, false),
-            Test::Below(t) => v < t,
+        // As `raw`, for every test but a crossing (which remembers the
+        // class).
+        let raw = match (input, &self.rule.test) {
+            (Input::Value(v), Test::Above(t)) if active => {
+                v > self.rule.deadband.clear_level(*t, true)
+            }
+            (Input::Value(v), Test::Above(t)) => v > *t,
+            (Input::Value(v), Test::Below(t)) if active => {
+                v < self.rule.deadband.clear_level(*t, false)
+            }
+            (Input::Value(v), Test::Below(t)) => v < *t,
+            (Input::OverRange, Test::Above(_)) | (Input::UnderRange, Test::Below(_)) => true,
+            (Input::UnderRange, Test::Above(_)) | (Input::OverRange, Test::Below(_)) => false,
+            (Input::Class(k), Test::Enters(c)) => k == *c,
+            (Input::Class(k), Test::Leaves(c)) => k != *c,
+            (Input::Disabled, _) => return self.quiet_disabled(),
+            (Input::Unusable, _) => return self.quiet_unusable(),
             _ => return false,
         };
-        if raw != active {
+        if raw != active || self.pending_since.is_some() || self.since.is_none() || !self.settled()
+        {
             return false;
         }
         self.last_value = Some(input);
         true
+    }
+
+    /// [`RuleMachine::quiet`] for [`Input::Disabled`]: what the update in
+    /// full would leave as it is (no shelving to expire, the condition,
+    /// delay and class already cleared, the state already suppressed).
+    fn quiet_disabled(&mut self) -> bool {
+        let still = self.since.is_some()
+            && self.state == AlarmState::SuppressedByDesign
+            && !self.condition
+            && self.pending_since.is_none()
+            && self.last_class.is_none();
+        if still {
+            self.last_value = Some(Input::Disabled);
+        }
+        still
+    }
+
+    /// [`RuleMachine::quiet`] for [`Input::Unusable`]: the state is held
+    /// and the last value kept; only a running delay (restarted), a
+    /// shelving (that may expire) or a suppression (that ends) would move.
+    fn quiet_unusable(&self) -> bool {
+        self.since.is_some()
+            && self.pending_since.is_none()
+            && !matches!(
+                self.state,
+                AlarmState::Shelved | AlarmState::SuppressedByDesign
+            )
     }
 
     /// [`RuleMachine::update`] without its shortcut for the common case.

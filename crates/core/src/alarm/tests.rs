@@ -269,6 +269,52 @@ fn crossings_are_momentary_either_way() {
 }
 
 #[test]
+fn a_monitor_explains_its_gate_when_asked_with_the_value_of_the_last_reading() {
+    // Gate "ready": g pressure below 1e-4 mbar held for 8 s.
+    let mut m = Monitor::new(delayed_setup());
+    assert_eq!(m.gate_reason(0).as_deref(), Some("no data yet"));
+    m.push(&[Sample::ok(t(0.0), "g", 3e-3, MBAR)]);
+    let why = m.gate_reason(0).expect("not ready");
+    assert!(
+        why.starts_with("g pressure below 1e-4 mbar: g is 3") && why.ends_with("mbar"),
+        "{why}"
+    );
+    // The value is the last reading's.
+    m.push(&[Sample::ok(t(1.0), "g", 7e-4, MBAR)]);
+    let why = m.gate_reason(0).expect("not ready");
+    assert!(why.contains("g is 7"), "{why}");
+    // Holding: the time still to go.
+    m.push(&[Sample::ok(t(2.0), "g", 5e-5, MBAR)]);
+    assert_eq!(
+        m.gate_reason(0).as_deref(),
+        Some("all conditions hold; 8 s of 8 s to go")
+    );
+    m.push(&[Sample::ok(t(6.0), "g", 5e-5, MBAR)]);
+    assert_eq!(
+        m.gate_reason(0).as_deref(),
+        Some("all conditions hold; 4 s of 8 s to go")
+    );
+    let ev = m.push(&[Sample::ok(t(10.0), "g", 5e-5, MBAR)]);
+    assert!(
+        ev.iter()
+            .any(|e| e.id == "ready" && e.text == "Ready: ready (all conditions held 8 s)"),
+        "{ev:?}"
+    );
+    assert_eq!(m.gate_reason(0), None);
+    // A break: the event says why, as the monitor does when asked.
+    let ev = m.push(&[Sample::bad(t(11.0), "g", MBAR, Fault::SensorError)]);
+    let broke = ev
+        .iter()
+        .find(|e| e.id == "ready")
+        .expect("not ready again");
+    let why = m.gate_reason(0).expect("not ready");
+    assert_eq!(broke.value_text.as_deref(), Some(why.as_str()));
+    assert_eq!(broke.text, format!("Ready: not ready: {why}"));
+    assert!(why.contains("sensor-error"), "{why}");
+    assert_eq!(m.gate_reason(7), None, "no such gate");
+}
+
+#[test]
 fn gate_holds_for_its_duration_and_says_why_not() {
     let cond = syntax::condition("g pressure below 5e-6 mbar", &|_| None).expect("valid");
     let mut g = GateMachine::new(Gate {
@@ -889,13 +935,35 @@ mod shortcut {
     }
 
     fn input() -> impl Strategy<Value = Input> {
+        let regime = prop::sample::select(vec![
+            FlowRegime::Viscous,
+            FlowRegime::Transitional,
+            FlowRegime::Molecular,
+        ]);
         prop_oneof![
             8 => (0.0f64..3.0).prop_map(Input::Value),
+            4 => regime.prop_map(|r| Input::Class(Class::Regime(r))),
             1 => Just(Input::OverRange),
             1 => Just(Input::UnderRange),
             1 => Just(Input::Unusable),
             1 => Just(Input::Disabled),
         ]
+    }
+
+    /// A threshold on a value, or a test of the regime.
+    fn test() -> impl Strategy<Value = Test> {
+        let (v, t, m) = (
+            Class::Regime(FlowRegime::Viscous),
+            Class::Regime(FlowRegime::Transitional),
+            Class::Regime(FlowRegime::Molecular),
+        );
+        prop::sample::select(vec![
+            Test::Above(1.5),
+            Test::Below(1.5),
+            Test::Enters(t),
+            Test::Leaves(m),
+            Test::Crosses(v, t),
+        ])
     }
 
     fn step() -> impl Strategy<Value = Step> {
@@ -909,14 +977,14 @@ mod shortcut {
     proptest! {
         #[test]
         fn same_as_the_update_in_full(
-            above in any::<bool>(),
+            test in test(),
             deadband in prop_oneof![Just(Deadband::None), (0.0f64..0.5).prop_map(Deadband::Fraction)],
             on_delay in prop_oneof![Just(0.0), 0.0f64..3.0],
             off_delay in prop_oneof![Just(0.0), 0.0f64..3.0],
             latching in any::<bool>(),
             steps in prop::collection::vec((step(), 0u16..2500), 1..80),
         ) {
-            let mut r = rule(if above { Test::Above(1.5) } else { Test::Below(1.5) });
+            let mut r = rule(test);
             r.deadband = deadband;
             r.on_delay_s = on_delay;
             r.off_delay_s = off_delay;
@@ -1075,6 +1143,16 @@ mod deadline_floor {
         s.rules.push(RuleSpec {
             rule: band,
             enable: None,
+        });
+        // A rule switched on and off by the other channel.
+        let mut gated = rule(Test::Above(1e-2));
+        gated.id = "gated".into();
+        gated.on_delay_s = 0.5;
+        s.rules.push(RuleSpec {
+            rule: gated,
+            enable: Some(
+                syntax::condition("h pressure below 1e-3 mbar", &|_| None).expect("valid"),
+            ),
         });
         s
     }

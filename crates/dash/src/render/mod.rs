@@ -997,11 +997,10 @@ fn alarms(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             .now()
             .and_then(|n| g.time_left_at(n))
             .or(g.time_left_s());
-        let why = match (g.state(), left, g.reason()) {
-            (GateState::Ready, _, _) => format!("held {} s", g.gate.hold_s),
-            (_, Some(left), _) if left > 0.0 => format!("{left:.0} s left"),
-            (_, _, Some(r)) => r.to_string(),
-            _ => String::new(),
+        let why = match (g.state(), left) {
+            (GateState::Ready, _) => format!("held {} s", g.gate.hold_s),
+            (_, Some(left)) if left > 0.0 => format!("{left:.0} s left"),
+            _ => monitor.gate_reason(j).unwrap_or_default(),
         };
         let room = width.saturating_sub(1 + c.id + 1 + c.sev + 1 + 9 + 1);
         lines.push(Line::from(vec![
