@@ -438,20 +438,35 @@ impl RuleMachine {
     /// the condition keeps; a rule switched off (by its enable condition or
     /// a gauge switched off) that is already suppressed by design; no
     /// usable input while nothing waits on one.
-    #[inline]
+    #[inline(always)]
     pub fn quiet(&mut self, input: Input) -> bool {
+        let Input::Value(v) = input else {
+            return self.quiet_other(input);
+        };
+        if self.pending_since.is_some() || self.since.is_none() || !self.settled() {
+            return false;
+        }
+        // As `raw`, for the two tests a value decides.
         let active = self.condition;
-        // As `raw`, for every test but a crossing (which remembers the
-        // class).
+        let raw = match self.rule.test {
+            Test::Above(t) if active => v > self.rule.deadband.clear_level(t, true),
+            Test::Above(t) => v > t,
+            Test::Below(t) if active => v < self.rule.deadband.clear_level(t, false),
+            Test::Below(t) => v < t,
+            _ => return false,
+        };
+        if raw != active {
+            return false;
+        }
+        self.last_value = Some(input);
+        true
+    }
+
+    /// [`RuleMachine::quiet`] for an input that is not a value (out of
+    /// line: the shortcut for a value is inlined where it is taken).
+    #[inline(never)]
+    fn quiet_other(&mut self, input: Input) -> bool {
         let raw = match (input, &self.rule.test) {
-            (Input::Value(v), Test::Above(t)) if active => {
-                v > self.rule.deadband.clear_level(*t, true)
-            }
-            (Input::Value(v), Test::Above(t)) => v > *t,
-            (Input::Value(v), Test::Below(t)) if active => {
-                v < self.rule.deadband.clear_level(*t, false)
-            }
-            (Input::Value(v), Test::Below(t)) => v < *t,
             (Input::OverRange, Test::Above(_)) | (Input::UnderRange, Test::Below(_)) => true,
             (Input::UnderRange, Test::Above(_)) | (Input::OverRange, Test::Below(_)) => false,
             (Input::Class(k), Test::Enters(c)) => k == *c,
@@ -460,7 +475,10 @@ impl RuleMachine {
             (Input::Unusable, _) => return self.quiet_unusable(),
             _ => return false,
         };
-        if raw != active || self.pending_since.is_some() || self.since.is_none() || !self.settled()
+        if raw != self.condition
+            || self.pending_since.is_some()
+            || self.since.is_none()
+            || !self.settled()
         {
             return false;
         }

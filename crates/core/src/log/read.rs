@@ -755,13 +755,17 @@ fn plain_row<'t, const IN_BUFFER: bool>(
     // Where the cell after the last comma read starts (past the end
     // when the line has ended).
     let mut at = end + 1;
+    // Whether a number was not above zero: a pressure that is gets its
+    // note on the general path (looked into only then).
+    let mut not_positive = false;
     for (k, column) in columns.iter().enumerate() {
         let rest = bytes.get(at..)?;
         let (cell, used) = match column.kind {
-            ColumnKind::Channel(unit) => match parse_f64_prefix(rest) {
-                // A pressure not above zero gets its note on the general path.
-                Some((v, _)) if unit.is_pressure() && v <= 0.0 => return None,
-                Some((v, used)) => (Some(Reading::Value(v)), used),
+            ColumnKind::Channel(_) => match parse_f64_prefix(rest) {
+                Some((v, used)) => {
+                    not_positive |= v <= 0.0;
+                    (Some(Reading::Value(v)), used)
+                }
                 None => {
                     let used = cell_len(rest, in_buffer)?;
                     (plain_word(&rest[..used])?, used)
@@ -800,6 +804,9 @@ fn plain_row<'t, const IN_BUFFER: bool>(
             if let ColumnKind::Channel(_) = column.kind {
                 readings.push(cell);
             }
+            if not_positive && pressure_not_positive(columns, readings) {
+                return None;
+            }
             return Some((time, gas, line_break + 1));
         }
         match after {
@@ -814,7 +821,23 @@ fn plain_row<'t, const IN_BUFFER: bool>(
     }
     // Every cell read, and the line ends with the last one (in a buffer,
     // a row without cells is left to the line).
+    if not_positive && pressure_not_positive(columns, readings) {
+        return None;
+    }
     (!in_buffer && at == bytes.len() + 1).then_some((time, gas, bytes.len()))
+}
+
+/// Whether a pressure channel's reading in `readings` (one per channel
+/// column) is a number not above zero.
+#[cold]
+fn pressure_not_positive(columns: &[Column], readings: &[Option<Reading>]) -> bool {
+    let units = columns.iter().filter_map(|c| match c.kind {
+        ColumnKind::Channel(unit) => Some(unit),
+        _ => None,
+    });
+    units
+        .zip(readings)
+        .any(|(unit, r)| matches!(r, Some(Reading::Value(v)) if *v <= 0.0 && unit.is_pressure()))
 }
 
 /// The longest row time [`Rfc3339Days::parse_fast`] reads
