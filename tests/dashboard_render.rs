@@ -11,15 +11,17 @@ use ratatui::Terminal;
 use ratatui::backend::TestBackend;
 use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
+use ratatui::style::Modifier;
 
 use rarefy::alarm::Monitor;
 use rarefy::config;
 use rarefy::logfile::open_log;
 use rarefy::pipeline::Operation;
-use rarefy::sample::SourceEvent;
+use rarefy::sample::{ChannelUnit, Sample, SourceEvent};
 use rarefy::ui::app::{App, GaugeInfo};
 use rarefy::ui::render::{self, Look, Panel};
 use rarefy::ui::run::{ReplaySetup, index};
+use rarefy::units::PressureUnit;
 
 fn root() -> &'static Path {
     Path::new(env!("CARGO_MANIFEST_DIR"))
@@ -279,6 +281,33 @@ fn without_colour_each_gauge_has_its_own_mark() {
         !s.contains('⠀') && !s.contains('⣀'),
         "braille without colour:\n{s}"
     );
+}
+
+#[test]
+fn a_pressure_below_zero_is_shown_as_read_and_dimmed() {
+    // A gauge's zero drift: the reading is kept as read, without kinetics.
+    let mut app = app_at(Some("09:31:30"));
+    let unit = ChannelUnit::Pressure(PressureUnit::Mbar);
+    app.ingest(
+        &SourceEvent::Samples(vec![Sample::ok(time("09:31:31"), "cdg", -1.5e-4, unit)]),
+        None,
+    );
+    let look = Look::of(&app);
+    let area = Rect::new(0, 0, 40, 6);
+    let mut buf = Buffer::empty(area);
+    render::draw_panel(Panel::Readings, &app, &look, area, &mut buf);
+    let line = |y: u16| (0..40).map(|x| buf[(x, y)].symbol()).collect::<String>();
+    let row = (0..6)
+        .find(|y| line(*y).contains("cdg"))
+        .expect("the cdg row");
+    assert!(line(row).contains("-1.50e-4 mbar"), "{}", line(row));
+    let x = (0..40)
+        .find(|x| buf[(*x, row)].symbol() == "-" && buf[(*x + 1, row)].symbol() == "1")
+        .expect("the value");
+    // Not the bold of a valid reading, nor an alarm.
+    let style = buf[(x, row)].style();
+    assert!(!style.add_modifier.contains(Modifier::BOLD), "{style:?}");
+    assert_ne!(style, look.alarm);
 }
 
 #[test]

@@ -507,10 +507,15 @@ fn readings(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             Status::Stale,
             |t| if stale { Status::Stale } else { t.status },
         );
+        // A pressure not above zero (a gauge's zero drift) is shown as read,
+        // dimmed like a reading below the range: it has no kinetics.
+        let below_zero = track.and_then(|t| t.indicated).filter(|v| *v <= 0.0);
         let value = match (status, track, g.unit) {
-            (Status::Ok, Some(t), ChannelUnit::Pressure(_)) => t
-                .pressure_pa
-                .map_or("-".into(), |p| units::format_pressure(p, app.pressure_unit)),
+            (Status::Ok, Some(t), ChannelUnit::Pressure(_)) => match (t.pressure_pa, below_zero) {
+                (Some(p), _) => units::format_pressure(p, app.pressure_unit),
+                (None, Some(v)) => units::format_pressure(v, app.pressure_unit),
+                (None, None) => "-".into(),
+            },
             (Status::Ok, Some(t), ChannelUnit::Temperature(_)) => {
                 t.temperature_k.map_or("-".into(), |k| {
                     units::format_temperature(k, app.temperature_unit)
@@ -519,6 +524,7 @@ fn readings(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
             (s, _, _) => s.as_str().to_string(),
         };
         let style = match status {
+            Status::Ok if below_zero.is_some() && g.unit.is_pressure() => look.dim,
             Status::Ok => Style::default().add_modifier(Modifier::BOLD),
             // Below its range is where a pressure gauge sits at high vacuum.
             Status::UnderRange if g.unit.is_pressure() => look.dim,
