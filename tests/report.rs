@@ -660,6 +660,39 @@ fn a_pressure_not_above_zero_is_located_counted_and_kept_without_kinetics() {
 }
 
 #[test]
+fn a_cell_that_is_not_utf8_costs_that_reading_only() {
+    // A flipped byte in the pressure cell of line 4: the row's wall
+    // reading is still used, the pressure counted as unparsed.
+    let p = temp("not-utf8.csv", "");
+    let mut bytes = b"# rarefy log v1\ntime,chamber [Pa],wall [C]\n\
+        2026-01-01T00:00:00.000Z,5e1,21\n2026-01-01T00:00:10.000Z,4"
+        .to_vec();
+    bytes.extend_from_slice(b"\xff5,22\n2026-01-01T00:00:20.000Z,3e1,23\n");
+    std::fs::write(&p, bytes).expect("write");
+    let (code, v, err) = bad(&[&p]);
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        located(
+            &err,
+            &p,
+            4,
+            "invalid UTF-8 (byte 0xff after \"4\") in cell 2"
+        ),
+        "{err}"
+    );
+    assert_eq!(v["rows"], 3, "{v}");
+    assert_eq!(
+        v["unusable_rows"]["a cell could not be read (row used without it)"], 1,
+        "{v}"
+    );
+    let wall = gauge(&v, "wall");
+    assert_eq!(wall["samples"], 3, "{v}");
+    let chamber = gauge(&v, "chamber");
+    assert_eq!(chamber["samples"], 3, "{v}");
+    assert_eq!(chamber["statuses"]["unparsed"], 1, "{v}");
+}
+
+#[test]
 fn a_header_with_an_unknown_unit_is_located_and_its_rows_counted() {
     let unknown = temp(
         "unknown-unit.csv",

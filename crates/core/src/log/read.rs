@@ -576,11 +576,20 @@ impl<R: BufRead> LogReader<R> {
         let name = self.name.as_str();
         // A data line is valid UTF-8 as it stands (no byte-order mark after
         // the first line): borrowed, not copied.
+        // A channel cell that is not UTF-8 is that cell's problem alone
+        // (as a cell that is not a number): the rest of the row is used.
+        let mut not_text: Vec<(usize, String)> = Vec::new();
         let text: std::borrow::Cow<'_, str> = match std::str::from_utf8(&raw.bytes) {
             Ok(t) if raw.number > 1 && !raw.too_long => t.into(),
             _ => match text_of(name, raw, ',') {
                 Ok(t) => t.into(),
-                Err(e) => return Some(Err(e)),
+                Err(e) => match channel_cells_not_text(&self.columns, raw) {
+                    Some((t, cells)) => {
+                        not_text = cells;
+                        t.into()
+                    }
+                    None => return Some(Err(e)),
+                },
             },
         };
         if text.trim().is_empty() {
@@ -633,7 +642,7 @@ impl<R: BufRead> LogReader<R> {
             cells.len()
         };
         let expected = self.columns.len() + 1;
-        let result = self.row_cells(raw, count, expected, &cell, out);
+        let result = self.row_cells(raw, count, expected, &cell, &not_text, out);
         self.spans = spans;
         result
     }
@@ -644,6 +653,7 @@ impl<R: BufRead> LogReader<R> {
         count: usize,
         expected: usize,
         cell: &dyn Fn(usize) -> &'t str,
+        not_text: &[(usize, String)],
         out: &mut Row,
     ) -> Option<Result<(), LogError>> {
         let name = self.name.as_str();
@@ -683,6 +693,16 @@ impl<R: BufRead> LogReader<R> {
             let ColumnKind::Channel(unit) = column.kind else {
                 continue;
             };
+            if let Some((_, msg)) = not_text.iter().find(|(c, _)| *c == i + 1) {
+                put(
+                    &mut samples,
+                    &column.name,
+                    unit,
+                    Reading::Bad(Fault::Unparsed),
+                );
+                bad.push((i + 2, msg.clone()));
+                continue;
+            }
             match parse_cell(text) {
                 Ok(None) => {}
                 Ok(Some(reading)) => {
@@ -715,6 +735,52 @@ impl<R: BufRead> LogReader<R> {
         let at = |col: usize, msg: String| LogError::at(name, raw.number, Some(col), msg);
         Some(row_result(std::mem::take(out), bad, at).map(|_| ()))
     }
+}
+
+/// A data line that is not UTF-8 only in some channel cells: the line with
+/// those cells left empty, and each one's index (0 is the time) with its
+/// message. `None` when the rest is not text, a cell that is not UTF-8 is
+/// the time, the gas or a derived cell, the cells are not as many as the
+/// header's, or the line has quotes (which the general splitter reads):
+/// the whole row is then an error, as before.
+fn channel_cells_not_text(
+    columns: &[Column],
+    raw: &RawLine,
+) -> Option<(String, Vec<(usize, String)>)> {
+    if raw.number == 1 || raw.too_long || raw.bytes.contains(&b'"') {
+        return None;
+    }
+    let cells: Vec<&[u8]> = raw.bytes.split(|&b| b == b',').collect();
+    if cells.len() != columns.len() + 1 {
+        return None;
+    }
+    let mut text = String::with_capacity(raw.bytes.len());
+    let mut bad = Vec::new();
+    for (k, cell) in cells.iter().enumerate() {
+        if k > 0 {
+            text.push(',');
+        }
+        match std::str::from_utf8(cell) {
+            Ok(t) => text.push_str(t),
+            Err(e) => {
+                if k == 0 || !matches!(columns[k - 1].kind, ColumnKind::Channel(_)) {
+                    return None;
+                }
+                let valid = &cell[..e.valid_up_to()];
+                let prefix = std::str::from_utf8(valid).unwrap_or_default();
+                bad.push((
+                    k,
+                    format!(
+                        "invalid UTF-8 (byte 0x{:02x} after \"{}\") in cell {}",
+                        cell[e.valid_up_to()],
+                        show(prefix),
+                        k + 1
+                    ),
+                ));
+            }
+        }
+    }
+    (!bad.is_empty()).then_some((text, bad))
 }
 
 /// Reads the common row straight from its bytes, each cell parsed where

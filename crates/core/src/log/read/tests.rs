@@ -476,6 +476,58 @@ fn a_pressure_not_above_zero_is_kept_with_a_located_note() {
 }
 
 #[test]
+fn a_channel_cell_that_is_not_utf8_is_unparsed_and_the_row_kept() {
+    let read = |body: &[u8], general_only: bool| {
+        let mut bytes = format!("{MAGIC}\ntime,a [mbar],b [C],gas\n").into_bytes();
+        bytes.extend_from_slice(body);
+        let mut r = LogReader::new(&bytes[..], "run.csv").expect("header");
+        r.general_only = general_only;
+        r.collect::<Vec<_>>()
+    };
+    for general_only in [false, true] {
+        // In one channel cell: that cell is unparsed, the rest used.
+        let items = read(b"2026-12-01T19:00:00.000Z,4\xff5,21.5,N2\n", general_only);
+        let Some(Err(e)) = items.first() else {
+            panic!("expected a note: {items:?}");
+        };
+        assert_eq!(
+            e.to_string(),
+            "run.csv:3:2: invalid UTF-8 (byte 0xff after \"4\") in cell 2"
+        );
+        let row = e.row.as_ref().expect("the row is kept");
+        assert_eq!(row.samples.len(), 2);
+        assert_eq!(row.samples[0].status(), Status::Unparsed);
+        assert_eq!(row.samples[1].value(), Some(21.5));
+        assert_eq!(row.gas.as_deref(), Some("N2"));
+        // In both: the first named, the other counted.
+        let items = read(b"2026-12-01T19:00:00.000Z,\xfe,\xff,N2\n", general_only);
+        let Some(Err(e)) = items.first() else {
+            panic!("expected a note: {items:?}");
+        };
+        assert!(
+            e.message.ends_with("(and 1 more bad cell in this row)"),
+            "{e}"
+        );
+        let row = e.row.as_ref().expect("the row is kept");
+        assert!(row.samples.iter().all(|s| s.status() == Status::Unparsed));
+        // In the time, the gas cell, or with the wrong number of cells: the
+        // row is not used, as any row whose time or shape cannot be read.
+        for body in [
+            &b"2026-12-01T19:00:00.000\xffZ,1,2,N2\n"[..],
+            b"2026-12-01T19:00:00.000Z,1,2,N\xff\n",
+            b"2026-12-01T19:00:00.000Z,1\xff,2\n",
+        ] {
+            let items = read(body, general_only);
+            let Some(Err(e)) = items.first() else {
+                panic!("expected an error: {items:?}");
+            };
+            assert!(e.message.contains("invalid UTF-8"), "{e}");
+            assert!(e.row.is_none(), "{e:?}");
+        }
+    }
+}
+
+#[test]
 fn bad_rows_are_located_and_specific() {
     let cases: [(&[u8], &str); 9] = [
         (
