@@ -123,21 +123,47 @@ impl GaugeTrack {
         Some(self.t0? + chrono::Duration::milliseconds(since_ms))
     }
 
-    /// A copy of the track for [`GaugeTrack::restore`], but for its rate
-    /// window, which keeps an undo log from now on instead.
-    fn save(&mut self) -> GaugeTrack {
-        let window = std::mem::take(&mut self.window);
-        let copy = self.clone();
-        self.window = window;
-        self.window.checkpoint();
-        copy
+    /// Copies the track into `copy` (reusing its allocations) for
+    /// [`GaugeTrack::restore_from`], but for its rate window, which keeps
+    /// an undo log from now on instead.
+    fn save_into(&mut self, copy: &mut GaugeTrack) {
+        // Every field named: a new one must be decided here.
+        let GaugeTrack {
+            last_time,
+            status,
+            indicated,
+            is_pressure,
+            pressure_pa,
+            uncorrectable,
+            temperature_k,
+            derived,
+            exposure,
+            dpdt,
+            decades_per_min,
+            window,
+            t0,
+        } = self;
+        copy.last_time = *last_time;
+        copy.status = *status;
+        copy.indicated = *indicated;
+        copy.is_pressure = *is_pressure;
+        copy.pressure_pa = *pressure_pa;
+        copy.uncorrectable = *uncorrectable;
+        copy.temperature_k = *temperature_k;
+        copy.derived.clone_from(derived);
+        copy.exposure.clone_from(exposure);
+        copy.dpdt = *dpdt;
+        copy.decades_per_min = *decades_per_min;
+        copy.t0 = *t0;
+        window.checkpoint();
     }
 
-    /// Returns to the state [`GaugeTrack::save`] gave.
-    fn restore(&mut self, saved: GaugeTrack) {
+    /// Returns to the state [`GaugeTrack::save_into`] copied into `saved`
+    /// (which is left holding this one's, its window empty).
+    fn restore_from(&mut self, saved: &mut GaugeTrack) {
         let mut window = std::mem::take(&mut self.window);
         window.rollback();
-        *self = saved;
+        std::mem::swap(self, saved);
         self.window = window;
     }
 
@@ -253,6 +279,10 @@ pub struct Monitor {
     /// Every gauge an input alarm watches has a track (no "never seen"
     /// deadline to look for).
     inputs_seen: bool,
+    /// A row's tracks as they were before it, while a gas step is decided
+    /// on it (whether each existed, and its copy), kept for the copies'
+    /// allocations.
+    trial: Scratch<(bool, GaugeTrack)>,
     rules: Vec<(RuleMachine, Option<Condition>)>,
     /// Per rule, the first rule on the same gauge and quantity (its input
     /// is read once per evaluation).
@@ -427,6 +457,7 @@ impl Monitor {
             floor_readings_from: DateTime::<Utc>::MAX_UTC,
             floor_on: true,
             inputs_seen: false,
+            trial: Scratch::default(),
             rules,
             rule_input,
             inputs,
@@ -661,28 +692,37 @@ impl Monitor {
         let steps = !self.setup.gas_steps.is_empty()
             && self.gas.choice.0 == GasChoice::Auto
             && self.gas.log.is_none();
-        // Only the row's tracks change; their rate windows keep an undo log
-        // rather than being copied.
-        let saved = steps.then(|| {
-            let mut saved: Vec<(&str, Option<GaugeTrack>)> = Vec::with_capacity(samples.len());
-            for s in samples {
-                if saved.iter().all(|(id, _)| *id != s.channel) {
-                    let t = self.tracks.get_mut(&s.channel).map(GaugeTrack::save);
-                    saved.push((s.channel.as_str(), t));
+        // Only the row's tracks change: each is copied into the trial
+        // buffer (whose allocations are reused), its rate window keeping an
+        // undo log rather than being copied.
+        let start = self.setup.physics.exposure_start;
+        let saved_temperature = steps.then(|| {
+            for (k, id) in first_channels(samples).enumerate() {
+                if self.trial.0.len() == k {
+                    self.trial.0.push((false, GaugeTrack::new(start)));
                 }
+                let (existed, copy) = &mut self.trial.0[k];
+                *existed = match self.tracks.get_mut(id) {
+                    Some(t) => {
+                        t.save_into(copy);
+                        true
+                    }
+                    None => false,
+                };
             }
-            (saved, self.temperature_k)
+            self.temperature_k
         });
         for s in samples {
             self.take(s);
         }
-        if let Some((saved, temperature_k)) = saved {
+        if let Some(temperature_k) = saved_temperature {
             let (mixture, origin) = self.wanted_gas(now);
             let change = mixture != self.gas.mixture || origin != self.gas.origin;
-            for (id, old) in saved {
-                match (self.tracks.get_mut(id), old) {
-                    (Some(t), Some(old)) if change => t.restore(old),
-                    (Some(_), None) if change => {
+            for (k, id) in first_channels(samples).enumerate() {
+                let (existed, copy) = &mut self.trial.0[k];
+                match (self.tracks.get_mut(id), *existed) {
+                    (Some(t), true) if change => t.restore_from(copy),
+                    (Some(_), false) if change => {
                         self.tracks.remove(id);
                         self.inputs_seen = false;
                     }
@@ -1798,6 +1838,38 @@ impl Monitor {
 }
 
 /// The automatic bad-input alarm of a gauge.
+/// Room kept for its allocations between rows, not part of the state: a
+/// clone starts empty and `Debug` shows none of it, so two monitors in the
+/// same state look the same whatever they worked through.
+struct Scratch<T>(Vec<T>);
+
+impl<T> Default for Scratch<T> {
+    fn default() -> Self {
+        Scratch(Vec::new())
+    }
+}
+
+impl<T> Clone for Scratch<T> {
+    fn clone(&self) -> Self {
+        Scratch::default()
+    }
+}
+
+impl<T> std::fmt::Debug for Scratch<T> {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("Scratch")
+    }
+}
+
+/// The channels of a row, each once, in the order they first come.
+fn first_channels(samples: &[Sample]) -> impl Iterator<Item = &str> {
+    samples
+        .iter()
+        .enumerate()
+        .filter(|(i, s)| samples[..*i].iter().all(|o| o.channel != s.channel))
+        .map(|(_, s)| s.channel.as_str())
+}
+
 fn input_rule(gauge: &str, severity: Severity) -> Rule {
     automatic_rule(
         format!("{gauge}.input"),

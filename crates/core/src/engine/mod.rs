@@ -227,7 +227,7 @@ impl Clone for LengthDerived {
 }
 
 /// Everything the engine derives from one state of the gas.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, PartialEq, Serialize)]
 pub struct Derived {
     /// Total number density, 1/m³.
     pub number_density_per_m3: f64,
@@ -254,6 +254,48 @@ pub struct Derived {
     pub lengths: Vec<LengthDerived>,
     /// Inputs outside a model's validity, and the like.
     pub warnings: Vec<Warning>,
+}
+
+// `clone_from` reuses the lists' allocations (and their entries' names):
+// the monitor copies a track's result into the same buffer on every row
+// that may change the gas.
+impl Clone for Derived {
+    fn clone(&self) -> Self {
+        Derived {
+            species: self.species.clone(),
+            lengths: self.lengths.clone(),
+            warnings: self.warnings.clone(),
+            ..*self
+        }
+    }
+
+    fn clone_from(&mut self, source: &Self) {
+        // Every field named: a new one must be decided here.
+        let Derived {
+            number_density_per_m3,
+            mean_speed_m_per_s,
+            most_probable_speed_m_per_s,
+            rms_speed_m_per_s,
+            mean_free_path_m,
+            impingement_per_m2_s,
+            monolayer_time_s,
+            vacuum_range,
+            species,
+            lengths,
+            warnings,
+        } = source;
+        self.number_density_per_m3 = *number_density_per_m3;
+        self.mean_speed_m_per_s = *mean_speed_m_per_s;
+        self.most_probable_speed_m_per_s = *most_probable_speed_m_per_s;
+        self.rms_speed_m_per_s = *rms_speed_m_per_s;
+        self.mean_free_path_m = *mean_free_path_m;
+        self.impingement_per_m2_s = *impingement_per_m2_s;
+        self.monolayer_time_s = *monolayer_time_s;
+        self.vacuum_range = *vacuum_range;
+        self.species.clone_from(species);
+        self.lengths.clone_from(lengths);
+        self.warnings.clone_from(warnings);
+    }
 }
 
 /// How far (relative, in λ) a fixed diameter may be from the Sutherland one

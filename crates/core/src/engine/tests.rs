@@ -507,9 +507,14 @@ fn results_refreshed_in_place_equal_fresh_ones() {
         (pure("N2"), &one, 295.0, 1e-9),
     ];
     let mut out = Precomputed::new(295.0, &pure("He"), &[], &physics).derive(1.0);
+    // A copy made by `clone_from` into whatever the last one held.
+    let mut copy = out.clone();
     for (mix, lengths, temp, p) in &cases {
         let pre = Precomputed::new(*temp, mix, lengths, &physics);
         pre.derive_into(*p, &mut out);
         assert_eq!(out, pre.derive(*p), "{mix:?} at {p} Pa");
+        copy.clone_from(&out);
+        assert_eq!(copy, out, "{mix:?} at {p} Pa: clone_from");
+        assert_eq!(out.clone(), out, "{mix:?} at {p} Pa: clone");
     }
 }
