@@ -716,8 +716,18 @@ impl Monitor {
             self.take(s);
         }
         if let Some(temperature_k) = saved_temperature {
-            let (mixture, origin) = self.wanted_gas(now);
-            let change = mixture != self.gas.mixture || origin != self.gas.origin;
+            // Compared where they lie: the gas is copied only on a change.
+            let change = match self.stepped_gas(now) {
+                Some(step) => {
+                    step.mixture != self.gas.mixture
+                        || !matches!(&self.gas.origin, GasOrigin::Step(id) if *id == step.id)
+                }
+                None => {
+                    self.setup.mixture != self.gas.mixture || self.gas.origin != GasOrigin::Base
+                }
+            };
+            // Decided on the row taken, before the tracks go back.
+            let wanted = change.then(|| self.wanted_gas(now));
             for (k, id) in first_channels(samples).enumerate() {
                 let (existed, copy) = &mut self.trial.0[k];
                 match (self.tracks.get_mut(id), *existed) {
@@ -730,7 +740,7 @@ impl Monitor {
                     (None, _) => {}
                 }
             }
-            if change {
+            if let Some((mixture, origin)) = wanted {
                 // Tracks went back to their state before the row.
                 self.deadline_floor = None;
                 self.temperature_k = temperature_k;
@@ -774,19 +784,22 @@ impl Monitor {
         if let Some(m) = &self.gas.log {
             return (m.clone(), GasOrigin::Log);
         }
-        self.setup
-            .gas_steps
-            .iter()
-            .find(|step| {
-                step.in_window(now)
-                    && step
-                        .when
-                        .iter()
-                        .all(|c| matches!(self.check(c, now, false, false), Check::Holds))
-            })
+        self.stepped_gas(now)
             .map_or((self.setup.mixture.clone(), GasOrigin::Base), |step| {
                 (step.mixture.clone(), GasOrigin::Step(step.id.clone()))
             })
+    }
+
+    /// The first configured gas step whose window and conditions hold at
+    /// `now`; `None`: the base gas.
+    fn stepped_gas(&self, now: DateTime<Utc>) -> Option<&super::gas_step::GasStep> {
+        self.setup.gas_steps.iter().find(|step| {
+            step.in_window(now)
+                && step
+                    .when
+                    .iter()
+                    .all(|c| matches!(self.check(c, now, false, false), Check::Holds))
+        })
     }
 
     /// Puts `mixture` in force: rebuilds the models of the gauges that see
@@ -914,7 +927,7 @@ impl Monitor {
                     .models
                     .get(i)
                     .and_then(Option::as_ref)
-                    .map_or(f64::NAN, |m| m.correct(v).pressure_pa);
+                    .map_or(f64::NAN, |m| m.true_pressure(v));
                 (p, mixture)
             }
             None => (v, &self.gas.mixture),

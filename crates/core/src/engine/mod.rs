@@ -788,12 +788,28 @@ impl GaugeModel {
             })
     }
 
+    /// The true pressure of an indicated reading, as [`GaugeModel::correct`]
+    /// gives it, without working out its warnings (what the monitor needs
+    /// on every reading).
+    pub fn true_pressure(&self, indicated_pa: f64) -> f64 {
+        self.response(indicated_pa).correct(indicated_pa).0
+    }
+
+    /// The response of the element that reads `indicated_pa`.
+    fn response(&self, indicated_pa: f64) -> &Response {
+        match self.kind.element(indicated_pa) {
+            GaugeKind::Ionization => &self.ionization,
+            _ => &self.thermal,
+        }
+    }
+
     /// Corrects an indicated reading, flagging one outside the gauge's range
     /// or outside its calibration table. A reading from a combined gauge's
     /// element with no factor comes back as NaN with a `no-gauge-sensitivity`
     /// warning: a number that cannot be corrected is never passed off as one.
     pub fn correct(&self, indicated_pa: f64) -> Corrected {
         let mut warnings = Vec::new();
+        let pressure_pa = self.true_pressure(indicated_pa);
         if let Some((lo, hi)) = self.range_pa
             && !(lo..=hi).contains(&indicated_pa)
         {
@@ -810,11 +826,8 @@ impl GaugeModel {
                 ),
             ));
         }
-        let response = match self.kind.element(indicated_pa) {
-            GaugeKind::Ionization => &self.ionization,
-            _ => &self.thermal,
-        };
-        let (pressure_pa, fit) = response.correct(indicated_pa);
+        let response = self.response(indicated_pa);
+        let (_, fit) = response.correct(indicated_pa);
         if let TableFit::Extrapolated { min_pa, max_pa } = fit {
             warnings.push(Warning::new(
                 "calibration-extrapolated",

@@ -300,6 +300,40 @@ fn calibration_table_replaces_the_factor() {
 }
 
 #[test]
+fn the_true_pressure_alone_is_the_corrected_pressure() {
+    // What the monitor asks on every reading must be `correct`'s number,
+    // bit for bit, on every element, in and out of range and table.
+    let table = CalibrationTable::new(&[(1e-3, 2e-3), (1.0, 2.0)]).expect("table");
+    let with_table = GaugeOverrides {
+        table: Some(table),
+        ..GaugeOverrides::default()
+    };
+    let models = [
+        GaugeModel::new(
+            GaugeKind::Ionization,
+            &pure("Ar"),
+            &GaugeOverrides::default(),
+        ),
+        GaugeModel::new(
+            GaugeKind::Capacitance,
+            &pure("Ar"),
+            &GaugeOverrides::default(),
+        ),
+        GaugeModel::new(GaugeKind::Combined, &pure("Ar"), &GaugeOverrides::default()),
+        GaugeModel::new(GaugeKind::Combined, &pure("N2"), &GaugeOverrides::default()),
+        GaugeModel::new(GaugeKind::Thermal, &pure("N2"), &with_table),
+    ];
+    for g in models {
+        let g = g.expect("a model");
+        for e in -110..60 {
+            let p = 10f64.powf(f64::from(e) / 10.0);
+            let (a, b) = (g.true_pressure(p), g.correct(p).pressure_pa);
+            assert!(a.to_bits() == b.to_bits(), "{g:?} at {p}: {a} vs {b}");
+        }
+    }
+}
+
+#[test]
 fn combined_gauge_without_a_thermal_factor_reads_below_the_crossover() {
     // Ar has an ionization factor (CRC Handbook sec. 15: 1.4) and no
     // general thermal-conductivity factor (gas table).
