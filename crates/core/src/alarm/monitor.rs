@@ -1248,11 +1248,19 @@ impl Monitor {
     }
 
     fn chamber_at(&self, q: &Quantity, now: DateTime<Utc>) -> Option<ChamberSource> {
+        self.chamber_gauge(q, now)
+            .map(|(gauge, fixed)| ChamberSource {
+                gauge: gauge.to_string(),
+                fixed,
+            })
+    }
+
+    /// [`Monitor::chamber_at`] without copying: the gauge's id, and whether
+    /// the configuration fixes it. The candidates are taken in the order
+    /// [`Monitor::chamber_candidates`] lists them.
+    fn chamber_gauge(&self, q: &Quantity, now: DateTime<Utc>) -> Option<(&str, bool)> {
         if let Some(g) = self.setup.chamber.fixed_for(q) {
-            return Some(ChamberSource {
-                gauge: g.to_string(),
-                fixed: true,
-            });
+            return Some((g, true));
         }
         if q.is_temperature() {
             // The first temperature channel with a fresh valid reading.
@@ -1265,18 +1273,35 @@ impl Monitor {
                         && t.temperature_k.is_some()
                         && !self.stale(t, now)
                 })
-                .map(|(id, _)| ChamberSource {
-                    gauge: id.clone(),
-                    fixed: false,
-                });
+                .map(|(id, _)| (id.as_str(), false));
         }
-        self.chamber_candidates()
-            .into_iter()
-            .find(|id| self.in_range(id, now))
-            .map(|gauge| ChamberSource {
-                gauge,
-                fixed: false,
-            })
+        let in_range = |id: &&str| self.in_range(id, now);
+        let order = &self.setup.chamber.order;
+        if !order.is_empty() {
+            return order
+                .iter()
+                .map(String::as_str)
+                .find(in_range)
+                .map(|id| (id, false));
+        }
+        let configured = &self.setup.gauges;
+        let independent = configured
+            .iter()
+            .filter(|g| !g.model.kind.is_gas_dependent());
+        let dependent = configured
+            .iter()
+            .filter(|g| g.model.kind.is_gas_dependent());
+        let others = self
+            .tracks
+            .iter()
+            .filter(|(id, t)| t.is_pressure && !configured.iter().any(|g| g.id == **id))
+            .map(|(id, _)| id.as_str());
+        independent
+            .chain(dependent)
+            .map(|g| g.id.as_str())
+            .chain(others)
+            .find(in_range)
+            .map(|id| (id, false))
     }
 
     fn stale(&self, track: &GaugeTrack, now: DateTime<Utc>) -> bool {
@@ -1288,8 +1313,8 @@ impl Monitor {
     /// The input a quantity of a gauge gives now.
     fn input(&self, gauge: &str, q: &Quantity, now: DateTime<Utc>) -> Input {
         if gauge == AUTO {
-            return match self.chamber_at(q, now) {
-                Some(s) if s.gauge != AUTO => self.input(&s.gauge, q, now),
+            return match self.chamber_gauge(q, now) {
+                Some((g, _)) if g != AUTO => self.input(g, q, now),
                 _ => Input::Unusable,
             };
         }
@@ -1348,7 +1373,7 @@ impl Monitor {
             .unwrap_or(AUTO);
         // The chamber pressure is reported as the gauge it comes from.
         let source = (named == AUTO)
-            .then(|| self.chamber_at(&c.quantity, now))
+            .then(|| self.chamber_gauge(&c.quantity, now))
             .flatten();
         if named == AUTO && source.is_none() {
             return Check::Unknown(if explain {
@@ -1358,11 +1383,11 @@ impl Monitor {
             });
         }
         // The texts only when they are said (not on every evaluation).
-        let shown_name = || match &source {
-            Some(s) => format!("chamber pressure ({})", s.gauge),
+        let shown_name = || match source {
+            Some((g, _)) => format!("chamber pressure ({g})"),
             None => named.to_string(),
         };
-        let gauge = source.as_ref().map_or(named, |s| s.gauge.as_str());
+        let gauge = source.map_or(named, |(g, _)| g);
         let input = self.input(gauge, &c.quantity, now);
         let holds = match (&c.test, input) {
             (CondTest::Above(t), Input::Value(v)) if held => v > c.deadband.clear_level(*t, true),
