@@ -1207,23 +1207,34 @@ impl Monitor {
 
     /// Gauges the chamber pressure may come from, best first.
     pub fn chamber_candidates(&self) -> Vec<String> {
-        if !self.setup.chamber.order.is_empty() {
-            return self.setup.chamber.order.clone();
-        }
+        self.candidate_ids().map(str::to_string).collect()
+    }
+
+    /// [`Monitor::chamber_candidates`], borrowed: the configured order when
+    /// there is one, else the configured gas-independent gauges, the
+    /// gas-dependent ones, then any other pressure channel seen.
+    fn candidate_ids(&self) -> impl Iterator<Item = &str> {
+        let order = &self.setup.chamber.order;
         let configured = &self.setup.gauges;
+        let by_kind = order.is_empty();
         let independent = configured
             .iter()
-            .filter(|g| !g.model.kind.is_gas_dependent());
+            .filter(move |g| by_kind && !g.model.kind.is_gas_dependent());
         let dependent = configured
             .iter()
-            .filter(|g| g.model.kind.is_gas_dependent());
-        let mut out: Vec<String> = independent.chain(dependent).map(|g| g.id.clone()).collect();
-        for (id, t) in self.tracks.iter() {
-            if t.is_pressure && !out.contains(id) {
-                out.push(id.clone());
-            }
-        }
-        out
+            .filter(move |g| by_kind && g.model.kind.is_gas_dependent());
+        let others = self
+            .tracks
+            .iter()
+            .filter(move |(id, t)| {
+                by_kind && t.is_pressure && !configured.iter().any(|g| g.id == **id)
+            })
+            .map(|(id, _)| id.as_str());
+        order
+            .iter()
+            .map(String::as_str)
+            .chain(independent.chain(dependent).map(|g| g.id.as_str()))
+            .chain(others)
     }
 
     /// Whether gauge `id` reads a usable pressure at `now`: fresh, `ok`,
@@ -1275,32 +1286,8 @@ impl Monitor {
                 })
                 .map(|(id, _)| (id.as_str(), false));
         }
-        let in_range = |id: &&str| self.in_range(id, now);
-        let order = &self.setup.chamber.order;
-        if !order.is_empty() {
-            return order
-                .iter()
-                .map(String::as_str)
-                .find(in_range)
-                .map(|id| (id, false));
-        }
-        let configured = &self.setup.gauges;
-        let independent = configured
-            .iter()
-            .filter(|g| !g.model.kind.is_gas_dependent());
-        let dependent = configured
-            .iter()
-            .filter(|g| g.model.kind.is_gas_dependent());
-        let others = self
-            .tracks
-            .iter()
-            .filter(|(id, t)| t.is_pressure && !configured.iter().any(|g| g.id == **id))
-            .map(|(id, _)| id.as_str());
-        independent
-            .chain(dependent)
-            .map(|g| g.id.as_str())
-            .chain(others)
-            .find(in_range)
+        self.candidate_ids()
+            .find(|id| self.in_range(id, now))
             .map(|id| (id, false))
     }
 
