@@ -1103,12 +1103,22 @@ fn a_gauge_the_log_does_not_have_is_a_usage_error() {
 
 #[test]
 fn a_window_without_readings_is_a_usage_error() {
-    let (code, _, err) = report(&["sample-logs/leak-check.csv", "--from", "23:00:00"]);
-    assert_eq!(code, 2, "{err}");
-    assert!(
-        err.contains("--from/--to: no readings between 2026-11-03T23:00:00.000Z and the end (the log's first row is at 2026-11-03T07:00:05.000Z)"),
-        "{err}"
-    );
+    // Also for the CSV alone, which keeps no summary.
+    for format in ["text", "csv"] {
+        let (code, out, err) = report(&[
+            "sample-logs/leak-check.csv",
+            "--from",
+            "23:00:00",
+            "--format",
+            format,
+        ]);
+        assert_eq!(code, 2, "{format}: {err}");
+        assert!(
+            err.contains("--from/--to: no readings between 2026-11-03T23:00:00.000Z and the end (the log's first row is at 2026-11-03T07:00:05.000Z)"),
+            "{format}: {err}"
+        );
+        assert!(!out.contains("2026-11-03T"), "{format}: {out}");
+    }
 }
 
 /// A CSV that cannot be written in full (a full disk) fails the run, naming

@@ -254,7 +254,12 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
         Format::Csv => Some(output(args.out.as_ref())?),
         _ => None,
     };
+    let csv_alone = csv.is_some() && args.plot.is_none();
     let mut sink = ReportSink::new(options, csv);
+    if csv_alone {
+        // Nothing reads the summary: its accumulators are not fed.
+        sink = sink.csv_alone();
+    }
     let setup = config.monitor_setup(lc.rules);
     let outcome = walk(
         &args.logs,
@@ -295,7 +300,7 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
             others.join(", ")
         )));
     }
-    if sink.summaries().is_empty() && (args.from.is_some() || args.to.is_some()) {
+    if sink.span().is_none() && (args.from.is_some() || args.to.is_some()) {
         return Err(CliError::Usage(format!(
             "--from/--to: no readings between {} and {} (the log's first row is at {})",
             options_time(sink.from(), "the start"),
@@ -335,11 +340,7 @@ fn options_time(t: Option<DateTime<Utc>>, open: &str) -> String {
 
 /// The operator actions of the run's span (and the --from/--to window).
 fn actions(args: &ReportArgs, sink: &ReportSink) -> OperatorActions {
-    let summaries = sink.summaries();
-    let (Some(start), Some(end)) = (
-        summaries.iter().filter_map(|g| g.start).min(),
-        summaries.iter().filter_map(|g| g.end).max(),
-    ) else {
+    let Some((start, end)) = sink.span() else {
         return OperatorActions::default();
     };
     let files = if args.events.is_empty() {

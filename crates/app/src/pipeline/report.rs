@@ -88,6 +88,12 @@ pub struct ReportSink {
     /// Write the CSV on a thread of its own.
     csv_thread: bool,
     plot: Option<PlotData>,
+    /// Feed the accumulators and analyses (not when the CSV alone is
+    /// wanted: [`ReportSink::csv_alone`]).
+    summary: bool,
+    /// The earliest of the gauges' first readings counted and the latest
+    /// reading counted.
+    span: Option<(DateTime<Utc>, DateTime<Utc>)>,
 }
 
 impl ReportSink {
@@ -109,8 +115,27 @@ impl ReportSink {
             csv: None,
             csv_thread: two_cores(),
             plot: options.plot.then(PlotData::default),
+            summary: true,
+            span: None,
             options,
         }
+    }
+
+    /// Writes the CSV and keeps the events and messages, but feeds no
+    /// accumulator or analysis: [`ReportSink::summaries`],
+    /// [`ReportSink::analyses`] and [`ReportSink::chamber_analysis`] give
+    /// nothing, [`ReportSink::span`] still does. For a CSV report with no
+    /// plot, where nothing reads them. Call before the first item.
+    pub fn csv_alone(mut self) -> Self {
+        self.summary = false;
+        self
+    }
+
+    /// The earliest of the gauges' first readings in the window and the
+    /// latest reading in it (the summaries' earliest start and latest
+    /// end); `None` when no reading was counted.
+    pub fn span(&self) -> Option<(DateTime<Utc>, DateTime<Utc>)> {
+        self.span
     }
 
     fn in_window(&self, t: DateTime<Utc>) -> bool {
@@ -383,17 +408,30 @@ impl Sink for ReportSink {
                     };
                     self.write_csv(&obs, &s.channel, derived, monitor);
                     let i = match self.index.get(&s.channel) {
-                        Some(i) => *i,
+                        Some(i) => {
+                            if let Some((_, end)) = self.span.as_mut() {
+                                *end = (*end).max(s.time);
+                            }
+                            *i
+                        }
                         None => {
-                            let th = self.thresholds(&s.channel, monitor);
-                            let acc =
-                                GaugeAccumulator::new(&s.channel, th, self.options.gap_after_s);
+                            // The span starts at the earliest of the gauges'
+                            // first readings (as the summaries' starts do).
+                            self.span = Some(match self.span {
+                                Some((start, end)) => (start.min(s.time), end.max(s.time)),
+                                None => (s.time, s.time),
+                            });
                             self.origin.get_or_insert(s.time);
-                            let a = self.analyzer();
                             let labels = Labels::new(&s.channel, gauge_kind(&s.channel, monitor));
                             self.labels.push(labels.clone());
-                            self.tally
-                                .send(Msg::Gauge(Some(Box::new((acc, a, labels)))));
+                            if self.summary {
+                                let th = self.thresholds(&s.channel, monitor);
+                                let acc =
+                                    GaugeAccumulator::new(&s.channel, th, self.options.gap_after_s);
+                                let a = self.analyzer();
+                                self.tally
+                                    .send(Msg::Gauge(Some(Box::new((acc, a, labels)))));
+                            }
                             if track.is_some_and(|t| t.is_pressure) {
                                 self.pressure_gauges += 1;
                             }
@@ -405,6 +443,9 @@ impl Sink for ReportSink {
                             self.labels.len() - 1
                         }
                     };
+                    if !self.summary {
+                        continue;
+                    }
                     // The gauge's true pressure, on seconds from the first
                     // reading, to the pump-down and rate-of-rise analysis.
                     let origin = *self.origin.get_or_insert(s.time);
@@ -428,7 +469,9 @@ impl Sink for ReportSink {
                     };
                     self.tally.reading(counted, obs.regimes);
                 }
-                self.push_chamber(samples, monitor);
+                if self.summary {
+                    self.push_chamber(samples, monitor);
+                }
             }
             Item::Event(e) => {
                 if self.in_window(e.time) {
@@ -864,6 +907,107 @@ mod tests {
                 }
             }
         }
+        let _ = std::fs::remove_dir_all(&dir);
+    }
+
+    /// A CSV report with nothing reading its summary ([`ReportSink::csv_alone`])
+    /// writes the same CSV, gives the same events, messages and counts, and
+    /// the same span as the summaries' starts and ends, inside a time window
+    /// or not, also where a gauge first appears after the time went back.
+    #[test]
+    fn the_csv_alone_is_the_same_csv_with_the_same_span() {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+        let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
+        let setup = cfg.monitor_setup(Vec::new());
+        let dir = std::env::temp_dir().join(format!("rarefy-alone-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let back = dir.join("back.csv");
+        std::fs::write(
+            &back,
+            "# rarefy log v1\n# gas: N2\ntime,a [Pa],b [Pa]\n\
+             2026-11-16T06:00:10Z,1e-3,\n2026-11-16T06:00:11Z,2e-3,\n\
+             2026-11-16T06:00:05Z,3e-3,4e-3\n2026-11-16T06:00:12Z,5e-3,6e-3\n",
+        )
+        .expect("write");
+        let t = |s: &str| {
+            crate::timefmt::parse_rfc3339(s)
+                .expect("time")
+                .with_timezone(&Utc)
+        };
+        let logs: Vec<Vec<PathBuf>> = vec![
+            ["pumpdown", "process", "leak-check"]
+                .iter()
+                .map(|n| root.join(format!("sample-logs/{n}.csv")))
+                .collect(),
+            vec![back],
+        ];
+        let windows = [
+            (None, None),
+            (
+                Some(t("2026-11-05T06:00:00Z")),
+                Some(t("2026-11-05T07:00:00Z")),
+            ),
+            (Some(t("2026-11-16T06:00:06Z")), None),
+            (Some(t("2030-01-01T00:00:00Z")), None),
+        ];
+        let mut spans = 0;
+        for files in &logs {
+            for (from, to) in windows {
+                let run = |alone: bool| {
+                    let csv = crate::pipeline::csv_out::tests::Shared::default();
+                    let options = ReportOptions {
+                        from,
+                        to,
+                        ..ReportOptions::default()
+                    };
+                    let mut sink = ReportSink::new(options, Some(Box::new(csv.clone())));
+                    if alone {
+                        sink = sink.csv_alone();
+                    }
+                    let out = walk_with(
+                        files,
+                        None,
+                        &setup,
+                        &cfg.gases,
+                        &mut sink,
+                        ReadMode::SameThread,
+                    );
+                    (sink, format!("{out:?}"), csv.text())
+                };
+                let (full, full_out, full_csv) = run(false);
+                let (alone, alone_out, alone_csv) = run(true);
+                assert_eq!(full_csv, alone_csv, "{files:?} {from:?} {to:?}");
+                assert_eq!(full_out, alone_out);
+                assert_eq!(full.events(), alone.events());
+                assert_eq!(full.notes(), alone.notes());
+                let summaries = full.summaries();
+                let from_summaries = summaries
+                    .iter()
+                    .filter_map(|g| g.start)
+                    .min()
+                    .zip(summaries.iter().filter_map(|g| g.end).max());
+                assert_eq!(full.span(), from_summaries, "{files:?} {from:?} {to:?}");
+                assert_eq!(alone.span(), from_summaries);
+                assert!(alone.summaries().is_empty() && alone.analyses().is_empty());
+                spans += usize::from(from_summaries.is_some());
+            }
+        }
+        // Each log with and without a window that holds readings.
+        assert_eq!(spans, 4, "windows with readings");
+        // A gauge whose first reading came after the time went back.
+        let mut sink = ReportSink::new(ReportOptions::default(), None).csv_alone();
+        walk_with(
+            &logs[1],
+            None,
+            &setup,
+            &cfg.gases,
+            &mut sink,
+            ReadMode::SameThread,
+        );
+        assert_eq!(
+            sink.span(),
+            Some((t("2026-11-16T06:00:05Z"), t("2026-11-16T06:00:12Z")))
+        );
         let _ = std::fs::remove_dir_all(&dir);
     }
 
