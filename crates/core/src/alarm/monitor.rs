@@ -11,7 +11,7 @@ use super::gate::{Check, Gate, GateMachine, GateState};
 use super::quantity::{Class, Quantity};
 use super::rate_window::RateWindow;
 use super::rule::{
-    AlarmState, Deadband, Input, Rule, RuleMachine, Severity, Test, Transition, after,
+    AlarmState, Band, Deadband, Input, Rule, RuleMachine, Severity, Test, Transition, after,
 };
 use super::syntax::{CondTest, Condition};
 use super::track_map::TrackMap;
@@ -287,6 +287,15 @@ pub struct Monitor {
     /// Per rule, the first rule on the same gauge and quantity (its input
     /// is read once per evaluation).
     rule_input: Vec<usize>,
+    /// When every rule compares a value with a threshold and none has an
+    /// enable condition: the rules grouped by input (gauge and quantity),
+    /// each group in order. While each group's value stays in the band in
+    /// which every rule of it is quiet, the rules are passed over with one
+    /// test per group ([`Bands`]); else none.
+    groups: Vec<Vec<usize>>,
+    /// Per rule, its group.
+    group_of: Vec<Option<usize>>,
+    bands: Bands,
     inputs: Vec<RuleMachine>,
     gates: Vec<GateMachine>,
     links: Vec<Link>,
@@ -385,7 +394,7 @@ impl Monitor {
             .iter()
             .map(|r| (RuleMachine::new(r.rule.clone()), r.enable.clone()))
             .collect();
-        let rule_input = setup
+        let rule_input: Vec<usize> = setup
             .rules
             .iter()
             .map(|r| {
@@ -398,6 +407,38 @@ impl Monitor {
                     .unwrap_or(0)
             })
             .collect();
+        // Grouped only when every rule is: a value against a threshold, with
+        // no enable condition. Then a row in every group's band passes over
+        // all the rules with a test per group; with other rules among them
+        // the rules are taken one by one (each quiet test costs about what
+        // a band test does).
+        let mut groups: Vec<Vec<usize>> = Vec::new();
+        let mut group_of = vec![None; setup.rules.len()];
+        let groupable = |r: &RuleSpec| {
+            r.enable.is_none() && matches!(r.rule.test, Test::Above(_) | Test::Below(_))
+        };
+        let grouped = if setup.rules.iter().all(groupable) {
+            setup.rules.len()
+        } else {
+            0
+        };
+        for i in 0..grouped {
+            let input = rule_input[i];
+            let g = match groups.iter().position(|g| rule_input[g[0]] == input) {
+                Some(g) => g,
+                None => {
+                    groups.push(Vec::new());
+                    groups.len() - 1
+                }
+            };
+            groups[g].push(i);
+            group_of[i] = Some(g);
+        }
+        let bands = Bands {
+            on: !groups.is_empty(),
+            band: vec![None; groups.len()],
+            passed: vec![false; groups.len()],
+        };
         // A bad-input alarm for every configured gauge and every gauge a
         // rule or gate looks at.
         let mut watched: Vec<String> = setup
@@ -460,6 +501,9 @@ impl Monitor {
             trial: Scratch::default(),
             rules,
             rule_input,
+            groups,
+            group_of,
+            bands,
             inputs,
             gates,
             links: Vec::new(),
@@ -469,6 +513,15 @@ impl Monitor {
             now: None,
             trip_seen: false,
         }
+    }
+
+    /// The same monitor taking every rule at every evaluation (the
+    /// reference the groups' bands are tested against).
+    #[cfg(test)]
+    pub(crate) fn without_bands(mut self) -> Self {
+        self.bands.on = false;
+        self.bands.forget();
+        self
     }
 
     /// The same monitor looking for deadlines at every reading (the
@@ -551,6 +604,7 @@ impl Monitor {
         self.now = Some(t);
         self.evaluated = None;
         self.deadline_floor = None;
+        self.bands.forget();
         for (r, _) in &mut self.rules {
             r.restart_delays();
         }
@@ -1474,19 +1528,21 @@ impl Monitor {
         }
     }
 
-    /// Evaluates every rule, bad-input alarm, link and gate at data time
-    /// `now`. Called only at row times and at deadlines.
-    fn evaluate(&mut self, now: DateTime<Utc>) -> Vec<Event> {
-        self.now = Some(self.now.map_or(now, |n| n.max(now)));
-        let now = self.now.unwrap_or(now);
-        self.origin.get_or_insert(now);
-        self.evaluated = Some(now);
+    /// Evaluates the rules not passed over in their group's band (in
+    /// order, so that their events come in order), then works out the band
+    /// of each group taken.
+    fn evaluate_rules(&mut self, now: DateTime<Utc>) -> Vec<Event> {
         let mut events = Vec::new();
-        // Rules. Rules on the same gauge and quantity one after the other
+        // Rules on the same gauge and quantity one after the other
         // (thresholds of one pressure) read the input once: the tracks do
         // not change while the rules are evaluated.
         let mut last_input: Option<(usize, Input)> = None;
         for i in 0..self.rules.len() {
+            if let Some(g) = self.group_of[i]
+                && self.bands.passed[g]
+            {
+                continue;
+            }
             let (rule, enable) = (&self.rules[i].0.rule, &self.rules[i].1);
             let enabled = enable
                 .as_ref()
@@ -1514,6 +1570,52 @@ impl Monitor {
                 events.push(self.alarm_event(&self.rules[i].0.rule, &t));
             }
         }
+        if self.bands.on {
+            for g in 0..self.groups.len() {
+                if !self.bands.passed[g] {
+                    self.bands.band[g] = self.groups[g].iter().try_fold(Band::ALL, |b, &i| {
+                        self.rules[i].0.quiet_values().map(|q| b.and(q))
+                    });
+                }
+            }
+        }
+        events
+    }
+
+    /// Evaluates every rule, bad-input alarm, link and gate at data time
+    /// `now`. Called only at row times and at deadlines.
+    fn evaluate(&mut self, now: DateTime<Utc>) -> Vec<Event> {
+        self.now = Some(self.now.map_or(now, |n| n.max(now)));
+        let now = self.now.unwrap_or(now);
+        self.origin.get_or_insert(now);
+        self.evaluated = Some(now);
+        // Groups of rules whose input is a value in their band: passed over
+        // (each rule would be quiet; the value becomes its last value).
+        let mut all_passed = self.bands.on;
+        for g in 0..self.groups.len() {
+            let passed = match self.bands.band[g] {
+                Some(band) if self.bands.on => {
+                    let r = &self.rules[self.groups[g][0]].0.rule;
+                    match self.input(&r.gauge, &r.quantity, now) {
+                        Input::Value(v) if band.contains(v) => {
+                            for &i in &self.groups[g] {
+                                self.rules[i].0.note_quiet(v);
+                            }
+                            true
+                        }
+                        _ => false,
+                    }
+                }
+                _ => false,
+            };
+            self.bands.passed[g] = passed;
+            all_passed &= passed;
+        }
+        let mut events = if all_passed {
+            Vec::new()
+        } else {
+            self.evaluate_rules(now)
+        };
         // Bad-input alarms.
         for i in 0..self.inputs.len() {
             let gauge = self.inputs[i].rule.gauge.as_str();
@@ -1642,6 +1744,7 @@ impl Monitor {
 
     fn rule_mut(&mut self, id: &str) -> Result<&mut RuleMachine, String> {
         self.deadline_floor = None;
+        self.bands.forget();
         let known: Vec<String> = self.all_rules().map(|r| r.rule.id.clone()).collect();
         self.rules
             .iter_mut()
@@ -1863,6 +1966,33 @@ impl Monitor {
 }
 
 /// The automatic bad-input alarm of a gauge.
+/// Per group of rules on one input ([`Monitor`]'s `groups`), the values
+/// for which every rule of it is quiet, as of the last evaluation that took
+/// them one by one (`None`: there are none, or an edit or a clock change
+/// came since), and whether the evaluation under way passed the group
+/// over. A cache, not part of the state: `Debug` shows none of it.
+#[derive(Clone, Default)]
+struct Bands {
+    /// Use the bands (off in tests that compare against taking every rule
+    /// at every evaluation).
+    on: bool,
+    band: Vec<Option<Band>>,
+    passed: Vec<bool>,
+}
+
+impl Bands {
+    /// Forgets every band: a rule's state or test may have changed.
+    fn forget(&mut self) {
+        self.band.fill(None);
+    }
+}
+
+impl std::fmt::Debug for Bands {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("Bands")
+    }
+}
+
 /// Room kept for its allocations between rows, not part of the state: a
 /// clone starts empty and `Debug` shows none of it, so two monitors in the
 /// same state look the same whatever they worked through.

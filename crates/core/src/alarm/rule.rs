@@ -231,6 +231,72 @@ pub enum Input {
     Disabled,
 }
 
+/// An interval of values, each end included or not.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Band {
+    low: f64,
+    low_in: bool,
+    high: f64,
+    high_in: bool,
+}
+
+impl Band {
+    /// Every value (the infinities included; not NaN).
+    pub const ALL: Band = Band {
+        low: f64::NEG_INFINITY,
+        low_in: true,
+        high: f64::INFINITY,
+        high_in: true,
+    };
+
+    /// From `(low, included)` to `(high, included)`.
+    pub fn new(low: (f64, bool), high: (f64, bool)) -> Self {
+        Band {
+            low: low.0,
+            low_in: low.1,
+            high: high.0,
+            high_in: high.1,
+        }
+    }
+
+    /// Whether `v` lies in the band (NaN never does).
+    #[inline]
+    pub fn contains(&self, v: f64) -> bool {
+        (v > self.low || (self.low_in && v == self.low))
+            && (v < self.high || (self.high_in && v == self.high))
+    }
+
+    /// Both ends are numbers (a NaN end would be lost in [`Band::and`]).
+    pub fn is_number(&self) -> bool {
+        !(self.low.is_nan() || self.high.is_nan())
+    }
+
+    /// The values in both bands (both with ends that are numbers; ends
+    /// compared as numbers, so that -0 and 0 are one end).
+    pub fn and(self, other: Band) -> Band {
+        let (low, low_in) = if self.low > other.low {
+            (self.low, self.low_in)
+        } else if self.low < other.low {
+            (other.low, other.low_in)
+        } else {
+            (self.low, self.low_in && other.low_in)
+        };
+        let (high, high_in) = if self.high < other.high {
+            (self.high, self.high_in)
+        } else if self.high > other.high {
+            (other.high, other.high_in)
+        } else {
+            (self.high, self.high_in && other.high_in)
+        };
+        Band {
+            low,
+            low_in,
+            high,
+            high_in,
+        }
+    }
+}
+
 /// A change of a rule's state.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Transition {
@@ -460,6 +526,44 @@ impl RuleMachine {
         }
         self.last_value = Some(input);
         true
+    }
+
+    /// The values for which [`RuleMachine::quiet`] holds in the present
+    /// state, as a band (or a part of them: a value outside may still be
+    /// quiet, never the other way); `None` when there is no such band (a
+    /// delay running, a state the condition does not keep, a test no value
+    /// decides, a threshold that is not a number).
+    pub fn quiet_values(&self) -> Option<Band> {
+        if self.pending_since.is_some() || self.since.is_none() || !self.settled() {
+            return None;
+        }
+        let (low, high) = (f64::NEG_INFINITY, f64::INFINITY);
+        // Where `raw` (as in `quiet`) equals the condition.
+        let band = match self.rule.test {
+            // v > clear
+            Test::Above(t) if self.condition => Band::new(
+                (self.rule.deadband.clear_level(t, true), false),
+                (high, true),
+            ),
+            // not v > t
+            Test::Above(t) => Band::new((low, true), (t, true)),
+            // v < clear
+            Test::Below(t) if self.condition => Band::new(
+                (low, true),
+                (self.rule.deadband.clear_level(t, false), false),
+            ),
+            // not v < t
+            Test::Below(t) => Band::new((t, true), (high, true)),
+            _ => return None,
+        };
+        band.is_number().then_some(band)
+    }
+
+    /// What [`RuleMachine::quiet`] does to a value in
+    /// [`RuleMachine::quiet_values`]: it becomes the last value.
+    #[inline]
+    pub fn note_quiet(&mut self, v: f64) {
+        self.last_value = Some(Input::Value(v));
     }
 
     /// [`RuleMachine::quiet`] for an input that is not a value (out of

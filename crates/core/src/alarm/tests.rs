@@ -8,7 +8,7 @@ use super::event::Actor;
 use super::gate::{Check, Gate, GateMachine, GateState};
 use super::monitor::{GaugeSetup, Monitor, MonitorSetup, RuleSpec};
 use super::quantity::{Class, Quantity};
-use super::rule::{AlarmState as S, Deadband, Input, Rule, RuleMachine, Severity, Test};
+use super::rule::{AlarmState as S, Band, Deadband, Input, Rule, RuleMachine, Severity, Test};
 use super::syntax;
 use crate::engine::gauge::GaugeKind;
 use crate::engine::mixture::Mixture;
@@ -1209,6 +1209,202 @@ mod deadline_floor {
                 prop_assert_eq!(fast.next_deadline(), full.next_deadline());
             }
         }
+    }
+}
+
+mod bands {
+    //! Rules on one input with no enable condition are passed over as a
+    //! group while the value stays in the band in which every one of them is
+    //! quiet ([`RuleMachine::quiet_values`]); any sequence of rows (values
+    //! on and beside every threshold and clear level, bad cells, gaps, time
+    //! going back), ticks and operator actions must leave the monitor as
+    //! taking every rule at every evaluation does: the same events, and the
+    //! same state down to each rule's last value.
+    use super::*;
+    use proptest::prelude::*;
+
+    const PA: ChannelUnit = ChannelUnit::Pressure(PressureUnit::Pa);
+
+    fn named(id: &str, gauge: &str, test: Test, deadband: Deadband) -> Rule {
+        let mut r = rule(test);
+        r.id = id.into();
+        r.gauge = gauge.into();
+        r.deadband = deadband;
+        r
+    }
+
+    /// Rules on g's pressure (each deadband kind, a latching one, one with
+    /// a delay), on its mean free path and on h's pressure; with `gated`, a
+    /// rule switched on and off by h (then there are no groups: every rule
+    /// is taken one by one).
+    fn bands_setup(gated: bool) -> MonitorSetup {
+        let mut low = named("low", "g", Test::Below(1e-4), Deadband::Decades(0.5));
+        low.latching = true;
+        let mut slow = named("slow", "g", Test::Above(1e-2), Deadband::None);
+        slow.on_delay_s = 0.5;
+        let mut mfp = named("mfp", "g", Test::Above(0.5), Deadband::Fraction(0.1));
+        mfp.quantity = Quantity::MeanFreePath;
+        let mut s = setup(
+            vec![
+                named("high", "g", Test::Above(1e-1), Deadband::Fraction(0.2)),
+                low,
+                mfp,
+                named("h-high", "h", Test::Above(1e-3), Deadband::None),
+                named("band", "g", Test::Below(1e-3), Deadband::Absolute(1e-4)),
+                slow,
+            ],
+            vec![],
+        );
+        if gated {
+            s.rules.push(RuleSpec {
+                rule: named("gated", "g", Test::Above(1e-2), Deadband::None),
+                enable: Some(
+                    syntax::condition("h pressure below 1e-3 mbar", &|_| None).expect("valid"),
+                ),
+            });
+        }
+        s
+    }
+
+    /// The pressures where a rule of [`bands_setup`] turns (its thresholds
+    /// and clear levels), Pa.
+    fn edges() -> Vec<f64> {
+        let mut v = vec![1e-1, 1e-4, 1e-2, 1e-3];
+        v.push(Deadband::Fraction(0.2).clear_level(1e-1, true));
+        v.push(Deadband::Decades(0.5).clear_level(1e-4, false));
+        v.push(Deadband::Absolute(1e-4).clear_level(1e-3, false));
+        v
+    }
+
+    #[derive(Debug, Clone)]
+    enum Step {
+        /// A row `dt` ms after the last on a channel (0: g, 1: h) with a
+        /// pressure in Pa (None: a sensor error).
+        Row(i64, u8, Option<f64>),
+        Tick(i64),
+        Acknowledge,
+        Shelve(u8),
+        Threshold(f64),
+    }
+
+    fn step() -> impl Strategy<Value = Step> {
+        let edge = (0..edges().len(), -1i64..=1).prop_map(|(i, ulps)| {
+            let e = edges()[i];
+            Some(f64::from_bits(e.to_bits().wrapping_add_signed(ulps)))
+        });
+        let value = prop_oneof![
+            6 => (-6.0f64..1.0).prop_map(|e| Some(10f64.powf(e))),
+            4 => edge,
+            1 => Just(None),
+        ];
+        let dt = prop_oneof![
+            10 => 0i64..400,
+            1 => 400i64..25_000,
+            1 => -3_000i64..0,
+        ];
+        prop_oneof![
+            20 => (dt, 0u8..2, value).prop_map(|(d, c, v)| Step::Row(d, c, v)),
+            2 => (0i64..15_000).prop_map(Step::Tick),
+            1 => Just(Step::Acknowledge),
+            1 => (1u8..20).prop_map(Step::Shelve),
+            1 => (-6.0f64..-1.0).prop_map(|e| Step::Threshold(10f64.powf(e))),
+        ]
+    }
+
+    proptest! {
+        #[test]
+        fn the_same_monitor_as_taking_every_rule(
+            gated in any::<bool>(),
+            steps in prop::collection::vec(step(), 1..150),
+        ) {
+            let mut fast = Monitor::new(bands_setup(gated));
+            let mut full = Monitor::new(bands_setup(gated)).without_bands();
+            let who = Actor { user: "op".into(), wall_time: None };
+            let mut ms = 0i64;
+            for step in steps {
+                let now = |ms: i64| t(0.0) + Duration::milliseconds(ms);
+                let (a, b) = match step {
+                    Step::Row(dt, c, v) => {
+                        ms += dt;
+                        let id = if c == 0 { "g" } else { "h" };
+                        let s = match v {
+                            Some(v) => Sample::ok(now(ms), id, v, PA),
+                            None => Sample::bad(now(ms), id, PA, Fault::SensorError),
+                        };
+                        let row = [s];
+                        (fast.push(&row), full.push(&row))
+                    }
+                    Step::Tick(dt) => {
+                        ms += dt;
+                        (fast.tick(now(ms)), full.tick(now(ms)))
+                    }
+                    Step::Acknowledge => (
+                        fast.acknowledge_all(&who, now(ms)),
+                        full.acknowledge_all(&who, now(ms)),
+                    ),
+                    Step::Shelve(s) => (
+                        fast.shelve("high", f64::from(s), &who, now(ms)).unwrap_or_default(),
+                        full.shelve("high", f64::from(s), &who, now(ms)).unwrap_or_default(),
+                    ),
+                    Step::Threshold(v) => (
+                        fast.set_threshold("band", v, &who, now(ms)).into_iter().collect(),
+                        full.set_threshold("band", v, &who, now(ms)).into_iter().collect(),
+                    ),
+                };
+                prop_assert_eq!(a, b);
+                prop_assert_eq!(format!("{fast:?}"), format!("{full:?}"));
+            }
+        }
+
+        /// A value in a rule's quiet band is one [`RuleMachine::quiet`]
+        /// takes, whatever the state the values before left it in.
+        #[test]
+        fn a_value_in_the_band_is_quiet(
+            above in any::<bool>(),
+            latching in any::<bool>(),
+            delay in prop_oneof![Just(0.0), 0.1f64..2.0],
+            deadband in prop_oneof![
+                Just(Deadband::None),
+                (0.0f64..0.9).prop_map(Deadband::Fraction),
+                (0.0f64..1e-2).prop_map(Deadband::Absolute),
+                (0.0f64..2.0).prop_map(Deadband::Decades),
+            ],
+            values in prop::collection::vec(
+                prop_oneof![(-6.0f64..1.0).prop_map(|e| 10f64.powf(e)), Just(1e-3)],
+                1..40,
+            ),
+            probe in prop_oneof![(-6.0f64..1.0).prop_map(|e| 10f64.powf(e)), Just(1e-3)],
+        ) {
+            let test = if above { Test::Above(1e-3) } else { Test::Below(1e-3) };
+            let mut r = named("r", "g", test, deadband);
+            r.latching = latching;
+            r.on_delay_s = delay;
+            let mut m = RuleMachine::new(r);
+            for (i, v) in values.iter().enumerate() {
+                m.update(t(i as f64 * 0.25), Input::Value(*v));
+                if let Some(band) = m.quiet_values() {
+                    // The band's edges and the probe.
+                    for v in [probe, *v] {
+                        if band.contains(v) {
+                            let mut copy = m.clone();
+                            prop_assert!(copy.quiet(Input::Value(v)), "{band:?} {v}");
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn bands_join_as_numbers() {
+        let a = Band::new((0.0, true), (1.0, true));
+        let b = Band::new((-0.0, false), (1.0, false));
+        let both = a.and(b);
+        assert!(!both.contains(0.0) && !both.contains(-0.0) && !both.contains(1.0));
+        assert!(both.contains(0.5));
+        assert_eq!(a.and(b), b.and(a));
+        assert!(!Band::new((f64::NAN, true), (1.0, true)).is_number());
+        assert!(!Band::ALL.contains(f64::NAN));
     }
 }
 
