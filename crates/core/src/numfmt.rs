@@ -45,12 +45,12 @@ const ROOM: usize = 80;
 /// [`push_exp`]'s layout of `v` in `laid`; returns its length (at most
 /// [`MOST`] but for a sign).
 ///
-/// zmij's text is `[-]d[.ddd]e[-]<exp>` (its digits kept, the exponent
-/// written again) or, for magnitudes from 1e-5 to 1e16, `[-]int.frac`:
-/// the significant digits are those without the zeros before the first or
-/// after the last non-zero one, with the point after the first of them.
-/// The text is copied once into room to spare, so that the copies after it
-/// are of a fixed size (moves, not calls).
+/// zmij's text is `[-]d[.ddd]e±<exp>` (its digits kept, the exponent
+/// written again without its `+`) or, for magnitudes from 1e-5 to 1e16,
+/// `[-]int.frac`: the significant digits are those without the zeros
+/// before the first or after the last non-zero one, with the point after
+/// the first of them. Every copy is of a fixed size (moves, not calls),
+/// into room to spare.
 #[inline]
 fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
     if let Some(n) = lay_non_finite(v, laid) {
@@ -62,26 +62,31 @@ fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
     let body = &text[usize::from(negative)..];
     let len = body.len().min(MOST);
     let mut t = [0u8; ROOM];
-    t[..len].copy_from_slice(&body[..len]);
+    copy_short(&mut t, &body[..len]);
     let mut k = usize::from(negative);
     laid[0] = b'-';
-    // The exponent, when there is one, is among the last six bytes
-    // (`e-0324` at most).
-    let tail = len.saturating_sub(6);
-    if let Some(at) = t[tail..len].iter().position(|&c| c == b'e') {
-        let e_at = tail + at;
+    // The exponent, when there is one, is `e±d` to `e±ddd` at the end.
+    let e_at = match len {
+        _ if len >= 3 && t[len - 3] == b'e' => Some(len - 3),
+        _ if len >= 4 && t[len - 4] == b'e' => Some(len - 4),
+        _ if len >= 5 && t[len - 5] == b'e' => Some(len - 5),
+        _ => None,
+    };
+    if let Some(e_at) = e_at {
+        // The mantissa and the `e` as they are; the exponent's digits
+        // after its sign (a `-` kept) without leading zeros.
         laid[k..k + MOST].copy_from_slice(&t[..MOST]);
-        k += e_at;
+        k += e_at + 1;
         let mut i = e_at + 1;
         let minus = t[i] == b'-';
-        if minus || t[i] == b'+' {
+        i += usize::from(minus || t[i] == b'+');
+        while i + 1 < len && t[i] == b'0' {
             i += 1;
         }
-        let mut e = 0u32;
-        for &d in &t[i..len] {
-            e = e * 10 + u32::from(d.wrapping_sub(b'0') % 10);
-        }
-        return put_exponent(laid, k, minus, e);
+        laid[k] = b'-';
+        k += usize::from(minus);
+        laid[k..k + 8].copy_from_slice(&t[i..i + 8]);
+        return k + (len - i);
     }
     let dot = t[..len].iter().position(|&c| c == b'.').unwrap_or(len);
     // The fraction's digits without its trailing zeros: t[dot + 1..end].
@@ -91,7 +96,8 @@ fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
     }
     let frac = end.saturating_sub(dot + 1);
     if t[0] == b'0' {
-        // 0.000ddd: the first significant digit is in the fraction.
+        // 0.000ddd: the first significant digit is in the fraction (at most
+        // four zeros before it: from 1e-5 on).
         let mut lead = dot + 1;
         while lead < end && t[lead] == b'0' {
             lead += 1;
@@ -101,13 +107,11 @@ fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
             return k + 3;
         }
         laid[k] = t[lead];
-        k += 1;
+        laid[k + 1] = b'.';
+        laid[k + 2..k + 2 + MOST].copy_from_slice(&t[lead + 1..lead + 1 + MOST]);
         let rest = end - lead - 1;
-        if rest > 0 {
-            laid[k] = b'.';
-            laid[k + 1..k + 1 + MOST].copy_from_slice(&t[lead + 1..lead + 1 + MOST]);
-            k += 1 + rest;
-        }
+        // No point when no digit follows the first.
+        k += 1 + usize::from(rest > 0) * (1 + rest);
         return put_exponent(laid, k, true, (lead - dot) as u32);
     }
     // ddd.ddd with no leading zero: the point moves after the first digit;
@@ -130,6 +134,24 @@ fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
         k += frac;
     }
     put_exponent(laid, k, false, dot.saturating_sub(1) as u32)
+}
+
+/// Copies `src` (at most 32 bytes) to the start of `dst` in copies of a
+/// fixed size, overlapping where `src` is shorter than two of them.
+#[inline(always)]
+fn copy_short(dst: &mut [u8; ROOM], src: &[u8]) {
+    let n = src.len();
+    if n >= 16 {
+        dst[..16].copy_from_slice(&src[..16]);
+        dst[n - 16..n].copy_from_slice(&src[n - 16..n]);
+    } else if n >= 8 {
+        dst[..8].copy_from_slice(&src[..8]);
+        dst[n - 8..n].copy_from_slice(&src[n - 8..n]);
+    } else {
+        for (d, s) in dst.iter_mut().zip(src) {
+            *d = *s;
+        }
+    }
 }
 
 /// inf, -inf and NaN as std writes them, in `laid`; `None` for a finite
@@ -297,6 +319,17 @@ mod tests {
         assert_eq!(s.len(), std.len(), "{s} vs {std}");
         let (a, b) = (s.rsplit_once('e'), std.rsplit_once('e'));
         assert_eq!(a.map(|x| x.1), b.map(|x| x.1), "exponent of {s} vs {std}");
+    }
+
+    #[test]
+    fn short_copies_copy_every_length() {
+        let src: Vec<u8> = (1..=32).collect();
+        for n in 0..=32 {
+            let mut dst = [0u8; ROOM];
+            copy_short(&mut dst, &src[..n]);
+            assert_eq!(dst[..n], src[..n], "{n}");
+            assert!(dst[n..].iter().all(|&b| b == 0), "{n}: beyond");
+        }
     }
 
     #[test]
