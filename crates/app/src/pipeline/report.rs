@@ -290,8 +290,9 @@ impl ReportSink {
         self.plot.as_ref()
     }
 
-    /// With [`ReportOptions::gauge`] given: the log's other channels (to
-    /// say what there is when the gauge is not among them).
+    /// With [`ReportOptions::gauge`] given and never seen: the log's other
+    /// channels (to say what there is when the gauge is not among them;
+    /// once the gauge came, those before it).
     pub fn other_channels(&self) -> impl Iterator<Item = &str> {
         self.other_channels.iter().map(|(id, _)| id.as_str())
     }
@@ -383,7 +384,10 @@ impl Sink for ReportSink {
                     if let Some(g) = &self.options.gauge
                         && !same_id(g, &s.channel)
                     {
-                        self.other_channels.get_or_insert_with(&s.channel, || ());
+                        // Wanted only while the gauge has not come.
+                        if !self.gauge_seen {
+                            self.other_channels.get_or_insert_with(&s.channel, || ());
+                        }
                         continue;
                     }
                     self.gauge_seen = true;
