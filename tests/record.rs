@@ -143,6 +143,59 @@ fn unparsed_lines_are_counted_and_reported_not_dropped() {
     assert!(!out.stderr.contains(&0x1b));
 }
 
+/// A pressure not above zero from a live source is recorded as read, and
+/// said once for each stretch of such readings (not at every one).
+#[test]
+fn a_pressure_not_above_zero_is_recorded_and_said_once_a_stretch() {
+    let dir = tempdir("zero");
+    let mut child = Command::new(bin())
+        .args([
+            "record",
+            "--source",
+            "stdin:?channel=chamber&unit=mbar",
+            "--out",
+        ])
+        .arg(&dir)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    child
+        .stdin
+        .take()
+        .expect("stdin")
+        .write_all(b"1e-6\n-2e-8\n-1e-8\n3e-6\n0\n")
+        .expect("write");
+    let out = child.wait_with_output().expect("wait");
+    assert_eq!(out.status.code(), Some(0));
+    let cells: Vec<String> = rows(&dir)
+        .iter()
+        .map(|r| r.split(',').nth(1).expect("cell").to_string())
+        .collect();
+    let values: Vec<f64> = cells.iter().map(|c| c.parse().expect(c)).collect();
+    assert_eq!(values, [1e-6, -2e-8, -1e-8, 3e-6, 0.0]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let said: Vec<String> = stdout
+        .lines()
+        .filter_map(|l| serde_json::from_str::<serde_json::Value>(l).ok())
+        .filter(|v| v["event"] == "source-error")
+        .map(|v| v["message"].as_str().unwrap_or_default().to_string())
+        .collect();
+    assert_eq!(said.len(), 2, "{said:?}");
+    assert!(
+        said[0].starts_with("chamber: pressure -2e-8 mbar at ")
+            && said[0].contains("is not above zero: kept as read"),
+        "{said:?}"
+    );
+    assert!(
+        said[1].starts_with("chamber: pressure 0 mbar at "),
+        "{said:?}"
+    );
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(stderr.matches("is not above zero").count(), 2, "{stderr}");
+}
+
 #[test]
 fn sigterm_in_the_middle_keeps_every_row_sent_before_it() {
     let dir = tempdir("sigterm");

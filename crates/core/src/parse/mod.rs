@@ -9,7 +9,7 @@ pub mod template;
 
 use chrono::{DateTime, Utc};
 
-use crate::sample::{ChannelInfo, ChannelUnit, SourceEvent};
+use crate::sample::{ChannelInfo, ChannelUnit, Sample, SourceEvent};
 use template::{Template, TemplateDecoder, TemplateSpec};
 
 /// Longest line kept; a longer one is reported (never silently cut) and the
@@ -133,6 +133,59 @@ pub fn decoder(settings: &DecoderSettings) -> Result<Box<dyn Decoder>, String> {
                 })
                 .collect::<Result<Vec<_>, _>>()?;
             Ok(Box::new(TemplateDecoder::new(templates)))
+        }
+    }
+}
+
+/// Says when a live channel's pressure is not above zero (a gauge's zero
+/// drift can read a little below it): the reading is kept as read, but no
+/// true pressure or kinetics follow from it. Said once for each stretch of
+/// such readings of a channel, not at every reading; said again after a
+/// reading of that channel above zero.
+#[derive(Debug, Clone, Default)]
+pub struct ZeroNotes {
+    /// The channels whose last pressure reading was not above zero (and
+    /// has been said).
+    said: Vec<String>,
+}
+
+impl ZeroNotes {
+    /// Adds to `out` the notes `samples` call for (none, nearly always).
+    pub fn check(&mut self, samples: &[Sample], source: &str, out: &mut Vec<SourceEvent>) {
+        for s in samples {
+            if !s.unit.is_pressure() {
+                continue;
+            }
+            let Some(v) = s.value() else {
+                continue;
+            };
+            let at = self.said.iter().position(|c| *c == s.channel);
+            match (v > 0.0, at) {
+                (true, Some(i)) => {
+                    self.said.swap_remove(i);
+                }
+                (false, None) => {
+                    self.said.push(s.channel.clone());
+                    let mut value = String::new();
+                    if v == 0.0 {
+                        value.push('0');
+                    } else {
+                        crate::numfmt::push_exp(&mut value, v);
+                    }
+                    out.push(SourceEvent::Error {
+                        source: source.to_string(),
+                        message: format!(
+                            "{}: pressure {value} {} at {} is not above zero: kept as read, without a \
+                             true pressure or kinetics (a gauge's zero drift?); said again only \
+                             after a reading above zero",
+                            s.channel,
+                            s.unit,
+                            crate::timefmt::write_rfc3339(s.time)
+                        ),
+                    });
+                }
+                _ => {}
+            }
         }
     }
 }

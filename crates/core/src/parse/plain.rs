@@ -23,6 +23,7 @@ pub struct PlainDecoder {
     default_channel: String,
     default_unit: ChannelUnit,
     seen: Vec<ChannelInfo>,
+    zero: super::ZeroNotes,
 }
 
 impl PlainDecoder {
@@ -32,6 +33,7 @@ impl PlainDecoder {
             default_channel: default_channel.into(),
             default_unit,
             seen: Vec::new(),
+            zero: super::ZeroNotes::default(),
         }
     }
 
@@ -136,7 +138,12 @@ impl Decoder for PlainDecoder {
             .map_err(|e| format!("invalid UTF-8 at byte {}", e.valid_up_to()))
             .and_then(|text| self.parse_line(text, received));
         match parsed {
-            Ok(samples) => vec![SourceEvent::Samples(samples)],
+            Ok(samples) => {
+                let mut out = Vec::with_capacity(1);
+                self.zero.check(&samples, source, &mut out);
+                out.insert(0, SourceEvent::Samples(samples));
+                out
+            }
             Err(why) => vec![SourceEvent::Unparsed {
                 source: source.to_string(),
                 time: received,
@@ -180,6 +187,31 @@ mod tests {
             let e = one(&mut d, line).expect_err(line);
             assert!(e.contains("only"), "{line:?}: {e}");
         }
+    }
+
+    /// A pressure not above zero is kept as read, with a note once until a
+    /// reading above zero; a temperature below zero is no news.
+    #[test]
+    fn a_pressure_not_above_zero_is_said_once_a_stretch() {
+        let mut d = dec();
+        let mut said = Vec::new();
+        for line in ["-2e-8", "-1e-8", "wall=-5 C", "3e-6", "0", "0"] {
+            let events = d.decode(line.as_bytes(), DateTime::<Utc>::UNIX_EPOCH, "stdin:");
+            assert!(matches!(events[0], SourceEvent::Samples(_)), "{line}");
+            said.extend(events[1..].iter().map(|e| match e {
+                SourceEvent::Error { message, .. } => (line, message.clone()),
+                other => panic!("{other:?}"),
+            }));
+        }
+        assert_eq!(said.len(), 2, "{said:?}");
+        assert_eq!(said[0].0, "-2e-8");
+        assert!(
+            said[0].1.starts_with(
+                "p: pressure -2e-8 mbar at 1970-01-01T00:00:00.000Z is not above zero"
+            ),
+            "{said:?}"
+        );
+        assert_eq!(said[1].0, "0");
     }
 
     #[test]

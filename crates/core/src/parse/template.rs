@@ -183,12 +183,16 @@ impl Template {
 #[derive(Debug, Clone)]
 pub struct TemplateDecoder {
     templates: Vec<Template>,
+    zero: super::ZeroNotes,
 }
 
 impl TemplateDecoder {
     /// A decoder over checked templates.
     pub fn new(templates: Vec<Template>) -> Self {
-        TemplateDecoder { templates }
+        TemplateDecoder {
+            templates,
+            zero: super::ZeroNotes::default(),
+        }
     }
 }
 
@@ -197,7 +201,12 @@ impl Decoder for TemplateDecoder {
         for t in &mut self.templates {
             match t.apply(line, received) {
                 None => continue,
-                Some(Ok(samples)) => return vec![SourceEvent::Samples(samples)],
+                Some(Ok(samples)) => {
+                    let mut out = Vec::with_capacity(1);
+                    self.zero.check(&samples, source, &mut out);
+                    out.insert(0, SourceEvent::Samples(samples));
+                    return out;
+                }
                 Some(Err(e)) => {
                     return vec![SourceEvent::Unparsed {
                         source: source.to_string(),
@@ -279,6 +288,55 @@ mod tests {
         assert_eq!(s[0].status(), Status::Ok);
         assert_eq!(s[1].status(), Status::SensorOff);
         assert_eq!(s[1].value(), None, "a bad reading never becomes a number");
+    }
+
+    /// A pressure not above zero is kept as read, with a note once for
+    /// each stretch of such readings of a channel.
+    #[test]
+    fn a_pressure_not_above_zero_is_said_once_a_stretch() {
+        let mut d = decoder(&[TemplateSpec {
+            pattern: r"^(?P<a>\S+),(?P<b>\S+)$".into(),
+            unit: Some(MBAR),
+            ..TemplateSpec::default()
+        }]);
+        let mut notes = Vec::new();
+        for line in [
+            "1e-6,2e-6",
+            "-1.5e-2,2e-6",
+            "-1e-2,0",
+            "3e-6,-4e-9",
+            "0,1e-6",
+        ] {
+            let events = d.decode(line.as_bytes(), t0(), "tcp://rig:7001");
+            let SourceEvent::Samples(s) = &events[0] else {
+                panic!("{events:?}");
+            };
+            assert_eq!(s.len(), 2, "{line}: every reading kept");
+            assert!(s.iter().all(|s| s.status() == Status::Ok), "{line}");
+            for e in &events[1..] {
+                match e {
+                    SourceEvent::Error { source, message } => {
+                        assert_eq!(source, "tcp://rig:7001");
+                        notes.push(message.clone());
+                    }
+                    other => panic!("{other:?}"),
+                }
+            }
+        }
+        assert_eq!(
+            notes,
+            [
+                "a: pressure -1.5e-2 mbar at 1970-01-01T00:00:00.000Z is not above zero: kept as \
+                 read, without a true pressure or kinetics (a gauge's zero drift?); said again \
+                 only after a reading above zero",
+                "b: pressure 0 mbar at 1970-01-01T00:00:00.000Z is not above zero: kept as read, \
+                 without a true pressure or kinetics (a gauge's zero drift?); said again only \
+                 after a reading above zero",
+                "a: pressure 0 mbar at 1970-01-01T00:00:00.000Z is not above zero: kept as read, \
+                 without a true pressure or kinetics (a gauge's zero drift?); said again only \
+                 after a reading above zero",
+            ]
+        );
     }
 
     #[test]
