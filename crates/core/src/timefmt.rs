@@ -572,25 +572,88 @@ impl TimeFormat {
             TimeFormat::EpochMillis => parse_epoch(text, 1_000_000)
                 .map(epoch)
                 .ok_or_else(|| "is not a number of milliseconds since 1970-01-01 UTC".to_string()),
-            TimeFormat::Pattern {
-                pattern,
-                absolute: true,
-            } => DateTime::parse_from_str(text, pattern)
-                .map(absolute)
-                .map_err(|e| format!("does not match format \"{pattern}\" ({e})")),
-            TimeFormat::Pattern {
-                pattern,
-                absolute: false,
-            } => {
-                let naive = NaiveDateTime::parse_from_str(text, pattern)
-                    .map_err(|e| format!("does not match format \"{pattern}\" ({e})"))?;
-                let zone = zone.unwrap_or(Zone::Fixed(Utc.fix()));
-                localize(naive, zone, previous).map(|(time, ambiguous)| Read {
-                    time,
-                    ambiguous,
-                    offset: None,
-                })
+            TimeFormat::Pattern { pattern, absolute } => {
+                read_pattern(pattern, *absolute, None, text, zone, previous)
             }
+        }
+    }
+}
+
+/// A text read with a strftime pattern, its items parsed beforehand
+/// (`items`) or from the pattern now: what `DateTime::parse_from_str` and
+/// `NaiveDateTime::parse_from_str` do, messages included.
+fn read_pattern(
+    pattern: &str,
+    absolute: bool,
+    items: Option<&[Item<'static>]>,
+    text: &str,
+    zone: Option<Zone>,
+    previous: Option<DateTime<Utc>>,
+) -> Result<Read, String> {
+    let mut parsed = chrono::format::Parsed::new();
+    let done = match items {
+        Some(items) => chrono::format::parse(&mut parsed, text, items.iter()),
+        None => chrono::format::parse(&mut parsed, text, StrftimeItems::new(pattern)),
+    };
+    let bad = |e: chrono::ParseError| format!("does not match format \"{pattern}\" ({e})");
+    if absolute {
+        let t = done.and_then(|()| parsed.to_datetime()).map_err(bad)?;
+        return Ok(Read {
+            time: t.with_timezone(&Utc),
+            ambiguous: false,
+            offset: Some(t.offset().fix()),
+        });
+    }
+    let naive = done
+        .and_then(|()| parsed.to_naive_datetime_with_offset(0))
+        .map_err(bad)?;
+    let zone = zone.unwrap_or(Zone::Fixed(Utc.fix()));
+    localize(naive, zone, previous).map(|(time, ambiguous)| Read {
+        time,
+        ambiguous,
+        offset: None,
+    })
+}
+
+/// A [`TimeFormat`] made ready to read many texts: a pattern's items are
+/// parsed once (`parse_from_str` parses the pattern again for every text).
+/// Reads as [`TimeFormat::read`] does, messages included.
+#[derive(Debug, Clone)]
+pub struct TimeReader {
+    format: TimeFormat,
+    /// A pattern's items; `None` for the other formats, and for a pattern
+    /// with an item chrono cannot take (read as before, so that its error
+    /// comes where it did).
+    items: Option<Vec<Item<'static>>>,
+}
+
+impl TimeReader {
+    /// Ready to read `format`.
+    pub fn new(format: &TimeFormat) -> Self {
+        let items = match format {
+            TimeFormat::Pattern { pattern, .. } => {
+                StrftimeItems::new(pattern).parse_to_owned().ok()
+            }
+            _ => None,
+        };
+        TimeReader {
+            format: format.clone(),
+            items,
+        }
+    }
+
+    /// [`TimeFormat::read`].
+    pub fn read(
+        &self,
+        text: &str,
+        zone: Option<Zone>,
+        previous: Option<DateTime<Utc>>,
+    ) -> Result<Read, String> {
+        match (&self.format, &self.items) {
+            (TimeFormat::Pattern { pattern, absolute }, Some(items)) => {
+                read_pattern(pattern, *absolute, Some(items), text.trim(), zone, previous)
+            }
+            (format, _) => format.read(text, zone, previous),
         }
     }
 }
@@ -1068,6 +1131,52 @@ mod fast_tests {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        /// Reading with the pattern parsed once gives what reading with the
+        /// pattern gives: times, ambiguity and messages alike.
+        #[test]
+        fn a_time_reader_reads_as_the_format(
+            which in 0usize..5,
+            day in 1u32..32, month in 1u32..13, year in 2020i32..2030,
+            h in 0u32..25, mi in 0u32..61, sec in 0u32..61, ms in 0u32..1000,
+            junk in proptest::option::weighted(0.2, "[0-9a-z:.+ -]{0,6}"),
+            zone in proptest::sample::select(vec![None, Some("Europe/Vienna"), Some("+01:00")]),
+        ) {
+            let patterns = [
+                "%d.%m.%Y %H:%M:%S",
+                "%d.%m.%Y %H:%M:%S%.3f",
+                "%Y-%m-%d %H:%M:%S%.f",
+                "%Y-%m-%dT%H:%M:%S%z",
+                "%d/%m/%Y %I:%M:%S %p",
+            ];
+            let format = TimeFormat::parse(patterns[which]).expect("valid pattern");
+            let reader = TimeReader::new(&format);
+            let ampm = if h < 12 { "AM" } else { "PM" };
+            let mut text = match which {
+                0 => format!("{day:02}.{month:02}.{year} {h:02}:{mi:02}:{sec:02}"),
+                1 => format!("{day:02}.{month:02}.{year} {h:02}:{mi:02}:{sec:02}.{ms:03}"),
+                2 => format!("{year}-{month:02}-{day:02} {h:02}:{mi:02}:{sec:02}.{ms}"),
+                3 => format!("{year}-{month:02}-{day:02}T{h:02}:{mi:02}:{sec:02}+0{}00", h % 10),
+                _ => format!("{day:02}/{month:02}/{year} {:02}:{mi:02}:{sec:02} {ampm}", h % 13),
+            };
+            if let Some(j) = junk {
+                let at = text.len() / 2;
+                text.insert_str(at, &j);
+            }
+            let z = zone.map(|z| Zone::parse(z).expect("valid zone"));
+            let previous = Utc.with_ymd_and_hms(2026, 10, 25, 0, 30, 0).single();
+            prop_assert_eq!(
+                reader.read(&text, z, previous),
+                format.read(&text, z, previous),
+                "{}",
+                text
+            );
+            let padded = format!(" {text} ");
+            prop_assert_eq!(reader.read(&padded, z, None), format.read(&padded, z, None));
+        }
+    }
 
     fn utc(text: &str) -> DateTime<Utc> {
         DateTime::parse_from_rfc3339(text)

@@ -571,6 +571,29 @@ fn unknown_unit(text: &str) -> String {
     )
 }
 
+/// `f` of `text` with its decimal commas made points, on the stack when it
+/// is short (a number cell), else in a new string.
+fn with_points<T>(text: &str, f: impl FnOnce(&str) -> T) -> T {
+    let mut room = [0u8; 64];
+    match room.get_mut(..text.len()) {
+        Some(room) if text.contains(',') => {
+            room.copy_from_slice(text.as_bytes());
+            for b in room.iter_mut() {
+                if *b == b',' {
+                    *b = b'.';
+                }
+            }
+            // An ASCII byte replaced by another: still UTF-8.
+            match std::str::from_utf8(room) {
+                Ok(t) => f(t),
+                Err(_) => f(&text.replace(',', ".")),
+            }
+        }
+        _ if text.contains(',') => f(&text.replace(',', ".")),
+        _ => f(text),
+    }
+}
+
 /// Reads a foreign log as described by a [`ForeignLogSpec`].
 pub struct ForeignReader<R> {
     lines: Lines<R>,
@@ -594,6 +617,10 @@ pub struct ForeignReader<R> {
     note_cells: Vec<(usize, String)>,
     /// Cell index of the gas column.
     gas_cell: Option<usize>,
+    /// The time format, its pattern parsed once.
+    time_reader: crate::timefmt::TimeReader,
+    /// The last row's cells, their buffers reused for the next.
+    fields: Vec<lines::Field>,
 }
 
 impl<R: BufRead> ForeignReader<R> {
@@ -811,6 +838,8 @@ impl<R: BufRead> ForeignReader<R> {
             header_line: spec.header.then_some(header_line),
             note_cells,
             gas_cell,
+            time_reader: crate::timefmt::TimeReader::new(&spec.time.format),
+            fields: Vec::new(),
         })
     }
 
@@ -891,6 +920,8 @@ impl<R: BufRead> ForeignReader<R> {
             header_line: self.header_line,
             note_cells: self.note_cells.clone(),
             gas_cell: self.gas_cell,
+            time_reader: self.time_reader.clone(),
+            fields: Vec::new(),
         }
     }
 
@@ -917,7 +948,8 @@ impl<R: BufRead> ForeignReader<R> {
         if *format == TimeFormat::Rfc3339 && crate::timefmt::lacks_offset(text) {
             return Err(bad(crate::timefmt::missing_offset(self.last_offset)));
         }
-        let read = format
+        let read = self
+            .time_reader
             .read(text, self.spec.time.zone, self.last_time)
             .map_err(bad)?;
         if read.ambiguous {
@@ -939,21 +971,24 @@ impl<R: BufRead> ForeignReader<R> {
         }) {
             return Ok(Some(Reading::Bad(*s)));
         }
-        let prefix = format!("column \"{}\": cell \"{}\"", show(header), show(text));
-        let number = if self.spec.decimal_comma {
+        // Messages are made only for a cell that has something to say.
+        let prefix = || format!("column \"{}\": cell \"{}\"", show(header), show(text));
+        let parsed = if self.spec.decimal_comma {
             if text.contains('.') {
                 return Err(format!(
-                    "{prefix} has a '.', but the [log] section says decimal_comma = true"
+                    "{} has a '.', but the [log] section says decimal_comma = true",
+                    prefix()
                 ));
             }
-            text.replace(',', ".")
+            with_points(text, |t| t.parse::<f64>())
         } else {
-            text.to_string()
+            text.parse::<f64>()
         };
-        match number.parse::<f64>() {
+        match parsed {
             Ok(v) if v.is_finite() => Ok(Some(Reading::Value(v))),
             Ok(_) => Err(format!(
-                "{prefix} is not a finite number; map the word to a status with `status = {{ \"{}\" = \"sensor-error\" }}`",
+                "{} is not a finite number; map the word to a status with `status = {{ \"{}\" = \"sensor-error\" }}`",
+                prefix(),
                 show(text)
             )),
             Err(_) => {
@@ -977,7 +1012,7 @@ impl<R: BufRead> ForeignReader<R> {
                         .join(", ");
                     format!(" or a status word of this column ({words})")
                 };
-                Err(format!("{prefix} is not a number{hint}"))
+                Err(format!("{} is not a number{hint}", prefix()))
             }
         }
     }
@@ -992,10 +1027,24 @@ impl<R: BufRead> ForeignReader<R> {
         if text.trim().is_empty() {
             return None;
         }
-        let cells = match lines::split(&text, self.spec.delimiter) {
-            Ok(c) => c,
-            Err(e) => return Some(Err(at(&self.name, Some(e.field), e.message))),
-        };
+        let mut cells = std::mem::take(&mut self.fields);
+        if let Err(e) = lines::split_into(&text, self.spec.delimiter, &mut cells) {
+            self.fields = cells;
+            return Some(Err(at(&self.name, Some(e.field), e.message)));
+        }
+        let row = self.row_of(raw, &cells);
+        self.fields = cells;
+        row
+    }
+
+    /// [`ForeignReader::row`] once the line is cut into `cells`.
+    fn row_of(
+        &mut self,
+        raw: &lines::RawLine,
+        cells: &[lines::Field],
+    ) -> Option<Result<Row, LogError>> {
+        let at =
+            |name: &str, col: Option<usize>, msg: String| LogError::at(name, raw.number, col, msg);
         if cells.iter().all(|c| c.text.is_empty()) {
             return None;
         }
