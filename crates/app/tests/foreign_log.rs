@@ -727,6 +727,44 @@ proptest! {
             }
         }
     }
+
+    /// Rows read into one reused row (its samples refilled where the last
+    /// row's lie) are the rows read fresh: readings, errors and the bad
+    /// rows' good readings, whatever the rows before held.
+    #[test]
+    fn rows_read_into_a_reused_row_are_the_rows_read_fresh(
+        lines in prop::collection::vec(
+            prop::collection::vec(
+                prop_oneof![
+                    Just("1,5E-03"), Just("2.5e-3"), Just("OR"), Just(""), Just("x"),
+                    Just("-1"), Just("\"7\""),
+                ],
+                0..5,
+            ),
+            1..40,
+        ),
+    ) {
+        let s = spec(&section("decimal_comma = true", "status = { \"OR\" = \"over-range\" }")
+            .replace("name = \"P\"\nchannel = \"p\"\nunit = \"mbar\"\n", "name = \"P\"\nchannel = \"p\"\nunit = \"mbar\"\n\
+                status = { \"OR\" = \"over-range\" }\n[[log.column]]\nname = \"Q\"\nchannel = \"q\"\nunit = \"mbar\"\n"));
+        let mut text = String::from("Time;P;Q\n");
+        for (i, cells) in lines.iter().enumerate() {
+            text.push_str(&format!("2026-11-16 06:{:02}:{:02}", i / 60, i % 60));
+            for c in cells {
+                text.push(';');
+                text.push_str(c);
+            }
+            text.push('\n');
+        }
+        let fresh = read_all(&s, text.as_bytes());
+        let mut reader = ForeignReader::new(text.as_bytes(), "x.csv", &s).expect("header");
+        let mut row = Row::default();
+        let mut reused = Vec::new();
+        while let Some(item) = reader.next_row_into(&mut row) {
+            reused.push(item.map(|()| row.clone()));
+        }
+        prop_assert_eq!(format!("{reused:?}"), format!("{fresh:?}"));
+    }
 }
 
 /// Templates' `time_format` and `[log]`'s time `format` go through one

@@ -621,6 +621,8 @@ pub struct ForeignReader<R> {
     time_reader: crate::timefmt::TimeReader,
     /// The last row's cells, their buffers reused for the next.
     fields: Vec<lines::Field>,
+    /// The last line read, its buffer reused for the next.
+    raw: lines::RawLine,
 }
 
 impl<R: BufRead> ForeignReader<R> {
@@ -651,7 +653,7 @@ impl<R: BufRead> ForeignReader<R> {
                 Some(Ok(raw)) => {
                     let text = match lines::decode(&raw.bytes, spec.encoding, raw.number == 1) {
                         Ok(t) => t,
-                        Err(_) => crate::sample::escape_bytes(&raw.bytes),
+                        Err(_) => crate::sample::escape_bytes(&raw.bytes).into(),
                     };
                     let text = text.trim_end_matches(spec.delimiter).trim().to_string();
                     if !text.is_empty() {
@@ -840,6 +842,7 @@ impl<R: BufRead> ForeignReader<R> {
             gas_cell,
             time_reader: crate::timefmt::TimeReader::new(&spec.time.format),
             fields: Vec::new(),
+            raw: lines::RawLine::empty(),
         })
     }
 
@@ -922,6 +925,7 @@ impl<R: BufRead> ForeignReader<R> {
             gas_cell: self.gas_cell,
             time_reader: self.time_reader.clone(),
             fields: Vec::new(),
+            raw: lines::RawLine::empty(),
         }
     }
 
@@ -1017,7 +1021,7 @@ impl<R: BufRead> ForeignReader<R> {
         }
     }
 
-    fn row(&mut self, raw: &lines::RawLine) -> Option<Result<Row, LogError>> {
+    fn row(&mut self, raw: &lines::RawLine, out: &mut Row) -> Option<Result<(), LogError>> {
         let text = match text_in(&self.name, raw, self.spec.delimiter, self.spec.encoding) {
             Ok(t) => t,
             Err(e) => return Some(Err(e)),
@@ -1032,7 +1036,7 @@ impl<R: BufRead> ForeignReader<R> {
             self.fields = cells;
             return Some(Err(at(&self.name, Some(e.field), e.message)));
         }
-        let row = self.row_of(raw, &cells);
+        let row = self.row_of(raw, &cells, out);
         self.fields = cells;
         row
     }
@@ -1042,7 +1046,8 @@ impl<R: BufRead> ForeignReader<R> {
         &mut self,
         raw: &lines::RawLine,
         cells: &[lines::Field],
-    ) -> Option<Result<Row, LogError>> {
+        out: &mut Row,
+    ) -> Option<Result<(), LogError>> {
         let at =
             |name: &str, col: Option<usize>, msg: String| LogError::at(name, raw.number, col, msg);
         if cells.iter().all(|c| c.text.is_empty()) {
@@ -1064,12 +1069,31 @@ impl<R: BufRead> ForeignReader<R> {
             Ok(t) => t,
             Err(msg) => return Some(Err(at(&self.name, Some(self.time_cell + 1), msg))),
         };
-        let mut samples = Vec::new();
+        // The row's samples refilled where the last row's lie.
+        let mut samples = std::mem::take(&mut out.samples);
+        let mut used = 0;
+        let mut put = |samples: &mut Vec<Sample>, col: &ForeignColumn, reading: Reading| {
+            match samples.get_mut(used) {
+                Some(s) => {
+                    s.time = time;
+                    s.channel.clone_from(&col.channel);
+                    s.unit = col.unit;
+                    s.reading = reading;
+                }
+                None => samples.push(Sample {
+                    time,
+                    channel: col.channel.clone(),
+                    unit: col.unit,
+                    reading,
+                }),
+            }
+            used += 1;
+        };
         let mut bad: Vec<(usize, String)> = Vec::new();
         for (k, (i, header)) in self.cells.iter().enumerate() {
             let col = &self.spec.columns[k];
             let Some(cell) = cells.get(*i) else {
-                samples.push(Sample::bad(time, &col.channel, col.unit, Fault::Unparsed));
+                put(&mut samples, col, Reading::Bad(Fault::Unparsed));
                 bad.push((
                     cells.len() + 1,
                     format!(
@@ -1089,15 +1113,10 @@ impl<R: BufRead> ForeignReader<R> {
                     {
                         bad.push((i + 1, msg));
                     }
-                    samples.push(Sample {
-                        time,
-                        channel: col.channel.clone(),
-                        unit: col.unit,
-                        reading,
-                    });
+                    put(&mut samples, col, reading);
                 }
                 Err(msg) => {
-                    samples.push(Sample::bad(time, &col.channel, col.unit, Fault::Unparsed));
+                    put(&mut samples, col, Reading::Bad(Fault::Unparsed));
                     bad.push((i + 1, msg));
                 }
             }
@@ -1116,7 +1135,8 @@ impl<R: BufRead> ForeignReader<R> {
                 (!text.is_empty()).then(|| (header.clone(), text.to_string()))
             })
             .collect();
-        let row = Row {
+        samples.truncate(used);
+        *out = Row {
             line: raw.number,
             time,
             samples,
@@ -1130,9 +1150,36 @@ impl<R: BufRead> ForeignReader<R> {
                 .map(|c| c.text.trim().to_string())
                 .filter(|g| !g.is_empty()),
         };
-        Some(super::read::row_result(row, bad, |col, msg| {
-            at(&self.name, Some(col), msg)
-        }))
+        if bad.is_empty() {
+            return Some(Ok(()));
+        }
+        // A bad row goes with its error (`out` is left empty).
+        let row = std::mem::take(out);
+        Some(
+            super::read::row_result(row, bad, |col, msg| at(&self.name, Some(col), msg))
+                .map(|_| ()),
+        )
+    }
+
+    /// The next row into `row`, its samples and their channel names
+    /// refilled where the last row's lie: what the iterator gives, without
+    /// allocating per row. `Some(Ok(()))`: `row` holds the row.
+    /// `Some(Err(e))`: a bad row, its good readings in `e.row` as the
+    /// iterator gives them (`row` then holds nothing to use). `None`: the
+    /// end of the log.
+    pub fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
+        loop {
+            let mut raw = std::mem::replace(&mut self.raw, lines::RawLine::empty());
+            if let Err(e) = self.lines.next_located_into(&self.name, &mut raw)? {
+                self.raw = raw;
+                return Some(Err(e));
+            }
+            let item = self.row(&raw, row);
+            self.raw = raw;
+            if let Some(item) = item {
+                return Some(item);
+            }
+        }
     }
 }
 
@@ -1140,14 +1187,7 @@ impl<R: BufRead> Iterator for ForeignReader<R> {
     type Item = Result<Row, LogError>;
 
     fn next(&mut self) -> Option<Self::Item> {
-        loop {
-            let raw = match self.lines.next_located(&self.name)? {
-                Ok(raw) => raw,
-                Err(e) => return Some(Err(e)),
-            };
-            if let Some(item) = self.row(&raw) {
-                return Some(item);
-            }
-        }
+        let mut row = Row::default();
+        Some(self.next_row_into(&mut row)?.map(|()| row))
     }
 }

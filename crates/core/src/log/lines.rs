@@ -69,19 +69,6 @@ impl<R: BufRead> Lines<R> {
         self.offset
     }
 
-    /// The next line, or a located error naming the log `name` when reading
-    /// fails (which ends the reading).
-    pub fn next_located(&mut self, name: &str) -> Option<Result<RawLine, super::LogError>> {
-        Some(self.next_line()?.map_err(|e| {
-            super::LogError::at(
-                name,
-                self.number + 1,
-                None,
-                format!("cannot read the log: {e}"),
-            )
-        }))
-    }
-
     /// The next line; `None` at the end; an I/O error ends the reading.
     pub fn next_line(&mut self) -> Option<io::Result<RawLine>> {
         let mut line = RawLine {
@@ -220,7 +207,7 @@ pub(crate) fn decode(
     bytes: &[u8],
     encoding: Encoding,
     first: bool,
-) -> Result<String, (String, u8)> {
+) -> Result<std::borrow::Cow<'_, str>, (String, u8)> {
     match encoding {
         Encoding::Latin1 => Ok(bytes.iter().map(|&b| char::from(b)).collect()),
         Encoding::Utf8 => {
@@ -230,7 +217,7 @@ pub(crate) fn decode(
                 bytes
             };
             match std::str::from_utf8(bytes) {
-                Ok(s) => Ok(s.to_string()),
+                Ok(s) => Ok(std::borrow::Cow::Borrowed(s)),
                 Err(e) => {
                     let good = &bytes[..e.valid_up_to()];
                     let prefix = String::from_utf8_lossy(good).into_owned();

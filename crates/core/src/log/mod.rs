@@ -195,6 +195,9 @@ impl<R: BufRead + Send> LogSource for ForeignReader<R> {
     fn header_line(&self) -> Option<u64> {
         ForeignReader::header_line(self)
     }
+    fn next_row_into(&mut self, row: &mut Row) -> Option<Result<(), LogError>> {
+        ForeignReader::next_row_into(self, row)
+    }
     fn read_position(&self) -> ReadPosition {
         ForeignReader::read_position(self)
     }

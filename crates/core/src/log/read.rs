@@ -1074,16 +1074,16 @@ pub(crate) fn channels_of(columns: &[Column]) -> Vec<ChannelInfo> {
 /// A line's text, or a located error for a line too long or not in the
 /// encoding.
 pub(crate) fn text_of(name: &str, raw: &RawLine, delim: char) -> Result<String, LogError> {
-    text_in(name, raw, delim, Encoding::Utf8)
+    text_in(name, raw, delim, Encoding::Utf8).map(std::borrow::Cow::into_owned)
 }
 
 /// [`text_of`] for a given encoding.
-pub(crate) fn text_in(
+pub(crate) fn text_in<'a>(
     name: &str,
-    raw: &RawLine,
+    raw: &'a RawLine,
     delim: char,
     encoding: Encoding,
-) -> Result<String, LogError> {
+) -> Result<std::borrow::Cow<'a, str>, LogError> {
     if raw.too_long {
         return Err(LogError::at(
             name,
