@@ -625,6 +625,157 @@ pub struct TimeReader {
     /// with an item chrono cannot take (read as before, so that its error
     /// comes where it did).
     items: Option<Vec<Item<'static>>>,
+    /// A local-time pattern of numbers, separators and a fraction of a
+    /// second ([`Layout`]): read without chrono's general parser when the
+    /// text fits it exactly.
+    layout: Option<Vec<Layout>>,
+}
+
+/// One part of a local-time pattern the [`TimeReader`] reads itself: a
+/// number of fixed width (its digits all there), a literal byte, blanks, or
+/// a fraction of a second. Where a text does not fit exactly, chrono reads
+/// it (so that its result and message are chrono's); where it fits, chrono
+/// would read the same fields (its numbers take up to their width in
+/// digits, its blanks any amount of white space).
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Layout {
+    /// `%Y`: four digits.
+    Year,
+    /// `%m`, `%d`, `%H`, `%M`, `%S`: two digits, into field 1 to 5.
+    Two(usize),
+    /// A byte of a literal.
+    Byte(u8),
+    /// A blank in the pattern: any white space, or none.
+    Blanks,
+    /// `%.3f`, `%.6f`, `%.9f`: a point and that many digits, or nothing.
+    Fraction(usize),
+    /// `%.f`: a point and one to nine digits (more are skipped), or nothing.
+    AnyFraction,
+}
+
+impl Layout {
+    /// The layout of `items`, when every item is one the reader reads
+    /// itself, each field at most once, and the date, hour and minute are
+    /// all there.
+    fn of(items: &[Item<'_>]) -> Option<Vec<Layout>> {
+        use chrono::format::Numeric as N;
+        let mut out = Vec::new();
+        let mut seen = [false; 6];
+        for item in items {
+            let field = match item {
+                Item::Numeric(N::Year, _) => Some((0, Layout::Year)),
+                Item::Numeric(N::Month, _) => Some((1, Layout::Two(1))),
+                Item::Numeric(N::Day, _) => Some((2, Layout::Two(2))),
+                Item::Numeric(N::Hour, _) => Some((3, Layout::Two(3))),
+                Item::Numeric(N::Minute, _) => Some((4, Layout::Two(4))),
+                Item::Numeric(N::Second, _) => Some((5, Layout::Two(5))),
+                Item::Literal(l) => {
+                    out.extend(l.bytes().map(Layout::Byte));
+                    None
+                }
+                Item::OwnedLiteral(l) => {
+                    out.extend(l.bytes().map(Layout::Byte));
+                    None
+                }
+                Item::Space(_) | Item::OwnedSpace(_) => {
+                    out.push(Layout::Blanks);
+                    None
+                }
+                Item::Fixed(Fixed::Nanosecond3) => {
+                    out.push(Layout::Fraction(3));
+                    None
+                }
+                Item::Fixed(Fixed::Nanosecond6) => {
+                    out.push(Layout::Fraction(6));
+                    None
+                }
+                Item::Fixed(Fixed::Nanosecond9) => {
+                    out.push(Layout::Fraction(9));
+                    None
+                }
+                Item::Fixed(Fixed::Nanosecond) => {
+                    out.push(Layout::AnyFraction);
+                    None
+                }
+                _ => return None,
+            };
+            if let Some((k, part)) = field {
+                if std::mem::replace(&mut seen[k], true) {
+                    return None;
+                }
+                out.push(part);
+            }
+        }
+        let fractions = out
+            .iter()
+            .filter(|p| matches!(p, Layout::Fraction(_) | Layout::AnyFraction))
+            .count();
+        (seen[..5].iter().all(|&s| s) && fractions <= 1).then_some(out)
+    }
+
+    /// `text` read with `layout`, when it fits exactly and is a valid date
+    /// and time (no leap second); else `None`.
+    fn read(layout: &[Layout], text: &str) -> Option<NaiveDateTime> {
+        let mut s = text.as_bytes();
+        // Year, month, day, hour, minute, second.
+        let mut f = [0u32; 6];
+        let mut nano = 0u32;
+        let digits = |s: &[u8], n: usize| -> Option<u32> {
+            s.get(..n)?.iter().try_fold(0u32, |v, &c| {
+                c.is_ascii_digit().then(|| v * 10 + u32::from(c - b'0'))
+            })
+        };
+        for part in layout {
+            match *part {
+                Layout::Year => {
+                    f[0] = digits(s, 4)?;
+                    s = &s[4..];
+                }
+                Layout::Two(k) => {
+                    f[k] = digits(s, 2)?;
+                    s = &s[2..];
+                }
+                Layout::Byte(b) => {
+                    let (&c, rest) = s.split_first()?;
+                    if c != b {
+                        return None;
+                    }
+                    s = rest;
+                }
+                Layout::Blanks => {
+                    // As chrono does: `str::trim_start` (Unicode white space).
+                    s = std::str::from_utf8(s).ok()?.trim_start().as_bytes();
+                }
+                Layout::Fraction(n) => {
+                    if let Some(rest) = s.strip_prefix(b".") {
+                        nano = digits(rest, n)? * 10u32.pow(9 - n as u32);
+                        s = &rest[n..];
+                    }
+                }
+                Layout::AnyFraction => {
+                    if let Some(rest) = s.strip_prefix(b".") {
+                        let n = rest
+                            .iter()
+                            .take(9)
+                            .take_while(|c| c.is_ascii_digit())
+                            .count();
+                        if n == 0 {
+                            return None;
+                        }
+                        nano = digits(rest, n)? * 10u32.pow(9 - n as u32);
+                        let more = rest[n..].iter().take_while(|c| c.is_ascii_digit()).count();
+                        s = &rest[n + more..];
+                    }
+                }
+            }
+        }
+        if !s.is_empty() || f[3] > 23 || f[4] > 59 || f[5] > 59 {
+            return None;
+        }
+        let date = NaiveDate::from_ymd_opt(i32::try_from(f[0]).ok()?, f[1], f[2])?;
+        let time = NaiveTime::from_hms_nano_opt(f[3], f[4], f[5], nano)?;
+        Some(NaiveDateTime::new(date, time))
+    }
 }
 
 impl TimeReader {
@@ -636,9 +787,19 @@ impl TimeReader {
             }
             _ => None,
         };
+        let layout = match (format, &items) {
+            (
+                TimeFormat::Pattern {
+                    absolute: false, ..
+                },
+                Some(items),
+            ) => Layout::of(items),
+            _ => None,
+        };
         TimeReader {
             format: format.clone(),
             items,
+            layout,
         }
     }
 
@@ -649,6 +810,18 @@ impl TimeReader {
         zone: Option<Zone>,
         previous: Option<DateTime<Utc>>,
     ) -> Result<Read, String> {
+        if let Some(naive) = self
+            .layout
+            .as_ref()
+            .and_then(|l| Layout::read(l, text.trim()))
+        {
+            let zone = zone.unwrap_or(Zone::Fixed(Utc.fix()));
+            return localize(naive, zone, previous).map(|(time, ambiguous)| Read {
+                time,
+                ambiguous,
+                offset: None,
+            });
+        }
         match (&self.format, &self.items) {
             (TimeFormat::Pattern { pattern, absolute }, Some(items)) => {
                 read_pattern(pattern, *absolute, Some(items), text.trim(), zone, previous)
@@ -1134,32 +1307,51 @@ mod tests {
     use proptest::prelude::*;
 
     proptest! {
-        /// Reading with the pattern parsed once gives what reading with the
-        /// pattern gives: times, ambiguity and messages alike.
+        /// Reading with the pattern parsed once (and, where the text fits
+        /// its layout exactly, without chrono's parser) gives what reading
+        /// with the pattern gives: times, ambiguity and messages alike.
         #[test]
         fn a_time_reader_reads_as_the_format(
-            which in 0usize..5,
-            day in 1u32..32, month in 1u32..13, year in 2020i32..2030,
-            h in 0u32..25, mi in 0u32..61, sec in 0u32..61, ms in 0u32..1000,
+            which in 0usize..9,
+            fields in (2020i32..2030, 0u32..14, 0u32..33, 0u32..25, 0u32..61, 0u32..62),
+            ms in 0u32..1_000_000_000,
+            digits in 0usize..12,
+            pad in any::<bool>(),
+            blanks in 0usize..3,
             junk in proptest::option::weighted(0.2, "[0-9a-z:.+ -]{0,6}"),
             zone in proptest::sample::select(vec![None, Some("Europe/Vienna"), Some("+01:00")]),
         ) {
+            let (year, month, day, h, mi, sec) = fields;
             let patterns = [
                 "%d.%m.%Y %H:%M:%S",
                 "%d.%m.%Y %H:%M:%S%.3f",
                 "%Y-%m-%d %H:%M:%S%.f",
                 "%Y-%m-%dT%H:%M:%S%z",
                 "%d/%m/%Y %I:%M:%S %p",
+                "%Y-%m-%d %H:%M",
+                "%Y%m%d%H%M%S%.6f",
+                "%F %T%.9f",
+                "%d.%m.%Y, %H h %M",
             ];
             let format = TimeFormat::parse(patterns[which]).expect("valid pattern");
             let reader = TimeReader::new(&format);
+            let two = |v: u32| if pad { format!("{v:02}") } else { v.to_string() };
+            let gap = " ".repeat(blanks);
+            let frac = format!("{ms:09}")[..digits.min(9)].to_string()
+                + &"7".repeat(digits.saturating_sub(9));
+            let dot = if digits == 0 { String::new() } else { format!(".{frac}") };
             let ampm = if h < 12 { "AM" } else { "PM" };
+            let (d, m, hh, mm, ss) = (two(day), two(month), two(h), two(mi), two(sec));
             let mut text = match which {
-                0 => format!("{day:02}.{month:02}.{year} {h:02}:{mi:02}:{sec:02}"),
-                1 => format!("{day:02}.{month:02}.{year} {h:02}:{mi:02}:{sec:02}.{ms:03}"),
-                2 => format!("{year}-{month:02}-{day:02} {h:02}:{mi:02}:{sec:02}.{ms}"),
-                3 => format!("{year}-{month:02}-{day:02}T{h:02}:{mi:02}:{sec:02}+0{}00", h % 10),
-                _ => format!("{day:02}/{month:02}/{year} {:02}:{mi:02}:{sec:02} {ampm}", h % 13),
+                0 => format!("{d}.{m}.{year}{gap}{hh}:{mm}:{ss}"),
+                1 => format!("{d}.{m}.{year} {hh}:{mm}:{ss}{dot}"),
+                2 => format!("{year}-{m}-{d} {hh}:{mm}:{ss}{dot}"),
+                3 => format!("{year}-{m}-{d}T{hh}:{mm}:{ss}+0{}00", h % 10),
+                4 => format!("{d}/{m}/{year} {:02}:{mm}:{ss} {ampm}", h % 13),
+                5 => format!("{year}-{m}-{d}{gap}{hh}:{mm}"),
+                6 => format!("{year}{m}{d}{hh}{mm}{ss}{dot}"),
+                7 => format!("{year}-{m}-{d} {hh}:{mm}:{ss}{dot}"),
+                _ => format!("{d}.{m}.{year},{gap}{hh} h {mm}"),
             };
             if let Some(j) = junk {
                 let at = text.len() / 2;
@@ -1175,6 +1367,23 @@ mod tests {
             );
             let padded = format!(" {text} ");
             prop_assert_eq!(reader.read(&padded, z, None), format.read(&padded, z, None));
+        }
+
+        /// Texts that fit a layout are read without chrono's parser (the
+        /// layout is there and takes them).
+        #[test]
+        fn texts_in_the_layout_skip_the_general_parser(
+            day in 1u32..29, month in 1u32..13, h in 0u32..24, mi in 0u32..60, ms in 0u32..1000,
+        ) {
+            let format = TimeFormat::parse("%d.%m.%Y %H:%M:%S%.3f").expect("valid");
+            let reader = TimeReader::new(&format);
+            let layout = reader.layout.as_ref().expect("a layout");
+            let text = format!("{day:02}.{month:02}.2026 {h:02}:{mi:02}:07.{ms:03}");
+            let read = Layout::read(layout, &text).expect("fits");
+            prop_assert_eq!(
+                read,
+                NaiveDateTime::parse_from_str(&text, "%d.%m.%Y %H:%M:%S%.3f").expect("chrono")
+            );
         }
     }
 
