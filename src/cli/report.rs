@@ -260,7 +260,12 @@ pub fn run(args: &ReportArgs) -> Result<ExitCode, CliError> {
         // Nothing reads the summary: its accumulators are not fed.
         sink = sink.csv_alone();
     }
-    let setup = config.monitor_setup(lc.rules);
+    let mut setup = config.monitor_setup(lc.rules);
+    if csv_alone {
+        // Of the alarms, only whether a trip was active is given (the
+        // exit status).
+        setup = setup.trips_only();
+    }
     let outcome = walk(
         &args.logs,
         config.log.as_ref(),

@@ -223,7 +223,11 @@ impl CsvOut {
 
     /// The index of gauge `name` (given once, the first time).
     pub fn gauge(&mut self, name: &str) -> usize {
-        if let Some(i) = self.names.iter().position(|n| n == name) {
+        if let Some(i) = self
+            .names
+            .iter()
+            .position(|n| crate::sample::same_id(n, name))
+        {
             return i;
         }
         self.names.push(name.to_string());

@@ -215,8 +215,8 @@ impl ReportSink {
         let cells = lengths.iter().enumerate().map(|(i, l)| {
             // The engine gives the lengths in the setup's order.
             let d = derived.and_then(|d| match d.lengths.get(i) {
-                Some(x) if x.name == l.name => Some(x),
-                _ => d.lengths.iter().find(|x| x.name == l.name),
+                Some(x) if same_id(&x.name, &l.name) => Some(x),
+                _ => d.lengths.iter().find(|x| same_id(&x.name, &l.name)),
             });
             d.map(|d| (d.knudsen, d.regime.as_str()))
         });
@@ -1013,6 +1013,55 @@ mod tests {
             Some((t("2026-11-16T06:00:05Z"), t("2026-11-16T06:00:12Z")))
         );
         let _ = std::fs::remove_dir_all(&dir);
+    }
+
+    /// A report of the readings alone, with the setup cut to its trips
+    /// ([`MonitorSetup::trips_only`]), writes the same CSV and sees a trip
+    /// exactly when the whole setup does: with notice and warning rules and
+    /// a gate, with trip rules among them, and with bad-input alarms that
+    /// are trips.
+    #[test]
+    fn a_csv_alone_with_the_trips_only_is_the_same() {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+        let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
+        let whole = cfg.monitor_setup(Vec::new());
+        assert!(!whole.rules.is_empty() && !whole.gates.is_empty());
+        let mut trips = whole.clone();
+        for r in trips.rules.iter_mut().step_by(2) {
+            r.rule.severity = crate::alarm::Severity::Trip;
+        }
+        let mut inputs = whole.clone();
+        inputs.input_severity = crate::alarm::Severity::Trip;
+        let logs: Vec<PathBuf> = ["pumpdown", "process", "leak-check", "bakeout", "demo"]
+            .iter()
+            .map(|n| root.join(format!("sample-logs/{n}.csv")))
+            .collect();
+        let mut tripped = 0;
+        for setup in [whole, trips, inputs] {
+            for log in &logs {
+                let run = |setup: &MonitorSetup| {
+                    let csv = crate::pipeline::csv_out::tests::Shared::default();
+                    let mut sink =
+                        ReportSink::new(ReportOptions::default(), Some(Box::new(csv.clone())))
+                            .csv_alone();
+                    let files = std::slice::from_ref(log);
+                    let out = walk_with(
+                        files,
+                        None,
+                        setup,
+                        &cfg.gases,
+                        &mut sink,
+                        ReadMode::SameThread,
+                    );
+                    (format!("{out:?}"), csv.text(), out.trip_seen)
+                };
+                let (out, csv, trip) = run(&setup);
+                let lean = setup.clone().trips_only();
+                assert_eq!(run(&lean), (out, csv, trip), "{log:?}");
+                tripped += usize::from(trip);
+            }
+        }
+        assert!(tripped >= 2, "trips seen in {tripped} runs");
     }
 
     #[test]

@@ -200,6 +200,31 @@ fn argon_step() -> super::gas_step::GasStep {
     }
 }
 
+/// A gas step whose conditions read a rate of change fits the rates by
+/// itself: with no rule or gate reading one, a steady pressure in its band
+/// still puts its gas in force.
+#[test]
+fn a_gas_step_on_a_rate_fits_the_rates_itself() {
+    let mut s = setup(&gas("N2"));
+    let mut step = argon_step();
+    step.when = [
+        "cdg pressure above 4e-3 mbar",
+        "cdg rate_of_change below 1e-5 mbar/s",
+        "cdg rate_of_change above -1e-5 mbar/s",
+    ]
+    .iter()
+    .map(|c| syntax::condition(c, &|_| None).expect("cond"))
+    .collect();
+    s.gas_steps = vec![step];
+    assert!(s.rules.is_empty() && s.gates.is_empty());
+    let mut m = Monitor::new(s);
+    for i in 0..30 {
+        m.push(&row(f64::from(i), Ok(5e-3), 2.81e-3, Err(Fault::SensorOff)));
+    }
+    assert!(m.track("cdg").expect("cdg").dpdt.is_some(), "rates fitted");
+    assert_eq!(m.gas().0.label(), "Ar");
+}
+
 /// A step on the capacitance gauge puts Ar in force at the row where it
 /// holds: the combined gauge above its crossover has no thermal factor for
 /// Ar, so it is uncorrectable and the chamber pressure falls back to the

@@ -84,6 +84,22 @@ pub struct MonitorSetup {
     pub temperature_unit: TemperatureUnit,
 }
 
+impl MonitorSetup {
+    /// The setup for a run that wants of the alarms only whether a trip was
+    /// active (a report of the readings alone, whose events nobody reads):
+    /// the rules that are not trips and the gates go, since neither the
+    /// readings, their kinetics, the gas steps nor the chamber pressure
+    /// depend on them. Unchanged when the bad-input alarms are trips: which
+    /// gauges they watch follows from the rules and gates.
+    pub fn trips_only(mut self) -> MonitorSetup {
+        if self.input_severity != Severity::Trip {
+            self.rules.retain(|r| r.rule.severity == Severity::Trip);
+            self.gates.clear();
+        }
+        self
+    }
+}
+
 /// What the monitor knows of one channel.
 #[derive(Debug, Clone)]
 pub struct GaugeTrack {
@@ -479,12 +495,18 @@ impl Monitor {
                 .any(|r| r.rule.severity == Severity::Trip);
         let is_rate =
             |q: &Quantity| matches!(q, Quantity::RateOfChange | Quantity::DecadesPerMinute);
+        // Every reader of a rate: rules, their enable conditions, gates and
+        // gas steps (a step on a steady pressure, say).
         let fit_rates = setup.rules.iter().any(|r| {
             is_rate(&r.rule.quantity) || r.enable.as_ref().is_some_and(|c| is_rate(&c.quantity))
         }) || setup
             .gates
             .iter()
-            .any(|g| g.conditions.iter().any(|c| is_rate(&c.quantity)));
+            .any(|g| g.conditions.iter().any(|c| is_rate(&c.quantity)))
+            || setup
+                .gas_steps
+                .iter()
+                .any(|g| g.when.iter().any(|c| is_rate(&c.quantity)));
         Monitor {
             has_trips,
             fit_rates,
