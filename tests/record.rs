@@ -59,6 +59,27 @@ fn wait(child: &mut Child, limit: Duration) -> std::process::ExitStatus {
     }
 }
 
+/// `rarefy record ARGS --out DIR` fed `input` on stdin to its end.
+fn record_piped(args: &[&str], dir: &Path, input: &[u8]) -> std::process::Output {
+    let mut child = Command::new(bin())
+        .arg("record")
+        .args(args)
+        .arg("--out")
+        .arg(dir)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    child
+        .stdin
+        .take()
+        .expect("stdin")
+        .write_all(input)
+        .expect("write");
+    child.wait_with_output().expect("wait")
+}
+
 #[test]
 fn stdin_n_lines_give_exactly_n_rows() {
     let dir = tempdir("stdin");
@@ -110,21 +131,7 @@ fn stdin_n_lines_give_exactly_n_rows() {
 #[test]
 fn unparsed_lines_are_counted_and_reported_not_dropped() {
     let dir = tempdir("unparsed");
-    let mut child = Command::new(bin())
-        .args(["record", "--out"])
-        .arg(&dir)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("spawn");
-    child
-        .stdin
-        .take()
-        .expect("stdin")
-        .write_all(b"1e-6\n\x1b[31mjunk\xff\n2e-6\n")
-        .expect("write");
-    let out = child.wait_with_output().expect("wait");
+    let out = record_piped(&[], &dir, b"1e-6\n\x1b[31mjunk\xff\n2e-6\n");
     assert_eq!(out.status.code(), Some(0));
     assert_eq!(rows(&dir).len(), 2);
     let stdout = String::from_utf8_lossy(&out.stdout);
@@ -148,26 +155,11 @@ fn unparsed_lines_are_counted_and_reported_not_dropped() {
 #[test]
 fn a_pressure_not_above_zero_is_recorded_and_said_once_a_stretch() {
     let dir = tempdir("zero");
-    let mut child = Command::new(bin())
-        .args([
-            "record",
-            "--source",
-            "stdin:?channel=chamber&unit=mbar",
-            "--out",
-        ])
-        .arg(&dir)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("spawn");
-    child
-        .stdin
-        .take()
-        .expect("stdin")
-        .write_all(b"1e-6\n-2e-8\n-1e-8\n3e-6\n0\n")
-        .expect("write");
-    let out = child.wait_with_output().expect("wait");
+    let out = record_piped(
+        &["--source", "stdin:?channel=chamber&unit=mbar"],
+        &dir,
+        b"1e-6\n-2e-8\n-1e-8\n3e-6\n0\n",
+    );
     assert_eq!(out.status.code(), Some(0));
     let cells: Vec<String> = rows(&dir)
         .iter()

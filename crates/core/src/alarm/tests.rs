@@ -1105,7 +1105,7 @@ mod deadline_floor {
     use proptest::prelude::*;
 
     #[derive(Debug, Clone)]
-    enum Step {
+    pub(super) enum Step {
         /// A row `dt` ms after the last (negative: time went back) on a
         /// channel (0: g, 1: h) with a value (None: a sensor error).
         Row(i64, u8, Option<f64>),
@@ -1115,11 +1115,10 @@ mod deadline_floor {
         Threshold(f64),
     }
 
-    fn step() -> impl Strategy<Value = Step> {
-        let value = prop_oneof![
-            8 => (-7.0f64..0.0).prop_map(|e| Some(10f64.powf(e))),
-            1 => Just(None),
-        ];
+    /// Rows with values from `value`, ticks and operator actions.
+    pub(super) fn steps(
+        value: impl Strategy<Value = Option<f64>> + Clone + 'static,
+    ) -> impl Strategy<Value = Step> {
         let dt = prop_oneof![
             10 => 0i64..400,
             1 => 400i64..25_000,
@@ -1132,6 +1131,13 @@ mod deadline_floor {
             1 => (1u8..20).prop_map(Step::Shelve),
             1 => (-6.0f64..-1.0).prop_map(|e| Step::Threshold(10f64.powf(e))),
         ]
+    }
+
+    fn step() -> impl Strategy<Value = Step> {
+        steps(prop_oneof![
+            8 => (-7.0f64..0.0).prop_map(|e| Some(10f64.powf(e))),
+            1 => Just(None),
+        ])
     }
 
     fn no_gate_setup() -> MonitorSetup {
@@ -1220,6 +1226,7 @@ mod bands {
     //! going back), ticks and operator actions must leave the monitor as
     //! taking every rule at every evaluation does: the same events, and the
     //! same state down to each rule's last value.
+    use super::deadline_floor::{Step, steps};
     use super::*;
     use proptest::prelude::*;
 
@@ -1276,39 +1283,18 @@ mod bands {
         v
     }
 
-    #[derive(Debug, Clone)]
-    enum Step {
-        /// A row `dt` ms after the last on a channel (0: g, 1: h) with a
-        /// pressure in Pa (None: a sensor error).
-        Row(i64, u8, Option<f64>),
-        Tick(i64),
-        Acknowledge,
-        Shelve(u8),
-        Threshold(f64),
-    }
-
+    /// Rows with pressures in Pa: anywhere over seven decades, on or one
+    /// step beside a threshold or clear level, or a sensor error.
     fn step() -> impl Strategy<Value = Step> {
         let edge = (0..edges().len(), -1i64..=1).prop_map(|(i, ulps)| {
             let e = edges()[i];
             Some(f64::from_bits(e.to_bits().wrapping_add_signed(ulps)))
         });
-        let value = prop_oneof![
+        steps(prop_oneof![
             6 => (-6.0f64..1.0).prop_map(|e| Some(10f64.powf(e))),
             4 => edge,
             1 => Just(None),
-        ];
-        let dt = prop_oneof![
-            10 => 0i64..400,
-            1 => 400i64..25_000,
-            1 => -3_000i64..0,
-        ];
-        prop_oneof![
-            20 => (dt, 0u8..2, value).prop_map(|(d, c, v)| Step::Row(d, c, v)),
-            2 => (0i64..15_000).prop_map(Step::Tick),
-            1 => Just(Step::Acknowledge),
-            1 => (1u8..20).prop_map(Step::Shelve),
-            1 => (-6.0f64..-1.0).prop_map(|e| Step::Threshold(10f64.powf(e))),
-        ]
+        ])
     }
 
     proptest! {
