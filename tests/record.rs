@@ -367,27 +367,15 @@ fn with_no_source_a_terminal_on_stdin_is_refused_not_read() {
 #[test]
 fn a_log_row_with_a_bad_cell_is_one_row_not_also_an_unparsed_line() {
     let dir = tempdir("badcell");
-    let mut child = Command::new(bin())
-        .args(["record", "--source", "stdin:", "--out"])
-        .arg(&dir)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("spawn");
-    child
-        .stdin
-        .take()
-        .expect("stdin")
-        .write_all(
-            b"# rarefy log v1\ntime,a [mbar],b [mbar]\n\
-              2026-01-01T00:00:01.000Z,1e-6,2e-6\n\
-              2026-01-01T00:00:02.000Z,1.5e-6,1.2.3\n\
-              2026-01-01T00:00:02.000Z,1.4e-6,2e-6\n\
-              2026-01-01T00:00:01.500Z,1.3e-6,2e-6\n",
-        )
-        .expect("write");
-    let out = child.wait_with_output().expect("wait");
+    let out = record_piped(
+        &["--source", "stdin:"],
+        &dir,
+        b"# rarefy log v1\ntime,a [mbar],b [mbar]\n\
+          2026-01-01T00:00:01.000Z,1e-6,2e-6\n\
+          2026-01-01T00:00:02.000Z,1.5e-6,1.2.3\n\
+          2026-01-01T00:00:02.000Z,1.4e-6,2e-6\n\
+          2026-01-01T00:00:01.500Z,1.3e-6,2e-6\n",
+    );
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(0), "{stderr}");
     let rows = rows(&dir);
