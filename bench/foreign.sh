@@ -10,21 +10,23 @@
 #
 #   bash bench/foreign.sh                 # ROWS=1e6 RUNS=3
 #   ROWS=1e5 RUNS=1 bash bench/foreign.sh
+#   RAREFY_BIN=target/debug/rarefy ROWS=2e4 RUNS=1 bash bench/foreign.sh   # CI's smoke run
 set -euo pipefail
 ROWS=${ROWS:-1e6}
 RUNS=${RUNS:-3}
 here=$(cd "$(dirname "$0")/.." && pwd)
 target=${CARGO_TARGET_DIR:-$here/target}
 BIN=${RAREFY_BIN:-$target/release/rarefy}
-GEN=$target/release/rarefy-bench-gen
+GEN=${RAREFY_GEN:-$target/release/rarefy-bench-gen}
 [ -x "$BIN" ] || (cd "$here" && cargo build --release -p rarefy)
-[ -x "$GEN" ] || (cd "$here" && cargo build --release -p rarefy-bench-gen)
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 v1="$here/bench/data/log-$ROWS.csv"
-if [ ! -f "$v1" ]; then
+if [ ! -s "$v1" ]; then
+    [ -x "$GEN" ] || (cd "$here" && cargo build --release -p rarefy-bench-gen)
     mkdir -p "$here/bench/data"
-    "$GEN" --rows "$ROWS" --out "$v1"
+    rows=$(python3 -c "import sys; print(int(float(sys.argv[1])))" "$ROWS")
+    "$GEN" --rows "$rows" --out "$v1"
 fi
 python3 - "$v1" "$work/export.csv" <<'PY'
 import sys
