@@ -17,7 +17,7 @@ use chrono::{DateTime, Utc};
 use super::Decoder;
 use super::plain::PlainDecoder;
 use crate::log::LogReader;
-use crate::sample::{ChannelInfo, SourceEvent, escape_bytes};
+use crate::sample::{ChannelInfo, SourceEvent, Status, escape_bytes};
 
 /// The v1 part: the header lines seen so far, then the data rows.
 #[derive(Default)]
@@ -39,6 +39,9 @@ struct V1 {
     /// The reader of the header, once complete: each row is read by it
     /// (the header is parsed once, not again for every row).
     reader: Option<Box<LogReader<Cursor<Vec<u8>>>>>,
+    /// Pressures not above zero, said once for each stretch of a channel
+    /// (the reader notes every such row).
+    zero: super::ZeroNotes,
 }
 
 impl V1 {
@@ -157,7 +160,10 @@ impl Decoder for AutoDecoder {
         match parsed {
             Ok(Some(Ok(row))) => {
                 let time = row.time;
+                let mut notes = Vec::new();
+                v1.zero.check(&row.samples, source, &mut notes);
                 let mut out = crate::log::row_events(row, &mut v1.gas);
+                out.extend(notes);
                 out.extend(v1.order(source, line_no, time));
                 out
             }
@@ -172,16 +178,25 @@ impl Decoder for AutoDecoder {
                     );
                 };
                 // A row: its good cells, its bad ones as `unparsed` readings,
-                // and where they are — counted as a row, not as unparsed.
+                // and where they are — counted as a row, not as unparsed. A
+                // row whose only news is a pressure not above zero (kept as
+                // read) is said once for each stretch of such readings.
                 let time = row.time;
+                let mut notes = Vec::new();
+                v1.zero.check(&row.samples, source, &mut notes);
+                let zero_only = row.samples.iter().all(|s| s.status() != Status::Unparsed);
                 let mut out = crate::log::row_events(*row, &mut v1.gas);
-                out.push(SourceEvent::Error {
-                    source: source.to_string(),
-                    message: format!(
-                        "log line {line_no}, cell {}: {msg}; recorded as unparsed",
-                        e.column.unwrap_or(1)
-                    ),
-                });
+                if zero_only {
+                    out.extend(notes);
+                } else {
+                    out.push(SourceEvent::Error {
+                        source: source.to_string(),
+                        message: format!(
+                            "log line {line_no}, cell {}: {msg}; recorded as unparsed",
+                            e.column.unwrap_or(1)
+                        ),
+                    });
+                }
                 out.extend(v1.order(source, line_no, time));
                 out
             }
@@ -237,6 +252,46 @@ mod tests {
             }
         }
         (samples, unparsed)
+    }
+
+    /// A followed log's pressure not above zero is kept as read and said
+    /// once for each stretch of a channel, not at every row; a row with a
+    /// bad cell is still said where it is.
+    #[test]
+    fn a_pressure_not_above_zero_is_said_once_a_stretch() {
+        let mut d = AutoDecoder::new(PlainDecoder::new(
+            "p",
+            ChannelUnit::Pressure(PressureUnit::Mbar),
+        ));
+        let (samples, said) = feed(
+            &mut d,
+            "# rarefy log v1\ntime,a [mbar],b [mbar]\n\
+             2026-01-01T00:00:01.000Z,-1e-6,1e-6\n\
+             2026-01-01T00:00:02.000Z,-2e-6,1e-6\n\
+             2026-01-01T00:00:03.000Z,1e-6,0\n\
+             2026-01-01T00:00:04.000Z,0,x\n",
+        );
+        assert_eq!(samples.len(), 8, "{samples:?}");
+        assert_eq!(samples[2].1, Some(-2e-6), "kept as read");
+        assert_eq!(samples[2].2, Status::Ok);
+        assert_eq!(said.len(), 3, "{said:?}");
+        assert!(
+            said[0].starts_with(
+                "error: a: pressure -1e-6 mbar at 2026-01-01T00:00:01.000Z is not above zero"
+            ),
+            "{said:?}"
+        );
+        assert!(
+            said[1].starts_with("error: b: pressure 0 mbar at 2026-01-01T00:00:03.000Z"),
+            "{said:?}"
+        );
+        // A bad cell in the row: said where it is, as before, with the
+        // pressure not above zero beside it.
+        assert!(
+            said[2].contains("log line 6, cell 2: pressure \"0\" mbar is not above zero")
+                && said[2].contains("(and 1 more bad cell in this row)"),
+            "{said:?}"
+        );
     }
 
     #[test]
