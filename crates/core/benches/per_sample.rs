@@ -8,6 +8,9 @@
 //! * `template`: one line through the live template decoder
 //!   (`parse::decoder`), 1 000 different lines an iteration;
 //! * `log-v1`: reading a 10 000-row log v1 from memory, per row;
+//! * `log-foreign`: the same rows as another logger's export (`;`,
+//!   decimal commas, local times in a named zone without an offset, status
+//!   words of its own) read through a `[log]` section, per row;
 //! * `monitor`: `alarm::Monitor::push` of one row of two gauges against six
 //!   rules (one a rate of change) and a gate, per row; in N2 without a
 //!   temperature channel, then with a wall temperature read to 0.1 °C (a few
@@ -382,5 +385,93 @@ fn monitor(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, engine, template, log, monitor);
+/// The rows of [`log_text`] as an invented logger's export: a preamble
+/// line, `;` between cells, decimal commas, `dd.mm.yyyy hh:mm:ss.fff` in
+/// Vienna's local time, its own status words.
+fn foreign_text(rows: usize) -> String {
+    let v1 = log_text(rows);
+    let mut s = String::from("Bench export;;;;\nDate/Time;CDG;Chamber;Ion;Wall\n");
+    for line in v1
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.starts_with("time"))
+    {
+        let mut cells = line.split(',');
+        let t = cells.next().expect("time");
+        s.push_str(&format!(
+            "{}.{}.{} {}",
+            &t[8..10],
+            &t[5..7],
+            &t[0..4],
+            &t[11..23]
+        ));
+        for c in cells {
+            s.push(';');
+            s.push_str(&match c {
+                "over-range" => "OR".to_string(),
+                "sensor-off" => "OFF".to_string(),
+                c => c.replace('.', ","),
+            });
+        }
+        s.push('\n');
+    }
+    s
+}
+
+fn log_foreign(c: &mut Criterion) {
+    use rarefy_core::log::foreign::{
+        ColumnRef, ForeignColumn, ForeignLogSpec, ForeignReader, TimeColumn,
+    };
+    use rarefy_core::timefmt::{TimeFormat, Zone};
+    const ROWS: usize = 10_000;
+    let text = foreign_text(ROWS);
+    let words = vec![
+        ("OR".to_string(), Fault::OverRange),
+        ("OFF".to_string(), Fault::SensorOff),
+    ];
+    let column = |name: &str, unit| ForeignColumn {
+        column: ColumnRef::Name(name.into()),
+        channel: name.to_lowercase(),
+        unit,
+        status: words.clone(),
+    };
+    let spec = ForeignLogSpec {
+        delimiter: ';',
+        decimal_comma: true,
+        skip_rows: 1,
+        header: true,
+        encoding: Default::default(),
+        time: TimeColumn {
+            column: ColumnRef::Name("Date/Time".into()),
+            format: TimeFormat::parse("%d.%m.%Y %H:%M:%S%.3f").expect("format"),
+            zone: Some(Zone::parse("Europe/Vienna").expect("zone")),
+        },
+        columns: vec![
+            column("CDG", MBAR),
+            column("Chamber", MBAR),
+            column("Ion", MBAR),
+            column("Wall", ChannelUnit::Temperature(TemperatureUnit::C)),
+        ],
+        notes: Vec::new(),
+        gas: None,
+    };
+    let mut g = c.benchmark_group("log-foreign");
+    quick(&mut g);
+    g.throughput(Throughput::Elements(ROWS as u64));
+    g.bench_function("read row (4 channels)", |b| {
+        b.iter(|| {
+            let reader =
+                ForeignReader::new(Cursor::new(black_box(text.as_bytes())), "bench.csv", &spec)
+                    .expect("header");
+            let mut samples = 0;
+            for row in reader {
+                samples += row.expect("row").samples.len();
+            }
+            assert_eq!(samples, ROWS * 4);
+            black_box(samples)
+        })
+    });
+    g.finish();
+}
+
+criterion_group!(benches, engine, template, log, log_foreign, monitor);
 criterion_main!(benches);
