@@ -33,7 +33,7 @@ import sys
 src, out = sys.argv[1], sys.argv[2]
 words = {"over-range": "HI", "under-range": "LO", "sensor-error": "ERR", "sensor-off": "OFF"}
 with open(src) as f, open(out, "w") as o:
-    o.write("Fenwick FL-8 export;;\nSite: Harrow Vale test bay;;\nInterval: 0.1 s;;\n")
+    o.write("Quillmere QL-8 export;;\nSite: bench rig B-3;;\nInterval: 0.1 s;;\n")
     o.write("Date/Time;P chamber [mbar];T wall [C]\n")
     for line in f:
         if line.startswith("#") or line.startswith("time"):

@@ -216,6 +216,17 @@ fn log_text(rows: usize) -> String {
     s
 }
 
+/// The samples of every row a reader gives (`want` of them, or the bench
+/// is wrong).
+fn samples_in(
+    rows: impl Iterator<Item = Result<rarefy_core::log::Row, rarefy_core::log::LogError>>,
+    want: usize,
+) -> usize {
+    let samples: usize = rows.map(|r| r.expect("row").samples.len()).sum();
+    assert_eq!(samples, want);
+    samples
+}
+
 fn log(c: &mut Criterion) {
     const ROWS: usize = 10_000;
     let text = log_text(ROWS);
@@ -226,12 +237,7 @@ fn log(c: &mut Criterion) {
         b.iter(|| {
             let reader = LogReader::new(Cursor::new(black_box(text.as_bytes())), "bench.csv")
                 .expect("header");
-            let mut samples = 0;
-            for row in reader {
-                samples += row.expect("row").samples.len();
-            }
-            assert_eq!(samples, ROWS * 4);
-            black_box(samples)
+            black_box(samples_in(reader, ROWS * 4))
         })
     });
     g.finish();
@@ -462,12 +468,7 @@ fn log_foreign(c: &mut Criterion) {
             let reader =
                 ForeignReader::new(Cursor::new(black_box(text.as_bytes())), "bench.csv", &spec)
                     .expect("header");
-            let mut samples = 0;
-            for row in reader {
-                samples += row.expect("row").samples.len();
-            }
-            assert_eq!(samples, ROWS * 4);
-            black_box(samples)
+            black_box(samples_in(reader, ROWS * 4))
         })
     });
     g.finish();

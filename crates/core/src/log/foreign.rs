@@ -574,23 +574,23 @@ fn unknown_unit(text: &str) -> String {
 /// `f` of `text` with its decimal commas made points, on the stack when it
 /// is short (a number cell), else in a new string.
 fn with_points<T>(text: &str, f: impl FnOnce(&str) -> T) -> T {
+    if !text.contains(',') {
+        return f(text);
+    }
     let mut room = [0u8; 64];
-    match room.get_mut(..text.len()) {
-        Some(room) if text.contains(',') => {
-            room.copy_from_slice(text.as_bytes());
-            for b in room.iter_mut() {
-                if *b == b',' {
-                    *b = b'.';
-                }
-            }
-            // An ASCII byte replaced by another: still UTF-8.
-            match std::str::from_utf8(room) {
-                Ok(t) => f(t),
-                Err(_) => f(&text.replace(',', ".")),
-            }
+    let Some(room) = room.get_mut(..text.len()) else {
+        return f(&text.replace(',', "."));
+    };
+    room.copy_from_slice(text.as_bytes());
+    for b in room.iter_mut() {
+        if *b == b',' {
+            *b = b'.';
         }
-        _ if text.contains(',') => f(&text.replace(',', ".")),
-        _ => f(text),
+    }
+    // An ASCII byte replaced by another: still UTF-8.
+    match std::str::from_utf8(room) {
+        Ok(t) => f(t),
+        Err(_) => f(&text.replace(',', ".")),
     }
 }
 

@@ -284,12 +284,12 @@ fn magic_line_problems() {
 #[test]
 fn metadata_is_read_and_problems_are_warnings() {
     let r = reader(
-        "# rarefy log v1\n# chamber: Fenwick A\n# volume: 85 L\n# surface_area: 1.6e0 m2\n\
+        "# rarefy log v1\n# chamber: Quillmere A\n# volume: 85 L\n# surface_area: 1.6e0 m2\n\
          # started: 2026-12-01T20:00:00+01:00\n# gas: N2\n# gas: Ar\n# just a comment\n\
          # custom key: with: colons\n#: nothing\n\ntime,a [mbar]\n",
     );
     let m = r.meta();
-    assert_eq!(m.chamber.as_deref(), Some("Fenwick A"));
+    assert_eq!(m.chamber.as_deref(), Some("Quillmere A"));
     assert_eq!(m.volume_m3, None);
     assert_eq!(m.surface_area_m2, Some(1.6));
     assert_eq!(m.started, Some(time("2026-12-01T19:00:00Z")));
