@@ -20,8 +20,9 @@ use crate::sample::Status;
 use rarefy_core::analysis::{Analyzer, SourceId};
 use rarefy_core::engine::gauge::GaugeKind;
 
-/// Messages per hand-over.
-const BATCH: usize = 1024;
+/// Messages per hand-over: as many as the rows of a read-ahead batch
+/// (`read_ahead::BATCH_ROWS`, which says why so many).
+const BATCH: usize = 4096;
 
 /// A gauge's source names in its analysis: its id, or for a combined gauge
 /// one per element (they step where they hand over, so no fit may span
