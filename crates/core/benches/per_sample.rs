@@ -16,7 +16,13 @@
 //!   temperature channel, then with a wall temperature read to 0.1 °C (a few
 //!   values recur, so the kinetics worked out per temperature are found
 //!   again) and with one that is new at every row (worked out again every
-//!   row), for N2 and for the three-gas mixture.
+//!   row), for N2 and for the three-gas mixture;
+//! * `numfmt`: one number of a CSV report's row written with the shortest
+//!   digits in exponent form (`numfmt::push_exp_bytes`), against zmij's
+//!   own text alone (the floor: `push_exp_bytes` lays it out again) and
+//!   std's `{:e}`, written into the same buffer; the numbers are what a row holds
+//!   (pressure, number density, mean free path, Knudsen number,
+//!   impingement rate, monolayer time) over a pump-down from 1e5 to 1e-8 Pa.
 //!
 //! The machine is shared and noisy: read the figures against each other in
 //! the same run rather than as absolute numbers.
@@ -474,5 +480,66 @@ fn log_foreign(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, engine, template, log, log_foreign, monitor);
+fn numfmt(c: &mut Criterion) {
+    use std::io::Write;
+    let table = GasTable::builtin();
+    let n2 = Mixture::pure(table.get("N2").expect("N2").clone());
+    let pre = Precomputed::new(295.15, &n2, &lengths(), &Physics::default());
+    let mut noise = Noise(11);
+    // The six numbers of a row, for 1024 pressures from 1e5 to 1e-8 Pa with
+    // a gauge's seven or eight digits (noise on every one).
+    let values: Vec<f64> = (0..1024)
+        .flat_map(|i| {
+            let p = 10f64.powf(5.0 - 13.0 * f64::from(i) / 1024.0) * (1.0 + 0.02 * noise.next());
+            let p: f64 = format!("{p:.7e}").parse().expect("p");
+            let d = pre.derive(p);
+            [
+                p,
+                d.number_density_per_m3,
+                d.mean_free_path_m,
+                d.lengths[0].knudsen,
+                d.impingement_per_m2_s,
+                d.monolayer_time_s,
+            ]
+        })
+        .collect();
+    let mut g = c.benchmark_group("numfmt");
+    quick(&mut g);
+    g.throughput(Throughput::Elements(values.len() as u64));
+    let mut out = Vec::with_capacity(64 * values.len());
+    g.bench_function("push_exp_bytes", |b| {
+        b.iter(|| {
+            out.clear();
+            for &v in &values {
+                rarefy_core::numfmt::push_exp_bytes(&mut out, black_box(v));
+                out.push(b',');
+            }
+            black_box(out.len())
+        })
+    });
+    g.bench_function("zmij alone", |b| {
+        b.iter(|| {
+            out.clear();
+            let mut buf = zmij::Buffer::new();
+            for &v in &values {
+                out.extend_from_slice(buf.format_finite(black_box(v)).as_bytes());
+                out.push(b',');
+            }
+            black_box(out.len())
+        })
+    });
+    g.bench_function("std {:e}", |b| {
+        b.iter(|| {
+            out.clear();
+            for &v in &values {
+                write!(out, "{:e}", black_box(v)).expect("write");
+                out.push(b',');
+            }
+            black_box(out.len())
+        })
+    });
+    g.finish();
+}
+
+criterion_group!(benches, engine, template, log, log_foreign, monitor, numfmt);
 criterion_main!(benches);
