@@ -227,6 +227,11 @@ struct CachedKinetics {
     /// Shared with the monitor's clones (a replay's keyframes, a frozen
     /// display): never changed once made.
     pre: std::sync::Arc<Precomputed>,
+    /// Worked out from the gas alone (`Precomputed::new`: a mixture's most
+    /// probable speed searched for), not scaled from another temperature.
+    /// Such an entry is the one other temperatures of its gas are scaled
+    /// from, and is kept when the cache is full.
+    base: bool,
 }
 
 /// A copy of a [`Monitor`] without its rate windows' points, which went to
@@ -1029,23 +1034,36 @@ impl Monitor {
         if let Some(i) = self.kinetics.iter().position(|k| k.key == key) {
             return Ok((p, i));
         }
-        // The same gas at another temperature scales what it can.
-        let same_gas = self
-            .kinetics
-            .iter()
-            .find(|k| k.key.own_gas_of == key.own_gas_of && k.key.generation == key.generation);
-        let pre = match same_gas {
-            Some(k) => k
-                .pre
-                .at_temperature(t, mixture, &self.setup.lengths, &self.setup.physics),
-            None => Precomputed::new(t, mixture, &self.setup.lengths, &self.setup.physics),
+        // The same gas at another temperature scales what it can, always
+        // from the gas's base (so that a temperature new at every row does
+        // not search a mixture's speed distribution again whenever the
+        // cache fills, and every temperature is scaled from the same one).
+        let base = self.kinetics.iter().find(|k| {
+            k.base && k.key.own_gas_of == key.own_gas_of && k.key.generation == key.generation
+        });
+        let (pre, is_base) = match base {
+            Some(k) => (
+                k.pre
+                    .at_temperature(t, mixture, &self.setup.lengths, &self.setup.physics),
+                false,
+            ),
+            None => (
+                Precomputed::new(t, mixture, &self.setup.lengths, &self.setup.physics),
+                true,
+            ),
         };
         if self.kinetics.len() >= KINETICS_CACHED {
-            self.kinetics.clear();
+            // Full: the bases stay (unless the gas has changed so often
+            // that they alone would fill half of it).
+            self.kinetics.retain(|k| k.base);
+            if self.kinetics.len() >= KINETICS_CACHED / 2 {
+                self.kinetics.clear();
+            }
         }
         self.kinetics.push(CachedKinetics {
             key,
             pre: std::sync::Arc::new(pre),
+            base: is_base,
         });
         Ok((p, self.kinetics.len() - 1))
     }
@@ -1263,6 +1281,17 @@ impl Monitor {
             track.window.push(ts, p, self.setup.rate_window_s);
             track.fit_rates();
         }
+    }
+
+    /// The temperatures of the kinetics worked out from the gas alone
+    /// (the bases the others are scaled from), in the cache's order.
+    #[cfg(test)]
+    pub(crate) fn kinetics_bases(&self) -> Vec<f64> {
+        self.kinetics
+            .iter()
+            .filter(|k| k.base)
+            .map(|k| f64::from_bits(k.key.temperature_bits))
+            .collect()
     }
 
     /// Where the chamber pressure of quantity `q` comes from at the

@@ -478,6 +478,42 @@ fn monitor_derives_kinetics_with_gauge_correction() {
     assert!((track.derived.as_ref().expect("kinetics").mean_free_path_m - expect).abs() < 1e-12);
 }
 
+/// A mixture's most probable speed is a numerical search; at a new
+/// temperature the monitor scales it from the gas's first (√T). With a
+/// temperature new at every row, the cache fills; the base must stay, or
+/// every sixteenth row searches again and the rows after it are scaled
+/// from another temperature.
+#[test]
+fn a_mixture_is_searched_once_however_many_temperatures_come() {
+    let table = GasTable::builtin();
+    let mix = Mixture::parse("Ar=0.9,N2=0.08,H2O=0.02", &table).expect("mixture");
+    let mut s = setup(vec![], vec![]);
+    s.mixture = mix.clone();
+    let lengths = s.lengths.clone();
+    let physics = s.physics;
+    let mut m = Monitor::new(s);
+    let celsius = ChannelUnit::Temperature(TemperatureUnit::C);
+    let wall = |i: usize| 20.0 + 0.013 * i as f64;
+    for i in 0..40 {
+        m.push(&[
+            Sample::ok(t(i as f64), "wall", wall(i), celsius),
+            Sample::ok(t(i as f64), "g", 1e-3, MBAR),
+        ]);
+    }
+    let base = crate::engine::Precomputed::new(celsius.to_si(wall(0)), &mix, &lengths, &physics);
+    let want = base
+        .at_temperature(celsius.to_si(wall(39)), &mix, &lengths, &physics)
+        .derive(0.1)
+        .most_probable_speed_m_per_s;
+    let got = m
+        .track("g")
+        .and_then(|t| t.derived.as_ref())
+        .expect("kinetics");
+    assert_eq!(got.most_probable_speed_m_per_s.to_bits(), want.to_bits());
+    // Searched once: at the first temperature, still kept.
+    assert_eq!(m.kinetics_bases(), vec![celsius.to_si(wall(0))]);
+}
+
 #[test]
 fn monitor_rate_of_change_and_exposure() {
     let mut r = rule(Test::Above(0.5));
