@@ -29,16 +29,24 @@ pub struct Saturation {
 /// has no correlation here or `t_k` is outside its validity (above the
 /// critical point nothing condenses).
 pub fn saturation(gas_id: &str, t_k: f64) -> Option<Saturation> {
-    match gas_id {
-        "H2O" if (TT_K..=TC_K).contains(&t_k) => Some(Saturation {
+    // Each equation stays behind its tests: the optimiser, which takes
+    // `powf` and `exp` for free of side effects, had worked both of them
+    // out for every gas and temperature and picked one afterwards (a third
+    // of the kinetics' cost at a new temperature). Hence `inline(never)`.
+    if gas_id != "H2O" {
+        None
+    } else if (TT_K..=TC_K).contains(&t_k) {
+        Some(Saturation {
             pressure_pa: water_liquid(t_k),
             source: "Wagner & Pruss (1993) saturation equation, IAPWS",
-        }),
-        "H2O" if (SUBLIMATION_MIN_K..TT_K).contains(&t_k) => Some(Saturation {
+        })
+    } else if (SUBLIMATION_MIN_K..TT_K).contains(&t_k) {
+        Some(Saturation {
             pressure_pa: water_ice(t_k),
             source: "IAPWS 2011 sublimation equation of ice Ih",
-        }),
-        _ => None,
+        })
+    } else {
+        None
     }
 }
 
@@ -50,6 +58,7 @@ pub fn saturation(gas_id: &str, t_k: f64) -> Option<Saturation> {
 // the international temperature scale of 1990", J. Phys. Chem. Ref. Data 22
 // (1993) 783; IAPWS supplementary release (1992). Valid from the triple
 // point to the critical point.
+#[inline(never)]
 fn water_liquid(t_k: f64) -> f64 {
     const A: [f64; 6] = [
         -7.859_517_83,
@@ -75,6 +84,7 @@ fn water_liquid(t_k: f64) -> f64 {
 // equations for the sublimation pressure and melting pressure of H2O ice
 // Ih", J. Phys. Chem. Ref. Data 40 (2011) 043103; IAPWS revised release
 // on the pressure along the melting and sublimation curves (2011).
+#[inline(never)]
 fn water_ice(t_k: f64) -> f64 {
     const A: [f64; 3] = [-0.212_144_006e2, 0.273_203_819e2, -0.610_598_130e1];
     const B: [f64; 3] = [0.333_333_333e-2, 0.120_666_667e1, 0.170_333_333e1];
