@@ -360,6 +360,20 @@ pub fn diameter(gas: &Gas, model: Model, t_k: f64, warnings: &mut Vec<Warning>) 
     }
 }
 
+/// `n` pairs, in `small` when they fit, else in `large`.
+fn slots<'a>(
+    small: &'a mut [(f64, f64); 8],
+    large: &'a mut Vec<(f64, f64)>,
+    n: usize,
+) -> &'a mut [(f64, f64)] {
+    if n <= small.len() {
+        &mut small[..n]
+    } else {
+        large.resize(n, (0.0, 0.0));
+        large
+    }
+}
+
 /// Derives every quantity for a gas or mixture in the given state.
 ///
 /// Mixtures (per species i, over species j):
@@ -436,14 +450,19 @@ impl Precomputed {
         let mut warnings = Vec::new();
         let n_unit = kinetics::number_density(1.0, t);
         let comps = mixture.components();
-        let masses: Vec<f64> = comps
-            .iter()
-            .map(|c| molecular_mass(c.gas.molar_mass_g_mol))
-            .collect();
-        let diameters: Vec<f64> = comps
-            .iter()
-            .map(|c| diameter(&c.gas, physics.model, t, &mut warnings))
-            .collect();
+        // Per species, on the stack for up to eight (worked out again at
+        // every new temperature a monitor meets).
+        let (mut small, mut large) = ([(0.0, 0.0); 8], Vec::new());
+        let per_species = slots(&mut small, &mut large, comps.len());
+        for (slot, c) in per_species.iter_mut().zip(comps) {
+            *slot = (
+                molecular_mass(c.gas.molar_mass_g_mol),
+                diameter(&c.gas, physics.model, t, &mut warnings),
+            );
+        }
+        let per_species = &*per_species;
+        let mass = |i: usize| per_species[i].0;
+        let dia = |i: usize| per_species[i].1;
         let mut saturation = Vec::new();
         let mut species = Vec::with_capacity(comps.len());
         for (i, c) in comps.iter().enumerate() {
@@ -451,26 +470,26 @@ impl Precomputed {
                 .iter()
                 .enumerate()
                 .map(|(j, cj)| {
-                    let d_ij = 0.5 * (diameters[i] + diameters[j]);
+                    let d_ij = 0.5 * (dia(i) + dia(j));
                     n_unit
                         * cj.fraction
                         * std::f64::consts::PI
                         * d_ij
                         * d_ij
-                        * (1.0 + masses[i] / masses[j]).sqrt()
+                        * (1.0 + mass(i) / mass(j)).sqrt()
                 })
                 .sum();
             if let Some(sat) = vapour::saturation(&c.gas.id, t) {
                 saturation.push((i, c.gas.id.clone(), sat.pressure_pa, sat.source));
             }
-            let phi = kinetics::impingement_rate(c.fraction, t, masses[i]);
+            let phi = kinetics::impingement_rate(c.fraction, t, mass(i));
             species.push(SpeciesDerived {
                 gas: c.gas.id.clone(),
                 fraction: c.fraction,
                 partial_pressure_pa: c.fraction,
                 number_density_per_m3: n_unit * c.fraction,
-                mean_speed_m_per_s: kinetics::mean_speed(t, masses[i]),
-                diameter_m: diameters[i],
+                mean_speed_m_per_s: kinetics::mean_speed(t, mass(i)),
+                diameter_m: dia(i),
                 mean_free_path_m: 1.0 / inv_mfp,
                 impingement_per_m2_s: phi,
                 monolayer_time_s: kinetics::monolayer_time(
@@ -489,12 +508,7 @@ impl Precomputed {
         };
         let mean_free_path_m = weighted(&|_, s| s.mean_free_path_m);
         let mean_speed = weighted(&|_, s| s.mean_speed_m_per_s);
-        let by_number: Vec<(f64, f64)> = comps
-            .iter()
-            .zip(&masses)
-            .map(|(c, &m)| (c.fraction, m))
-            .collect();
-        let rms_sq = weighted(&|i, _| kinetics::rms_speed(t, masses[i]).powi(2));
+        let rms_sq = weighted(&|i, _| kinetics::rms_speed(t, mass(i)).powi(2));
         let impingement: f64 = species.iter().map(|s| s.impingement_per_m2_s).sum();
         let lengths = lengths
             .iter()
@@ -515,7 +529,15 @@ impl Precomputed {
                 most_probable_speed_m_per_s: match mode {
                     // A pure gas's mode is a closed form: no need to scale.
                     Some(m) if comps.len() > 1 => m,
-                    _ => kinetics::mixture_most_probable_speed(t, &by_number),
+                    _ => {
+                        // (number fraction, mass), on the stack as above.
+                        let (mut small, mut large) = ([(0.0, 0.0); 8], Vec::new());
+                        let by_number = slots(&mut small, &mut large, comps.len());
+                        for (i, (slot, c)) in by_number.iter_mut().zip(comps).enumerate() {
+                            *slot = (c.fraction, mass(i));
+                        }
+                        kinetics::mixture_most_probable_speed(t, by_number)
+                    }
                 },
                 rms_speed_m_per_s: rms_sq.sqrt(),
                 mean_free_path_m,

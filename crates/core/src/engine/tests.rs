@@ -211,6 +211,42 @@ fn mixture_uses_species_collision_sums() {
     assert!(d.species[0].mean_free_path_m > d.species[1].mean_free_path_m);
 }
 
+/// More species than the per-species values keep on the stack (eight):
+/// each species still gets its own mass and diameter, as alone. Not a
+/// check against an outside value: the same code path for large mixtures.
+#[test]
+fn a_mixture_of_ten_gases_keeps_each_species_own_values() {
+    let table = GasTable::builtin();
+    let ids = ["N2", "O2", "Ar", "He", "H2", "H2O", "CO2", "CO", "Ne", "Kr"];
+    let spec: Vec<String> = ids.iter().map(|id| format!("{id}=0.1")).collect();
+    let mix = Mixture::parse(&spec.join(","), &table).expect("mix");
+    let d = derive(
+        &Conditions::new(1e-3, 295.0),
+        &mix,
+        &[],
+        &Physics::default(),
+    );
+    assert_eq!(d.species.len(), ids.len());
+    for (s, id) in d.species.iter().zip(ids) {
+        let alone = at(1e-3, 295.0, id);
+        assert_eq!(s.gas, id);
+        assert_eq!(
+            s.mean_speed_m_per_s.to_bits(),
+            alone.mean_speed_m_per_s.to_bits(),
+            "{id}"
+        );
+        assert_eq!(
+            s.diameter_m.to_bits(),
+            alone.species[0].diameter_m.to_bits(),
+            "{id}"
+        );
+    }
+    // The mode lies between the lightest and the heaviest species' modes.
+    let (h2, kr) = (at(1.0, 295.0, "H2"), at(1.0, 295.0, "Kr"));
+    assert!(d.most_probable_speed_m_per_s < h2.most_probable_speed_m_per_s);
+    assert!(d.most_probable_speed_m_per_s > kr.most_probable_speed_m_per_s);
+}
+
 #[test]
 fn warnings_flag_temperatures_outside_the_fit() {
     let d = at(1.0, 77.0, "N2");
