@@ -2,6 +2,8 @@
 //! log, `--exit-on-trip`, one-off `--alarm`s, `gate wait`, and commands run
 //! on events (received, failing, hanging).
 
+mod common;
+
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 use std::time::{Duration, Instant};
@@ -288,25 +290,13 @@ fn action_config(dir: &Path, command: &str, timeout: &str) -> PathBuf {
 }
 
 fn record_stdin(config: &Path, out: &Path, input: &str) -> (Output, Duration) {
-    use std::io::Write;
     let start = Instant::now();
-    let mut child = Command::new(env!("CARGO_BIN_EXE_rarefy"))
-        .args(["record", "--source", "stdin:?channel=p", "--config"])
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_rarefy"));
+    cmd.args(["record", "--source", "stdin:?channel=p", "--config"])
         .arg(config)
         .arg("--out")
-        .arg(out)
-        .stdin(std::process::Stdio::piped())
-        .stdout(std::process::Stdio::piped())
-        .stderr(std::process::Stdio::piped())
-        .spawn()
-        .expect("spawn");
-    child
-        .stdin
-        .take()
-        .expect("stdin")
-        .write_all(input.as_bytes())
-        .expect("write");
-    let o = child.wait_with_output().expect("wait");
+        .arg(out);
+    let o = common::run_piped(cmd, input.as_bytes());
     (o, start.elapsed())
 }
 

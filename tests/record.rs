@@ -1,6 +1,8 @@
 //! The real `rarefy record` binary: exact row counts, SIGTERM in the middle,
 //! and a file-size limit.
 
+mod common;
+
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
@@ -61,23 +63,9 @@ fn wait(child: &mut Child, limit: Duration) -> std::process::ExitStatus {
 
 /// `rarefy record ARGS --out DIR` fed `input` on stdin to its end.
 fn record_piped(args: &[&str], dir: &Path, input: &[u8]) -> std::process::Output {
-    let mut child = Command::new(bin())
-        .arg("record")
-        .args(args)
-        .arg("--out")
-        .arg(dir)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("spawn");
-    child
-        .stdin
-        .take()
-        .expect("stdin")
-        .write_all(input)
-        .expect("write");
-    child.wait_with_output().expect("wait")
+    let mut cmd = Command::new(bin());
+    cmd.arg("record").args(args).arg("--out").arg(dir);
+    common::run_piped(cmd, input)
 }
 
 #[test]

@@ -481,8 +481,8 @@ fn monitor_derives_kinetics_with_gauge_correction() {
 /// A mixture's most probable speed is a numerical search; at a new
 /// temperature the monitor scales it from the gas's first (√T). With a
 /// temperature new at every row, the cache fills; the base must stay, or
-/// every sixteenth row searches again and the rows after it are scaled
-/// from another temperature.
+/// every sixteenth row searches again (the values stay the same either
+/// way: the first check holds for both, the second tells them apart).
 #[test]
 fn a_mixture_is_searched_once_however_many_temperatures_come() {
     let table = GasTable::builtin();
