@@ -24,8 +24,12 @@ use crate::log::{ForeignLogSpec, LogError, LogSource};
 use crate::logfile::open_log;
 use crate::report::{GaugeAccumulator, GaugeSummary, Observation, Threshold, Unusable};
 use crate::sample::{SourceEvent, Status};
+use rarefy_core::alarm::monitor::GaugeTrack;
 use rarefy_core::analysis::{Analysis, AnalysisOptions, Analyzer, PumpDownOptions, RiseOptions};
 use rarefy_core::engine::gauge::GaugeKind;
+use rarefy_core::engine::regime::{VacuumRange, knudsen};
+use rarefy_core::engine::{Derived, LengthDerived, Precomputed, SteadyBand};
+use std::sync::Arc;
 
 /// How many reader messages a report keeps to show (all are counted).
 pub const MESSAGES_KEPT: usize = 50;
@@ -94,6 +98,81 @@ pub struct ReportSink {
     /// The earliest of the gauges' first readings counted and the latest
     /// reading counted.
     span: Option<(DateTime<Utc>, DateTime<Utc>)>,
+    /// Buffers for a reading's kinetics, reused (boxed: lent out for
+    /// each row by moving a pointer).
+    scratch: Option<Box<Scratch>>,
+}
+
+/// The [`ReportSink`]'s buffers for a reading's kinetics.
+#[derive(Default)]
+struct Scratch {
+    /// All of it, for the CSV.
+    derived: Option<Derived>,
+    /// Per gauge (by index), the range and per-length results alone, for
+    /// the summary when no CSV wants the rest.
+    steady: Vec<Option<Steady>>,
+}
+
+/// A gauge's range and per-length results for the summary, kept while its
+/// readings stay where they cannot change: at most readings only the
+/// Knudsen numbers are worked out again, not the classes.
+struct Steady {
+    /// A kinetics they were worked out with (kept alive, so that one made
+    /// later cannot be taken for it); any other that classifies the same
+    /// way ([`Precomputed::same_classes`]: a new temperature) will do.
+    pre: Arc<Precomputed>,
+    /// [`Precomputed::steady_band`] of the reading they were worked out at.
+    band: SteadyBand,
+    range: VacuumRange,
+    lengths: Vec<LengthDerived>,
+}
+
+impl Steady {
+    /// The range and per-length results of `track`'s last valid pressure
+    /// (none without kinetics), from `slot` while they still apply, else
+    /// worked out into it.
+    fn at<'a>(
+        slot: &'a mut Option<Steady>,
+        track: &GaugeTrack,
+    ) -> Option<(VacuumRange, &'a [LengthDerived])> {
+        let (pre, p) = (track.shared_kinetics()?, track.pressure_pa?);
+        // The same expressions as `Precomputed::lengths_into`.
+        let mean_free_path_m = pre.mean_free_path_m(p);
+        match slot {
+            Some(st)
+                if st.band.holds(p, mean_free_path_m)
+                    && (Arc::ptr_eq(&st.pre, pre) || st.pre.same_classes(pre)) =>
+            {
+                for l in &mut st.lengths {
+                    l.knudsen = knudsen(mean_free_path_m, l.length_m);
+                }
+            }
+            Some(st) => {
+                if !Arc::ptr_eq(&st.pre, pre) {
+                    st.pre = Arc::clone(pre);
+                }
+                st.refresh(p);
+            }
+            None => {
+                slot.insert(Steady {
+                    pre: Arc::clone(pre),
+                    band: SteadyBand::EMPTY,
+                    range: VacuumRange::Low,
+                    lengths: Vec::new(),
+                })
+                .refresh(p);
+            }
+        }
+        let st = slot.as_ref()?;
+        Some((st.range, &st.lengths))
+    }
+
+    /// Everything worked out again at `p`.
+    fn refresh(&mut self, p: f64) {
+        self.pre.lengths_into(p, &mut self.lengths);
+        self.range = self.pre.vacuum_range(p);
+        self.band = self.pre.steady_band(p);
+    }
 }
 
 impl ReportSink {
@@ -117,6 +196,7 @@ impl ReportSink {
             plot: options.plot.then(PlotData::default),
             summary: true,
             span: None,
+            scratch: None,
             options,
         }
     }
@@ -221,6 +301,133 @@ impl ReportSink {
             d.map(|d| (d.knudsen, d.regime.as_str()))
         });
         csv.push(record, cells);
+    }
+
+    /// One reading of a row: to the CSV and the tally. `scratch`: the
+    /// sink's buffers, lent for the row.
+    fn take_sample(&mut self, s: &crate::sample::Sample, monitor: &Monitor, scratch: &mut Scratch) {
+        let Scratch { derived, steady } = scratch;
+        if let Some(g) = &self.options.gauge
+            && !same_id(g, &s.channel)
+        {
+            // Wanted only while the gauge has not come.
+            if !self.gauge_seen {
+                self.other_channels.get_or_insert_with(&s.channel, || ());
+            }
+            return;
+        }
+        self.gauge_seen = true;
+        if !self.in_window(s.time) {
+            return;
+        }
+        let track = monitor.track(&s.channel);
+        let i = match self.index.get(&s.channel) {
+            Some(i) => {
+                if let Some((_, end)) = self.span.as_mut() {
+                    *end = (*end).max(s.time);
+                }
+                *i
+            }
+            None => {
+                // The span starts at the earliest of the gauges'
+                // first readings (as the summaries' starts do).
+                self.span = Some(match self.span {
+                    Some((start, end)) => (start.min(s.time), end.max(s.time)),
+                    None => (s.time, s.time),
+                });
+                self.origin.get_or_insert(s.time);
+                let labels = Labels::new(&s.channel, gauge_kind(&s.channel, monitor));
+                self.labels.push(labels.clone());
+                if self.summary {
+                    let th = self.thresholds(&s.channel, monitor);
+                    let acc = GaugeAccumulator::new(&s.channel, th, self.options.gap_after_s);
+                    let a = self.analyzer();
+                    self.tally
+                        .send(Msg::Gauge(Some(Box::new((acc, a, labels)))));
+                }
+                if track.is_some_and(|t| t.is_pressure) {
+                    self.pressure_gauges += 1;
+                }
+                if let Some(plot) = self.plot.as_mut() {
+                    plot.add_gauge(monitor.setup());
+                }
+                self.index
+                    .get_or_insert_with(&s.channel, || self.labels.len() - 1);
+                self.labels.len() - 1
+            }
+        };
+        let status = s.reading.status();
+
+        let usable = track.filter(|t| status == Status::Ok && t.is_pressure && !t.uncorrectable);
+        let pressure_pa = usable.and_then(|t| t.pressure_pa);
+        // The kinetics worked out here, and only what is read: all of
+        // it for the CSV, else the lengths' regimes and the range.
+        let kinetics = usable.and_then(|t| t.kinetics());
+        let wants_all = self.csv.is_some() || self.csv_to.is_some();
+        let derived: Option<&Derived> = match kinetics {
+            Some((k, p)) if wants_all => Some(match derived {
+                Some(d) => {
+                    k.derive_into(p, d);
+                    d
+                }
+                None => derived.insert(k.derive(p)),
+            }),
+            _ => None,
+        };
+        let (range, regimes): (_, &[LengthDerived]) = match (derived, usable) {
+            (Some(d), _) => (Some(d.vacuum_range), &d.lengths),
+            (None, Some(t)) => {
+                if steady.len() <= i {
+                    steady.resize_with(i + 1, || None);
+                }
+                match Steady::at(&mut steady[i], t) {
+                    Some((range, lengths)) => (Some(range), lengths),
+                    None => (None, &[]),
+                }
+            }
+            (None, None) => (None, &[]),
+        };
+        let obs = Observation {
+            time: s.time,
+            status,
+            pressure_pa,
+            range,
+            regimes,
+            exposure_langmuir: track
+                .filter(|t| t.is_pressure)
+                .map(|t| t.exposure.langmuir()),
+        };
+        self.write_csv(&obs, &s.channel, derived, monitor);
+        if !self.summary {
+            return;
+        }
+        // The gauge's true pressure, on seconds from the first
+        // reading, to the pump-down and rate-of-rise analysis.
+        let origin = *self.origin.get_or_insert(s.time);
+        let t_s = crate::timefmt::seconds_between(origin, s.time);
+        if let (Some(p), Some(plot)) = (pressure_pa, self.plot.as_mut()) {
+            plot.push(
+                i,
+                t_s,
+                p,
+                kinetics.map(|(k, kp)| k.mean_free_path_m(kp) * p),
+            );
+        }
+        let element = match (pressure_pa, self.labels.get(i)) {
+            (Some(_), Some(l)) => l.element(track.and_then(|t| t.indicated)),
+            _ => Element::Whole,
+        };
+        let counted = Counted {
+            gauge: i,
+            time: obs.time,
+            t_s,
+            status: obs.status,
+            pressure_pa: obs.pressure_pa,
+            range: obs.range,
+            exposure_langmuir: obs.exposure_langmuir,
+            element,
+        };
+        self.tally.reading(counted, obs.regimes);
     }
 
     /// Each gauge's report, in the order gauges first appeared (complete
@@ -380,99 +587,11 @@ impl Sink for ReportSink {
     fn accept(&mut self, item: Item<'_>, monitor: &Monitor) {
         match item {
             Item::Row(samples) => {
+                let mut scratch = self.scratch.take().unwrap_or_default();
                 for s in samples {
-                    if let Some(g) = &self.options.gauge
-                        && !same_id(g, &s.channel)
-                    {
-                        // Wanted only while the gauge has not come.
-                        if !self.gauge_seen {
-                            self.other_channels.get_or_insert_with(&s.channel, || ());
-                        }
-                        continue;
-                    }
-                    self.gauge_seen = true;
-                    if !self.in_window(s.time) {
-                        continue;
-                    }
-                    let track = monitor.track(&s.channel);
-                    let status = s.reading.status();
-                    let usable =
-                        track.filter(|t| status == Status::Ok && t.is_pressure && !t.uncorrectable);
-                    let pressure_pa = usable.and_then(|t| t.pressure_pa);
-                    let derived = usable.and_then(|t| t.derived.as_ref());
-                    let obs = Observation {
-                        time: s.time,
-                        status,
-                        pressure_pa,
-                        range: derived.map(|d| d.vacuum_range),
-                        regimes: derived.map_or(&[], |d| d.lengths.as_slice()),
-                        exposure_langmuir: track
-                            .filter(|t| t.is_pressure)
-                            .map(|t| t.exposure.langmuir()),
-                    };
-                    self.write_csv(&obs, &s.channel, derived, monitor);
-                    let i = match self.index.get(&s.channel) {
-                        Some(i) => {
-                            if let Some((_, end)) = self.span.as_mut() {
-                                *end = (*end).max(s.time);
-                            }
-                            *i
-                        }
-                        None => {
-                            // The span starts at the earliest of the gauges'
-                            // first readings (as the summaries' starts do).
-                            self.span = Some(match self.span {
-                                Some((start, end)) => (start.min(s.time), end.max(s.time)),
-                                None => (s.time, s.time),
-                            });
-                            self.origin.get_or_insert(s.time);
-                            let labels = Labels::new(&s.channel, gauge_kind(&s.channel, monitor));
-                            self.labels.push(labels.clone());
-                            if self.summary {
-                                let th = self.thresholds(&s.channel, monitor);
-                                let acc =
-                                    GaugeAccumulator::new(&s.channel, th, self.options.gap_after_s);
-                                let a = self.analyzer();
-                                self.tally
-                                    .send(Msg::Gauge(Some(Box::new((acc, a, labels)))));
-                            }
-                            if track.is_some_and(|t| t.is_pressure) {
-                                self.pressure_gauges += 1;
-                            }
-                            if let Some(plot) = self.plot.as_mut() {
-                                plot.add_gauge(monitor.setup());
-                            }
-                            self.index
-                                .get_or_insert_with(&s.channel, || self.labels.len() - 1);
-                            self.labels.len() - 1
-                        }
-                    };
-                    if !self.summary {
-                        continue;
-                    }
-                    // The gauge's true pressure, on seconds from the first
-                    // reading, to the pump-down and rate-of-rise analysis.
-                    let origin = *self.origin.get_or_insert(s.time);
-                    let t_s = crate::timefmt::seconds_between(origin, s.time);
-                    if let (Some(p), Some(plot)) = (pressure_pa, self.plot.as_mut()) {
-                        plot.push(i, t_s, p, derived.map(|d| d.mean_free_path_m * p));
-                    }
-                    let element = match (pressure_pa, self.labels.get(i)) {
-                        (Some(_), Some(l)) => l.element(track.and_then(|t| t.indicated)),
-                        _ => Element::Whole,
-                    };
-                    let counted = Counted {
-                        gauge: i,
-                        time: obs.time,
-                        t_s,
-                        status: obs.status,
-                        pressure_pa: obs.pressure_pa,
-                        range: obs.range,
-                        exposure_langmuir: obs.exposure_langmuir,
-                        element,
-                    };
-                    self.tally.reading(counted, obs.regimes);
+                    self.take_sample(s, monitor, &mut scratch);
                 }
+                self.scratch = Some(scratch);
                 if self.summary {
                     self.push_chamber(samples, monitor);
                 }

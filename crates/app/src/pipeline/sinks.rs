@@ -154,7 +154,7 @@ impl Sink for Recording {
                             if t.uncorrectable || t.last_time != Some(s.time) {
                                 return None;
                             }
-                            Some((s.channel.clone(), t.derived.clone()?))
+                            Some((s.channel.clone(), t.derived()?))
                         })
                         .collect()
                 });

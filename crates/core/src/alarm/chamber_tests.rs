@@ -178,7 +178,7 @@ fn a_condition_without_gauge_uses_the_chamber_pressure() {
     );
     let (src, track) = m.chamber_track(&Quantity::MeanFreePath).expect("source");
     assert_eq!(src.gauge, "ion");
-    let got = track.derived.as_ref().expect("kinetics").mean_free_path_m;
+    let got = track.derived().expect("kinetics").mean_free_path_m;
     assert!(
         (got / d.mean_free_path_m - 1.0).abs() < 1e-12,
         "{got} vs {d:?}"
@@ -265,7 +265,7 @@ fn a_gas_step_recorrects_and_the_uncorrectable_gauge_drops_out() {
     )
     .mean_free_path_m;
     let (_, track) = m.chamber_track(&Quantity::MeanFreePath).expect("source");
-    let got = track.derived.as_ref().expect("kinetics").mean_free_path_m;
+    let got = track.derived().expect("kinetics").mean_free_path_m;
     assert!((got / want - 1.0).abs() < 1e-12, "{got} vs {want}");
     // The same step on the next row: no event.
     let ev = m.push(&row(10.0, Ok(5e-3), 2.8e-3, Err(Fault::SensorOff)));

@@ -21,6 +21,7 @@ use crate::engine::mixture::Mixture;
 use crate::engine::{Derived, GaugeModel, NamedLength, Physics, Precomputed};
 use crate::sample::{Sample, Status};
 use crate::units::{PressureUnit, TemperatureUnit};
+use std::sync::Arc;
 
 /// A rule with its optional enabling condition.
 #[derive(Debug, Clone, PartialEq)]
@@ -118,8 +119,11 @@ pub struct GaugeTrack {
     pub uncorrectable: bool,
     /// Temperature of the last valid reading, K (temperature channels).
     pub temperature_k: Option<f64>,
-    /// Kinetics of the last valid reading.
-    pub derived: Option<Derived>,
+    /// What the kinetics of the last valid pressure are worked out from
+    /// (the gas and temperature in force then): `Some` exactly when
+    /// `pressure_pa` is. The results themselves are worked out when asked
+    /// ([`GaugeTrack::derived`]), not at every reading.
+    kinetics: Option<Arc<Precomputed>>,
     /// Exposure since its start ([`GaugeTrack::exposure_since`]).
     pub exposure: Exposure,
     /// dp/dt, Pa/s (fitted only when some rule, enable condition or gate
@@ -132,6 +136,39 @@ pub struct GaugeTrack {
 }
 
 impl GaugeTrack {
+    /// The kinetics of the last valid pressure: every quantity, worked out
+    /// now (allocates; a reader at every reading uses
+    /// [`GaugeTrack::derive_into`]).
+    pub fn derived(&self) -> Option<Derived> {
+        let (pre, p) = self.kinetics()?;
+        Some(pre.derive(p))
+    }
+
+    /// [`GaugeTrack::derived`] into `out`, reusing its allocations; false
+    /// (and `out` untouched) when there is none.
+    pub fn derive_into(&self, out: &mut Derived) -> bool {
+        match self.kinetics() {
+            Some((pre, p)) => {
+                pre.derive_into(p, out);
+                true
+            }
+            None => false,
+        }
+    }
+
+    /// The kinetics the last valid pressure is worked out with, and that
+    /// pressure, Pa: for a reader of one quantity or two
+    /// ([`Precomputed::vacuum_range`], [`Precomputed::lengths_into`] …).
+    pub fn kinetics(&self) -> Option<(&Precomputed, f64)> {
+        Some((self.kinetics.as_deref()?, self.pressure_pa?))
+    }
+
+    /// The kinetics of [`GaugeTrack::kinetics`] as shared: a reader that
+    /// keeps results between readings tells by it that they still apply.
+    pub fn shared_kinetics(&self) -> Option<&Arc<Precomputed>> {
+        self.kinetics.as_ref()
+    }
+
     /// Data time the exposure counts from; `None` while it waits for its
     /// start (the pressure to fall below the threshold, or a reset).
     pub fn exposure_since(&self) -> Option<DateTime<Utc>> {
@@ -152,7 +189,7 @@ impl GaugeTrack {
             pressure_pa,
             uncorrectable,
             temperature_k,
-            derived,
+            kinetics,
             exposure,
             dpdt,
             decades_per_min,
@@ -166,7 +203,7 @@ impl GaugeTrack {
         copy.pressure_pa = *pressure_pa;
         copy.uncorrectable = *uncorrectable;
         copy.temperature_k = *temperature_k;
-        copy.derived.clone_from(derived);
+        copy.kinetics.clone_from(kinetics);
         copy.exposure.clone_from(exposure);
         copy.dpdt = *dpdt;
         copy.decades_per_min = *decades_per_min;
@@ -192,7 +229,7 @@ impl GaugeTrack {
             pressure_pa: None,
             uncorrectable: false,
             temperature_k: None,
-            derived: None,
+            kinetics: None,
             exposure: Exposure::with_start(60.0, exposure),
             dpdt: None,
             decades_per_min: None,
@@ -226,7 +263,7 @@ struct CachedKinetics {
     key: KineticsKey,
     /// Shared with the monitor's clones (a replay's keyframes, a frozen
     /// display): never changed once made.
-    pre: std::sync::Arc<Precomputed>,
+    pre: Arc<Precomputed>,
     /// Worked out from the gas alone (`Precomputed::new`: a mixture's most
     /// probable speed searched for), not scaled from another temperature.
     /// Such an entry is the one other temperatures of its gas are scaled
@@ -948,7 +985,7 @@ impl Monitor {
             if let Some(t) = self.tracks.get_mut(&id) {
                 t.uncorrectable = c == Err(true);
                 t.pressure_pa = c.as_ref().ok().map(|c| c.0);
-                t.derived = c.ok().map(|c| c.1);
+                t.kinetics = c.ok().map(|c| c.1);
             }
         }
     }
@@ -986,9 +1023,9 @@ impl Monitor {
     /// `channel` with the gas in force; `None` when it is not a usable
     /// pressure, with whether that is because no correction exists for the
     /// gas (the reading is uncorrectable).
-    fn corrected(&mut self, channel: &str, v: f64) -> Result<(f64, Derived), bool> {
+    fn corrected(&mut self, channel: &str, v: f64) -> Result<(f64, Arc<Precomputed>), bool> {
         let (p, i) = self.corrected_at(channel, v)?;
-        Ok((p, self.kinetics[i].pre.derive(p)))
+        Ok((p, Arc::clone(&self.kinetics[i].pre)))
     }
 
     /// The true pressure of reading `v` of `channel`, and the index in the
@@ -1062,7 +1099,7 @@ impl Monitor {
         }
         self.kinetics.push(CachedKinetics {
             key,
-            pre: std::sync::Arc::new(pre),
+            pre: Arc::new(pre),
             base: is_base,
         });
         Ok((p, self.kinetics.len() - 1))
@@ -1262,17 +1299,19 @@ impl Monitor {
                 track.decades_per_min = None;
             }
             track.pressure_pa = None;
-            track.derived = None;
+            track.kinetics = None;
             return;
         };
         track.uncorrectable = false;
         track.pressure_pa = Some(p);
-        // Into the last result's allocations.
-        if let Some(pre) = self.kinetics.get(k).map(|c| &c.pre) {
-            match track.derived.as_mut() {
-                Some(d) => pre.derive_into(p, d),
-                None => track.derived = Some(pre.derive(p)),
+        // The results are worked out when asked; the kinetics they come
+        // from is shared (and changes only with the gas or temperature).
+        match self.kinetics.get(k).map(|c| &c.pre) {
+            Some(pre) if !track.kinetics.as_ref().is_some_and(|t| Arc::ptr_eq(t, pre)) => {
+                track.kinetics = Some(Arc::clone(pre));
             }
+            Some(_) => {}
+            None => track.kinetics = None,
         }
         let t0 = *track.t0.get_or_insert(s.time);
         let ts = crate::timefmt::seconds_between(t0, s.time);
@@ -1359,8 +1398,7 @@ impl Monitor {
             && t.status == Status::Ok
             && !self.stale(t, now)
             && inside
-            && t.pressure_pa.is_some()
-            && t.derived.is_some()
+            && t.kinetics().is_some()
     }
 
     fn chamber_at(&self, q: &Quantity, now: DateTime<Utc>) -> Option<ChamberSource> {
@@ -1429,25 +1467,24 @@ impl Monitor {
             }
             _ => return Input::Unusable,
         }
-        let d = track.derived.as_ref();
-        let length = |name: &str| d.and_then(|d| d.lengths.iter().find(|l| l.name == name));
+        let k = track.kinetics();
+        let length = |name: &str| k.and_then(|(k, p)| k.length(p, name));
         let v = match q {
             Quantity::Pressure => track.pressure_pa,
             Quantity::Temperature => track.temperature_k,
-            Quantity::MeanFreePath => d.map(|d| d.mean_free_path_m),
-            Quantity::Knudsen(l) => length(l).map(|l| l.knudsen),
-            Quantity::Impingement => d.map(|d| d.impingement_per_m2_s),
-            Quantity::MonolayerTime => d.map(|d| d.monolayer_time_s),
+            Quantity::MeanFreePath => k.map(|(k, p)| k.mean_free_path_m(p)),
+            Quantity::Knudsen(l) => length(l).map(|l| l.0),
+            Quantity::Impingement => k.map(|(k, p)| k.impingement_per_m2_s(p)),
+            Quantity::MonolayerTime => k.map(|(k, p)| k.monolayer_time_s(p)),
             Quantity::Exposure => track.pressure_pa.map(|_| track.exposure.pa_s()),
             Quantity::RateOfChange => track.dpdt,
             Quantity::DecadesPerMinute => track.decades_per_min,
             Quantity::Regime(l) => {
-                return length(l)
-                    .map_or(Input::Unusable, |l| Input::Class(Class::Regime(l.regime)));
+                return length(l).map_or(Input::Unusable, |l| Input::Class(Class::Regime(l.1)));
             }
             Quantity::VacuumRange => {
-                return d.map_or(Input::Unusable, |d| {
-                    Input::Class(Class::Range(d.vacuum_range))
+                return k.map_or(Input::Unusable, |(k, p)| {
+                    Input::Class(Class::Range(k.vacuum_range(p)))
                 });
             }
         };

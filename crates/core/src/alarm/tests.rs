@@ -475,7 +475,7 @@ fn monitor_derives_kinetics_with_gauge_correction() {
         &Physics::default(),
     )
     .mean_free_path_m;
-    assert!((track.derived.as_ref().expect("kinetics").mean_free_path_m - expect).abs() < 1e-12);
+    assert!((track.derived().expect("kinetics").mean_free_path_m - expect).abs() < 1e-12);
 }
 
 /// A mixture's most probable speed is a numerical search; at a new
@@ -505,10 +505,7 @@ fn a_mixture_is_searched_once_however_many_temperatures_come() {
         .at_temperature(celsius.to_si(wall(39)), &mix, &lengths, &physics)
         .derive(0.1)
         .most_probable_speed_m_per_s;
-    let got = m
-        .track("g")
-        .and_then(|t| t.derived.as_ref())
-        .expect("kinetics");
+    let got = m.track("g").and_then(|t| t.derived()).expect("kinetics");
     assert_eq!(got.most_probable_speed_m_per_s.to_bits(), want.to_bits());
     // Searched once: at the first temperature, still kept.
     assert_eq!(m.kinetics_bases(), vec![celsius.to_si(wall(0))]);
@@ -1507,4 +1504,67 @@ fn rates_are_fitted_only_when_something_reads_them() {
         let d = decades.expect("decades per minute");
         assert!((d - want).abs() < 0.05 * want.abs(), "{d} vs {want}");
     }
+}
+
+/// A track's kinetics are worked out when asked, from the kinetics in
+/// force at its last valid pressure: through bad readings, a new
+/// temperature and an operator's change of gas they must equal the
+/// engine's own derivation for that pressure, gas and temperature (the
+/// engine's results are the reference here; its numbers are checked
+/// against outside sources in the engine's tests).
+#[test]
+fn kinetics_asked_for_are_those_of_the_last_valid_pressure() {
+    let table = GasTable::builtin();
+    let ar = Mixture::pure(table.get("Ar").expect("Ar").clone());
+    let s = setup(vec![], vec![]);
+    let (lengths, physics) = (s.lengths.clone(), s.physics);
+    let mut m = Monitor::new(s);
+    let celsius = ChannelUnit::Temperature(TemperatureUnit::C);
+    let want = |mix: &Mixture, t_k: f64, p: f64| {
+        crate::engine::Precomputed::new(t_k, mix, &lengths, &physics).derive(p)
+    };
+    let check = |m: &Monitor, want: Option<crate::engine::Derived>| {
+        let track = m.track("g").expect("track");
+        let got = track.derived();
+        assert_eq!(got, want);
+        // `kinetics` and `pressure_pa` come and go together.
+        assert_eq!(track.kinetics().is_some(), track.pressure_pa.is_some());
+        if let (Some((k, p)), Some(w)) = (track.kinetics(), want.as_ref()) {
+            assert_eq!(k.vacuum_range(p), w.vacuum_range);
+            assert_eq!(
+                k.mean_free_path_m(p).to_bits(),
+                w.mean_free_path_m.to_bits()
+            );
+            assert_eq!(
+                k.length(p, "bore").map(|(kn, r)| (kn.to_bits(), r)),
+                Some((w.lengths[0].knudsen.to_bits(), w.lengths[0].regime))
+            );
+            assert_eq!(k.length(p, "no such length"), None);
+            let mut lengths = Vec::new();
+            k.lengths_into(p, &mut lengths);
+            assert_eq!(lengths, w.lengths);
+        }
+    };
+    m.push(&[Sample::ok(t(0.0), "g", 1e-3, MBAR)]);
+    let cold = want(&n2(), 295.15, MBAR.to_si(1e-3));
+    check(&m, Some(cold.clone()));
+    // A bad reading keeps the last valid pressure and its kinetics.
+    m.push(&[Sample::bad(t(1.0), "g", MBAR, Fault::SensorError)]);
+    check(&m, Some(cold.clone()));
+    // A new temperature applies from the next pressure on.
+    m.push(&[Sample::ok(t(2.0), "wall", 80.0, celsius)]);
+    check(&m, Some(cold));
+    m.push(&[Sample::ok(t(3.0), "g", 2e-6, MBAR)]);
+    let (hot, p) = (celsius.to_si(80.0), MBAR.to_si(2e-6));
+    check(&m, Some(want(&n2(), hot, p)));
+    // The operator's gas: the latest reading is corrected again at once.
+    m.set_gas(
+        super::gas_step::GasChoice::Fixed(ar.clone()),
+        &Actor::named("op"),
+        t(4.0),
+    );
+    check(&m, Some(want(&ar, hot, p)));
+    // A temperature channel has none.
+    let wall = m.track("wall").expect("wall");
+    assert_eq!((wall.derived(), wall.kinetics().is_none()), (None, true));
 }

@@ -409,12 +409,16 @@ pub struct Precomputed {
     saturation: Vec<(usize, String, f64, &'static str)>,
     bounds: RegimeBounds,
     edition: IsoEdition,
+    /// Shared by every kinetics scaled from one another with the same
+    /// lengths and physics: they classify the same way
+    /// ([`Precomputed::same_classes`] without comparing them).
+    classes: std::sync::Arc<()>,
 }
 
 impl Precomputed {
     /// The kinetics of `mixture` at `t_k` for these lengths and physics.
     pub fn new(t_k: f64, mixture: &Mixture, lengths: &[NamedLength], physics: &Physics) -> Self {
-        Self::build(t_k, mixture, lengths, physics, None)
+        Self::build(t_k, mixture, lengths, physics, None, None)
     }
 
     /// The kinetics of the same `mixture` (and lengths and physics) as
@@ -430,12 +434,22 @@ impl Precomputed {
         physics: &Physics,
     ) -> Self {
         let mode = self.unit.most_probable_speed_m_per_s * (t_k / self.temperature_k).sqrt();
+        let same_classes = self.edition == physics.edition
+            && self.bounds == physics.bounds
+            && self.unit.lengths.len() == lengths.len()
+            && self
+                .unit
+                .lengths
+                .iter()
+                .zip(lengths)
+                .all(|(a, b)| a.length_m.to_bits() == b.length_m.to_bits() && a.name == b.name);
         Self::build(
             t_k,
             mixture,
             lengths,
             physics,
             Some(mode).filter(|m| m.is_finite()),
+            same_classes.then(|| std::sync::Arc::clone(&self.classes)),
         )
     }
 
@@ -445,6 +459,7 @@ impl Precomputed {
         lengths: &[NamedLength],
         physics: &Physics,
         mode: Option<f64>,
+        classes: Option<std::sync::Arc<()>>,
     ) -> Self {
         let t = t_k;
         let mut warnings = Vec::new();
@@ -555,6 +570,7 @@ impl Precomputed {
             saturation,
             bounds: physics.bounds,
             edition: physics.edition,
+            classes: classes.unwrap_or_default(),
         }
     }
 
@@ -570,18 +586,131 @@ impl Precomputed {
         d
     }
 
+    // One quantity at a time, for a reader that needs only some of them
+    // (the report's summary, a rule): each is the expression
+    // `derive_into` itself uses, so the value is the same bit for bit.
+
+    /// Total number density at pressure `p` Pa, 1/m³.
+    #[inline]
+    pub fn number_density_per_m3(&self, p: f64) -> f64 {
+        self.unit.number_density_per_m3 * p
+    }
+
+    /// Mean free path at pressure `p` Pa, m.
+    #[inline]
+    pub fn mean_free_path_m(&self, p: f64) -> f64 {
+        self.unit.mean_free_path_m / p
+    }
+
+    /// Total wall impingement rate at pressure `p` Pa, 1/(m² s).
+    #[inline]
+    pub fn impingement_per_m2_s(&self, p: f64) -> f64 {
+        self.unit.impingement_per_m2_s * p
+    }
+
+    /// Time to a monolayer at pressure `p` Pa, s.
+    #[inline]
+    pub fn monolayer_time_s(&self, p: f64) -> f64 {
+        self.unit.monolayer_time_s / p
+    }
+
+    /// ISO 3529-1 range of pressure `p` Pa.
+    #[inline]
+    pub fn vacuum_range(&self, p: f64) -> VacuumRange {
+        self.edition.classify(p)
+    }
+
+    /// The named length `name`'s Knudsen number and flow regime at
+    /// pressure `p` Pa; `None` for a name it was not worked out for.
+    pub fn length(&self, p: f64, name: &str) -> Option<(f64, FlowRegime)> {
+        let unit = self.unit.lengths.iter().find(|l| l.name == name)?;
+        let knudsen = regime::knudsen(self.mean_free_path_m(p), unit.length_m);
+        Some((knudsen, self.bounds.classify(knudsen)))
+    }
+
+    /// Every named length's results at pressure `p` Pa into `out` (as
+    /// [`Derived::lengths`], reusing its allocations and names).
+    #[inline]
+    pub fn lengths_into(&self, p: f64, out: &mut Vec<LengthDerived>) {
+        let mean_free_path_m = self.mean_free_path_m(p);
+        refresh_each(
+            out,
+            &self.unit.lengths,
+            |l| l.name.as_str(),
+            |l, unit| {
+                let knudsen = regime::knudsen(mean_free_path_m, unit.length_m);
+                *l = LengthDerived {
+                    name: std::mem::take(&mut l.name),
+                    length_m: unit.length_m,
+                    knudsen,
+                    regime: self.bounds.classify(knudsen),
+                };
+            },
+        );
+    }
+
+    /// Where the range and every length's regime surely stay those at
+    /// pressure `p` (a positive number): a reader that wants those alone
+    /// may keep them while the readings stay inside (and work out the
+    /// Knudsen numbers themselves, one division each). The band may be
+    /// empty, and need not hold `p` itself when `p` is next to a regime's
+    /// limit.
+    pub fn steady_band(&self, p: f64) -> SteadyBand {
+        const EMPTY: SteadyBand = SteadyBand::EMPTY;
+        let pressure_pa = self.edition.band(p);
+        let mean_free_path_m = self.mean_free_path_m(p);
+        let (mut lo, mut hi) = (0.0, f64::INFINITY);
+        for l in &self.unit.lengths {
+            let regime = self
+                .bounds
+                .classify(regime::knudsen(mean_free_path_m, l.length_m));
+            let (l_lo, l_hi) = self.bounds.steady_band(l.length_m, regime);
+            // NaN ends make the band empty (`max`/`min` would drop them).
+            if l_lo.is_nan() || l_hi.is_nan() {
+                return EMPTY;
+            }
+            lo = f64::max(lo, l_lo);
+            hi = f64::min(hi, l_hi);
+        }
+        if pressure_pa.0.is_nan() || pressure_pa.1.is_nan() {
+            return EMPTY;
+        }
+        SteadyBand {
+            pressure_pa,
+            mean_free_path_m: (lo, hi),
+        }
+    }
+
+    /// Whether `other` classifies as this does: the same ISO edition,
+    /// regime bounds and named lengths (so a [`SteadyBand`] of one holds
+    /// for the other, whatever their gas and temperature).
+    pub fn same_classes(&self, other: &Precomputed) -> bool {
+        if std::sync::Arc::ptr_eq(&self.classes, &other.classes) {
+            return true;
+        }
+        self.edition == other.edition
+            && self.bounds == other.bounds
+            && self.unit.lengths.len() == other.unit.lengths.len()
+            && self
+                .unit
+                .lengths
+                .iter()
+                .zip(&other.unit.lengths)
+                .all(|(a, b)| a.length_m.to_bits() == b.length_m.to_bits() && a.name == b.name)
+    }
+
     /// [`Precomputed::derive`] into `out`, reusing its allocations (it may
     /// hold an earlier result of any gas).
     pub fn derive_into(&self, p: f64, out: &mut Derived) {
         let u = &self.unit;
-        out.number_density_per_m3 = u.number_density_per_m3 * p;
+        out.number_density_per_m3 = self.number_density_per_m3(p);
         out.mean_speed_m_per_s = u.mean_speed_m_per_s;
         out.most_probable_speed_m_per_s = u.most_probable_speed_m_per_s;
         out.rms_speed_m_per_s = u.rms_speed_m_per_s;
-        out.mean_free_path_m = u.mean_free_path_m / p;
-        out.impingement_per_m2_s = u.impingement_per_m2_s * p;
-        out.monolayer_time_s = u.monolayer_time_s / p;
-        out.vacuum_range = self.edition.classify(p);
+        out.mean_free_path_m = self.mean_free_path_m(p);
+        out.impingement_per_m2_s = self.impingement_per_m2_s(p);
+        out.monolayer_time_s = self.monolayer_time_s(p);
+        out.vacuum_range = self.vacuum_range(p);
         refresh_each(
             &mut out.species,
             &u.species,
@@ -601,21 +730,7 @@ impl Precomputed {
                 };
             },
         );
-        let mean_free_path_m = out.mean_free_path_m;
-        refresh_each(
-            &mut out.lengths,
-            &u.lengths,
-            |l| l.name.as_str(),
-            |l, unit| {
-                let knudsen = regime::knudsen(mean_free_path_m, unit.length_m);
-                *l = LengthDerived {
-                    name: std::mem::take(&mut l.name),
-                    length_m: unit.length_m,
-                    knudsen,
-                    regime: self.bounds.classify(knudsen),
-                };
-            },
-        );
+        self.lengths_into(p, &mut out.lengths);
         out.warnings.clear();
         if p > regime::ABOVE_ATMOSPHERIC_PA {
             out.warnings.push(Warning::new(
@@ -638,6 +753,33 @@ impl Precomputed {
                 ));
             }
         }
+    }
+}
+
+/// Where a reading's range and flow regimes surely stay as they are
+/// ([`Precomputed::steady_band`]): pressures `[lo, hi)`, Pa, and mean free
+/// paths `[lo, hi)`, m.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SteadyBand {
+    /// The pressures of the range.
+    pub pressure_pa: (f64, f64),
+    /// The mean free paths of every length's regime.
+    pub mean_free_path_m: (f64, f64),
+}
+
+impl SteadyBand {
+    /// A band that holds nothing.
+    pub const EMPTY: SteadyBand = SteadyBand {
+        pressure_pa: (f64::NAN, f64::NAN),
+        mean_free_path_m: (f64::NAN, f64::NAN),
+    };
+
+    /// Whether a reading at `pressure_pa` with mean free path
+    /// `mean_free_path_m` is inside.
+    #[inline]
+    pub fn holds(&self, pressure_pa: f64, mean_free_path_m: f64) -> bool {
+        let inside = |(lo, hi): (f64, f64), x: f64| lo <= x && x < hi;
+        inside(self.pressure_pa, pressure_pa) && inside(self.mean_free_path_m, mean_free_path_m)
     }
 }
 

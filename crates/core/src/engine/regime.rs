@@ -98,6 +98,36 @@ impl RegimeBounds {
     }
 }
 
+/// How far (relative) inside a regime's limits a band of
+/// [`RegimeBounds::steady_band`] keeps: many orders of magnitude above the
+/// rounding of a Knudsen number (a few units of the last place), so that
+/// every mean free path inside the band is classified as the band says.
+const STEADY_MARGIN: f64 = 1e-9;
+
+impl RegimeBounds {
+    /// An interval of mean free paths, m, `[lo, hi)`, in which the flow in
+    /// a length of `length_m` is surely `regime` (as
+    /// [`RegimeBounds::classify`] of their Knudsen number gives it). It
+    /// stops short of the regime's limits by a margin, so a mean free path
+    /// next to a limit is outside it, whatever the rounding; empty (NaN
+    /// ends) when the length is not a positive number.
+    pub fn steady_band(&self, length_m: f64, regime: FlowRegime) -> (f64, f64) {
+        if !(length_m.is_finite() && length_m > 0.0) {
+            return (f64::NAN, f64::NAN);
+        }
+        let (viscous, molecular) = (
+            self.viscous_below * length_m,
+            self.molecular_above * length_m,
+        );
+        let (above, below) = (1.0 + STEADY_MARGIN, 1.0 - STEADY_MARGIN);
+        match regime {
+            FlowRegime::Viscous => (0.0, viscous * below),
+            FlowRegime::Transitional => (viscous * above, molecular * below),
+            FlowRegime::Molecular => (molecular * above, f64::INFINITY),
+        }
+    }
+}
+
 /// Knudsen number Kn = λ/L.
 pub fn knudsen(mean_free_path_m: f64, length_m: f64) -> f64 {
     mean_free_path_m / length_m
@@ -226,6 +256,22 @@ impl IsoEdition {
             .iter()
             .find(|&&(_, lower)| pressure_pa >= lower * (1.0 - LIMIT_REL_TOL))
             .map_or(VacuumRange::Low, |&(r, _)| r)
+    }
+
+    /// The pressures, Pa, `[lo, hi)` that [`IsoEdition::classify`] puts in
+    /// the same range as `pressure_pa` (a positive number): its range's
+    /// limits as `classify` compares them, so exactly.
+    pub fn band(self, pressure_pa: f64) -> (f64, f64) {
+        let mut hi = f64::INFINITY;
+        for &(_, lower) in self.lower_limits() {
+            let lo = lower * (1.0 - LIMIT_REL_TOL);
+            if pressure_pa >= lo {
+                return (lo, hi);
+            }
+            hi = lo;
+        }
+        // Not a positive number: no band.
+        (f64::NAN, f64::NAN)
     }
 
     /// The upper and lower pressure limits (Pa) of a range in this edition;

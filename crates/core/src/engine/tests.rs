@@ -588,3 +588,67 @@ fn results_refreshed_in_place_equal_fresh_ones() {
         assert_eq!(out.clone(), out, "{mix:?} at {p} Pa: clone");
     }
 }
+
+/// Differential test of the summary's shortcut: inside a reading's
+/// [`Precomputed::steady_band`], the range and every length's regime that
+/// the engine works out in full ([`Precomputed::derive`], the reference)
+/// are those at the reading, for pressures at and next to every range and
+/// regime limit (a few units of the last place either side), and for a
+/// kinetics at another temperature that classifies the same way.
+#[test]
+fn inside_a_steady_band_the_classes_are_those_worked_out_in_full() {
+    let lengths = [
+        NamedLength::new("bore", 0.4),
+        NamedLength::new("line", 0.025),
+        NamedLength::new("gap", 1.5e-4),
+    ];
+    let physics = Physics::default();
+    let n2 = pure("N2");
+    let cold = Precomputed::new(295.15, &n2, &lengths, &physics);
+    let hot = cold.at_temperature(295.2, &n2, &lengths, &physics);
+    assert!(cold.same_classes(&hot) && hot.same_classes(&cold));
+    let other = Precomputed::new(295.15, &n2, &lengths[..2], &physics);
+    assert!(!cold.same_classes(&other));
+    // Pressures at every limit: the ranges' and, for each length, where
+    // its Knudsen number crosses a bound; and a few ulps either side.
+    let lambda_p = cold.derive(1.0).mean_free_path_m;
+    let mut limits = vec![1e5, crate::units::ATM_PA, 100.0, 0.1, 1e-6, 1e-9];
+    for l in &lengths {
+        if let Some((v, m)) = physics.bounds.pressures(lambda_p, l.length_m) {
+            limits.extend([v, m]);
+        }
+    }
+    let mut pressures = Vec::new();
+    for x in limits {
+        let mut below = x;
+        let mut above = x;
+        pressures.push(x);
+        for _ in 0..4 {
+            below = below.next_down();
+            above = above.next_up();
+            pressures.extend([below, above, x * (1.0 + 1e-9), x * (1.0 - 1e-9)]);
+        }
+    }
+    pressures.extend((-120..60).map(|e| 10f64.powf(f64::from(e) / 10.0)));
+    let classes = |pre: &Precomputed, p: f64| {
+        let d = pre.derive(p);
+        let regimes: Vec<_> = d.lengths.iter().map(|l| l.regime).collect();
+        (d.vacuum_range, regimes)
+    };
+    let mut inside = 0;
+    for &p in &pressures {
+        let band = cold.steady_band(p);
+        for &q in &pressures {
+            for pre in [&cold, &hot] {
+                if band.holds(q, pre.mean_free_path_m(q)) {
+                    inside += 1;
+                    assert_eq!(classes(pre, q), classes(&cold, p), "{p} then {q}");
+                }
+            }
+        }
+    }
+    // The test has teeth: most pairs are far apart, many are inside.
+    assert!(inside > 10_000, "{inside}");
+    // No band for what is not a pressure.
+    assert!(!cold.steady_band(f64::NAN).holds(1.0, 1.0));
+}

@@ -582,7 +582,7 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     };
     let inner = look.frame(&title, area, buf);
     let track = id.as_deref().and_then(|g| monitor.track(g));
-    let Some((d, track)) = track.and_then(|t| t.derived.as_ref().map(|d| (d, t))) else {
+    let Some((d, track)) = track.and_then(|t| t.derived().map(|d| (d, t))) else {
         let why = if auto && monitor.now().is_some() && monitor.tracks().next().is_some() {
             "no gauge in range"
         } else {
@@ -595,8 +595,8 @@ fn kinetics(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let mfp = match primary(app, &Quantity::MeanFreePath) {
         Some((g, _)) if auto => monitor
             .track(&g)
-            .and_then(|t| t.derived.as_ref())
-            .map_or(d.mean_free_path_m, |x| x.mean_free_path_m),
+            .and_then(|t| t.kinetics())
+            .map_or(d.mean_free_path_m, |(k, p)| k.mean_free_path_m(p)),
         _ => d.mean_free_path_m,
     };
     // The gas in force and where it came from (a gauge with a gas of its
@@ -747,13 +747,14 @@ fn lengths(app: &App, look: &Look, area: Rect, buf: &mut Buffer) {
     let d = id
         .as_deref()
         .and_then(|g| monitor.track(g))
-        .and_then(|t| t.derived.as_ref());
+        .and_then(|t| t.derived());
     let mut lines = Vec::new();
     if monitor.setup().lengths.is_empty() {
         lines.push(Line::styled("no [[length]] configured", look.dim));
     }
     for l in &monitor.setup().lengths {
         let (kn, regime) = d
+            .as_ref()
             .and_then(|d| d.lengths.iter().find(|x| x.name == l.name))
             .map_or(("-".to_string(), "-".to_string()), |x| {
                 (format_sig(x.knudsen, 3), x.regime.to_string())
