@@ -1435,9 +1435,14 @@ impl Monitor {
     }
 
     fn stale(&self, track: &GaugeTrack, now: DateTime<Utc>) -> bool {
-        track
-            .last_time
-            .is_none_or(|t| crate::timefmt::seconds_between(t, now) > self.setup.stale_after_s)
+        match track.last_time {
+            None => true,
+            // A reading of this very time (the row being evaluated): no
+            // time has passed (0 s is not more than a `stale_after` of 0 s
+            // or more), without the date arithmetic.
+            Some(t) if t == now && self.setup.stale_after_s >= 0.0 => false,
+            Some(t) => crate::timefmt::seconds_between(t, now) > self.setup.stale_after_s,
+        }
     }
 
     /// The input a quantity of a gauge gives now.
