@@ -125,17 +125,27 @@ struct Steady {
     band: SteadyBand,
     range: VacuumRange,
     lengths: Vec<LengthDerived>,
+    /// The gauge's last reading passed these on to the tally: the next
+    /// may say "as before" while the classes stay (the tally reads the
+    /// names and regimes, not the Knudsen numbers).
+    passed: bool,
 }
 
 impl Steady {
     /// The range and per-length results of `track`'s last valid pressure
     /// (none without kinetics), from `slot` while they still apply, else
-    /// worked out into it.
+    /// worked out into it; and whether they are the ones the tally was
+    /// passed last (so the same names and regimes). `passing`: they will
+    /// be passed now.
     fn at<'a>(
         slot: &'a mut Option<Steady>,
         track: &GaugeTrack,
-    ) -> Option<(VacuumRange, &'a [LengthDerived])> {
-        let (pre, p) = (track.shared_kinetics()?, track.pressure_pa?);
+        passing: bool,
+    ) -> Option<(VacuumRange, &'a [LengthDerived], bool)> {
+        let (Some(pre), Some(p)) = (track.shared_kinetics(), track.pressure_pa) else {
+            Steady::not_passed(slot);
+            return None;
+        };
         // The same expressions as `Precomputed::lengths_into`.
         let mean_free_path_m = pre.mean_free_path_m(p);
         match slot {
@@ -152,6 +162,7 @@ impl Steady {
                     st.pre = Arc::clone(pre);
                 }
                 st.refresh(p);
+                st.passed = false;
             }
             None => {
                 slot.insert(Steady {
@@ -159,12 +170,22 @@ impl Steady {
                     band: SteadyBand::EMPTY,
                     range: VacuumRange::Low,
                     lengths: Vec::new(),
+                    passed: false,
                 })
                 .refresh(p);
             }
         }
-        let st = slot.as_ref()?;
-        Some((st.range, &st.lengths))
+        let st = slot.as_mut()?;
+        let as_before = st.passed;
+        st.passed = passing;
+        Some((st.range, &st.lengths, as_before))
+    }
+
+    /// The tally is passed other per-length results than `slot`'s.
+    fn not_passed(slot: &mut Option<Steady>) {
+        if let Some(st) = slot {
+            st.passed = false;
+        }
     }
 
     /// Everything worked out again at `p`.
@@ -374,18 +395,24 @@ impl ReportSink {
             }),
             _ => None,
         };
-        let (range, regimes): (_, &[LengthDerived]) = match (derived, usable) {
-            (Some(d), _) => (Some(d.vacuum_range), &d.lengths),
-            (None, Some(t)) => {
-                if steady.len() <= i {
-                    steady.resize_with(i + 1, || None);
-                }
-                match Steady::at(&mut steady[i], t) {
-                    Some((range, lengths)) => (Some(range), lengths),
-                    None => (None, &[]),
-                }
+        if steady.len() <= i {
+            steady.resize_with(i + 1, || None);
+        }
+        // `as_before`: the tally has these per-length results already
+        // (the gauge's last reading passed it the same kept ones).
+        let (range, regimes, as_before): (_, &[LengthDerived], _) = match (derived, usable) {
+            (None, Some(t)) => match Steady::at(&mut steady[i], t, self.summary) {
+                Some((range, lengths, as_before)) => (Some(range), lengths, as_before),
+                None => (None, &[], false),
+            },
+            (Some(d), _) => {
+                Steady::not_passed(&mut steady[i]);
+                (Some(d.vacuum_range), &d.lengths, false)
             }
-            (None, None) => (None, &[]),
+            (None, None) => {
+                Steady::not_passed(&mut steady[i]);
+                (None, &[], false)
+            }
         };
         let obs = Observation {
             time: s.time,
@@ -427,7 +454,8 @@ impl ReportSink {
             exposure_langmuir: obs.exposure_langmuir,
             element,
         };
-        self.tally.reading(counted, obs.regimes);
+        self.tally
+            .reading(counted, (!as_before).then_some(obs.regimes));
     }
 
     /// Each gauge's report, in the order gauges first appeared (complete
@@ -960,6 +988,90 @@ mod tests {
             sink.notes(),
             out
         )
+    }
+
+    /// The summaries and analyses of a report, with or without a CSV.
+    fn summaries_of(files: &[PathBuf], with_csv: bool, tally_thread: bool) -> String {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+        let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
+        let setup = cfg.monitor_setup(Vec::new());
+        let csv: Option<Box<dyn Write + Send>> = with_csv.then(|| Box::new(std::io::sink()) as _);
+        let mut sink = ReportSink::new(ReportOptions::default(), csv)
+            .csv_on_own_thread(false)
+            .tally_on_own_thread(tally_thread);
+        walk_with(
+            files,
+            None,
+            &setup,
+            &cfg.gases,
+            &mut sink,
+            ReadMode::SameThread,
+        );
+        format!(
+            "{:?}\n{:?}\n{:?}",
+            sink.summaries(),
+            sink.analyses(),
+            sink.chamber_analysis()
+        )
+    }
+
+    /// Differential test of the summary's shortcuts: without a CSV, a
+    /// gauge's range and regimes are kept while its readings stay inside
+    /// their steady band, and the tally is told "as before" instead of
+    /// being passed them again; with a CSV, every reading is derived in
+    /// full and its results passed on (the straightforward path). The
+    /// summaries must be the same, on the sample logs (three gauges, a
+    /// wall temperature that changes) and on a log that falls through
+    /// every range and regime with bad cells, gaps and gas changes.
+    #[test]
+    fn the_summary_is_the_same_with_and_without_the_csv() {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+        let dir = std::env::temp_dir().join(format!("rarefy-steady-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("dir");
+        let odd = dir.join("falls.csv");
+        let mut text = String::from("# rarefy log v1\n# gas: N2\ntime,chamber [Pa],wall [C],gas\n");
+        for i in 0..6000u32 {
+            let t = format!(
+                "2026-11-16T{:02}:{:02}:{:02}.000Z",
+                6 + i / 3600,
+                i / 60 % 60,
+                i % 60
+            );
+            // Ten decades down, with a wobble that goes back and forth
+            // across the limits; every 13th reading another temperature.
+            let p = 1e5 * (-f64::from(i) / 260.0).exp() * (1.0 + 0.3 * (f64::from(i) / 3.0).sin());
+            let wall = 22.0 + f64::from(i % 13) * 0.37;
+            let gas = if (2500..2700).contains(&i) {
+                "Ar"
+            } else {
+                "N2"
+            };
+            match i % 97 {
+                3 => text.push_str(&format!("{t},sensor-error,{wall},{gas}\n")),
+                5 => text.push_str(&format!("{t},,{wall},{gas}\n")),
+                _ => text.push_str(&format!("{t},{p:e},{wall},{gas}\n")),
+            }
+        }
+        std::fs::write(&odd, text).expect("write");
+        let samples: Vec<PathBuf> = ["pumpdown", "process", "leak-check", "bakeout", "demo"]
+            .iter()
+            .map(|n| root.join(format!("sample-logs/{n}.csv")))
+            .collect();
+        for files in [samples, vec![odd]] {
+            for thread in [false, true] {
+                let full = summaries_of(&files, true, thread);
+                let kept = summaries_of(&files, false, thread);
+                // The log's summaries hold every regime and range.
+                for word in ["Viscous", "Transitional", "Molecular", "Medium", "High"] {
+                    assert!(full.contains(word), "no {word}");
+                }
+                assert!(
+                    full == kept,
+                    "{files:?}, tally thread {thread}: the summaries differ"
+                );
+            }
+        }
+        std::fs::remove_dir_all(&dir).ok();
     }
 
     /// Reading ahead on a second core, writing the CSV and feeding the

@@ -121,8 +121,9 @@ pub enum Msg {
     /// A gauge first seen: its accumulator, analysis and labels (taken by
     /// the tally).
     Gauge(Option<Box<(GaugeAccumulator, Analyzer, Labels)>>),
-    /// A reading of gauge `gauge`, with `lengths` per-length results.
-    Reading(Counted, usize),
+    /// A reading of gauge `gauge`, with `lengths` per-length results
+    /// (`None`: the same names and regimes as the gauge's reading before).
+    Reading(Counted, Option<usize>),
     /// The chamber pressure's analysis starts (taken by the tally).
     ChamberStart(Option<Box<Analyzer>>),
     /// The chamber pressure at `t_s`: `p` Pa from gauge `gauge`'s
@@ -153,6 +154,9 @@ pub struct Tally {
     /// Per gauge, the analysis source of its last reading (the lookup by
     /// name skipped while a gauge's readings stay on one element).
     last_source: Vec<Option<(Element, SourceId)>>,
+    /// Per gauge, the per-length results of its last reading, for the
+    /// readings that come "as before".
+    last_lengths: Vec<Vec<LengthDerived>>,
 }
 
 impl Tally {
@@ -168,8 +172,18 @@ impl Tally {
                     self.labels.push(labels);
                 }
             }
-            Msg::Reading(r, _) => {
+            Msg::Reading(r, n) => {
                 let i = r.gauge;
+                if self.last_lengths.len() <= i {
+                    self.last_lengths.resize_with(i + 1, Vec::new);
+                }
+                let lengths = match n {
+                    Some(_) => {
+                        copy_lengths(&mut self.last_lengths[i], lengths);
+                        lengths
+                    }
+                    None => self.last_lengths[i].as_slice(),
+                };
                 if let (Some(p), Some(a), Some(l)) =
                     (r.pressure_pa, self.analyzers.get_mut(i), self.labels.get(i))
                 {
@@ -217,6 +231,16 @@ impl Tally {
     }
 }
 
+/// `to` made a copy of `from`, reusing its entries' buffers.
+fn copy_lengths(to: &mut Vec<LengthDerived>, from: &[LengthDerived]) {
+    to.truncate(from.len());
+    let kept = to.len();
+    for (t, f) in to.iter_mut().zip(from) {
+        t.clone_from(f);
+    }
+    to.extend_from_slice(&from[kept..]);
+}
+
 #[derive(Debug, Default)]
 struct Batch {
     msgs: Vec<Msg>,
@@ -231,7 +255,7 @@ impl Batch {
         let mut at = 0;
         for m in &mut self.msgs {
             let n = match m {
-                Msg::Reading(_, n) => *n,
+                Msg::Reading(_, Some(n)) => *n,
                 _ => 0,
             };
             let end = (at + n).min(self.used);
@@ -267,17 +291,19 @@ impl TallyOut {
         self.maybe_hand_over();
     }
 
-    /// Passes on a reading and its per-length results.
-    pub fn reading(&mut self, r: Counted, lengths: &[LengthDerived]) {
+    /// Passes on a reading and its per-length results (`None`: the same
+    /// names and regimes as the gauge's reading before, which the tally
+    /// keeps).
+    pub fn reading(&mut self, r: Counted, lengths: Option<&[LengthDerived]>) {
         let b = &mut self.worker.batch;
-        for l in lengths {
+        for l in lengths.unwrap_or_default() {
             match b.lengths.get_mut(b.used) {
                 Some(slot) => slot.clone_from(l),
                 None => b.lengths.push(l.clone()),
             }
             b.used += 1;
         }
-        b.msgs.push(Msg::Reading(r, lengths.len()));
+        b.msgs.push(Msg::Reading(r, lengths.map(<[_]>::len)));
         self.maybe_hand_over();
     }
 
