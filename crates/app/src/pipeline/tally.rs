@@ -154,9 +154,6 @@ pub struct Tally {
     /// Per gauge, the analysis source of its last reading (the lookup by
     /// name skipped while a gauge's readings stay on one element).
     last_source: Vec<Option<(Element, SourceId)>>,
-    /// Per gauge, the per-length results of its last reading, for the
-    /// readings that come "as before".
-    last_lengths: Vec<Vec<LengthDerived>>,
 }
 
 impl Tally {
@@ -174,16 +171,7 @@ impl Tally {
             }
             Msg::Reading(r, n) => {
                 let i = r.gauge;
-                if self.last_lengths.len() <= i {
-                    self.last_lengths.resize_with(i + 1, Vec::new);
-                }
-                let lengths = match n {
-                    Some(_) => {
-                        copy_lengths(&mut self.last_lengths[i], lengths);
-                        lengths
-                    }
-                    None => self.last_lengths[i].as_slice(),
-                };
+
                 if let (Some(p), Some(a), Some(l)) =
                     (r.pressure_pa, self.analyzers.get_mut(i), self.labels.get(i))
                 {
@@ -201,14 +189,18 @@ impl Tally {
                     a.push_from(r.t_s, p, src);
                 }
                 if let Some(g) = self.gauges.get_mut(i) {
-                    g.add(Observation {
+                    let obs = Observation {
                         time: r.time,
                         status: r.status,
                         pressure_pa: r.pressure_pa,
                         range: r.range,
                         regimes: lengths,
                         exposure_langmuir: r.exposure_langmuir,
-                    });
+                    };
+                    match n {
+                        Some(_) => g.add(obs),
+                        None => g.add_as_before(obs),
+                    }
                 }
             }
             Msg::ChamberStart(a) => {
@@ -229,16 +221,6 @@ impl Tally {
             }
         }
     }
-}
-
-/// `to` made a copy of `from`, reusing its entries' buffers.
-fn copy_lengths(to: &mut Vec<LengthDerived>, from: &[LengthDerived]) {
-    to.truncate(from.len());
-    let kept = to.len();
-    for (t, f) in to.iter_mut().zip(from) {
-        t.clone_from(f);
-    }
-    to.extend_from_slice(&from[kept..]);
 }
 
 #[derive(Debug, Default)]
@@ -292,8 +274,8 @@ impl TallyOut {
     }
 
     /// Passes on a reading and its per-length results (`None`: the same
-    /// names and regimes as the gauge's reading before, which the tally
-    /// keeps).
+    /// names and regimes as the gauge's reading before, which had a valid
+    /// pressure: its accumulator keeps them).
     pub fn reading(&mut self, r: Counted, lengths: Option<&[LengthDerived]>) {
         let b = &mut self.worker.batch;
         for l in lengths.unwrap_or_default() {

@@ -189,6 +189,19 @@ impl GaugeAccumulator {
 
     /// Adds one reading.
     pub fn add(&mut self, obs: Observation<'_>) {
+        self.add_reading(obs, false);
+    }
+
+    /// Adds one reading whose flow regimes are those of the reading added
+    /// just before it, which had a valid pressure: the same lengths in the
+    /// same regimes (`obs.regimes` is not read). A caller that keeps the
+    /// regimes while they cannot change says so instead of passing them
+    /// again.
+    pub fn add_as_before(&mut self, obs: Observation<'_>) {
+        self.add_reading(obs, true);
+    }
+
+    fn add_reading(&mut self, obs: Observation<'_>, regimes_as_before: bool) {
         self.samples += 1;
         if let Some(i) = Status::ALL.iter().position(|s| *s == obs.status) {
             self.statuses[i] += 1;
@@ -257,11 +270,14 @@ impl GaugeAccumulator {
         if obs.exposure_langmuir.is_some() {
             self.exposure = obs.exposure_langmuir;
         }
-        let mut held = self.held.take().unwrap_or(Held {
+        let held = self.held.get_or_insert_with(|| Held {
             range: None,
             regimes: Vec::new(),
         });
         held.range = if p.is_some() { obs.range } else { None };
+        if regimes_as_before && p.is_some() {
+            return;
+        }
         held.regimes.clear();
         if p.is_some() {
             for (j, l) in obs.regimes.iter().enumerate() {
@@ -280,7 +296,6 @@ impl GaugeAccumulator {
                 held.regimes.push((i, l.regime));
             }
         }
-        self.held = Some(held);
     }
 
     /// The report so far.

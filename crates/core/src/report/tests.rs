@@ -154,3 +154,54 @@ fn the_mean_keeps_its_digits_over_many_decades() {
     let want = (1e5 + 199_999.0 * 1e-6) / 2e5;
     assert!((mean - want).abs() <= 1e-15 * want, "{mean} vs {want}");
 }
+
+/// A reading added "as before" counts its time in the regimes of the
+/// reading before it, as the same reading added with those regimes does:
+/// the two ways give the same summary (regimes held across a gap, a
+/// reading without a pressure and a change of regime included).
+#[test]
+fn a_reading_as_before_counts_as_the_same_reading_given_in_full() {
+    let readings: Vec<(i64, Option<f64>)> = vec![
+        (0, Some(5e4)),
+        (1, Some(4e4)),
+        (2, Some(3e4)),
+        (3, Some(50.0)),
+        (4, Some(40.0)),
+        (60, Some(30.0)),
+        (61, None),
+        (62, Some(20.0)),
+        (63, Some(10.0)),
+        (64, Some(5e3)),
+        (65, Some(4e3)),
+    ];
+    let run = |shortcut: bool| {
+        let mut acc = GaugeAccumulator::new("g", Vec::new(), Some(30.0));
+        let mut before: Option<Observation<'static>> = None;
+        for &(s, p) in &readings {
+            let o = obs(s, p);
+            // As before: the reading before had a pressure and the same
+            // regimes.
+            let same = before
+                .as_ref()
+                .is_some_and(|b| b.pressure_pa.is_some() && p.is_some() && b.regimes == o.regimes);
+            if shortcut && same {
+                acc.add_as_before(Observation { regimes: &[], ..o });
+            } else {
+                acc.add(Observation { ..o });
+            }
+            before = Some(o);
+        }
+        acc.summary()
+    };
+    let (full, short) = (run(false), run(true));
+    assert_eq!(full, short);
+    // The test has teeth: both regimes, and the gap, are counted.
+    let regimes = &full.time_in_regime_s[0].1;
+    for r in [FlowRegime::Viscous, FlowRegime::Molecular] {
+        assert!(
+            regimes.iter().any(|(x, s)| *x == r && *s > 0.0),
+            "{regimes:?}"
+        );
+    }
+    assert!(full.gap_count == 1, "{full:?}");
+}
