@@ -429,13 +429,13 @@ impl ReportSink {
             return;
         }
         // The gauge's true pressure, on seconds from the first
-        // reading, to the pump-down and rate-of-rise analysis.
+        // reading, to the pump-down and rate-of-rise analysis (worked out
+        // by the tally, off this thread).
         let origin = *self.origin.get_or_insert(s.time);
-        let t_s = crate::timefmt::seconds_between(origin, s.time);
         if let (Some(p), Some(plot)) = (pressure_pa, self.plot.as_mut()) {
             plot.push(
                 i,
-                t_s,
+                crate::timefmt::seconds_between(origin, s.time),
                 p,
                 kinetics.map(|(k, kp)| k.mean_free_path_m(kp) * p),
             );
@@ -447,7 +447,7 @@ impl ReportSink {
         let counted = Counted {
             gauge: i,
             time: obs.time,
-            t_s,
+            origin,
             status: obs.status,
             pressure_pa: obs.pressure_pa,
             range: obs.range,

@@ -101,8 +101,8 @@ pub struct Counted {
     pub gauge: usize,
     /// Reading time.
     pub time: DateTime<Utc>,
-    /// Seconds from the report's origin.
-    pub t_s: f64,
+    /// The report's origin, which the analyses count seconds from.
+    pub origin: DateTime<Utc>,
     /// The reading's status.
     pub status: Status,
     /// True pressure of a valid pressure reading, Pa.
@@ -186,7 +186,7 @@ impl Tally {
                             src
                         }
                     };
-                    a.push_from(r.t_s, p, src);
+                    a.push_from(crate::timefmt::seconds_between(r.origin, r.time), p, src);
                 }
                 if let Some(g) = self.gauges.get_mut(i) {
                     let obs = Observation {
