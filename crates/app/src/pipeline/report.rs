@@ -101,15 +101,18 @@ pub struct ReportSink {
     /// Buffers for a reading's kinetics, reused (boxed: lent out for
     /// each row by moving a pointer).
     scratch: Option<Box<Scratch>>,
+    /// Derive every reading in full and pass its results on each time
+    /// (the straightforward path the shortcuts are tested against).
+    straightforward: bool,
 }
 
 /// The [`ReportSink`]'s buffers for a reading's kinetics.
 #[derive(Default)]
 struct Scratch {
-    /// All of it, for the CSV.
+    /// All of it (the straightforward path only).
     derived: Option<Derived>,
-    /// Per gauge (by index), the range and per-length results alone, for
-    /// the summary when no CSV wants the rest.
+    /// Per gauge (by index), the range and per-length results, for the
+    /// summary and the CSV.
     steady: Vec<Option<Steady>>,
 }
 
@@ -218,8 +221,17 @@ impl ReportSink {
             summary: true,
             span: None,
             scratch: None,
+            straightforward: false,
             options,
         }
+    }
+
+    /// Derives every reading in full and passes its results on each time:
+    /// the straightforward path, which the tests hold the shortcuts to.
+    #[cfg(test)]
+    fn straightforward(mut self) -> Self {
+        self.straightforward = true;
+        self
     }
 
     /// Writes the CSV and keeps the events and messages, but feeds no
@@ -288,7 +300,7 @@ impl ReportSink {
         &mut self,
         obs: &Observation,
         id: &str,
-        derived: Option<&crate::engine::Derived>,
+        derived: Option<DerivedCells>,
         monitor: &Monitor,
     ) {
         let lengths = &monitor.setup().lengths;
@@ -305,20 +317,14 @@ impl ReportSink {
             gauge,
             status: obs.status,
             pressure_pa: obs.pressure_pa,
-            derived: derived.map(|d| DerivedCells {
-                number_density_per_m3: d.number_density_per_m3,
-                mean_free_path_m: d.mean_free_path_m,
-                impingement_per_m2_s: d.impingement_per_m2_s,
-                monolayer_time_s: d.monolayer_time_s,
-                range: d.vacuum_range.as_str(),
-            }),
+            derived,
         };
         let cells = lengths.iter().enumerate().map(|(i, l)| {
             // The engine gives the lengths in the setup's order.
-            let d = derived.and_then(|d| match d.lengths.get(i) {
+            let d = match obs.regimes.get(i) {
                 Some(x) if same_id(&x.name, &l.name) => Some(x),
-                _ => d.lengths.iter().find(|x| same_id(&x.name, &l.name)),
-            });
+                _ => obs.regimes.iter().find(|x| same_id(&x.name, &l.name)),
+            };
             d.map(|d| (d.knudsen, d.regime.as_str()))
         });
         csv.push(record, cells);
@@ -384,9 +390,8 @@ impl ReportSink {
         // The kinetics worked out here, and only what is read: all of
         // it for the CSV, else the lengths' regimes and the range.
         let kinetics = usable.and_then(|t| t.kinetics());
-        let wants_all = self.csv.is_some() || self.csv_to.is_some();
         let derived: Option<&Derived> = match kinetics {
-            Some((k, p)) if wants_all => Some(match derived {
+            Some((k, p)) if self.straightforward => Some(match derived {
                 Some(d) => {
                     k.derive_into(p, d);
                     d
@@ -414,6 +419,27 @@ impl ReportSink {
                 (None, &[], false)
             }
         };
+        // The CSV's cells (when there is a CSV): each quantity alone, by
+        // the expression the full derivation uses.
+        let wants_csv = self.csv.is_some() || self.csv_to.is_some();
+        let cells = match (derived, kinetics) {
+            _ if !wants_csv => None,
+            (Some(d), _) => Some(DerivedCells {
+                number_density_per_m3: d.number_density_per_m3,
+                mean_free_path_m: d.mean_free_path_m,
+                impingement_per_m2_s: d.impingement_per_m2_s,
+                monolayer_time_s: d.monolayer_time_s,
+                range: d.vacuum_range.as_str(),
+            }),
+            (None, Some((k, p))) => Some(DerivedCells {
+                number_density_per_m3: k.number_density_per_m3(p),
+                mean_free_path_m: k.mean_free_path_m(p),
+                impingement_per_m2_s: k.impingement_per_m2_s(p),
+                monolayer_time_s: k.monolayer_time_s(p),
+                range: range.unwrap_or_else(|| k.vacuum_range(p)).as_str(),
+            }),
+            (None, None) => None,
+        };
         let obs = Observation {
             time: s.time,
             status,
@@ -424,7 +450,7 @@ impl ReportSink {
                 .filter(|t| t.is_pressure)
                 .map(|t| t.exposure.langmuir()),
         };
-        self.write_csv(&obs, &s.channel, derived, monitor);
+        self.write_csv(&obs, &s.channel, cells, monitor);
         if !self.summary {
             return;
         }
@@ -990,15 +1016,25 @@ mod tests {
         )
     }
 
-    /// The summaries and analyses of a report, with or without a CSV.
-    fn summaries_of(files: &[PathBuf], with_csv: bool, tally_thread: bool) -> String {
+    /// The summaries and analyses of a report, and its CSV (with
+    /// `with_csv`), by the straightforward path or the shortcuts.
+    fn report_of(
+        files: &[PathBuf],
+        straightforward: bool,
+        with_csv: bool,
+        tally_thread: bool,
+    ) -> String {
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
         let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
         let setup = cfg.monitor_setup(Vec::new());
-        let csv: Option<Box<dyn Write + Send>> = with_csv.then(|| Box::new(std::io::sink()) as _);
-        let mut sink = ReportSink::new(ReportOptions::default(), csv)
+        let csv = crate::pipeline::csv_out::tests::Shared::default();
+        let out: Option<Box<dyn Write + Send>> = with_csv.then(|| Box::new(csv.clone()) as _);
+        let mut sink = ReportSink::new(ReportOptions::default(), out)
             .csv_on_own_thread(false)
             .tally_on_own_thread(tally_thread);
+        if straightforward {
+            sink = sink.straightforward();
+        }
         walk_with(
             files,
             None,
@@ -1008,23 +1044,25 @@ mod tests {
             ReadMode::SameThread,
         );
         format!(
-            "{:?}\n{:?}\n{:?}",
+            "{:?}\n{:?}\n{:?}\n{}",
             sink.summaries(),
             sink.analyses(),
-            sink.chamber_analysis()
+            sink.chamber_analysis(),
+            csv.text()
         )
     }
 
-    /// Differential test of the summary's shortcuts: without a CSV, a
-    /// gauge's range and regimes are kept while its readings stay inside
-    /// their steady band, and the tally is told "as before" instead of
-    /// being passed them again; with a CSV, every reading is derived in
-    /// full and its results passed on (the straightforward path). The
-    /// summaries must be the same, on the sample logs (three gauges, a
-    /// wall temperature that changes) and on a log that falls through
-    /// every range and regime with bad cells, gaps and gas changes.
+    /// Differential test of the report's shortcuts: a gauge's range and
+    /// regimes kept while its readings stay inside their steady band, the
+    /// CSV's quantities worked out one at a time, and the tally told "as
+    /// before" instead of being passed them again; against the
+    /// straightforward path, where every reading is derived in full and
+    /// its results passed on. The summaries and the CSV must be the same,
+    /// on the sample logs (three gauges, a wall temperature that changes)
+    /// and on a log that falls through every range and regime with bad
+    /// cells, gaps and gas changes.
     #[test]
-    fn the_summary_is_the_same_with_and_without_the_csv() {
+    fn the_shortcuts_give_the_report_of_the_full_derivation() {
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
         let dir = std::env::temp_dir().join(format!("rarefy-steady-{}", std::process::id()));
         std::fs::create_dir_all(&dir).expect("dir");
@@ -1058,16 +1096,19 @@ mod tests {
             .map(|n| root.join(format!("sample-logs/{n}.csv")))
             .collect();
         for files in [samples, vec![odd]] {
-            for thread in [false, true] {
-                let full = summaries_of(&files, true, thread);
-                let kept = summaries_of(&files, false, thread);
+            for (with_csv, thread) in [(false, false), (false, true), (true, false), (true, true)] {
+                let full = report_of(&files, true, with_csv, thread);
+                let kept = report_of(&files, false, with_csv, thread);
                 // The log's summaries hold every regime and range.
                 for word in ["Viscous", "Transitional", "Molecular", "Medium", "High"] {
                     assert!(full.contains(word), "no {word}");
                 }
+                if with_csv {
+                    assert!(full.contains(",transitional,"), "no CSV");
+                }
                 assert!(
                     full == kept,
-                    "{files:?}, tally thread {thread}: the summaries differ"
+                    "{files:?}, CSV {with_csv}, tally thread {thread}: the reports differ"
                 );
             }
         }
