@@ -1016,6 +1016,11 @@ mod tests {
         )
     }
 
+    /// A test log's gas cell at row `i`: argon on the rows of `argon`.
+    fn gas_at(i: u32, argon: std::ops::Range<u32>) -> &'static str {
+        if argon.contains(&i) { "Ar" } else { "N2" }
+    }
+
     /// The summaries and analyses of a report, and its CSV (with
     /// `with_csv`), by the straightforward path or the shortcuts.
     fn report_of(
@@ -1079,11 +1084,7 @@ mod tests {
             // across the limits; every 13th reading another temperature.
             let p = 1e5 * (-f64::from(i) / 260.0).exp() * (1.0 + 0.3 * (f64::from(i) / 3.0).sin());
             let wall = 22.0 + f64::from(i % 13) * 0.37;
-            let gas = if (2500..2700).contains(&i) {
-                "Ar"
-            } else {
-                "N2"
-            };
+            let gas = gas_at(i, 2500..2700);
             match i % 97 {
                 3 => text.push_str(&format!("{t},sensor-error,{wall},{gas}\n")),
                 5 => text.push_str(&format!("{t},,{wall},{gas}\n")),
@@ -1141,11 +1142,7 @@ mod tests {
                 i % 2 * 500
             );
             let p = 1e5 * (-f64::from(i) / 200.0).exp() + 1e-4;
-            let gas = if (1000..1400).contains(&i) {
-                "Ar"
-            } else {
-                "N2"
-            };
+            let gas = gas_at(i, 1000..1400);
             match i % 11 {
                 3 => text.push_str(&format!("{t},2.5E-O-5,22,{gas}\n")),
                 5 => text.push_str("2026-11-16T0\n"),
