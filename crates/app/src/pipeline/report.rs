@@ -151,11 +151,11 @@ impl Steady {
         };
         // The same expressions as `Precomputed::lengths_into`.
         let mean_free_path_m = pre.mean_free_path_m(p);
+        let inside = slot
+            .as_mut()
+            .is_some_and(|st| st.band.holds(p, mean_free_path_m) && st.classifies_as(pre));
         match slot {
-            Some(st)
-                if st.band.holds(p, mean_free_path_m)
-                    && (Arc::ptr_eq(&st.pre, pre) || st.pre.same_classes(pre)) =>
-            {
+            Some(st) if inside => {
                 for l in &mut st.lengths {
                     l.knudsen = knudsen(mean_free_path_m, l.length_m);
                 }
@@ -182,6 +182,21 @@ impl Steady {
         let as_before = st.passed;
         st.passed = passing;
         Some((st.range, &st.lengths, as_before))
+    }
+
+    /// Whether `pre` classifies as the kinetics the results were worked
+    /// out with. One that does only after comparing the lengths (a new
+    /// gas) is kept instead, so that the readings after it compare by
+    /// pointer.
+    fn classifies_as(&mut self, pre: &Arc<Precomputed>) -> bool {
+        if Arc::ptr_eq(&self.pre, pre) || self.pre.shares_classes(pre) {
+            true
+        } else if self.pre.same_classes(pre) {
+            self.pre = Arc::clone(pre);
+            true
+        } else {
+            false
+        }
     }
 
     /// The tally is passed other per-length results than `slot`'s.
@@ -294,8 +309,8 @@ impl ReportSink {
         self
     }
 
-    /// `derived`: the engine's results for the reading, when its pressure
-    /// is usable.
+    /// `derived`: the reading's CSV cells, when its pressure is usable;
+    /// the per-length cells come from `obs.regimes`.
     fn write_csv(
         &mut self,
         obs: &Observation,
@@ -384,11 +399,10 @@ impl ReportSink {
             }
         };
         let status = s.reading.status();
-
         let usable = track.filter(|t| status == Status::Ok && t.is_pressure && !t.uncorrectable);
         let pressure_pa = usable.and_then(|t| t.pressure_pa);
-        // The kinetics worked out here, and only what is read: all of
-        // it for the CSV, else the lengths' regimes and the range.
+        // Only what is read is worked out (the straightforward path, for
+        // the tests, derives everything).
         let kinetics = usable.and_then(|t| t.kinetics());
         let derived: Option<&Derived> = match kinetics {
             Some((k, p)) if self.straightforward => Some(match derived {
@@ -989,11 +1003,26 @@ mod tests {
         let _ = std::fs::remove_dir_all(&dir);
     }
 
+    /// The repository's demo config, which these tests run with.
+    fn demo_config() -> crate::config::Config {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+        crate::config::load(&root.join("config/demo.toml")).expect("demo config")
+    }
+
+    /// [`walk_with`] on this thread, with the gases of `cfg`.
+    fn walk_here(
+        files: &[PathBuf],
+        setup: &MonitorSetup,
+        cfg: &crate::config::Config,
+        sink: &mut ReportSink,
+    ) -> WalkOutcome {
+        walk_with(files, None, setup, &cfg.gases, sink, ReadMode::SameThread)
+    }
+
     /// Everything a report gives, as text: the summaries, analyses, events,
     /// the reader's counts and messages, and the CSV.
     fn whole_report(files: &[PathBuf], mode: ReadMode, threads: (bool, bool)) -> String {
-        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
-        let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
+        let cfg = demo_config();
         let setup = cfg.monitor_setup(Vec::new());
         let csv = crate::pipeline::csv_out::tests::Shared::default();
         let options = ReportOptions {
@@ -1029,8 +1058,7 @@ mod tests {
         with_csv: bool,
         tally_thread: bool,
     ) -> String {
-        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
-        let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
+        let cfg = demo_config();
         let setup = cfg.monitor_setup(Vec::new());
         let csv = crate::pipeline::csv_out::tests::Shared::default();
         let out: Option<Box<dyn Write + Send>> = with_csv.then(|| Box::new(csv.clone()) as _);
@@ -1040,14 +1068,7 @@ mod tests {
         if straightforward {
             sink = sink.straightforward();
         }
-        walk_with(
-            files,
-            None,
-            &setup,
-            &cfg.gases,
-            &mut sink,
-            ReadMode::SameThread,
-        );
+        walk_here(files, &setup, &cfg, &mut sink);
         format!(
             "{:?}\n{:?}\n{:?}\n{}",
             sink.summaries(),
@@ -1189,8 +1210,8 @@ mod tests {
     /// or not, also where a gauge first appears after the time went back.
     #[test]
     fn the_csv_alone_is_the_same_csv_with_the_same_span() {
+        let cfg = demo_config();
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
-        let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
         let setup = cfg.monitor_setup(Vec::new());
         let dir = std::env::temp_dir().join(format!("rarefy-alone-{}", std::process::id()));
         std::fs::create_dir_all(&dir).expect("dir");
@@ -1237,14 +1258,7 @@ mod tests {
                     if alone {
                         sink = sink.csv_alone();
                     }
-                    let out = walk_with(
-                        files,
-                        None,
-                        &setup,
-                        &cfg.gases,
-                        &mut sink,
-                        ReadMode::SameThread,
-                    );
+                    let out = walk_here(files, &setup, &cfg, &mut sink);
                     (sink, format!("{out:?}"), csv.text())
                 };
                 let (full, full_out, full_csv) = run(false);
@@ -1269,14 +1283,7 @@ mod tests {
         assert_eq!(spans, 4, "windows with readings");
         // A gauge whose first reading came after the time went back.
         let mut sink = ReportSink::new(ReportOptions::default(), None).csv_alone();
-        walk_with(
-            &logs[1],
-            None,
-            &setup,
-            &cfg.gases,
-            &mut sink,
-            ReadMode::SameThread,
-        );
+        walk_here(&logs[1], &setup, &cfg, &mut sink);
         assert_eq!(
             sink.span(),
             Some((t("2026-11-16T06:00:05Z"), t("2026-11-16T06:00:12Z")))
@@ -1291,8 +1298,8 @@ mod tests {
     /// are trips.
     #[test]
     fn a_csv_alone_with_the_trips_only_is_the_same() {
+        let cfg = demo_config();
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
-        let cfg = crate::config::load(&root.join("config/demo.toml")).expect("demo config");
         let whole = cfg.monitor_setup(Vec::new());
         assert!(!whole.rules.is_empty() && !whole.gates.is_empty());
         let mut trips = whole.clone();
@@ -1314,14 +1321,7 @@ mod tests {
                         ReportSink::new(ReportOptions::default(), Some(Box::new(csv.clone())))
                             .csv_alone();
                     let files = std::slice::from_ref(log);
-                    let out = walk_with(
-                        files,
-                        None,
-                        setup,
-                        &cfg.gases,
-                        &mut sink,
-                        ReadMode::SameThread,
-                    );
+                    let out = walk_here(files, setup, &cfg, &mut sink);
                     (format!("{out:?}"), csv.text(), out.trip_seen)
                 };
                 let (out, csv, trip) = run(&setup);

@@ -137,23 +137,12 @@ pub struct GaugeTrack {
 
 impl GaugeTrack {
     /// The kinetics of the last valid pressure: every quantity, worked out
-    /// now (allocates; a reader at every reading uses
-    /// [`GaugeTrack::derive_into`]).
+    /// now (allocates; a reader at every reading takes
+    /// [`GaugeTrack::kinetics`] and `Precomputed::derive_into` into a
+    /// buffer of its own, or the quantities it reads alone).
     pub fn derived(&self) -> Option<Derived> {
         let (pre, p) = self.kinetics()?;
         Some(pre.derive(p))
-    }
-
-    /// [`GaugeTrack::derived`] into `out`, reusing its allocations; false
-    /// (and `out` untouched) when there is none.
-    pub fn derive_into(&self, out: &mut Derived) -> bool {
-        match self.kinetics() {
-            Some((pre, p)) => {
-                pre.derive_into(p, out);
-                true
-            }
-            None => false,
-        }
     }
 
     /// The kinetics the last valid pressure is worked out with, and that

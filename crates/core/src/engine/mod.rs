@@ -681,11 +681,19 @@ impl Precomputed {
         }
     }
 
+    /// Whether `other` was scaled from the same kinetics as this (or this
+    /// from it, or one from the other) with the same lengths and physics:
+    /// the quick answer of [`Precomputed::same_classes`], by pointer.
+    #[inline]
+    pub fn shares_classes(&self, other: &Precomputed) -> bool {
+        std::sync::Arc::ptr_eq(&self.classes, &other.classes)
+    }
+
     /// Whether `other` classifies as this does: the same ISO edition,
     /// regime bounds and named lengths (so a [`SteadyBand`] of one holds
     /// for the other, whatever their gas and temperature).
     pub fn same_classes(&self, other: &Precomputed) -> bool {
-        if std::sync::Arc::ptr_eq(&self.classes, &other.classes) {
+        if self.shares_classes(other) {
             return true;
         }
         self.edition == other.edition

@@ -607,6 +607,10 @@ fn inside_a_steady_band_the_classes_are_those_worked_out_in_full() {
     let cold = Precomputed::new(295.15, &n2, &lengths, &physics);
     let hot = cold.at_temperature(295.2, &n2, &lengths, &physics);
     assert!(cold.same_classes(&hot) && hot.same_classes(&cold));
+    assert!(cold.shares_classes(&hot));
+    // Another gas's kinetics: the same classes, found by comparing them.
+    let argon = Precomputed::new(295.15, &pure("Ar"), &lengths, &physics);
+    assert!(!cold.shares_classes(&argon) && cold.same_classes(&argon));
     let other = Precomputed::new(295.15, &n2, &lengths[..2], &physics);
     assert!(!cold.same_classes(&other));
     // Pressures at every limit: the ranges' and, for each length, where
