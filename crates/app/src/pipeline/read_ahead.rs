@@ -1,12 +1,20 @@
 //! A log's rows read on a second core while the caller's thread runs the
 //! pipeline on the rows before.
 //!
-//! The reader fills batches of rows in place and hands them over a bounded
+//! The reader fills batches in place and hands them over a bounded
 //! channel; the caller hands each batch back when it has gone through it, so
-//! the rows' buffers (their samples and channel names) are reused rather
-//! than allocated on one core and freed on the other. That cross-core
-//! allocation is what made an earlier design, which sent freshly built rows,
-//! slower than one thread (see `bench/README.md`).
+//! their buffers are reused rather than allocated on one core and freed on
+//! the other. That cross-core allocation is what made an earlier design,
+//! which sent freshly built rows, slower than one thread (see
+//! `bench/README.md`).
+//!
+//! What crosses between the cores is kept small, for every byte the caller
+//! reads was written on the other core, and every byte the reader writes
+//! again was last read on the caller's: a row with the channels, units and
+//! gas of the last row sent in full travels as its line, time and readings
+//! (about 60 bytes for two channels, against some 310 for the row, its
+//! samples and its item), and the caller fills in its own row from them.
+//! Rows of another shape, with notes or a change of UTC offset, go in full.
 //!
 //! Rows reach the caller in file order, every one of them: the same
 //! sequence, good and bad, that the log's iterator gives.
@@ -14,7 +22,10 @@
 use std::sync::mpsc;
 use std::thread::JoinHandle;
 
+use chrono::{DateTime, Utc};
+
 use crate::log::{LogError, LogSource, ReadPosition, Row};
+use crate::sample::{Reading, same_id};
 
 /// How a log's rows are read.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -62,8 +73,8 @@ pub fn read_rows(
     let mut log = match mode {
         ReadMode::Ahead { batch } => match Ahead::start(log, batch, false) {
             Ok(mut ahead) => {
-                while fill(&mut slot, |row| ahead.next_into(row)) {
-                    f(&slot);
+                while let Some(slot) = ahead.next_slot() {
+                    f(slot);
                 }
                 return ahead.finish();
             }
@@ -88,6 +99,15 @@ pub struct Ahead {
     batch: Batch,
     /// Items of `batch` taken.
     at: usize,
+    /// Of them, how many were of each kind, and the readings taken.
+    taken: Taken,
+    /// The last row handed over in full: the shape of the
+    /// [`Kind::Like`] rows after it.
+    shape: Row,
+    /// What [`Ahead::next_slot`] gives, and whether it holds a row of the
+    /// shape.
+    slot: Slot,
+    shaped: bool,
     /// With positions: the reader's position after the last item taken.
     position: Option<ReadPosition>,
     /// The reading has ended.
@@ -98,16 +118,102 @@ pub struct Ahead {
 /// What [`LogSource::next_row_into`] gives for one row.
 type Step = Option<Result<(), LogError>>;
 
-/// Rows read ahead and handed over together.
+/// How far the taker is in each part of a batch.
+#[derive(Debug, Default, Clone, Copy)]
+struct Taken {
+    heads: usize,
+    readings: usize,
+    full: usize,
+    others: usize,
+}
+
+/// How an item of a batch is handed over.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Kind {
+    /// A row shaped like the last row handed over in full ([`like`]): its
+    /// line, time and order flags in [`Batch::heads`], its readings in
+    /// [`Batch::readings`].
+    Like,
+    /// A row in full: the next of [`Batch::rows`].
+    Full,
+    /// What the reader gave otherwise (an error, the end): the next of
+    /// [`Batch::others`].
+    Other,
+}
+
+/// What a [`Kind::Like`] row has of its own besides its readings.
+#[derive(Debug, Clone, Copy)]
+struct Head {
+    line: u64,
+    time: DateTime<Utc>,
+    time_went_back: bool,
+    time_repeated: bool,
+}
+
+/// Rows read ahead and handed over together: most as [`Kind::Like`] rows,
+/// the rest in full (see the module's introduction).
 #[derive(Default)]
 struct Batch {
-    /// What the reader gave for each row (`None` at the end).
-    items: Vec<Step>,
-    /// When positions are kept: where the reader stood after each item
-    /// (apart from `items`, so that an item is moved without them).
-    positions: Vec<ReadPosition>,
-    /// The rows read into, one per item.
+    /// One per item, in order.
+    kinds: Vec<Kind>,
+    /// The [`Kind::Like`] rows' own parts, in order.
+    heads: Vec<Head>,
+    /// The [`Kind::Like`] rows' readings, one per channel of the shape, in
+    /// order.
+    readings: Vec<Reading>,
+    /// The [`Kind::Full`] rows: the first `full` are this batch's (the rest
+    /// are kept for their buffers).
     rows: Vec<Row>,
+    full: usize,
+    /// The [`Kind::Other`] items, in order: errors, and `None` for the
+    /// end.
+    others: Vec<Option<LogError>>,
+    /// When positions are kept: where the reader stood after each item.
+    positions: Vec<ReadPosition>,
+}
+
+impl Batch {
+    fn clear(&mut self) {
+        self.kinds.clear();
+        self.heads.clear();
+        self.readings.clear();
+        self.full = 0;
+        self.others.clear();
+        self.positions.clear();
+    }
+
+    fn len(&self) -> usize {
+        self.kinds.len()
+    }
+}
+
+/// Whether `row` can travel as a [`Kind::Like`] row after `shape` (the last
+/// row handed over in full): the same channels with the same units, every
+/// reading at the row's time, the same gas, no notes and no change of UTC
+/// offset.
+fn like(row: &Row, shape: &Row) -> bool {
+    row.samples.len() == shape.samples.len()
+        && row
+            .samples
+            .iter()
+            .zip(&shape.samples)
+            .all(|(s, t)| s.time == row.time && s.unit == t.unit && same_id(&s.channel, &t.channel))
+        && row.gas == shape.gas
+        && row.notes.is_empty()
+        && row.offset_change.is_none()
+}
+
+/// Whether `row` has `shape`'s channels, units and gas, so that a
+/// [`Kind::Like`] row is filled in by its line, time, flags and readings
+/// (and no notes).
+fn shaped_as(row: &Row, shape: &Row) -> bool {
+    row.samples.len() == shape.samples.len()
+        && row
+            .samples
+            .iter()
+            .zip(&shape.samples)
+            .all(|(s, t)| s.unit == t.unit && same_id(&s.channel, &t.channel))
+        && row.gas == shape.gas
 }
 
 impl Ahead {
@@ -135,19 +241,46 @@ impl Ahead {
             let Ok(mut log) = log_rx.recv() else {
                 return None;
             };
+            // The row read into, and the last row handed over in full (the
+            // shape the rows after it are compared with).
+            let mut cur = Row::default();
+            let mut shape: Option<Row> = None;
             // Ends at the end of the log, or when the taker has gone.
             while let Ok(mut b) = empty_rx.recv() {
-                b.items.clear();
-                b.positions.clear();
+                b.clear();
                 let mut end = false;
-                while b.items.len() < batch && !end {
-                    let i = b.items.len();
-                    if b.rows.len() == i {
-                        b.rows.push(Row::default());
+                while b.len() < batch && !end {
+                    match log.next_row_into(&mut cur) {
+                        Some(Ok(())) if shape.as_ref().is_some_and(|s| like(&cur, s)) => {
+                            b.kinds.push(Kind::Like);
+                            b.heads.push(Head {
+                                line: cur.line,
+                                time: cur.time,
+                                time_went_back: cur.time_went_back,
+                                time_repeated: cur.time_repeated,
+                            });
+                            b.readings.extend(cur.samples.iter().map(|s| s.reading));
+                        }
+                        Some(Ok(())) => {
+                            shape.get_or_insert_with(Row::default).clone_from(&cur);
+                            if b.rows.len() == b.full {
+                                b.rows.push(Row::default());
+                            }
+                            // The row goes; a spare buffer is read into next.
+                            std::mem::swap(&mut b.rows[b.full], &mut cur);
+                            b.full += 1;
+                            b.kinds.push(Kind::Full);
+                        }
+                        Some(Err(e)) => {
+                            b.others.push(Some(e));
+                            b.kinds.push(Kind::Other);
+                        }
+                        None => {
+                            end = true;
+                            b.others.push(None);
+                            b.kinds.push(Kind::Other);
+                        }
                     }
-                    let item = log.next_row_into(&mut b.rows[i]);
-                    end = item.is_none();
-                    b.items.push(item);
                     if positions {
                         b.positions.push(log.read_position());
                     }
@@ -173,39 +306,130 @@ impl Ahead {
             empty: empty_tx,
             batch: Batch::default(),
             at: 0,
+            taken: Taken::default(),
+            shape: Row::default(),
+            slot: Ok(Row::default()),
+            shaped: false,
             position,
             done: false,
             thread: Some(thread),
         })
     }
 
-    /// The next row into `row` (swapped with the one read ahead), as
-    /// [`LogSource::next_row_into`] gives it.
-    pub fn next_into(&mut self, row: &mut Row) -> Step {
+    /// Moves to the next item, taking the next batch when this one is
+    /// used up; its kind, or `None` at the end.
+    fn step(&mut self) -> Option<Kind> {
         if self.done {
             return None;
         }
-        if self.at == self.batch.items.len() {
+        if self.at == self.batch.len() {
             // A batch the reader could not send (it stopped) reads as the end.
             let next = self.full.recv().unwrap_or_default();
             let used = std::mem::replace(&mut self.batch, next);
             let _ = self.empty.send(used);
             self.at = 0;
+            self.taken = Taken::default();
         }
-        let Some(item) = self.batch.items.get_mut(self.at) else {
+        let Some(&kind) = self.batch.kinds.get(self.at) else {
             self.done = true;
             return None;
         };
         if let (Some(mine), Some(p)) = (self.position.as_mut(), self.batch.positions.get(self.at)) {
             mine.clone_from(p);
         }
-        let item = item.take();
-        if let (Some(Ok(())), Some(r)) = (&item, self.batch.rows.get_mut(self.at)) {
-            std::mem::swap(row, r);
-        }
         self.at += 1;
+        Some(kind)
+    }
+
+    /// Fills `row` with the [`Kind::Like`] row stepped to in `b` (`t`:
+    /// how far the taker is); `shaped`: `row` has `shape`'s channels, units
+    /// and gas already.
+    fn fill_like(b: &Batch, t: &mut Taken, shape: &Row, row: &mut Row, shaped: bool) {
+        let h = b.heads[t.heads];
+        t.heads += 1;
+        let n = shape.samples.len();
+        let readings = &b.readings[t.readings..t.readings + n];
+        t.readings += n;
+        if !shaped {
+            row.clone_from(shape);
+        }
+        row.line = h.line;
+        row.time = h.time;
+        row.time_went_back = h.time_went_back;
+        row.time_repeated = h.time_repeated;
+        row.offset_change = None;
+        row.notes.clear();
+        for (s, r) in row.samples.iter_mut().zip(readings) {
+            s.time = h.time;
+            s.reading = *r;
+        }
+    }
+
+    /// Swaps `row` with the [`Kind::Full`] row stepped to in `b`, which
+    /// becomes the `shape`.
+    fn swap_full(b: &mut Batch, t: &mut Taken, shape: &mut Row, row: &mut Row) {
+        let r = &mut b.rows[t.full];
+        t.full += 1;
+        shape.clone_from(r);
+        std::mem::swap(row, r);
+    }
+
+    /// The [`Kind::Other`] item stepped to: an error, or `None` at the end.
+    fn other(&mut self) -> Option<LogError> {
+        let item = self.batch.others[self.taken.others].take();
+        self.taken.others += 1;
         self.done = item.is_none();
         item
+    }
+
+    /// The next row into `row` (any row: one with the channels of the row
+    /// before is filled in, another is overwritten), as
+    /// [`LogSource::next_row_into`] gives it.
+    pub fn next_into(&mut self, row: &mut Row) -> Step {
+        match self.step()? {
+            Kind::Like => {
+                let shaped = shaped_as(row, &self.shape);
+                Self::fill_like(&self.batch, &mut self.taken, &self.shape, row, shaped);
+                Some(Ok(()))
+            }
+            Kind::Full => {
+                Self::swap_full(&mut self.batch, &mut self.taken, &mut self.shape, row);
+                Some(Ok(()))
+            }
+            Kind::Other => self.other().map(Err),
+        }
+    }
+
+    /// The next row or error, as [`LogSource::next_row_into`] gives it,
+    /// in a slot of the reading's own: a row with the channels of the row
+    /// before is filled in there without comparing them again.
+    pub fn next_slot(&mut self) -> Option<&Slot> {
+        match self.step()? {
+            Kind::Like => {
+                if self.slot.is_err() {
+                    // After an error (which left the shape).
+                    self.slot = Ok(Row::default());
+                }
+                if let Ok(row) = &mut self.slot {
+                    Self::fill_like(&self.batch, &mut self.taken, &self.shape, row, self.shaped);
+                }
+                self.shaped = true;
+            }
+            Kind::Full => {
+                if self.slot.is_err() {
+                    self.slot = Ok(Row::default());
+                }
+                if let Ok(row) = &mut self.slot {
+                    Self::swap_full(&mut self.batch, &mut self.taken, &mut self.shape, row);
+                }
+                self.shaped = true;
+            }
+            Kind::Other => {
+                self.slot = Err(self.other()?);
+                self.shaped = false;
+            }
+        }
+        Some(&self.slot)
     }
 
     /// With positions: where the reader stood after the last row taken
@@ -342,6 +566,125 @@ mod tests {
         assert!(dropped.next_into(&mut row).is_some());
         assert_eq!(dropped.position(), None);
         drop(dropped);
+    }
+
+    /// Every row read ahead in `batch`-row batches, each into a row of the
+    /// taker's choosing: the same one every time (as `read_rows` does), a
+    /// new one, or one with the last row's channels in another order.
+    fn taken_ahead(
+        text: &str,
+        source: &dyn Fn(&str) -> Box<dyn LogSource>,
+        batch: usize,
+        into: u8,
+    ) -> Vec<String> {
+        let mut ahead =
+            Ahead::start(source(text), batch, false).unwrap_or_else(|_| panic!("thread"));
+        let mut row = Row::default();
+        let mut got = Vec::new();
+        loop {
+            match into {
+                0 => {}
+                1 => row = Row::default(),
+                _ => row.samples.reverse(),
+            }
+            let shown = match ahead.next_into(&mut row) {
+                None => break,
+                Some(Ok(())) => format!("ok {row:?}"),
+                Some(Err(e)) => format!("err {e} {:?}", e.row),
+            };
+            got.push(shown);
+        }
+        got
+    }
+
+    /// A v1 log with a gas column, whose rows change in every way a row
+    /// can: good rows, bad and empty cells, a status word, a cut-off line,
+    /// times that go back, repeat or change their UTC offset, a new gas.
+    fn varied_log(kinds: &[u8]) -> String {
+        let mut text = String::from("# rarefy log v1\ntime,chamber [Pa],wall [C],gas\n");
+        let mut gas = "N2";
+        for (i, k) in kinds.iter().enumerate() {
+            let (m, s) = (i / 60 % 60, i % 60);
+            let t = format!("2026-11-16T06:{m:02}:{s:02}.500Z");
+            let line = match k % 10 {
+                0 => format!("{t},,22.5,{gas}"),
+                1 => format!("{t},sensor-off,22,{gas}"),
+                2 => "2026-11-16T0".to_string(),
+                3 => format!("{t},2.5E-O-5,22,{gas}"),
+                4 => format!("2026-11-16T05:00:{s:02}Z,1e-3,22,{gas}"),
+                5 => format!("2026-11-16T07:{m:02}:{s:02}.500+01:00,1e-3,22,{gas}"),
+                6 => {
+                    gas = if gas == "N2" { "Ar" } else { "N2" };
+                    format!("{t},{}e-4,21,{gas}", i + 1)
+                }
+                7 => format!("{t},-1,22,{gas}"),
+                _ => format!("{t},{}e-3,2{}.5,{gas}", i + 1, k % 3),
+            };
+            text.push_str(&line);
+            text.push('\n');
+        }
+        text
+    }
+
+    proptest::proptest! {
+        /// Rows handed over by their readings alone are filled in, in
+        /// whatever row the taker gives, to the rows the log's iterator
+        /// gives, across batch edges and every change of a row's shape.
+        #[test]
+        fn rows_handed_over_in_part_are_the_iterators_rows(
+            kinds in proptest::collection::vec(0u8..30, 0..120),
+            batch in 1usize..9,
+            into in 0u8..3,
+        ) {
+            let text = varied_log(&kinds);
+            let expected: Vec<String> = log(&text).map(|s| shown(&s)).collect();
+            let got = taken_ahead(&text, &log, batch, into);
+            proptest::prop_assert_eq!(&got, &expected);
+            let mut slots = Vec::new();
+            read_rows(log(&text), ReadMode::Ahead { batch }, |s| slots.push(shown(s)));
+            proptest::prop_assert_eq!(&slots, &expected);
+        }
+    }
+
+    /// The same for another logger's file, whose rows carry notes.
+    #[test]
+    fn rows_with_notes_are_handed_over_in_full() {
+        let toml = "[log]\ndelimiter = \";\"\nnotes = [\"Remark\"]\n\
+                    time = { column = \"Time\", format = \"%Y-%m-%d %H:%M:%S\", timezone = \"UTC\" }\n\
+                    [[log.column]]\nname = \"P\"\nchannel = \"p\"\nunit = \"mbar\"\n";
+        let spec = crate::config::parse(toml, std::path::Path::new("t.toml"))
+            .unwrap_or_else(|e| panic!("{e}"))
+            .log
+            .expect("a [log] section");
+        let mut text = String::from("Time;P;Remark\n");
+        for i in 0..40 {
+            let remark = if i % 6 == 2 { "door opened" } else { "" };
+            text.push_str(&format!("2026-11-16 06:00:{i:02};{}e-3;{remark}\n", i + 1));
+        }
+        let foreign = |t: &str| -> Box<dyn LogSource> {
+            Box::new(
+                crate::log::ForeignReader::new(
+                    std::io::Cursor::new(t.as_bytes().to_vec()),
+                    "x.csv",
+                    &spec,
+                )
+                .unwrap_or_else(|e| panic!("{e}")),
+            )
+        };
+        let expected: Vec<String> = foreign(&text).map(|s| shown(&s)).collect();
+        assert!(
+            expected.iter().any(|r| r.contains("door opened")),
+            "{expected:?}"
+        );
+        for batch in [1, 4, 64] {
+            for into in 0..3 {
+                assert_eq!(
+                    taken_ahead(&text, &foreign, batch, into),
+                    expected,
+                    "{batch} {into}"
+                );
+            }
+        }
     }
 
     #[test]

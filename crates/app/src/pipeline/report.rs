@@ -365,8 +365,10 @@ impl ReportSink {
         let track = monitor.track(&s.channel);
         let i = match self.index.get(&s.channel) {
             Some(i) => {
-                if let Some((_, end)) = self.span.as_mut() {
-                    *end = (*end).max(s.time);
+                if let Some((_, end)) = self.span.as_mut()
+                    && s.time > *end
+                {
+                    *end = s.time;
                 }
                 *i
             }
