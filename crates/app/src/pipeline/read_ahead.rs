@@ -188,31 +188,30 @@ impl Batch {
 }
 
 /// Whether `row` can travel as a [`Kind::Like`] row after `shape` (the last
-/// row handed over in full): the same channels with the same units, every
-/// reading at the row's time, the same gas, no notes and no change of UTC
-/// offset.
+/// row handed over in full): its shape, every reading at the row's time, no
+/// notes and no change of UTC offset.
 fn like(row: &Row, shape: &Row) -> bool {
-    row.samples.len() == shape.samples.len()
-        && row
-            .samples
-            .iter()
-            .zip(&shape.samples)
-            .all(|(s, t)| s.time == row.time && s.unit == t.unit && same_id(&s.channel, &t.channel))
-        && row.gas == shape.gas
-        && row.notes.is_empty()
-        && row.offset_change.is_none()
+    same_shape::<true>(row, shape) && row.notes.is_empty() && row.offset_change.is_none()
 }
 
 /// Whether `row` has `shape`'s channels, units and gas, so that a
 /// [`Kind::Like`] row is filled in by its line, time, flags and readings
 /// (and no notes).
 fn shaped_as(row: &Row, shape: &Row) -> bool {
+    same_shape::<false>(row, shape)
+}
+
+/// Whether `row` has `shape`'s channels, units and gas, and with
+/// `AT_ROW_TIME` every reading at the row's time (one pass over the
+/// samples: the reader asks it of every row).
+#[inline(always)]
+fn same_shape<const AT_ROW_TIME: bool>(row: &Row, shape: &Row) -> bool {
     row.samples.len() == shape.samples.len()
-        && row
-            .samples
-            .iter()
-            .zip(&shape.samples)
-            .all(|(s, t)| s.unit == t.unit && same_id(&s.channel, &t.channel))
+        && row.samples.iter().zip(&shape.samples).all(|(s, t)| {
+            (!AT_ROW_TIME || s.time == row.time)
+                && s.unit == t.unit
+                && same_id(&s.channel, &t.channel)
+        })
         && row.gas == shape.gas
 }
 

@@ -382,3 +382,45 @@ impl TallyOut {
         self.worker.state()
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A packed reading gives back every field of the reading, with and
+    /// without its pressure and exposure (zero among them), and its length
+    /// count or "as before".
+    #[test]
+    fn a_packed_reading_keeps_what_the_tally_reads() {
+        let time: DateTime<Utc> = "2026-11-16T06:00:00.125Z".parse().expect("time");
+        for (pressure_pa, exposure_langmuir, lengths) in [
+            (Some(2.5e-4), Some(0.0), Some(2)),
+            (None, Some(1.5), None),
+            (Some(0.0), None, Some(0)),
+            (None, None, None),
+        ] {
+            let r = Counted {
+                gauge: 3,
+                time,
+                origin: time,
+                status: Status::UnderRange,
+                pressure_pa,
+                range: pressure_pa.map(|_| VacuumRange::High),
+                exposure_langmuir,
+                element: Element::Thermal,
+            };
+            let p = Packed::new(&r, lengths);
+            assert_eq!(p.pressure_pa(), pressure_pa);
+            assert_eq!(p.exposure_langmuir(), exposure_langmuir);
+            assert_eq!(
+                (p.gauge, p.time, p.status, p.range, p.element),
+                (3, time, r.status, r.range, r.element)
+            );
+            let back = (p.lengths != Packed::AS_BEFORE).then_some(p.lengths as usize);
+            assert_eq!(back, lengths);
+        }
+        // What it is for: less memory between the cores than a `Counted`.
+        assert!(std::mem::size_of::<Packed>() <= 40);
+        assert!(std::mem::size_of::<Packed>() < std::mem::size_of::<Counted>());
+    }
+}
