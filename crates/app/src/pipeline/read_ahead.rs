@@ -404,21 +404,16 @@ impl Ahead {
     /// before is filled in there without comparing them again.
     pub fn next_slot(&mut self) -> Option<&Slot> {
         match self.step()? {
+            // After an error the slot holds a new row, not of the shape
+            // (`shaped` was cleared with the error).
             Kind::Like => {
-                if self.slot.is_err() {
-                    // After an error (which left the shape).
-                    self.slot = Ok(Row::default());
-                }
-                if let Ok(row) = &mut self.slot {
+                if let Some(row) = row_in(&mut self.slot) {
                     Self::fill_like(&self.batch, &mut self.taken, &self.shape, row, self.shaped);
                 }
                 self.shaped = true;
             }
             Kind::Full => {
-                if self.slot.is_err() {
-                    self.slot = Ok(Row::default());
-                }
-                if let Ok(row) = &mut self.slot {
+                if let Some(row) = row_in(&mut self.slot) {
                     Self::swap_full(&mut self.batch, &mut self.taken, &mut self.shape, row);
                 }
                 self.shaped = true;
@@ -467,13 +462,19 @@ impl Drop for Ahead {
     }
 }
 
-/// Reads the next row into `slot` with `next`, reusing the row it holds;
-/// false at the end of the log.
-fn fill(slot: &mut Slot, mut next: impl FnMut(&mut Row) -> Step) -> bool {
+/// The row `slot` holds, to read or fill into: a new one in place of an
+/// error (always `Some`).
+fn row_in(slot: &mut Slot) -> Option<&mut Row> {
     if slot.is_err() {
         *slot = Ok(Row::default());
     }
-    let Ok(row) = slot else {
+    slot.as_mut().ok()
+}
+
+/// Reads the next row into `slot` with `next`, reusing the row it holds;
+/// false at the end of the log.
+fn fill(slot: &mut Slot, mut next: impl FnMut(&mut Row) -> Step) -> bool {
+    let Some(row) = row_in(slot) else {
         return false;
     };
     match next(row) {
