@@ -29,6 +29,29 @@ pub fn push_exp_bytes(out: &mut Vec<u8>, v: f64) {
     }
 }
 
+/// The most bytes a number laid out by [`push_exp`] takes (a sign and 32).
+pub const EXP_MOST: usize = MOST + 1;
+
+/// Room [`lay_exp_at`] needs from where it lays a number out: the number
+/// itself (at most 33 bytes with a sign) and fixed-size copies beyond it.
+pub const LAY_ROOM: usize = ROOM;
+
+/// Lays `v` out as [`push_exp`] writes it at `out[at..]` and returns the
+/// index after it: a line is laid out in place, with no copy through a
+/// buffer of its own. Bytes after the number, up to `at + LAY_ROOM`, may be
+/// overwritten.
+///
+/// # Panics
+/// When `out` has fewer than [`LAY_ROOM`] bytes from `at` (the caller
+/// sizes its buffer first).
+#[inline]
+pub fn lay_exp_at(out: &mut [u8], at: usize, v: f64) -> usize {
+    let Some(laid) = out.get_mut(at..).and_then(|s| s.first_chunk_mut::<ROOM>()) else {
+        panic!("lay_exp_at: fewer than {ROOM} bytes from {at}");
+    };
+    at + lay_exp_len(v, laid)
+}
+
 /// `v` laid out as [`push_exp`] writes it, in `laid`.
 fn lay_exp(v: f64, laid: &mut [u8; ROOM]) -> &[u8] {
     let n = lay_exp_len(v, laid);
@@ -310,6 +333,10 @@ mod tests {
         let mut b = b"x,".to_vec();
         push_exp_bytes(&mut b, v);
         assert_eq!(b[2..], *s.as_bytes(), "bytes and text of {v:?}");
+        let mut line = [b'#'; 2 + LAY_ROOM];
+        let end = lay_exp_at(&mut line, 2, v);
+        assert_eq!(line[2..end], *s.as_bytes(), "laid in place: {v:?}");
+        assert_eq!(line[..2], *b"##", "before {v:?}");
         let std = format!("{v:e}");
         if v.is_nan() {
             assert_eq!(s, "NaN");

@@ -285,25 +285,55 @@ pub struct Rfc3339Writer {
     day: Option<(chrono::NaiveDate, [u8; 24])>,
 }
 
+/// The most bytes [`Rfc3339Writer::lay_at`] writes: 24 for a year of four
+/// digits, 27 for chrono's longest (`+262142-12-31T23:59:60.999Z`).
+pub const RFC3339_MOST: usize = 32;
+
 impl Rfc3339Writer {
     /// Appends `t` as [`push_rfc3339_bytes`] does.
     #[inline]
     pub fn push(&mut self, out: &mut Vec<u8>, t: DateTime<Utc>) {
+        match self.text(t) {
+            Some(buf) => out.extend_from_slice(&buf),
+            None => push_rfc3339_bytes(out, t),
+        }
+    }
+
+    /// Writes `t` as [`push_rfc3339_bytes`] does at `out[at..]`; returns the
+    /// index after it.
+    ///
+    /// # Panics
+    /// When `out` has fewer than [`RFC3339_MOST`] bytes from `at` (the
+    /// caller sizes its buffer first).
+    #[inline]
+    pub fn lay_at(&mut self, out: &mut [u8], at: usize, t: DateTime<Utc>) -> usize {
+        match self.text(t) {
+            Some(buf) => {
+                out[at..at + 24].copy_from_slice(&buf);
+                at + 24
+            }
+            None => {
+                let text = t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true);
+                out[at..at + text.len()].copy_from_slice(text.as_bytes());
+                at + text.len()
+            }
+        }
+    }
+
+    /// `t` as `YYYY-MM-DDTHH:MM:SS.mmmZ` from the cached date's text;
+    /// `None` for years RFC 3339 cannot hold in four digits.
+    #[inline]
+    fn text(&mut self, t: DateTime<Utc>) -> Option<[u8; 24]> {
         use chrono::Timelike;
         let naive = t.naive_utc();
         let (date, time) = (naive.date(), naive.time());
         let mut buf = match self.day {
             Some((d, text)) if d == date => text,
-            _ => match rfc3339_millis(t) {
-                Some(text) => {
-                    self.day = Some((date, text));
-                    text
-                }
-                None => {
-                    push_rfc3339_bytes(out, t);
-                    return;
-                }
-            },
+            _ => {
+                let text = rfc3339_millis(t)?;
+                self.day = Some((date, text));
+                text
+            }
         };
         let secs = time.num_seconds_from_midnight();
         // A leap second shows as :60, as chrono writes it.
@@ -320,7 +350,7 @@ impl Rfc3339Writer {
         buf[17..19].copy_from_slice(&two(s));
         buf[20] = b'0' + (ms / 100) as u8;
         buf[21..23].copy_from_slice(&two(ms % 100));
-        out.extend_from_slice(&buf);
+        Some(buf)
     }
 }
 
@@ -360,7 +390,8 @@ mod rfc3339_writer_tests {
                 let (mut a, mut b) = (b"x,".to_vec(), b"x,".to_vec());
                 w.push(&mut a, t);
                 push_rfc3339_bytes(&mut b, t);
-                prop_assert_eq!(a, b, "{}", t);
+                prop_assert_eq!(&a, &b, "{}", t);
+                prop_assert_eq!(laid_at(&mut w, t), &b[2..], "{}", t);
             }
         }
     }
@@ -381,7 +412,26 @@ mod rfc3339_writer_tests {
             w.push(&mut a, t);
             push_rfc3339_bytes(&mut b, t);
             assert_eq!(a, b, "{t}");
+            assert_eq!(laid_at(&mut w, t), b, "{t}");
         }
+        // chrono's first and last times fit in RFC3339_MOST.
+        for t in [DateTime::<Utc>::MIN_UTC, DateTime::<Utc>::MAX_UTC] {
+            let mut b = Vec::new();
+            push_rfc3339_bytes(&mut b, t);
+            assert!(b.len() <= RFC3339_MOST, "{}", b.len());
+            assert_eq!(laid_at(&mut w, t), b, "{t}");
+        }
+    }
+
+    /// `t` laid out by [`Rfc3339Writer::lay_at`] after 3 bytes of a line,
+    /// in a buffer of exactly the room it asks for; the bytes before and
+    /// after untouched.
+    fn laid_at(w: &mut Rfc3339Writer, t: DateTime<Utc>) -> Vec<u8> {
+        let mut out = [b'#'; 3 + RFC3339_MOST];
+        let end = w.lay_at(&mut out, 3, t);
+        assert_eq!(out[..3], *b"###");
+        assert!(out[end..].iter().all(|&c| c == b'#'), "{t}");
+        out[3..end].to_vec()
     }
 }
 

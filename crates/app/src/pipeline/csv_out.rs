@@ -79,10 +79,15 @@ struct Writer {
     header_written: bool,
     lengths: usize,
     names: Vec<String>,
+    /// The lines being laid out, in place: kept at its length (zeroed once)
+    /// and written from its start in pieces of about 64 KiB.
     line: Vec<u8>,
     times: crate::timefmt::Rfc3339Writer,
     error: Option<String>,
 }
+
+/// Lines are written in pieces of about this many bytes.
+const PIECE: usize = 1 << 16;
 
 impl Writer {
     fn write(&mut self, batch: &Batch) {
@@ -96,11 +101,12 @@ impl Writer {
         if self.error.is_some() {
             return;
         }
-        let line = &mut self.line;
-        line.clear();
+        let mut used = 0;
         if !self.header_written && !batch.records.is_empty() {
             self.header_written = true;
-            line.extend_from_slice(self.header.as_bytes());
+            let header = self.header.as_bytes();
+            room(&mut self.line, header.len());
+            used = put(&mut self.line, 0, header);
         }
         for (i, r) in batch.records.iter().enumerate() {
             let cells = batch
@@ -108,21 +114,19 @@ impl Writer {
                 .get(i * self.lengths..(i + 1) * self.lengths)
                 .unwrap_or_default();
             let name = self.names.get(r.gauge).map_or("", String::as_str);
-            lay_out(line, &mut self.times, r, name, cells);
-            // Written in pieces of about 64 KiB.
-            if line.len() >= 1 << 16 {
-                if let Err(e) = self.out.write_all(line) {
+            used = lay_out(&mut self.line, used, &mut self.times, r, name, cells);
+            if used >= PIECE {
+                if let Err(e) = self.out.write_all(&self.line[..used]) {
                     self.error = Some(format!("cannot write the CSV: {e}"));
                     return;
                 }
-                line.clear();
+                used = 0;
             }
         }
-        if let Err(e) = self.out.write_all(line) {
+        if let Err(e) = self.out.write_all(&self.line[..used]) {
             self.error = Some(format!("cannot write the CSV: {e}"));
             return;
         }
-        line.clear();
         if batch.flush
             && let Err(e) = self.out.flush()
         {
@@ -131,42 +135,96 @@ impl Writer {
     }
 }
 
-/// One CSV line: time, gauge, status, pressure, number density, mean free
-/// path, per length Knudsen number and regime, impingement rate, time to a
-/// monolayer, range. Numbers in the shortest form that reads back to the
-/// same `f64` (`numfmt::push_exp`); no value, an empty cell.
+/// Makes `line` at least `n` bytes long.
+fn room(line: &mut Vec<u8>, n: usize) {
+    if line.len() < n {
+        line.resize(n, 0);
+    }
+}
+
+/// Copies `s` to `b[k..]`; returns the index after it. A text of up to 32
+/// bytes goes in copies of a fixed size (moves, not a call), overlapping
+/// where it is shorter than two of them.
+#[inline(always)]
+fn put(b: &mut [u8], k: usize, s: &[u8]) -> usize {
+    let n = s.len();
+    let dst = &mut b[k..k + n];
+    if (16..=32).contains(&n) {
+        dst[..16].copy_from_slice(&s[..16]);
+        dst[n - 16..].copy_from_slice(&s[n - 16..]);
+    } else if (8..16).contains(&n) {
+        dst[..8].copy_from_slice(&s[..8]);
+        dst[n - 8..].copy_from_slice(&s[n - 8..]);
+    } else if n < 8 {
+        for (d, c) in dst.iter_mut().zip(s) {
+            *d = *c;
+        }
+    } else {
+        dst.copy_from_slice(s);
+    }
+    k + n
+}
+
+/// Lays out one CSV line at `line[at..]` (lengthening `line` first if it
+/// could fall short); returns the index after it. The line: time, gauge,
+/// status, pressure, number density, mean free path, per length Knudsen
+/// number and regime, impingement rate, time to a monolayer, range.
+/// Numbers in the shortest form that reads back to the same `f64`
+/// (`numfmt::push_exp`'s); no value, an empty cell.
 fn lay_out(
     line: &mut Vec<u8>,
+    at: usize,
     times: &mut crate::timefmt::Rfc3339Writer,
     r: &Record,
     gauge: &str,
     cells: &[LengthCells],
-) {
-    let num = |line: &mut Vec<u8>, v: Option<f64>| {
-        line.push(b',');
-        if let Some(v) = v {
-            rarefy_core::numfmt::push_exp_bytes(line, v);
+) -> usize {
+    use rarefy_core::numfmt::{EXP_MOST, LAY_ROOM, lay_exp_at};
+    let d = r.derived.as_ref();
+    let status = r.status.as_str().as_bytes();
+    let range = d.map_or("", |d| d.range).as_bytes();
+    // The longest the line can be: its texts, the time, each number with
+    // its comma, the other commas and the line's end; and the room the
+    // last number is laid out in.
+    let texts = gauge.len()
+        + status.len()
+        + range.len()
+        + cells.iter().flatten().map(|c| c.1.len()).sum::<usize>();
+    let numbers = 5 + cells.len();
+    let most = crate::timefmt::RFC3339_MOST
+        + texts
+        + numbers * (1 + EXP_MOST)
+        + cells.len()
+        + 4
+        + LAY_ROOM;
+    room(line, at + most);
+    let b = line.as_mut_slice();
+    let num = |b: &mut [u8], k: usize, v: Option<f64>| {
+        b[k] = b',';
+        match v {
+            Some(v) => lay_exp_at(b, k + 1, v),
+            None => k + 1,
         }
     };
-    let d = r.derived.as_ref();
-    times.push(line, r.time);
-    line.push(b',');
-    line.extend_from_slice(gauge.as_bytes());
-    line.push(b',');
-    line.extend_from_slice(r.status.as_str().as_bytes());
-    num(line, r.pressure_pa);
-    num(line, d.map(|d| d.number_density_per_m3));
-    num(line, d.map(|d| d.mean_free_path_m));
+    let mut k = times.lay_at(b, at, r.time);
+    b[k] = b',';
+    k = put(b, k + 1, gauge.as_bytes());
+    b[k] = b',';
+    k = put(b, k + 1, status);
+    k = num(b, k, r.pressure_pa);
+    k = num(b, k, d.map(|d| d.number_density_per_m3));
+    k = num(b, k, d.map(|d| d.mean_free_path_m));
     for c in cells {
-        num(line, c.map(|c| c.0));
-        line.push(b',');
-        line.extend_from_slice(c.map_or("", |c| c.1).as_bytes());
+        k = num(b, k, c.map(|c| c.0));
+        b[k] = b',';
+        k = put(b, k + 1, c.map_or("", |c| c.1).as_bytes());
     }
-    num(line, d.map(|d| d.impingement_per_m2_s));
-    num(line, d.map(|d| d.monolayer_time_s));
-    line.push(b',');
-    line.extend_from_slice(d.map_or("", |d| d.range).as_bytes());
-    line.push(b'\n');
+    k = num(b, k, d.map(|d| d.impingement_per_m2_s));
+    k = num(b, k, d.map(|d| d.monolayer_time_s));
+    b[k] = b',';
+    k = put(b, k + 1, range);
+    b[k] = b'\n';
+    k + 1
 }
 
 /// A CSV cell: quoted when it holds a comma, a quote or a line break.
@@ -356,6 +414,111 @@ pub(crate) mod tests {
             "2026-11-16T06:00:00.100Z,\"cdg, \"\"main\"\"\",ok,9e4,2.16e25,7.333333333333333e-8,\
              1e-3,molecular,,,2.61e27,3.777777777777778e-9,high"
         );
+    }
+
+    /// A line as the format says it, pushed piece by piece: what
+    /// `lay_out` is tested against.
+    fn line_reference(r: &Record, gauge: &str, cells: &[LengthCells]) -> Vec<u8> {
+        let mut s = Vec::new();
+        crate::timefmt::push_rfc3339_bytes(&mut s, r.time);
+        s.push(b',');
+        s.extend_from_slice(gauge.as_bytes());
+        s.push(b',');
+        s.extend_from_slice(r.status.as_str().as_bytes());
+        let num = |s: &mut Vec<u8>, v: Option<f64>| {
+            s.push(b',');
+            if let Some(v) = v {
+                s.extend_from_slice(format!("{v:e}").as_bytes());
+            }
+        };
+        let d = r.derived.as_ref();
+        num(&mut s, r.pressure_pa);
+        num(&mut s, d.map(|d| d.number_density_per_m3));
+        num(&mut s, d.map(|d| d.mean_free_path_m));
+        for c in cells {
+            num(&mut s, c.map(|c| c.0));
+            s.push(b',');
+            s.extend_from_slice(c.map_or("", |c| c.1).as_bytes());
+        }
+        num(&mut s, d.map(|d| d.impingement_per_m2_s));
+        num(&mut s, d.map(|d| d.monolayer_time_s));
+        s.push(b',');
+        s.extend_from_slice(d.map_or("", |d| d.range).as_bytes());
+        s.push(b'\n');
+        s
+    }
+
+    /// Texts of every length around the fixed copies' sizes (0 to 40).
+    const TEXTS: [&str; 8] = [
+        "",
+        "high",
+        "molecular",
+        "transitional",
+        "extremely high vacuum",
+        "a range name of exactly 32 bytes",
+        "a range name of thirty-three b.",
+        "a very long name of forty bytes, at last",
+    ];
+
+    proptest::proptest! {
+        /// Lines laid out in place, one after another in one buffer that
+        /// starts short, read as the format's own layout: every number as
+        /// `{:e}` writes it (values whose shortest digits tie may differ
+        /// in a last digit: only values that read back the same are
+        /// drawn), texts of every length, no derived values, cells
+        /// missing, times of any year chrono holds.
+        #[test]
+        fn lines_laid_out_in_place_are_the_reference(
+            rows in proptest::collection::vec((
+                -8_000_000_000_000_000i64..8_000_000_000_000_000,
+                proptest::option::of(proptest::num::f64::ANY),
+                proptest::option::of((1e-12f64..1e30, 0usize..8)),
+                proptest::collection::vec(proptest::option::of((-1e300f64..1e300, 0usize..8)), 0..4),
+                0usize..8,
+                0usize..3,
+            ), 1..40),
+        ) {
+            let names = ["chamber", "", "a gauge whose name runs well over thirty-two bytes"];
+            let (mut line, mut times) = (Vec::new(), crate::timefmt::Rfc3339Writer::default());
+            let (mut at, mut want) = (0, Vec::new());
+            for (ms, p, derived, cells, status, name) in rows {
+                let Some(time) = DateTime::from_timestamp_millis(ms / 1_000) else {
+                    continue;
+                };
+                let r = Record {
+                    time,
+                    gauge: 0,
+                    status: [Status::Ok, Status::OverRange, Status::SensorError][status % 3],
+                    pressure_pa: p,
+                    derived: derived.map(|(v, t)| DerivedCells {
+                        number_density_per_m3: v * 2.4e20,
+                        mean_free_path_m: 6.6e-3 / v,
+                        impingement_per_m2_s: -v,
+                        monolayer_time_s: 1.0 / v,
+                        range: TEXTS[t],
+                    }),
+                };
+                let cells: Vec<LengthCells> = cells.into_iter().map(|c| c.map(|(v, t)| (v, TEXTS[t]))).collect();
+                // Numbers whose shortest digits tie are left out (the
+                // layout's last digit may then differ from `{:e}`'s).
+                let reads_back = |v: f64| v.is_nan() || format!("{v:e}").parse::<f64>() == Ok(v);
+                let mut all = vec![r.pressure_pa];
+                if let Some(d) = r.derived {
+                    all.extend([d.number_density_per_m3, d.mean_free_path_m, d.impingement_per_m2_s, d.monolayer_time_s].map(Some));
+                }
+                all.extend(cells.iter().map(|c| c.map(|c| c.0)));
+                let mut laid = Vec::new();
+                for v in all.into_iter().flatten() {
+                    rarefy_core::numfmt::push_exp_bytes(&mut laid, v);
+                    proptest::prop_assume!(reads_back(v));
+                    proptest::prop_assume!(laid == format!("{v:e}").as_bytes());
+                    laid.clear();
+                }
+                at = lay_out(&mut line, at, &mut times, &r, names[name], &cells);
+                want.extend(line_reference(&r, names[name], &cells));
+            }
+            proptest::prop_assert_eq!(String::from_utf8_lossy(&line[..at]), String::from_utf8_lossy(&want));
+        }
     }
 
     #[test]
