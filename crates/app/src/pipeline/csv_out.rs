@@ -521,6 +521,35 @@ pub(crate) mod tests {
         }
     }
 
+    /// A gauge name longer than a piece of the output: the buffer grows
+    /// to hold its lines, each written whole.
+    #[test]
+    fn a_name_longer_than_a_piece_is_written_whole() {
+        let name = "g".repeat(3 * PIECE / 2);
+        let shared = Shared::default();
+        let mut csv = CsvOut::new(Box::new(shared.clone()), &["bore".to_string()], false);
+        let gauge = csv.gauge(&name);
+        let t0: DateTime<Utc> = "2026-11-16T06:00:00Z".parse().expect("time");
+        let mut want = String::new();
+        for i in 0..3 {
+            let r = Record {
+                time: t0 + chrono::Duration::milliseconds(i * 100),
+                gauge,
+                status: Status::Ok,
+                pressure_pa: Some(1e-3),
+                derived: None,
+            };
+            let cells = [Some((2.5, "transitional"))];
+            want.push_str(&String::from_utf8_lossy(&line_reference(&r, &name, &cells)));
+            csv.push(r, cells.into_iter());
+        }
+        csv.finish().expect("written");
+        let text = shared.text();
+        let (header, rows) = text.split_once('\n').expect("a header");
+        assert!(header.starts_with("time,gauge,"), "{header}");
+        assert_eq!(rows, want);
+    }
+
     #[test]
     fn a_write_error_is_told_at_the_end_either_way() {
         for thread in [false, true] {
