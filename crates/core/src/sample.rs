@@ -471,6 +471,7 @@ pub fn same_id(a: &str, b: &str) -> bool {
         // Two words that overlap cover every byte.
         8..=16 => word::<8>(a, 0) == word::<8>(b, 0) && word::<8>(a, n - 8) == word::<8>(b, n - 8),
         4..=7 => word::<4>(a, 0) == word::<4>(b, 0) && word::<4>(a, n - 4) == word::<4>(b, n - 4),
+        0..=3 => a.iter().zip(b).all(|(x, y)| x == y),
         _ => a == b,
     }
 }
@@ -478,6 +479,22 @@ pub fn same_id(a: &str, b: &str) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    proptest::proptest! {
+        /// Ids compared word by word are compared as `==` compares them,
+        /// at every length around the words' sizes.
+        #[test]
+        fn same_id_is_equality(
+            a in "[ab]{0,20}",
+            b in "[ab]{0,20}",
+            c in "\\PC{0,20}",
+        ) {
+            proptest::prop_assert_eq!(same_id(&a, &b), a == b);
+            proptest::prop_assert!(same_id(&a, &a.clone()));
+            proptest::prop_assert!(same_id(&c, &c.clone()));
+            proptest::prop_assert_eq!(same_id(&a, &c), a == c);
+        }
+    }
 
     #[test]
     fn statuses_round_trip() {

@@ -936,7 +936,7 @@ fn put_sample(
     match samples.get_mut(at) {
         Some(s) => {
             s.time = time;
-            if !same_name(&s.channel, name) {
+            if !crate::sample::same_id(&s.channel, name) {
                 name.clone_into(&mut s.channel);
             }
             s.unit = unit;
@@ -948,28 +948,6 @@ fn put_sample(
             unit,
             reading,
         }),
-    }
-}
-
-/// Whether two names are the same: names of up to 16 bytes (most channel
-/// names) compared as a few words, not through a `memcmp` call.
-#[inline(always)]
-fn same_name(a: &str, b: &str) -> bool {
-    let (a, b) = (a.as_bytes(), b.as_bytes());
-    if a.len() != b.len() {
-        return false;
-    }
-    match a.len() {
-        8..=16 => {
-            a.first_chunk::<8>() == b.first_chunk::<8>()
-                && a.last_chunk::<8>() == b.last_chunk::<8>()
-        }
-        4..8 => {
-            a.first_chunk::<4>() == b.first_chunk::<4>()
-                && a.last_chunk::<4>() == b.last_chunk::<4>()
-        }
-        0..4 => a.iter().zip(b).all(|(x, y)| x == y),
-        _ => a == b,
     }
 }
 

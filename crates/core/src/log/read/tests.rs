@@ -1154,21 +1154,6 @@ fn rows_whole_in_the_buffer_are_read_in_place() {
     }
 }
 
-proptest! {
-    /// Names compared word by word are compared as `==` compares them.
-    #[test]
-    fn same_name_is_equality(
-        a in "[ab]{0,20}",
-        b in "[ab]{0,20}",
-        c in "\\PC{0,20}",
-    ) {
-        prop_assert_eq!(same_name(&a, &b), a == b);
-        prop_assert!(same_name(&a, &a.clone()));
-        prop_assert!(same_name(&c, &c.clone()));
-        prop_assert_eq!(same_name(&a, &c), a == c);
-    }
-}
-
 #[test]
 fn rows_read_in_the_buffer_end_where_their_lines_end() {
     // Each kind of last cell, with `\n` and `\r\n`, stray `\r`s, a row
