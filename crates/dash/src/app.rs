@@ -9,7 +9,7 @@ use chrono::{DateTime, Utc};
 use super::history::History;
 use crate::alarm::{Actor, AlarmState, Event, Monitor};
 use crate::engine::gauge::GaugeKind;
-use crate::sample::{ChannelUnit, SourceEvent, SourceState, Status};
+use crate::sample::{ChannelUnit, SourceEvent, SourceState, Status, same_id};
 use crate::units::{PressureUnit, TemperatureUnit, UnitKind};
 use rarefy_app::pipeline::{Item, Operation, Pipeline, Sink};
 
@@ -467,7 +467,7 @@ impl Sink for View<'_> {
                 self.counters.rows += 1;
                 self.counters.samples += samples.len() as u64;
                 for s in samples {
-                    if !self.gauges.iter().any(|g| g.id == s.channel) {
+                    if !self.gauges.iter().any(|g| same_id(&g.id, &s.channel)) {
                         self.gauges.push(GaugeInfo {
                             id: s.channel.clone(),
                             label: s.channel.clone(),

@@ -42,13 +42,59 @@ pub struct Series {
 
 impl Series {
     /// Adds a value at time `t` (seconds on the history's own origin).
+    ///
+    /// Every level's last bucket takes every value pushed since it began,
+    /// and a coarser level's last bucket began no later than a finer
+    /// one's (a new bucket on a level means a new one on every finer
+    /// level): so it holds the finer bucket's range. A value strictly
+    /// inside a level's last bucket of its own index is inside every
+    /// coarser one's too, and the levels above it are not touched (most
+    /// readings of a steady gauge stop at the 1 s or 8 s level). The
+    /// result is that of updating every level ([`Series::push_everywhere`],
+    /// property-tested).
     pub fn push(&mut self, t: f64, v: f64) {
         if !v.is_finite() || !t.is_finite() {
             return;
         }
         self.samples += 1;
-        // The widths are 2^(3l) s, so a level's index is the 1 s one's
-        // divided, rounding down (a shift): exactly floor(t / width).
+        let second = floor_i64(t);
+        for ((l, level), started) in self.levels.iter_mut().enumerate().zip(&mut self.started) {
+            let index = second >> (3 * l);
+            match level.back_mut() {
+                Some(b) if b.index == index => {
+                    if b.min < v && v < b.max {
+                        return;
+                    }
+                    b.min = b.min.min(v);
+                    b.max = b.max.max(v);
+                    continue;
+                }
+                // A clock jump backwards: start again from here on this
+                // level rather than mixing the order.
+                Some(b) if b.index > index => level.clear(),
+                _ => {
+                    if level.len() == CAPACITY {
+                        level.pop_front();
+                    }
+                }
+            }
+            level.push_back(Bucket {
+                index,
+                min: v,
+                max: v,
+            });
+            *started += 1;
+        }
+    }
+
+    /// [`Series::push`] updating every level, the way it was first
+    /// written: what it is tested against.
+    #[cfg(test)]
+    fn push_everywhere(&mut self, t: f64, v: f64) {
+        if !v.is_finite() || !t.is_finite() {
+            return;
+        }
+        self.samples += 1;
         let second = t.floor() as i64;
         for ((l, level), started) in self.levels.iter_mut().enumerate().zip(&mut self.started) {
             let index = second >> (3 * l);
@@ -58,8 +104,6 @@ impl Series {
                     b.max = b.max.max(v);
                     continue;
                 }
-                // A clock jump backwards: start again from here on this
-                // level rather than mixing the order.
                 Some(b) if b.index > index => level.clear(),
                 _ => {
                     if level.len() == CAPACITY {
@@ -129,6 +173,20 @@ impl Series {
     /// Buckets in memory, all levels.
     pub fn buckets(&self) -> usize {
         self.levels.iter().map(VecDeque::len).sum()
+    }
+}
+
+/// `t.floor() as i64` for a finite `t` without a call into the C
+/// library (x86-64's baseline has no rounding instruction): the cast
+/// truncates toward zero and saturates, and a negative `t` with a fraction
+/// is one below its truncation.
+#[inline]
+fn floor_i64(t: f64) -> i64 {
+    let s = t as i64;
+    if (s as f64) > t {
+        s.saturating_sub(1)
+    } else {
+        s
     }
 }
 
@@ -268,6 +326,85 @@ mod tests {
                     (t / width).floor() as i64,
                     "{t} {width}"
                 );
+            }
+        }
+    }
+
+    #[test]
+    fn floor_is_the_library_floor() {
+        let mut x: u64 = 11;
+        let mut ts = vec![
+            0.0,
+            -0.0,
+            0.5,
+            -0.5,
+            -1.0,
+            -1.5,
+            1e-300,
+            -1e-300,
+            f64::MIN_POSITIVE,
+            -4.9e-324,
+            9.2e18,
+            9.3e18,
+            -9.2e18,
+            -9.3e18,
+            i64::MIN as f64,
+            i64::MAX as f64,
+            f64::MAX,
+            f64::MIN,
+            4503599627370495.5,
+            -4503599627370495.5,
+        ];
+        for _ in 0..100_000 {
+            x = x
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            ts.push(f64::from_bits(x));
+            ts.push(((x >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 1e7);
+        }
+        for t in ts.into_iter().filter(|t| t.is_finite()) {
+            assert_eq!(floor_i64(t), t.floor() as i64, "{t:e}");
+        }
+    }
+
+    /// Pushes that stop at the first level whose bucket holds the value
+    /// leave the series as pushing on every level does: steady noise,
+    /// equal and signed-zero values, clock jumps back and forward, rings
+    /// that wrap.
+    #[test]
+    fn stopping_early_is_pushing_everywhere() {
+        let mut x: u64 = 5;
+        let mut next = || {
+            x = x
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            (x >> 11) as f64 / (1u64 << 53) as f64
+        };
+        for run in 0..40 {
+            let (mut fast, mut every) = (Series::default(), Series::default());
+            let mut t = (next() - 0.5) * 1e4;
+            for i in 0..6_000 {
+                t += match (run + i) % 97 {
+                    0 => -(next() * 3_000.0),
+                    1 => next() * 20_000.0,
+                    _ => 0.1 * next() * f64::from(run % 4),
+                };
+                let v = match run % 5 {
+                    0 => 1e-6 * (1.0 + 0.01 * (next() - 0.5)),
+                    1 => [0.0, -0.0, 1.0][(next() * 3.0) as usize % 3],
+                    2 => (t / 60.0).sin(),
+                    3 => (next() * 4.0).floor(),
+                    _ => next() * 1e-3,
+                };
+                fast.push(t, v);
+                every.push_everywhere(t, v);
+                if i % 500 == 0 {
+                    assert_eq!(fast, every, "run {run}, push {i}");
+                }
+            }
+            assert_eq!(fast, every, "run {run}");
+            for l in 0..LEVELS.len() {
+                assert_eq!(fast.started(l), every.started(l));
             }
         }
     }
