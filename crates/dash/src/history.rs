@@ -50,9 +50,15 @@ impl Series {
     /// inside a level's last bucket of its own index is inside every
     /// coarser one's too, and the levels above it are not touched (most
     /// readings of a steady gauge stop at the 1 s or 8 s level). The
-    /// result is that of updating every level ([`Series::push_everywhere`],
-    /// property-tested).
+    /// result is that of updating every level (property-tested).
     pub fn push(&mut self, t: f64, v: f64) {
+        self.push_levels::<true>(t, v);
+    }
+
+    /// [`Series::push`], stopping at a level whose bucket strictly holds
+    /// the value when `STOP`, else updating every level.
+    #[inline]
+    fn push_levels<const STOP: bool>(&mut self, t: f64, v: f64) {
         if !v.is_finite() || !t.is_finite() {
             return;
         }
@@ -62,7 +68,7 @@ impl Series {
             let index = second >> (3 * l);
             match level.back_mut() {
                 Some(b) if b.index == index => {
-                    if b.min < v && v < b.max {
+                    if STOP && b.min < v && v < b.max {
                         return;
                     }
                     b.min = b.min.min(v);
@@ -71,39 +77,6 @@ impl Series {
                 }
                 // A clock jump backwards: start again from here on this
                 // level rather than mixing the order.
-                Some(b) if b.index > index => level.clear(),
-                _ => {
-                    if level.len() == CAPACITY {
-                        level.pop_front();
-                    }
-                }
-            }
-            level.push_back(Bucket {
-                index,
-                min: v,
-                max: v,
-            });
-            *started += 1;
-        }
-    }
-
-    /// [`Series::push`] updating every level, the way it was first
-    /// written: what it is tested against.
-    #[cfg(test)]
-    fn push_everywhere(&mut self, t: f64, v: f64) {
-        if !v.is_finite() || !t.is_finite() {
-            return;
-        }
-        self.samples += 1;
-        let second = t.floor() as i64;
-        for ((l, level), started) in self.levels.iter_mut().enumerate().zip(&mut self.started) {
-            let index = second >> (3 * l);
-            match level.back_mut() {
-                Some(b) if b.index == index => {
-                    b.min = b.min.min(v);
-                    b.max = b.max.max(v);
-                    continue;
-                }
                 Some(b) if b.index > index => level.clear(),
                 _ => {
                     if level.len() == CAPACITY {
@@ -397,7 +370,7 @@ mod tests {
                     _ => next() * 1e-3,
                 };
                 fast.push(t, v);
-                every.push_everywhere(t, v);
+                every.push_levels::<false>(t, v);
                 if i % 500 == 0 {
                     assert_eq!(fast, every, "run {run}, push {i}");
                 }
