@@ -448,15 +448,19 @@ pub(crate) mod tests {
         s
     }
 
-    /// Texts of every length around the fixed copies' sizes (0 to 40).
-    const TEXTS: [&str; 8] = [
+    /// Texts of every length around the fixed copies' sizes: 0, 4, 7, 8,
+    /// 15, 16, 17, 21, 32, 33 and 40 bytes.
+    const TEXTS: [&str; 11] = [
         "",
         "high",
-        "molecular",
-        "transitional",
+        "vacuum!",
+        "molecule",
+        "fifteen letters",
+        "sixteen letters!",
+        "seventeen letters",
         "extremely high vacuum",
         "a range name of exactly 32 bytes",
-        "a range name of thirty-three b.",
+        "a range name of exactly 33 bytes.",
         "a very long name of forty bytes, at last",
     ];
 
@@ -472,23 +476,23 @@ pub(crate) mod tests {
             rows in proptest::collection::vec((
                 -8_000_000_000_000_000i64..8_000_000_000_000_000,
                 proptest::option::of(proptest::num::f64::ANY),
-                proptest::option::of((1e-12f64..1e30, 0usize..8)),
-                proptest::collection::vec(proptest::option::of((-1e300f64..1e300, 0usize..8)), 0..4),
-                0usize..8,
+                proptest::option::of((1e-12f64..1e30, 0usize..TEXTS.len())),
+                proptest::collection::vec(proptest::option::of((-1e300f64..1e300, 0usize..TEXTS.len())), 0..4),
+                0usize..3,
                 0usize..3,
             ), 1..40),
         ) {
             let names = ["chamber", "", "a gauge whose name runs well over thirty-two bytes"];
             let (mut line, mut times) = (Vec::new(), crate::timefmt::Rfc3339Writer::default());
             let (mut at, mut want) = (0, Vec::new());
-            for (ms, p, derived, cells, status, name) in rows {
-                let Some(time) = DateTime::from_timestamp_millis(ms / 1_000) else {
+            for (micros, p, derived, cells, status, name) in rows {
+                let Some(time) = DateTime::from_timestamp_millis(micros / 1_000) else {
                     continue;
                 };
                 let r = Record {
                     time,
                     gauge: 0,
-                    status: [Status::Ok, Status::OverRange, Status::SensorError][status % 3],
+                    status: [Status::Ok, Status::OverRange, Status::SensorError][status],
                     pressure_pa: p,
                     derived: derived.map(|(v, t)| DerivedCells {
                         number_density_per_m3: v * 2.4e20,
