@@ -18,8 +18,9 @@
 //!   again) and with one that is new at every row (worked out again every
 //!   row), for N2 and for the three-gas mixture;
 //! * `numfmt`: one number of a CSV report's row written with the shortest
-//!   digits in exponent form (`numfmt::push_exp_bytes`), against zmij's
-//!   own text alone (the floor: `push_exp_bytes` lays it out again) and
+//!   digits in exponent form (`numfmt::push_exp_bytes`; `lay_exp_at`, in
+//!   place, as the CSV writer does), against zmij's own text alone (the
+//!   floor: both lay it out again) and
 //!   std's `{:e}`, written into the same buffer; the numbers are what a row holds
 //!   (pressure, number density, mean free path, Knudsen number,
 //!   impingement rate, monolayer time) over a pump-down from 1e5 to 1e-8 Pa.
@@ -515,6 +516,24 @@ fn numfmt(c: &mut Criterion) {
                 out.push(b',');
             }
             black_box(out.len())
+        })
+    });
+    // The CSV writer's way: laid out in place in a buffer kept at its
+    // length, with room for the layout's fixed-size copies after the last.
+    let mut line = vec![
+        0u8;
+        values.len() * (rarefy_core::numfmt::EXP_MOST + 1)
+            + rarefy_core::numfmt::LAY_ROOM
+    ];
+    g.bench_function("lay_exp_at", |b| {
+        b.iter(|| {
+            let mut k = 0;
+            for &v in &values {
+                k = rarefy_core::numfmt::lay_exp_at(&mut line, k, black_box(v));
+                line[k] = b',';
+                k += 1;
+            }
+            black_box(k)
         })
     });
     g.bench_function("zmij alone", |b| {
