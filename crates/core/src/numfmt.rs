@@ -85,7 +85,7 @@ fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
     let body = &text[usize::from(negative)..];
     let len = body.len().min(MOST);
     let mut t = [0u8; ROOM];
-    copy_short(&mut t, &body[..len]);
+    put_bytes(&mut t, 0, &body[..len]);
     let mut k = usize::from(negative);
     laid[0] = b'-';
     // The exponent, when there is one, is `e±d` to `e±ddd` at the end.
@@ -159,22 +159,32 @@ fn lay_exp_len(v: f64, laid: &mut [u8; ROOM]) -> usize {
     put_exponent(laid, k, false, dot.saturating_sub(1) as u32)
 }
 
-/// Copies `src` (at most 32 bytes) to the start of `dst` in copies of a
-/// fixed size, overlapping where `src` is shorter than two of them.
+/// Copies `src` to `dst[at..]` and returns the index after it. A text of
+/// up to 32 bytes (a number's, a channel's or a regime's name) goes in
+/// copies of a fixed size, overlapping where it is shorter than two of
+/// them: moves, not a call into `memcpy`. Used by the number layout and by
+/// the report's CSV writer.
+///
+/// # Panics
+/// When `dst` is shorter than `at + src.len()`.
 #[inline(always)]
-fn copy_short(dst: &mut [u8; ROOM], src: &[u8]) {
+pub fn put_bytes(dst: &mut [u8], at: usize, src: &[u8]) -> usize {
     let n = src.len();
-    if n >= 16 {
-        dst[..16].copy_from_slice(&src[..16]);
-        dst[n - 16..n].copy_from_slice(&src[n - 16..n]);
-    } else if n >= 8 {
-        dst[..8].copy_from_slice(&src[..8]);
-        dst[n - 8..n].copy_from_slice(&src[n - 8..n]);
-    } else {
-        for (d, s) in dst.iter_mut().zip(src) {
+    let d = &mut dst[at..at + n];
+    if (16..=32).contains(&n) {
+        d[..16].copy_from_slice(&src[..16]);
+        d[n - 16..].copy_from_slice(&src[n - 16..]);
+    } else if (8..16).contains(&n) {
+        d[..8].copy_from_slice(&src[..8]);
+        d[n - 8..].copy_from_slice(&src[n - 8..]);
+    } else if n < 8 {
+        for (d, s) in d.iter_mut().zip(src) {
             *d = *s;
         }
+    } else {
+        d.copy_from_slice(src);
     }
+    at + n
 }
 
 /// inf, -inf and NaN as std writes them, in `laid`; `None` for a finite
@@ -350,12 +360,15 @@ mod tests {
 
     #[test]
     fn short_copies_copy_every_length() {
-        let src: Vec<u8> = (1..=32).collect();
-        for n in 0..=32 {
-            let mut dst = [0u8; ROOM];
-            copy_short(&mut dst, &src[..n]);
-            assert_eq!(dst[..n], src[..n], "{n}");
-            assert!(dst[n..].iter().all(|&b| b == 0), "{n}: beyond");
+        let src: Vec<u8> = (1..=48).collect();
+        for at in [0, 3] {
+            for n in 0..=48 {
+                let mut dst = [0u8; ROOM];
+                assert_eq!(put_bytes(&mut dst, at, &src[..n]), at + n);
+                assert_eq!(dst[at..at + n], src[..n], "{n}");
+                assert!(dst[..at].iter().all(|&b| b == 0), "{n}: before");
+                assert!(dst[at + n..].iter().all(|&b| b == 0), "{n}: beyond");
+            }
         }
     }
 

@@ -223,7 +223,7 @@ pub fn push_rfc3339(out: &mut String, t: DateTime<Utc>) {
     match rfc3339_millis(t) {
         // Every byte is ASCII.
         Some(buf) => out.push_str(std::str::from_utf8(&buf).unwrap_or_default()),
-        None => out.push_str(&t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true)),
+        None => out.push_str(&chrono_text(t)),
     }
 }
 
@@ -231,11 +231,14 @@ pub fn push_rfc3339(out: &mut String, t: DateTime<Utc>) {
 pub fn push_rfc3339_bytes(out: &mut Vec<u8>, t: DateTime<Utc>) {
     match rfc3339_millis(t) {
         Some(buf) => out.extend_from_slice(&buf),
-        None => out.extend_from_slice(
-            t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
-                .as_bytes(),
-        ),
+        None => out.extend_from_slice(chrono_text(t).as_bytes()),
     }
+}
+
+/// `t` as chrono writes it with milliseconds and `Z`: for the years
+/// [`rfc3339_millis`] cannot hold.
+fn chrono_text(t: DateTime<Utc>) -> String {
+    t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
 }
 
 /// `t` as `YYYY-MM-DDTHH:MM:SS.mmmZ`; `None` for years RFC 3339 cannot
@@ -313,7 +316,7 @@ impl Rfc3339Writer {
                 at + 24
             }
             None => {
-                let text = t.to_rfc3339_opts(chrono::SecondsFormat::Millis, true);
+                let text = chrono_text(t);
                 out[at..at + text.len()].copy_from_slice(text.as_bytes());
                 at + text.len()
             }

@@ -14,6 +14,7 @@ use chrono::{DateTime, Utc};
 
 use super::worker::Worker;
 use crate::sample::Status;
+use rarefy_core::numfmt::put_bytes;
 
 /// Rows per hand-over to the writer thread.
 const BATCH_ROWS: usize = 1024;
@@ -106,7 +107,7 @@ impl Writer {
             self.header_written = true;
             let header = self.header.as_bytes();
             room(&mut self.line, header.len());
-            used = put(&mut self.line, 0, header);
+            used = put_bytes(&mut self.line, 0, header);
         }
         for (i, r) in batch.records.iter().enumerate() {
             let cells = batch
@@ -140,29 +141,6 @@ fn room(line: &mut Vec<u8>, n: usize) {
     if line.len() < n {
         line.resize(n, 0);
     }
-}
-
-/// Copies `s` to `b[k..]`; returns the index after it. A text of up to 32
-/// bytes goes in copies of a fixed size (moves, not a call), overlapping
-/// where it is shorter than two of them.
-#[inline(always)]
-fn put(b: &mut [u8], k: usize, s: &[u8]) -> usize {
-    let n = s.len();
-    let dst = &mut b[k..k + n];
-    if (16..=32).contains(&n) {
-        dst[..16].copy_from_slice(&s[..16]);
-        dst[n - 16..].copy_from_slice(&s[n - 16..]);
-    } else if (8..16).contains(&n) {
-        dst[..8].copy_from_slice(&s[..8]);
-        dst[n - 8..].copy_from_slice(&s[n - 8..]);
-    } else if n < 8 {
-        for (d, c) in dst.iter_mut().zip(s) {
-            *d = *c;
-        }
-    } else {
-        dst.copy_from_slice(s);
-    }
-    k + n
 }
 
 /// Lays out one CSV line at `line[at..]` (lengthening `line` first if it
@@ -208,21 +186,21 @@ fn lay_out(
     };
     let mut k = times.lay_at(b, at, r.time);
     b[k] = b',';
-    k = put(b, k + 1, gauge.as_bytes());
+    k = put_bytes(b, k + 1, gauge.as_bytes());
     b[k] = b',';
-    k = put(b, k + 1, status);
+    k = put_bytes(b, k + 1, status);
     k = num(b, k, r.pressure_pa);
     k = num(b, k, d.map(|d| d.number_density_per_m3));
     k = num(b, k, d.map(|d| d.mean_free_path_m));
     for c in cells {
         k = num(b, k, c.map(|c| c.0));
         b[k] = b',';
-        k = put(b, k + 1, c.map_or("", |c| c.1).as_bytes());
+        k = put_bytes(b, k + 1, c.map_or("", |c| c.1).as_bytes());
     }
     k = num(b, k, d.map(|d| d.impingement_per_m2_s));
     k = num(b, k, d.map(|d| d.monolayer_time_s));
     b[k] = b',';
-    k = put(b, k + 1, range);
+    k = put_bytes(b, k + 1, range);
     b[k] = b'\n';
     k + 1
 }

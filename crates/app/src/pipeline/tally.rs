@@ -172,6 +172,13 @@ impl Packed {
     fn exposure_langmuir(&self) -> Option<f64> {
         (self.has & Packed::EXPOSURE != 0).then_some(self.exposure_langmuir)
     }
+
+    /// How many per-length results follow it in the batch; `None`: the
+    /// same as the gauge's reading before.
+    #[inline]
+    fn lengths(&self) -> Option<usize> {
+        (self.lengths != Packed::AS_BEFORE).then_some(self.lengths as usize)
+    }
 }
 
 /// What the tally is given, in order.
@@ -264,10 +271,9 @@ impl Tally {
                         regimes: lengths,
                         exposure_langmuir: r.exposure_langmuir(),
                     };
-                    if r.lengths == Packed::AS_BEFORE {
-                        g.add_as_before(obs);
-                    } else {
-                        g.add(obs);
+                    match r.lengths() {
+                        Some(_) => g.add(obs),
+                        None => g.add_as_before(obs),
                     }
                 }
             }
@@ -305,7 +311,7 @@ impl Batch {
         let mut at = 0;
         for m in &mut self.msgs {
             let n = match m {
-                Msg::Reading(r) if r.lengths != Packed::AS_BEFORE => r.lengths as usize,
+                Msg::Reading(r) => r.lengths().unwrap_or(0),
                 _ => 0,
             };
             let end = (at + n).min(self.used);
@@ -416,8 +422,7 @@ mod tests {
                 (p.gauge, p.time, p.status, p.range, p.element),
                 (3, time, r.status, r.range, r.element)
             );
-            let back = (p.lengths != Packed::AS_BEFORE).then_some(p.lengths as usize);
-            assert_eq!(back, lengths);
+            assert_eq!(p.lengths(), lengths);
         }
         // What it is for: less memory between the cores than a `Counted`.
         assert!(std::mem::size_of::<Packed>() <= 40);
