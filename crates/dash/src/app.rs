@@ -481,8 +481,18 @@ impl Sink for View<'_> {
                         .first()
                         .map_or(DateTime::<Utc>::UNIX_EPOCH, |s| s.time)
                 });
+                // A row's samples mostly share its time: its seconds are
+                // worked out once.
+                let mut last: Option<(DateTime<Utc>, f64)> = None;
                 for s in samples {
-                    let t = rarefy_core::timefmt::seconds_between(origin, s.time);
+                    let t = match last {
+                        Some((time, t)) if time == s.time => t,
+                        _ => {
+                            let t = rarefy_core::timefmt::seconds_between(origin, s.time);
+                            last = Some((s.time, t));
+                            t
+                        }
+                    };
                     let v = match (s.status(), monitor.track(&s.channel)) {
                         (Status::Ok, Some(track)) if s.unit.is_pressure() => track.pressure_pa,
                         (Status::Ok, Some(track)) => track.temperature_k,

@@ -5,6 +5,8 @@
 
 use std::collections::{BTreeMap, VecDeque};
 
+use crate::sample::same_id;
+
 /// Bucket widths of the levels, s: 8^l (the index of a bucket on a level
 /// is that of its 1 s bucket divided by the width).
 pub const LEVELS: [f64; 4] = [1.0, 8.0, 64.0, 512.0];
@@ -164,44 +166,70 @@ fn floor_i64(t: f64) -> i64 {
 }
 
 /// The history of every channel.
-#[derive(Debug, Clone, Default, PartialEq)]
+#[derive(Debug, Clone, Default)]
 pub struct History {
-    series: BTreeMap<String, Series>,
+    /// Every channel's series, sorted by id.
+    series: Vec<(String, Series)>,
+    /// Where [`History::push`] looks first: the entry after the one it
+    /// found last. Rows name their channels in the same order each time, so
+    /// this is nearly always the one (a lookup by name otherwise).
+    next: usize,
+}
+
+/// Two histories are equal when their series are: where the next lookup
+/// starts is no part of what they hold.
+impl PartialEq for History {
+    fn eq(&self, other: &Self) -> bool {
+        self.series == other.series
+    }
 }
 
 impl History {
     /// Adds a value of channel `id` at `t` s.
     pub fn push(&mut self, id: &str, t: f64, v: f64) {
-        if let Some(s) = self.series.get_mut(id) {
-            s.push(t, v);
-        } else {
-            let mut s = Series::default();
-            s.push(t, v);
-            self.series.insert(id.to_string(), s);
-        }
+        let i = match self.series.get(self.next) {
+            Some((k, _)) if same_id(k, id) => self.next,
+            _ => match self.find(id) {
+                Ok(i) => i,
+                Err(i) => {
+                    self.series.insert(i, (id.to_string(), Series::default()));
+                    i
+                }
+            },
+        };
+        self.series[i].1.push(t, v);
+        self.next = if i + 1 < self.series.len() { i + 1 } else { 0 };
+    }
+
+    /// Where `id` is, or where it would go.
+    fn find(&self, id: &str) -> Result<usize, usize> {
+        self.series.binary_search_by(|(k, _)| k.as_str().cmp(id))
     }
 
     /// A channel's history.
     pub fn get(&self, id: &str) -> Option<&Series> {
-        self.series.get(id)
+        self.find(id).ok().map(|i| &self.series[i].1)
     }
 
     /// Every channel's history, by id.
     pub fn series(&self) -> impl Iterator<Item = (&String, &Series)> {
-        self.series.iter()
+        self.series.iter().map(|(id, s)| (id, s))
     }
 
     /// A history of these series.
     pub(crate) fn from_series(series: BTreeMap<String, Series>) -> Self {
-        History { series }
+        History {
+            series: series.into_iter().collect(),
+            next: 0,
+        }
     }
 
     /// Samples folded into buckets that already held one (shown as
     /// "decimated" on the status line).
     pub fn decimated(&self) -> u64 {
         self.series
-            .values()
-            .map(|s| s.samples.saturating_sub(s.levels[0].len() as u64))
+            .iter()
+            .map(|(_, s)| s.samples.saturating_sub(s.levels[0].len() as u64))
             .sum()
     }
 }
@@ -209,6 +237,35 @@ impl History {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        /// The history found by its lookup hint is the one a map by name
+        /// gives: channels in a fixed order, in any order, new ones coming
+        /// late, and names that share their start.
+        #[test]
+        fn the_lookup_hint_finds_what_the_name_does(
+            pushes in proptest::collection::vec((0usize..6, 0u8..3, -5.0f64..5.0), 0..400),
+            fixed in any::<bool>(),
+        ) {
+            const IDS: [&str; 6] = ["wall", "a", "chamber", "chamber2", "ch", "z"];
+            let mut history = History::default();
+            let mut by_name: BTreeMap<String, Series> = BTreeMap::new();
+            for (n, &(k, dt, v)) in pushes.iter().enumerate() {
+                // In the fixed case, every row names its channels in turn.
+                let id = if fixed { IDS[n % IDS.len()] } else { IDS[k] };
+                let t = n as f64 * 0.5 + f64::from(dt);
+                history.push(id, t, v);
+                by_name.entry(id.to_string()).or_default().push(t, v);
+            }
+            for id in IDS {
+                prop_assert_eq!(history.get(id), by_name.get(id));
+            }
+            let ids: Vec<&String> = history.series().map(|(id, _)| id).collect();
+            prop_assert_eq!(ids, by_name.keys().collect::<Vec<_>>());
+            prop_assert_eq!(&history, &History::from_series(by_name));
+        }
+    }
 
     #[test]
     fn spikes_survive_decimation() {

@@ -79,9 +79,15 @@ pub struct Rows {
     /// An index pass on a machine with two cores: the rows read on a
     /// second thread (the `log` above is then only the reader's model).
     ahead: Option<Ahead>,
-    next: Option<Row>,
+    /// The next row (boxed, as the rows given back: a row changes hands
+    /// by a pointer, not by a copy of it).
+    next: Option<Box<Row>>,
     /// Rows given back, to be read into again.
-    spare: Vec<Row>,
+    #[allow(
+        clippy::vec_box,
+        reason = "the rows go out and come back as boxes: kept boxed, they move by pointer"
+    )]
+    spare: Vec<Box<Row>>,
     bad: u64,
     taken: u64,
     /// While indexing: the span of the rows taken, where the reading stood
@@ -212,7 +218,7 @@ impl Rows {
                     self.bad += 1;
                     // A row with a bad cell keeps its other readings.
                     if let Some(r) = e.row {
-                        self.next = Some(*r);
+                        self.next = Some(r);
                         return;
                     }
                 }
@@ -222,7 +228,7 @@ impl Rows {
 
     /// Takes back a row [`Rows::next_until`] gave, to read into again
     /// (no allocation per row).
-    pub fn give_back(&mut self, row: Row) {
+    pub fn give_back(&mut self, row: Box<Row>) {
         if self.spare.len() < 64 {
             self.spare.push(row);
         }
@@ -234,7 +240,7 @@ impl Rows {
     }
 
     /// The next row, if it is not after `until`.
-    pub fn next_until(&mut self, until: Option<DateTime<Utc>>) -> Option<Row> {
+    pub fn next_until(&mut self, until: Option<DateTime<Utc>>) -> Option<Box<Row>> {
         if until.is_some_and(|u| self.next_time().is_some_and(|t| t > u)) {
             return None;
         }
