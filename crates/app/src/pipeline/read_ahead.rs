@@ -108,7 +108,10 @@ pub struct Ahead {
     /// shape.
     slot: Slot,
     shaped: bool,
-    /// With positions: the reader's position after the last item taken.
+    /// With positions: the reader's position before the first item of
+    /// `batch` (after the last one of the batch before). After an item of
+    /// `batch` it is that item's, read where it is when asked, not copied
+    /// at every row.
     position: Option<ReadPosition>,
     /// The reading has ended.
     done: bool,
@@ -325,6 +328,9 @@ impl Ahead {
             // A batch the reader could not send (it stopped) reads as the end.
             let next = self.full.recv().unwrap_or_default();
             let used = std::mem::replace(&mut self.batch, next);
+            if let (Some(mine), Some(p)) = (self.position.as_mut(), used.positions.last()) {
+                mine.clone_from(p);
+            }
             let _ = self.empty.send(used);
             self.at = 0;
             self.taken = Taken::default();
@@ -333,9 +339,6 @@ impl Ahead {
             self.done = true;
             return None;
         };
-        if let (Some(mine), Some(p)) = (self.position.as_mut(), self.batch.positions.get(self.at)) {
-            mine.clone_from(p);
-        }
         self.at += 1;
         Some(kind)
     }
@@ -429,7 +432,11 @@ impl Ahead {
     /// With positions: where the reader stood after the last row taken
     /// (what [`LogSource::read_position`] would say there).
     pub fn position(&self) -> Option<&ReadPosition> {
-        self.position.as_ref()
+        let before = self.position.as_ref()?;
+        Some(match self.at.checked_sub(1) {
+            Some(last) => self.batch.positions.get(last).unwrap_or(before),
+            None => before,
+        })
     }
 
     /// Stops reading and gives the log back (its counters are those of
@@ -553,6 +560,7 @@ mod tests {
         let mut here = log(&text);
         let mut ahead = Ahead::start(log(&text), 7, true).unwrap_or_else(|_| panic!("thread"));
         let mut row = Row::default();
+        assert_eq!(ahead.position(), Some(&here.read_position()));
         for _ in 0..100 {
             let mut mine = Row::default();
             let a = ahead.next_into(&mut row).map(|r| r.is_ok());
@@ -562,6 +570,20 @@ mod tests {
         }
         let back = ahead.finish();
         assert_eq!(back.header_line(), Some(2));
+        // To the end and past it, a batch ending at the last row and one
+        // after it.
+        for rows in [13, 14, 20] {
+            let text = sample_log(rows);
+            let mut here = log(&text);
+            let mut ahead = Ahead::start(log(&text), 7, true).unwrap_or_else(|_| panic!("thread"));
+            for _ in 0..rows + 3 {
+                let mut mine = Row::default();
+                let a = ahead.next_into(&mut row).map(|r| r.is_ok());
+                let b = here.next_row_into(&mut mine).map(|r| r.is_ok());
+                assert_eq!(a, b, "{rows} rows");
+                assert_eq!(ahead.position(), Some(&here.read_position()), "{rows} rows");
+            }
+        }
         let mut dropped = Ahead::start(log(&text), 3, false).unwrap_or_else(|_| panic!("thread"));
         assert!(dropped.next_into(&mut row).is_some());
         assert_eq!(dropped.position(), None);
